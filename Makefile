@@ -1,0 +1,34 @@
+# Everything a newcomer needs: `make serve` and `make test` set up their own venv.
+PYTHON ?= python3
+VENV   ?= .venv
+BIN     = $(VENV)/bin
+DECK   ?= service/etchguard/data/lumen-6m.toml
+NETS   ?= service/etchguard/data/lumen-demo-nets.json
+
+.PHONY: venv proto serve test check bench clean
+
+$(BIN)/etchguard: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+	$(BIN)/pip install --quiet -e '.[test,report]'
+	touch $@
+
+venv: $(BIN)/etchguard
+
+proto: venv
+	$(BIN)/python -m etchguard._protogen
+
+serve: venv
+	$(BIN)/etchguard serve --rules $(DECK)
+
+check: venv
+	$(BIN)/etchguard check --rules $(DECK) $(NETS)
+
+test: venv
+	$(BIN)/python -m pytest
+
+bench: venv
+	$(BIN)/python -m bench
+
+clean:
+	rm -rf $(VENV) build *.egg-info service/*.egg-info .pytest_cache

@@ -1,0 +1,26 @@
+"""etchguard: process-antenna ratios for routers, while they route.
+
+The public face of the package; the modules behind it are private rooms, one per
+concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
+"""
+
+from ._engine import Engine, Limits
+from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
+                      LimitExceededError, NoDeckError, NotFoundError)
+from ._geometry import Rect, run_rect, union_measures
+from ._nets import (NetSpec, Pin, Shape, load_net_file, make_pin, make_shape, parse_net_file,
+                    resolve_layer, run_shapes, via_shapes)
+from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
+from ._rules import Deck, Layer, Rule, load_deck, loads_deck, parse_deck
+from ._whatif import CostModel
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "AlreadyExistsError", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
+    "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
+    "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",
+    "Rule", "Score", "Shape", "load_deck", "load_net_file", "loads_deck", "make_pin",
+    "make_shape", "parse_deck", "parse_net_file", "resolve_layer", "run_rect", "run_shapes",
+    "union_measures", "via_shapes", "__version__",
+]

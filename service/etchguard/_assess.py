@@ -1,0 +1,138 @@
+"""Evaluate a net's state against the deck: per-gate cumulative sums and every check.
+
+An ``Assessment`` is computed once per state version and reused by every what-if
+question until the net changes; it holds, per gate pin and (measure, oxide) group,
+the cumulative ratio at every step, and per step the components ranked by their
+worst utilization (so a what-if can find the worst component it did not touch).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ._netstate import Comp, NetState
+from ._ratios import CUMULATIVE, PARTIAL, StepModel, is_legal, utilization
+from ._reports import CheckResult, NetReport
+
+CarTable = dict[tuple[int, int], list[float]]
+
+
+@dataclass
+class Entry:
+    """One check on one component: the values a report or a what-if needs."""
+
+    step: int
+    measure: str
+    kind: str
+    oxide: str
+    ratio: float
+    limit: float
+    utilization: float
+    gate: int  # pin index
+    conductor: float  # A of the measure on the step's layer
+    spent: float  # the rest of the cumulative sum (0 for partial)
+    gate_um2: float  # G of the component
+    diff_um2: float  # D of the component
+
+
+def comp_entries(model: StepModel, step: int, comp: Comp, car_at: dict[tuple[int, int], float],
+                 pins_ox: list[dict[str, float]]) -> list[Entry]:
+    """Every check of ``comp`` at ``step``; ``car_at`` gives (pin, group) -> CAR at step."""
+    out: list[Entry] = []
+    if comp.gate <= 0:
+        return out
+    for key in model.partial_checks[step]:
+        if key.oxide not in comp.gate_ox:
+            continue
+        rule = key.rule
+        conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
+        ratio = rule.ratio(conductor, comp.gate, comp.diff)
+        limit = rule.partial_limit(comp.diff)
+        gate = next(p for p in comp.gates if key.oxide in pins_ox[p])
+        out.append(Entry(step, key.measure, PARTIAL, key.oxide, ratio, limit,
+                         utilization(ratio, limit), gate, conductor, 0.0, comp.gate, comp.diff))
+    for key in model.cumulative_checks[step]:
+        if key.oxide not in comp.gate_ox:
+            continue
+        gi = model.group_index[(key.measure, key.oxide)]
+        best_p, best = -1, -1.0
+        for p in comp.gates:
+            if key.oxide in pins_ox[p]:
+                value = car_at[(p, gi)]
+                if value > best:
+                    best_p, best = p, value
+        rule = key.rule
+        limit = rule.cumulative_limit(comp.diff)
+        conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
+        term = rule.ratio(conductor, comp.gate, comp.diff)
+        out.append(Entry(step, key.measure, CUMULATIVE, key.oxide, best, limit,
+                         utilization(best, limit), best_p, conductor, best - term,
+                         comp.gate, comp.diff))
+    return out
+
+
+class Assessment:
+    def __init__(self, state: NetState) -> None:
+        model = state.model
+        self.version = state.version
+        self.pins_ox = [dict(p.gate_area) for p in state.pins]
+        n = model.steps
+        cars: CarTable = {}
+        for p, pin in enumerate(state.pins):
+            if pin.total_gate_area <= 0:
+                continue
+            anchor = state.anchor_of_pin[p]
+            for gi, (_measure, oxide) in enumerate(model.groups):
+                if oxide not in pin.gate_area:
+                    continue
+                sums = [0.0, 0.0]
+                row = [0.0] * n
+                for s in range(pin.layer, n):
+                    c = state.comp_at[s][anchor]
+                    lane = model.lane[s]
+                    sums[lane] += model.term(s, gi, c.area, c.cell, c.perim, c.gate, c.diff)
+                    row[s] = sums[lane]
+                cars[(p, gi)] = row
+        self.cars = cars
+        self.entries: list[dict[Comp, list[Entry]]] = []
+        self.ranked: list[list[tuple[float, Comp]]] = []
+        for s in range(n):
+            car_at = {k: row[s] for k, row in cars.items()}
+            per_comp = {}
+            ranked = []
+            for c in state.comps[s]:
+                if c.gate > 0:
+                    es = comp_entries(model, s, c, car_at, self.pins_ox)
+                    per_comp[c] = es
+                    if es:
+                        ranked.append((max(e.utilization for e in es), c))
+            ranked.sort(key=lambda t: -t[0])
+            self.entries.append(per_comp)
+            self.ranked.append(ranked)
+        worst = [r[0][0] if r else 0.0 for r in self.ranked]
+        self.step_worst = worst
+        self.worst_below = [0.0] * (n + 1)  # worst over steps < s
+        for s in range(n):
+            self.worst_below[s + 1] = max(self.worst_below[s], worst[s])
+
+    def worst_untouched(self, step: int, touched: set[Comp]) -> float:
+        for util, c in self.ranked[step]:
+            if c not in touched:
+                return util
+        return 0.0
+
+    def report(self, name: str, state: NetState) -> NetReport:
+        layers = state.model.deck.layers
+        best: dict[tuple[int, str, str, str], Entry] = {}
+        for per_comp in self.entries:
+            for es in per_comp.values():
+                for e in es:
+                    key = (e.step, e.measure, e.kind, e.oxide)
+                    if key not in best or e.utilization > best[key].utilization:
+                        best[key] = e
+        checks = tuple(
+            CheckResult(layers[e.step].name, e.step, e.measure, e.kind, e.oxide, e.ratio, e.limit,
+                        e.utilization, is_legal(e.utilization), state.pins[e.gate].name)
+            for _, e in sorted(best.items(), key=lambda kv: kv[0]))
+        worst = max((c.utilization for c in checks), default=0.0)
+        return NetReport(name, is_legal(worst), worst, checks)

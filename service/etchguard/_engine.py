@@ -1,0 +1,379 @@
+"""The engine: every net's state behind one thread-safe face.
+
+Each net has its own lock, so router threads working on different nets never wait
+on each other; the registry lock is held only to find, add or drop a net. A net is
+kept in two forms: its specification (pins and committed shapes, compact, always
+held) and its incremental state (built on first use, kept for the most recently
+used nets up to ``Limits.hot_nets``), so that a design of 100,000 nets fits in
+memory while the nets a router is working on answer in microseconds.
+
+Every mutating call validates its whole input before it changes anything, so a
+refused call leaves the engine exactly as it was.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+
+from ._assess import Assessment
+from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
+from ._geometry import Rect
+from ._netstate import NetState
+from ._nets import NetSpec, Pin, Shape
+from ._ratios import StepModel, conductor_headroom
+from ._reports import Headroom, NetReport, Score
+from ._rules import Deck
+from ._whatif import CostModel, score
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Configurable bounds; exceeding one raises LimitExceededError."""
+
+    max_nets: int = 1_000_000
+    max_shapes_per_net: int = 200_000
+    max_pins_per_net: int = 10_000
+    max_candidates: int = 65_536  # shapes in one what-if, candidates in one batch
+    hot_nets: int = 4096  # nets whose incremental state is kept built
+
+
+@dataclass
+class _Net:
+    name: str
+    pins: tuple[Pin, ...]
+    layer_range: tuple[int, int] | None
+    shapes: dict[int, tuple[int, int, int, int, int]] = field(default_factory=dict)  # id -> (layer, rect)
+    next_id: int = 1
+    lock: threading.Lock = field(default_factory=threading.Lock)
+    state: NetState | None = None
+    assessment: Assessment | None = None
+
+
+class Engine:
+    """Holds every net of a design and answers antenna questions about them."""
+
+    def __init__(self, deck: Deck | None = None, limits: Limits | None = None,
+                 costs: CostModel | None = None) -> None:
+        self.limits = limits or Limits()
+        self.costs = costs or CostModel()
+        self._registry = threading.Lock()
+        self._nets: dict[str, _Net] = {}
+        self._hot: OrderedDict[str, None] = OrderedDict()
+        self._deck: Deck | None = None
+        self._model: StepModel | None = None
+        self.counters = {"scores": 0, "commits": 0, "removals": 0, "checks": 0, "violations_seen": 0}
+        if deck is not None:
+            self.load_deck(deck)
+
+    # -- deck -------------------------------------------------------------------------
+
+    @property
+    def deck(self) -> Deck:
+        if self._deck is None:
+            raise NoDeckError("no rule deck is loaded; load one first", "deck")
+        return self._deck
+
+    def load_deck(self, deck: Deck) -> None:
+        """Load or replace the deck. Held nets are carried over by layer name; if one
+        uses a layer the new deck lacks, the call is refused and nothing changes."""
+        with self._registry:
+            old = self._deck
+            nets = list(self._nets.values())
+            for net in nets:
+                net.lock.acquire()
+            try:
+                moved = [self._moved(net, old, deck) for net in nets] if old is not None else []
+                self._deck, self._model = deck, StepModel(deck)
+                for net, (pins, shapes, layer_range) in zip(nets, moved):
+                    net.pins, net.shapes, net.layer_range = pins, shapes, layer_range
+                    net.state = net.assessment = None
+                self._hot.clear()
+            finally:
+                for net in nets:
+                    net.lock.release()
+
+    @staticmethod
+    def _moved(net: _Net, old: Deck, new: Deck):
+        def step(index: int, what: str) -> int:
+            name = old.layers[index].name
+            if name not in new.layer_index:
+                raise InputError(f"net {net.name!r} uses layer {name} ({what}), which the new deck "
+                                 f"lacks; close the net first", "deck.layers")
+            return new.layer_index[name]
+        pins = tuple(Pin(p.name, step(p.layer, f"pin {p.name}"), p.rects, p.gate_area, p.diff_area,
+                         {step(s, f"cell_area of {p.name}"): a for s, a in p.cell_area.items()})
+                     for p in net.pins)
+        shapes = {sid: (step(v[0], f"shape {sid}"),) + v[1:] for sid, v in net.shapes.items()}
+        layer_range = None
+        if net.layer_range is not None:
+            layer_range = (step(net.layer_range[0], "layer_range"), step(net.layer_range[1], "layer_range"))
+        return pins, shapes, layer_range
+
+    # -- nets -------------------------------------------------------------------------
+
+    def open_net(self, name: str, pins: Sequence[Pin], layer_range: tuple[int, int] | None = None,
+                 shapes: Sequence[Shape] = ()) -> list[int]:
+        """Open a net with its pins (and optionally shapes already routed)."""
+        self.deck  # noqa: B018 - raises NoDeckError
+        if not isinstance(name, str) or not name:
+            raise InputError("a net needs a non-empty name", "net")
+        if len(pins) > self.limits.max_pins_per_net:
+            raise LimitExceededError(f"{len(pins)} pins exceed the limit of "
+                                     f"{self.limits.max_pins_per_net} per net", "pins")
+        names = set()
+        for i, pin in enumerate(pins):
+            if pin.name in names:
+                raise InputError(f"pin {pin.name!r} appears twice", f"pins[{i}].name")
+            names.add(pin.name)
+        self._check_shapes(shapes, 0)
+        with self._registry:
+            if name in self._nets:
+                raise AlreadyExistsError(f"net {name!r} is already open", "net")
+            if len(self._nets) >= self.limits.max_nets:
+                raise LimitExceededError(f"{self.limits.max_nets} nets are held already", "net")
+            net = _Net(name, tuple(pins), layer_range)
+            self._nets[name] = net
+        with net.lock:
+            return self._commit_locked(net, shapes)
+
+    def close_net(self, name: str) -> None:
+        with self._registry:
+            if name not in self._nets:
+                raise NotFoundError(f"no open net {name!r}", "net")
+            net = self._nets.pop(name)
+            self._hot.pop(name, None)
+        with net.lock:
+            net.state = net.assessment = None
+
+    def net_names(self) -> list[str]:
+        with self._registry:
+            return list(self._nets)
+
+    def _net(self, name: str) -> _Net:
+        self.deck  # noqa: B018 - raises NoDeckError
+        net = self._nets.get(name)
+        if net is None:
+            raise NotFoundError(f"no open net {name!r}", "net")
+        return net
+
+    def _state(self, net: _Net) -> NetState:
+        """The net's incremental state, built if it is not held (caller holds net.lock)."""
+        state = net.state
+        if state is None:
+            state = NetState(self._model, net.pins)  # type: ignore[arg-type]
+            for sid, (layer, *rect) in net.shapes.items():
+                state.add_shape(sid, layer, tuple(rect))  # type: ignore[arg-type]
+            net.state = state
+            net.assessment = None
+        self._touch(net.name)
+        return state
+
+    def _touch(self, name: str) -> None:
+        hot = self._hot
+        with self._registry:
+            hot[name] = None
+            hot.move_to_end(name)
+            while len(hot) > self.limits.hot_nets:
+                cold, _ = hot.popitem(last=False)
+                victim = self._nets.get(cold)
+                if victim is not None and victim.lock.acquire(blocking=False):
+                    victim.state = victim.assessment = None
+                    victim.lock.release()
+
+    def _assessment(self, net: _Net, state: NetState) -> Assessment:
+        a = net.assessment
+        if a is None or a.version != state.version:
+            a = net.assessment = Assessment(state)
+        return a
+
+    # -- shapes -----------------------------------------------------------------------
+
+    def _check_shapes(self, shapes: Sequence[Shape], held: int) -> None:
+        deck = self.deck
+        n = len(deck.layers)
+        if held + len(shapes) > self.limits.max_shapes_per_net:
+            raise LimitExceededError(f"{held + len(shapes)} shapes would exceed the limit of "
+                                     f"{self.limits.max_shapes_per_net} per net", "shapes")
+        for i, s in enumerate(shapes):
+            if not isinstance(s, Shape) or not 0 <= s.layer < n:
+                raise InputError("not a shape on a layer of the deck", f"shapes[{i}]")
+
+    def commit(self, name: str, shapes: Sequence[Shape]) -> list[int]:
+        """Add shapes to a net; returns their ids, in order."""
+        net = self._net(name)
+        with net.lock:
+            self._check_shapes(shapes, len(net.shapes))
+            return self._commit_locked(net, shapes)
+
+    def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
+        state = self._state(net) if shapes else net.state
+        ids = []
+        for s in shapes:
+            sid = net.next_id
+            net.next_id += 1
+            net.shapes[sid] = (s.layer,) + s.rect
+            if state is not None:
+                state.add_shape(sid, s.layer, s.rect)
+            ids.append(sid)
+        self.counters["commits"] += len(shapes)
+        return ids
+
+    def remove(self, name: str, ids: Sequence[int]) -> None:
+        """Remove (rip up) shapes by id: all of them or, on an unknown id, none."""
+        net = self._net(name)
+        with net.lock:
+            seen = set()
+            for i, sid in enumerate(ids):
+                if sid not in net.shapes or sid in seen:
+                    raise NotFoundError(f"net {name!r} has no shape {sid}" if sid not in seen
+                                        else f"shape {sid} is listed twice", f"shape_ids[{i}]")
+                seen.add(sid)
+            for sid in ids:
+                del net.shapes[sid]
+            if net.state is not None:
+                if len(ids) * 2 > len(net.state.shape_ids):
+                    net.state = None  # cheaper to rebuild from what stays
+                else:
+                    for sid in ids:
+                        net.state.remove_shape(sid)
+            self.counters["removals"] += len(ids)
+
+    def shapes(self, name: str) -> dict[int, Shape]:
+        net = self._net(name)
+        with net.lock:
+            return {sid: Shape(v[0], v[1:]) for sid, v in net.shapes.items()}  # type: ignore[arg-type]
+
+    def spec(self, name: str) -> NetSpec:
+        net = self._net(name)
+        with net.lock:
+            return NetSpec(net.name, net.pins, tuple(Shape(v[0], v[1:]) for v in net.shapes.values()),  # type: ignore[arg-type]
+                           net.layer_range)
+
+    # -- questions --------------------------------------------------------------------
+
+    def score(self, name: str, candidate: Sequence[Shape]) -> Score:
+        """What committing ``candidate`` would do; changes nothing."""
+        if not candidate:
+            raise InputError("a candidate needs at least one shape", "candidate")
+        self._check_shapes(candidate, 0)
+        if len(candidate) > self.limits.max_candidates:
+            raise LimitExceededError(f"{len(candidate)} shapes exceed the limit of "
+                                     f"{self.limits.max_candidates}", "candidate")
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            result = score(state, self._assessment(net, state), list(candidate), self.costs)
+        self.counters["scores"] += 1
+        return result
+
+    def score_many(self, name: str, candidates: Sequence[Sequence[Shape]]) -> list[Score]:
+        """Score candidates one by one against the same net state."""
+        if len(candidates) > self.limits.max_candidates:
+            raise LimitExceededError(f"{len(candidates)} candidates exceed the limit of "
+                                     f"{self.limits.max_candidates} per batch", "candidates")
+        for i, c in enumerate(candidates):
+            if not c:
+                raise InputError("a candidate needs at least one shape", f"candidates[{i}]")
+            self._check_shapes(c, 0)
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            assessment = self._assessment(net, state)
+            out = [score(state, assessment, list(c), self.costs) for c in candidates]
+        self.counters["scores"] += len(candidates)
+        return out
+
+    def check(self, name: str) -> NetReport:
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            report = self._assessment(net, state).report(name, state)
+        self.counters["checks"] += 1
+        if not report.legal:
+            self.counters["violations_seen"] += 1
+        return report
+
+    def check_all(self) -> Iterator[NetReport]:
+        for name in self.net_names():
+            try:
+                yield self.check(name)
+            except NotFoundError:
+                continue  # closed meanwhile
+
+    def headroom(self, name: str, layer: int, x: int, y: int) -> Headroom:
+        """Conductor the component at (x, y) on ``layer`` may still take on that layer."""
+        deck = self.deck
+        if not 0 <= layer < len(deck.layers):
+            raise InputError("unknown layer", "layer")
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            point: Rect = (x, y, x, y)
+            hit = next((e for e, r in state.index[layer].near(point)
+                        if r[0] <= x <= r[2] and r[1] <= y <= r[3]), None)
+            lname = deck.layers[layer].name
+            if hit is None:
+                return Headroom(lname, False, float("inf"), float("inf"), float("inf"))
+            return layer_headroom(state, self._assessment(net, state), layer, hit)
+
+    def stats(self) -> dict[str, int]:
+        with self._registry:
+            nets = list(self._nets.values())
+            hot = len(self._hot)
+        return {"nets": len(nets), "shapes": sum(len(n.shapes) for n in nets), "hot_nets": hot,
+                **self.counters}
+
+
+def layer_headroom(state: NetState, assessment: Assessment, layer: int, element: int) -> Headroom:
+    """Remaining conductor on ``layer`` for the component holding ``element``.
+
+    Added conductor on layer L raises the partial ratio at L and, by the same term,
+    every cumulative ratio of the component's gates at the steps >= L of L's lane;
+    the headroom is the least that any of those checks allows.
+    """
+    model = state.model
+    deck = model.deck
+    comp = state.comp_at[layer][element]
+    info = deck.layers[layer]
+    best = {"area": float("inf"), "side": float("inf")}
+    binding = {"area": "", "side": ""}
+    if comp.gate > 0:
+        for e in assessment.entries[layer].get(comp, ()):
+            if e.kind != "partial":
+                continue
+            room = conductor_headroom(deck.rule(layer, e.measure, e.oxide), e.limit, e.gate_um2,
+                                      e.diff_um2, 0.0, e.conductor)
+            if room < best[e.measure]:
+                best[e.measure], binding[e.measure] = room, f"{info.name} partial {e.measure} {e.oxide}"
+        lane = model.lane[layer]
+        for s in range(layer, model.steps):
+            if model.lane[s] != lane:
+                continue
+            for key in model.cumulative_checks[s]:
+                gi = model.group_index[(key.measure, key.oxide)]
+                term_rule = model.term_rule[layer][gi]
+                conductor = model.conductor(layer, key.measure, comp.area, comp.cell, comp.perim)
+                term = (conductor / comp.gate if term_rule is None
+                        else term_rule.ratio(conductor, comp.gate, comp.diff))
+                for p in comp.gates:
+                    if key.oxide not in state.pins[p].gate_area:
+                        continue
+                    later = state.comp_of_pin(p, s)
+                    limit = key.rule.cumulative_limit(later.diff)
+                    spent = assessment.cars[(p, gi)][s] - term
+                    room = conductor_headroom(term_rule, limit, comp.gate, comp.diff, spent, conductor)
+                    if room < best[key.measure]:
+                        best[key.measure] = room
+                        binding[key.measure] = (f"{deck.layers[s].name} cumulative {key.measure} "
+                                                f"{key.oxide} of {state.pins[p].name}")
+    lengths = [float("inf")]
+    if info.is_routing and info.wire_width:
+        lengths.append(best["area"] / (info.wire_width / deck.dbu_per_micron))
+    if info.is_routing and info.thickness_um:
+        lengths.append(best["side"] / (2.0 * info.thickness_um))
+    length = min(lengths)
+    which = binding["area"] if best["area"] / max(1e-30, (info.wire_width or 1) / deck.dbu_per_micron) <= length else binding["side"]
+    return Headroom(info.name, True, best["area"], best["side"], length, which or binding["side"])

@@ -1,0 +1,40 @@
+"""One exception hierarchy for everything the engine can refuse.
+
+Every error names the field it is about (``field``) so that the gRPC adapter can
+map it to a status code and a ``BadRequest`` field violation without parsing text.
+"""
+
+from __future__ import annotations
+
+
+class EtchguardError(Exception):
+    """Base of all errors raised on purpose by etchguard."""
+
+    def __init__(self, message: str, field: str | None = None) -> None:
+        super().__init__(message if field is None else f"{field}: {message}")
+        self.message = message
+        self.field = field
+
+
+class DeckError(EtchguardError):
+    """The rule deck is malformed; ``field`` is ``file: entry.field``."""
+
+
+class InputError(EtchguardError):
+    """A request carries bad geometry, an unknown layer, NaN, and the like."""
+
+
+class NotFoundError(EtchguardError):
+    """An unknown net or shape id."""
+
+
+class AlreadyExistsError(EtchguardError):
+    """A net was opened twice."""
+
+
+class NoDeckError(EtchguardError):
+    """A call needs a rule deck and none is loaded."""
+
+
+class LimitExceededError(EtchguardError):
+    """A configured limit (nets held, shapes per net, batch size) would be exceeded."""

@@ -1,0 +1,188 @@
+"""What a net is made of, as given by a router or a net file: pins and shapes.
+
+Validation happens here, once, at the edge; everything behind it may trust its input.
+Layers are resolved to process-step indices of the loaded deck.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ._errors import InputError
+from ._geometry import Rect, checked_rect, run_rect, square
+from ._rules import DEFAULT_OXIDE, Deck
+
+
+@dataclass(frozen=True)
+class Pin:
+    """A pin of a net: a gate input (gate_area > 0), a driver or diode (diff_area > 0)."""
+
+    name: str
+    layer: int
+    rects: tuple[Rect, ...]
+    gate_area: Mapping[str, float] = field(default_factory=dict)  # um^2 per oxide class
+    diff_area: float = 0.0  # um^2
+    cell_area: Mapping[int, float] = field(default_factory=dict)  # um^2 per layer step
+
+    @property
+    def total_gate_area(self) -> float:
+        return sum(self.gate_area.values())
+
+
+@dataclass(frozen=True)
+class Shape:
+    """A routed (or candidate) rectangle on one layer."""
+
+    layer: int
+    rect: Rect
+
+
+@dataclass(frozen=True)
+class NetSpec:
+    name: str
+    pins: tuple[Pin, ...]
+    shapes: tuple[Shape, ...] = ()
+    layer_range: tuple[int, int] | None = None
+
+
+def resolve_layer(deck: Deck, name: object, field_name: str) -> int:
+    if not isinstance(name, str) or name not in deck.layer_index:
+        raise InputError(f"unknown layer {name!r} (deck {deck.name} has "
+                         f"{', '.join(deck.layer_index)})", field_name)
+    return deck.layer_index[name]
+
+
+def _area(value: object, field_name: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(f"must be a number of um^2, got {value!r}", field_name)
+    value = float(value)
+    if not math.isfinite(value) or value < 0:
+        raise InputError(f"must be a finite, non-negative um^2, got {value!r}", field_name)
+    return value
+
+
+def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]],
+             gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
+             cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
+    """Validate one pin given with layer names, as a router or a net file states it."""
+    if not isinstance(name, str) or not name:
+        raise InputError("a pin needs a non-empty name", f"{field_name}.name")
+    step = resolve_layer(deck, layer, f"{field_name}.layer")
+    if not rects:
+        raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
+    checked = tuple(checked_rect(r, f"{field_name}.rects[{i}]") for i, r in enumerate(rects))
+    if gate_area is None:
+        gates: dict[str, float] = {}
+    elif isinstance(gate_area, Mapping):
+        gates = {}
+        for oxide, value in gate_area.items():
+            if not isinstance(oxide, str) or not oxide:
+                raise InputError(f"oxide class must be a non-empty name, got {oxide!r}",
+                                 f"{field_name}.gate_area")
+            gates[oxide] = _area(value, f"{field_name}.gate_area.{oxide}")
+    else:
+        gates = {DEFAULT_OXIDE: _area(gate_area, f"{field_name}.gate_area")}
+    gates = {k: v for k, v in gates.items() if v > 0}
+    cells: dict[int, float] = {}
+    for layer_name, value in (cell_area or {}).items():
+        cell_step = resolve_layer(deck, layer_name, f"{field_name}.cell_area")
+        cells[cell_step] = _area(value, f"{field_name}.cell_area.{layer_name}")
+    return Pin(name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+
+
+def make_shape(deck: Deck, layer: object, rect: Sequence[object], field_name: str = "shape") -> Shape:
+    return Shape(resolve_layer(deck, layer, f"{field_name}.layer"), checked_rect(rect, f"{field_name}.rect"))
+
+
+def _net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
+    if not isinstance(raw, dict):
+        raise InputError("a net must be a JSON object", where)
+    unknown = set(raw) - {"name", "pins", "shapes", "layer_range"}
+    if unknown:
+        raise InputError(f"unknown key {sorted(unknown)[0]!r}", where)
+    name = raw.get("name")
+    if not isinstance(name, str) or not name:
+        raise InputError("a net needs a non-empty name", f"{where}.name")
+    pins = []
+    for i, p in enumerate(raw.get("pins", [])):
+        pf = f"{where}.pins[{i}]"
+        if not isinstance(p, dict):
+            raise InputError("a pin must be a JSON object", pf)
+        unknown = set(p) - {"name", "layer", "rects", "gate_area", "diff_area", "cell_area"}
+        if unknown:
+            raise InputError(f"unknown key {sorted(unknown)[0]!r}", pf)
+        pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), p.get("rects", []),
+                             p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf))
+    shapes = []
+    for i, s in enumerate(raw.get("shapes", [])):
+        sf = f"{where}.shapes[{i}]"
+        if not isinstance(s, dict) or set(s) - {"layer", "rect"}:
+            raise InputError("a shape is an object with 'layer' and 'rect'", sf)
+        shapes.append(make_shape(deck, s.get("layer"), s.get("rect", []), sf))
+    layer_range = None
+    if "layer_range" in raw:
+        lr = raw["layer_range"]
+        if not isinstance(lr, list) or len(lr) != 2:
+            raise InputError("layer_range is [lowest, highest] routing layer", f"{where}.layer_range")
+        layer_range = checked_layer_range(deck, lr[0], lr[1], f"{where}.layer_range")
+    return NetSpec(name, tuple(pins), tuple(shapes), layer_range)
+
+
+def checked_layer_range(deck: Deck, low: object, high: object, field_name: str) -> tuple[int, int]:
+    lo = resolve_layer(deck, low, field_name)
+    hi = resolve_layer(deck, high, field_name)
+    if lo > hi:
+        raise InputError(f"layer range {low}..{high} is upside down", field_name)
+    return lo, hi
+
+
+def parse_net_file(deck: Deck, data: Any, source: str = "<nets>") -> list[NetSpec]:
+    """Validate the JSON net file of the contract: {"nets": [...]}."""
+    if not isinstance(data, dict) or not isinstance(data.get("nets"), list):
+        raise InputError('a net file is a JSON object {"nets": [...]}', source)
+    nets = [_net_from_json(deck, raw, f"{source}: nets[{i}]") for i, raw in enumerate(data["nets"])]
+    seen: set[str] = set()
+    for i, net in enumerate(nets):
+        if net.name in seen:
+            raise InputError(f"net {net.name!r} appears twice", f"{source}: nets[{i}].name")
+        seen.add(net.name)
+    return nets
+
+
+def load_net_file(deck: Deck, path: str | Path) -> list[NetSpec]:
+    path = Path(path)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise InputError(f"cannot read the net file: {exc.strerror}", str(path)) from exc
+    except json.JSONDecodeError as exc:
+        raise InputError(f"not valid JSON: {exc}", str(path)) from exc
+    return parse_net_file(deck, data, str(path))
+
+
+def run_shapes(deck: Deck, layer: int, x1: int, y1: int, x2: int, y2: int,
+               width: int | None = None, extension: int | None = None) -> list[Shape]:
+    """A straight run on a routing layer as one shape (width defaults to the layer's)."""
+    info = deck.layers[layer]
+    if not info.is_routing:
+        raise InputError(f"{info.name} is a cut layer; a run needs a routing layer", "layer")
+    if width is None:
+        if not info.wire_width:
+            raise InputError(f"{info.name} has no default wire_width; give a width", "width")
+        width = info.wire_width
+    return [Shape(layer, run_rect(x1, y1, x2, y2, width, extension))]
+
+
+def via_shapes(deck: Deck, cut_layer: int, x: int, y: int) -> list[Shape]:
+    """The deck's default via centred at (x, y): landing pad, cut, landing pad."""
+    info = deck.layers[cut_layer]
+    if info.is_routing or not info.cut_size:
+        raise InputError(f"{info.name} is not a cut layer with a cut_size", "layer")
+    pad = info.cut_size + 2 * (info.enclosure or 0)
+    return [Shape(cut_layer - 1, square(x, y, pad)), Shape(cut_layer, square(x, y, info.cut_size)),
+            Shape(cut_layer + 1, square(x, y, pad))]

@@ -1,0 +1,87 @@
+"""Plain result records the engine hands out (no behaviour, no gRPC)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """The worst case of one checked quantity at one step over a net's components."""
+
+    layer: str
+    step: int
+    measure: str  # "area" | "side"
+    kind: str  # "partial" | "cumulative"
+    oxide: str
+    ratio: float
+    limit: float
+    utilization: float
+    legal: bool
+    gate: str = ""  # pin name of (one of) the gate(s) seeing the worst case
+
+
+@dataclass(frozen=True)
+class NetReport:
+    name: str
+    legal: bool
+    worst_utilization: float
+    checks: tuple[CheckResult, ...]
+
+    def as_dict(self) -> dict[str, object]:
+        return {
+            "name": self.name,
+            "legal": self.legal,
+            "worst_utilization": self.worst_utilization,
+            "checks": [
+                {"layer": c.layer, "measure": c.measure, "kind": c.kind, "oxide": c.oxide,
+                 "ratio": c.ratio, "limit": c.limit, "utilization": c.utilization,
+                 "legal": c.legal}
+                for c in self.checks
+            ],
+        }
+
+
+@dataclass(frozen=True)
+class RatioChange:
+    """One ratio a candidate changes, before and after, on the component it joins."""
+
+    layer: str
+    step: int
+    measure: str
+    kind: str
+    oxide: str
+    gate: str  # the gate pin with the worst ratio after
+    before_ratio: float | None  # None when no gate-connected component was there
+    before_utilization: float | None
+    ratio: float
+    limit: float
+    utilization: float
+    headroom_um2: float  # conductor (um^2 of the measure) still allowed on this layer
+    headroom_length_um: float | None  # the same as run length at the layer's default width
+
+
+@dataclass(frozen=True)
+class Score:
+    """What a candidate would do if committed. Computing it changes nothing."""
+
+    added_area_um2: dict[str, float]  # exact union area added, per layer name
+    changes: tuple[RatioChange, ...]
+    worst_change_utilization: float  # worst utilization among the changed ratios
+    worst_utilization: float  # the whole net's worst after the candidate
+    legal: bool  # the whole net legal after the candidate
+    breaks_limit: bool  # a changed ratio goes over its limit
+    cost: float  # router cost from worst_change_utilization (see CostModel)
+
+
+@dataclass(frozen=True)
+class Headroom:
+    """How much more conductor the component at a point may take on its layer."""
+
+    layer: str
+    found: bool  # False when nothing of the net lies on the layer at the point
+    area_um2: float  # remaining area (area rules); inf when unconstrained
+    side_um2: float  # remaining side-wall area (side rules); inf when unconstrained
+    length_um: float  # remaining run length at the layer's default width
+    binding: str = ""  # which check binds, e.g. "M3 cumulative area thin"
+    limits: tuple[str, ...] = field(default_factory=tuple)

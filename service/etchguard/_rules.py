@@ -1,0 +1,333 @@
+"""The rule deck: process layers in process order and the antenna rules on them.
+
+Loaded from the TOML format of the antenna model contract. Validation is strict:
+an unknown key, a layer out of order, a cut layer that is not between two routing
+layers, a rule on an unknown layer, a side-wall rule on a cut layer, non-increasing
+diode-table points and negative values are each refused with a ``DeckError`` naming
+the file, the entry and the field.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ._errors import DeckError
+
+ROUTING = "routing"
+CUT = "cut"
+MEASURES = ("area", "side")
+DEFAULT_OXIDE = "thin"
+
+_PROCESS_KEYS = {"name", "dbu_per_micron", "cumulative_includes_cuts"}
+_LAYER_KEYS = {"name", "kind", "direction", "thickness_um", "wire_width", "spacing",
+               "cut_size", "enclosure"}
+_ROUTING_ONLY = {"direction", "thickness_um", "wire_width", "spacing"}
+_CUT_ONLY = {"cut_size", "enclosure"}
+_RULE_KEYS = {"layer", "oxide", "measure", "partial_max", "cumulative_max", "area_factor",
+              "factor_with_diode_only", "diode_partial_max", "diode_cumulative_max",
+              "diode_gate_factor", "diode_area_credit"}
+
+Table = tuple[tuple[float, float], ...]
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One process layer; ``index`` is its process step (0 = bottom)."""
+
+    name: str
+    index: int
+    kind: str
+    direction: str | None = None
+    thickness_um: float | None = None
+    wire_width: int | None = None
+    spacing: int | None = None
+    cut_size: int | None = None
+    enclosure: int | None = None
+
+    @property
+    def is_routing(self) -> bool:
+        return self.kind == ROUTING
+
+
+def table_value(table: Table, x: float) -> float:
+    """Piecewise-linear value at x, held constant beyond the first and last point."""
+    if x <= table[0][0]:
+        return table[0][1]
+    for (x0, y0), (x1, y1) in zip(table, table[1:]):
+        if x <= x1:
+            return y0 + (y1 - y0) * (x - x0) / (x1 - x0)
+    return table[-1][1]
+
+
+@dataclass(frozen=True)
+class Rule:
+    """An antenna rule for one (layer, oxide, measure)."""
+
+    layer: str
+    step: int
+    oxide: str
+    measure: str
+    partial_max: float | None
+    cumulative_max: float | None
+    area_factor: float = 1.0
+    factor_with_diode_only: bool = False
+    diode_partial_max: Table = ()
+    diode_cumulative_max: Table = ()
+    diode_gate_factor: float = 0.0
+    diode_area_credit: float = 0.0
+
+    @property
+    def has_partial(self) -> bool:
+        return self.partial_max is not None or bool(self.diode_partial_max)
+
+    @property
+    def has_cumulative(self) -> bool:
+        return self.cumulative_max is not None or bool(self.diode_cumulative_max)
+
+    def _limit(self, plain: float | None, table: Table, diff_um2: float) -> float:
+        if diff_um2 > 0 and table:
+            return table_value(table, diff_um2)
+        if plain is not None:
+            return plain
+        return table_value(table, diff_um2)
+
+    def partial_limit(self, diff_um2: float) -> float:
+        return self._limit(self.partial_max, self.diode_partial_max, diff_um2)
+
+    def cumulative_limit(self, diff_um2: float) -> float:
+        return self._limit(self.cumulative_max, self.diode_cumulative_max, diff_um2)
+
+    def ratio(self, conductor: float, gate_um2: float, diff_um2: float) -> float:
+        """Effective ratio: max(0, f*A - k_credit*D) / (G + k_gate*D)."""
+        factor = self.area_factor
+        if self.factor_with_diode_only and diff_um2 <= 0:
+            factor = 1.0
+        a_eff = max(0.0, factor * conductor - self.diode_area_credit * diff_um2)
+        return a_eff / (gate_um2 + self.diode_gate_factor * diff_um2)
+
+
+@dataclass(frozen=True)
+class Deck:
+    """A loaded rule deck. Layers are in process order; a layer's index is its step."""
+
+    name: str
+    dbu_per_micron: int
+    cumulative_includes_cuts: bool
+    layers: tuple[Layer, ...]
+    rules: tuple[Rule, ...]
+    source: str = "<deck>"
+    layer_index: dict[str, int] = field(init=False, repr=False, compare=False)
+    _by_key: dict[tuple[int, str, str], Rule] = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "layer_index", {l.name: l.index for l in self.layers})
+        object.__setattr__(self, "_by_key", {(r.step, r.measure, r.oxide): r for r in self.rules})
+
+    def rule(self, step: int, measure: str, oxide: str) -> Rule | None:
+        return self._by_key.get((step, measure, oxide))
+
+    @property
+    def oxides(self) -> tuple[str, ...]:
+        return tuple(sorted({r.oxide for r in self.rules}))
+
+    @property
+    def measures(self) -> tuple[str, ...]:
+        return tuple(m for m in MEASURES if any(r.measure == m for r in self.rules))
+
+    def same_kind(self, a: int, b: int) -> bool:
+        """Whether steps a and b add into one cumulative ratio."""
+        return self.cumulative_includes_cuts or self.layers[a].kind == self.layers[b].kind
+
+    def layer(self, name: str) -> Layer:
+        return self.layers[self.layer_index[name]]
+
+    def dbu2_to_um2(self, value: float) -> float:
+        return value / (self.dbu_per_micron * self.dbu_per_micron)
+
+
+class _Reader:
+    """Typed field access that names file, entry and field on every refusal."""
+
+    def __init__(self, source: str, entry: str, table: Any, allowed: set[str]) -> None:
+        self.source, self.entry = source, entry
+        if not isinstance(table, dict):
+            self.fail(None, "must be a table")
+        self.table = table
+        for key in table:
+            if key not in allowed:
+                self.fail(key, f"unknown key (allowed: {', '.join(sorted(allowed))})")
+
+    def fail(self, key: str | None, message: str) -> None:
+        where = self.entry if key is None else f"{self.entry}.{key}"
+        raise DeckError(message, f"{self.source}: {where}")
+
+    def has(self, key: str) -> bool:
+        return key in self.table
+
+    def text(self, key: str, default: str | None = None, choices: tuple[str, ...] = ()) -> str:
+        if key not in self.table:
+            if default is None:
+                self.fail(key, "is required")
+            return default  # type: ignore[return-value]
+        value = self.table[key]
+        if not isinstance(value, str) or not value:
+            self.fail(key, f"must be a non-empty string, got {value!r}")
+        if choices and value not in choices:
+            self.fail(key, f"must be one of {', '.join(choices)}, got {value!r}")
+        return value
+
+    def number(self, key: str, default: float | None = None, positive: bool = False) -> float | None:
+        if key not in self.table:
+            return default
+        value = self.table[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            self.fail(key, f"must be a finite number, got {value!r}")
+        if value < 0 or (positive and value == 0):
+            self.fail(key, f"must be {'positive' if positive else 'non-negative'}, got {value!r}")
+        return float(value)
+
+    def integer(self, key: str, default: int | None = None, positive: bool = False) -> int | None:
+        if key not in self.table:
+            return default
+        value = self.table[key]
+        if isinstance(value, bool) or not isinstance(value, int):
+            self.fail(key, f"must be an integer (DBU), got {value!r}")
+        if value < 0 or (positive and value == 0):
+            self.fail(key, f"must be {'positive' if positive else 'non-negative'}, got {value!r}")
+        return value
+
+    def flag(self, key: str, default: bool = False) -> bool:
+        value = self.table.get(key, default)
+        if not isinstance(value, bool):
+            self.fail(key, f"must be true or false, got {value!r}")
+        return value
+
+    def table_points(self, key: str) -> Table:
+        if key not in self.table:
+            return ()
+        raw = self.table[key]
+        if not isinstance(raw, list) or not raw:
+            self.fail(key, "must be a non-empty list of [diffusion um^2, max ratio] points")
+        points = []
+        for i, point in enumerate(raw):
+            if (not isinstance(point, list) or len(point) != 2
+                    or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
+                           for v in point)):
+                self.fail(f"{key}[{i}]", f"must be a pair of finite numbers, got {point!r}")
+            if point[0] < 0 or point[1] < 0:
+                self.fail(f"{key}[{i}]", f"values must be non-negative, got {point!r}")
+            if points and point[0] <= points[-1][0]:
+                self.fail(f"{key}[{i}]", "diffusion areas must be strictly increasing")
+            points.append((float(point[0]), float(point[1])))
+        return tuple(points)
+
+
+def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
+    """Build a Deck from parsed TOML, validating every entry."""
+    top = _Reader(source, "deck", data, {"process", "layers", "rules"})
+    if not top.has("process"):
+        top.fail("process", "is required")
+    process = _Reader(source, "process", data["process"], _PROCESS_KEYS)
+    name = process.text("name")
+    dbu = process.integer("dbu_per_micron", positive=True)
+    if dbu is None:
+        process.fail("dbu_per_micron", "is required")
+    includes_cuts = process.flag("cumulative_includes_cuts")
+
+    raw_layers = data.get("layers")
+    if not isinstance(raw_layers, list) or not raw_layers:
+        top.fail("layers", "must list at least one layer, bottom-up")
+    layers: list[Layer] = []
+    seen: set[str] = set()
+    for i, raw in enumerate(raw_layers):
+        entry = f"layers[{i}]"
+        r = _Reader(source, entry, raw, _LAYER_KEYS)
+        layer_name = r.text("name")
+        if layer_name in seen:
+            r.fail("name", f"layer {layer_name!r} is listed twice")
+        seen.add(layer_name)
+        kind = r.text("kind", choices=(ROUTING, CUT))
+        wrong = (_CUT_ONLY if kind == ROUTING else _ROUTING_ONLY) & set(raw)
+        if wrong:
+            r.fail(sorted(wrong)[0], f"does not apply to a {kind} layer")
+        if kind == ROUTING:
+            layers.append(Layer(
+                layer_name, i, kind,
+                direction=r.text("direction", choices=("horizontal", "vertical")),
+                thickness_um=r.number("thickness_um", positive=True),
+                wire_width=r.integer("wire_width", positive=True),
+                spacing=r.integer("spacing")))
+        else:
+            layers.append(Layer(layer_name, i, kind,
+                                cut_size=r.integer("cut_size", positive=True),
+                                enclosure=r.integer("enclosure", default=0)))
+    for layer in layers:
+        if layer.kind == CUT:
+            below = layers[layer.index - 1] if layer.index > 0 else None
+            above = layers[layer.index + 1] if layer.index + 1 < len(layers) else None
+            if below is None or above is None or not below.is_routing or not above.is_routing:
+                raise DeckError("a cut layer must lie between two routing layers (layers are "
+                                "listed bottom-up in process order)",
+                                f"{source}: layers[{layer.index}] ({layer.name})")
+
+    raw_rules = data.get("rules", [])
+    if not isinstance(raw_rules, list):
+        top.fail("rules", "must be an array of tables ([[rules]])")
+    index = {l.name: l.index for l in layers}
+    rules: list[Rule] = []
+    keys: set[tuple[int, str, str]] = set()
+    for i, raw in enumerate(raw_rules):
+        entry = f"rules[{i}]"
+        r = _Reader(source, entry, raw, _RULE_KEYS)
+        layer_name = r.text("layer")
+        if layer_name not in index:
+            r.fail("layer", f"unknown layer {layer_name!r} (deck has {', '.join(index)})")
+        step = index[layer_name]
+        measure = r.text("measure", default="area", choices=MEASURES)
+        if measure == "side":
+            if layers[step].kind == CUT:
+                r.fail("measure", f"a side-wall rule needs a routing layer; {layer_name} is a cut layer")
+            if layers[step].thickness_um is None:
+                r.fail("measure", f"a side-wall rule needs thickness_um on layer {layer_name}")
+        oxide = r.text("oxide", default=DEFAULT_OXIDE)
+        if (step, measure, oxide) in keys:
+            r.fail("layer", f"a second {measure} rule for {layer_name}, oxide {oxide}")
+        keys.add((step, measure, oxide))
+        rule = Rule(
+            layer=layer_name, step=step, oxide=oxide, measure=measure,
+            partial_max=r.number("partial_max", positive=True),
+            cumulative_max=r.number("cumulative_max", positive=True),
+            area_factor=r.number("area_factor", default=1.0, positive=True),  # type: ignore[arg-type]
+            factor_with_diode_only=r.flag("factor_with_diode_only"),
+            diode_partial_max=r.table_points("diode_partial_max"),
+            diode_cumulative_max=r.table_points("diode_cumulative_max"),
+            diode_gate_factor=r.number("diode_gate_factor", default=0.0),  # type: ignore[arg-type]
+            diode_area_credit=r.number("diode_area_credit", default=0.0),  # type: ignore[arg-type]
+        )
+        if not rule.has_partial and not rule.has_cumulative:
+            r.fail("partial_max", "a rule needs a partial or a cumulative limit")
+        rules.append(rule)
+    return Deck(name, dbu, includes_cuts, tuple(layers), tuple(rules), source)  # type: ignore[arg-type]
+
+
+def load_deck(path: str | Path) -> Deck:
+    """Read and validate a rule deck file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(path)) from exc
+    return loads_deck(text, str(path))
+
+
+def loads_deck(text: str, source: str = "<deck>") -> Deck:
+    """Parse and validate rule-deck TOML text."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise DeckError(f"not valid TOML: {exc}", source) from exc
+    return parse_deck(data, source)

@@ -1,0 +1,189 @@
+"""What-if scoring: the exact effect of candidate shapes, without committing them.
+
+For candidate shapes C on a net, step by step from the lowest candidate layer up:
+the candidates present at step s (layers <= s) are joined, by the contract's contact
+rules, to each other and to the existing components they touch. Each resulting
+group is a component the net would have at step s after the commit; its aggregates
+are the sums of the merged components' (components of one step never overlap, so
+areas and perimeters add) plus the local change the candidates make on layer s.
+A gate's cumulative ratio changes by the sum, over the steps of its lane, of the
+change of its component's term; groups are monotone in s (a candidate joined to a
+gate at step t is joined to it at every later step), so gates outside every group
+keep their sums. The result equals a full check after the commit (the property
+tests hold it to an independent shapely + networkx reference).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ._assess import Assessment, Entry, comp_entries
+from ._geometry import Rect, edge_touch, overlap, union_measures
+from ._netstate import Comp, NetState
+from ._nets import Shape
+from ._ratios import conductor_headroom, is_legal
+from ._reports import RatioChange, Score
+
+
+@dataclass(frozen=True)
+class CostModel:
+    """Router cost of a candidate from the worst utilization u it leads to.
+
+    ``0`` for u <= knee; ``scale * ((u - knee) / (1 - knee)) ** exponent`` up to the
+    limit (so 0 -> scale, rising steeply near 1); above the limit
+    ``violation + scale * over_slope * (u - 1)``, large enough to dominate any wire cost.
+    """
+
+    knee: float = 0.7
+    exponent: float = 3.0
+    scale: float = 10.0
+    violation: float = 1.0e6
+    over_slope: float = 1.0e3
+
+    def cost(self, u: float) -> float:
+        if u <= self.knee:
+            return 0.0
+        if u <= 1.0:
+            return self.scale * ((u - self.knee) / (1.0 - self.knee)) ** self.exponent
+        return self.violation + self.scale * self.over_slope * (u - 1.0)
+
+
+def _candidate_links(cands: list[Shape], is_cut: list[bool]) -> list[tuple[int, int, int]]:
+    links = []
+    for i in range(len(cands)):
+        a = cands[i]
+        for j in range(i + 1, len(cands)):
+            b = cands[j]
+            if a.layer == b.layer:
+                if edge_touch(a.rect, b.rect):
+                    links.append((i, j, a.layer))
+            elif abs(a.layer - b.layer) == 1 and is_cut[a.layer] != is_cut[b.layer]:
+                if overlap(a.rect, b.rect):
+                    links.append((i, j, max(a.layer, b.layer)))
+    return links
+
+
+def _find(parent: list[int], i: int) -> int:
+    while parent[i] != i:
+        parent[i] = parent[parent[i]]
+        i = parent[i]
+    return i
+
+
+def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: CostModel) -> Score:
+    model = state.model
+    deck = model.deck
+    layers = deck.layers
+    steps = model.steps
+    comp_at = state.comp_at
+    anchor = state.anchor_of_pin
+    pins_ox = assessment.pins_ox
+    cars = assessment.cars
+    k = len(cands)
+    touches = [state.touching(c.layer, c.rect) for c in cands]
+    links = _candidate_links(cands, model.is_cut) if k > 1 else []
+    first = min(c.layer for c in cands)
+
+    added: dict[str, float] = {}
+    deltas: dict[tuple[int, int], list[float]] = {}  # (pin, group) -> per-lane change
+    changes: list[RatioChange] = []
+    worst_change = 0.0
+    worst_net = assessment.worst_below[first]
+    for s in range(first, steps):
+        parent = list(range(k))
+        for i, j, joined in links:
+            if joined <= s:
+                ri, rj = _find(parent, i), _find(parent, j)
+                if ri != rj:
+                    parent[ri] = rj
+        groups: dict[int, tuple[list[int], set[Comp]]] = {}
+        for i in range(k):
+            if cands[i].layer > s:
+                continue
+            members, comps = groups.setdefault(_find(parent, i), ([], set()))
+            members.append(i)
+            for e, joined in touches[i]:
+                if joined <= s:
+                    comps.add(comp_at[s][e])
+        touched: set[Comp] = set()
+        for members, comps in groups.values():
+            touched |= comps
+            on_layer = [i for i in members if cands[i].layer == s]
+            area = perim = 0
+            if on_layer:
+                area, perim = _local_change(state, [cands[i].rect for i in on_layer],
+                                            [touches[i] for i in on_layer], s)
+                name = layers[s].name
+                added[name] = added.get(name, 0.0) + area * model.scale_area
+            if len(comps) == 1 and not on_layer:
+                (group,) = comps
+            else:
+                group = Comp()
+                for c in comps:
+                    group.absorb(c)
+                group.area += area
+                group.perim += perim
+            if group.gate <= 0:
+                continue
+            lane = model.lane[s]
+            if group not in comps:  # the step's terms change for every gate in it
+                for p in group.gates:
+                    old = comp_at[s][anchor[p]]
+                    for gi, (_m, ox) in enumerate(model.groups):
+                        if ox in pins_ox[p]:
+                            d = deltas.setdefault((p, gi), [0.0, 0.0])
+                            d[lane] += (model.term(s, gi, group.area, group.cell, group.perim,
+                                                   group.gate, group.diff)
+                                        - model.term(s, gi, old.area, old.cell, old.perim,
+                                                     old.gate, old.diff))
+            elif not any((p, gi) in deltas and deltas[(p, gi)][lane]
+                         for p in group.gates for gi in range(len(model.groups))):
+                continue  # nothing about this component changes at this step
+            car_at = {(p, gi): cars[(p, gi)][s] + (deltas[(p, gi)][lane] if (p, gi) in deltas else 0.0)
+                      for p in group.gates for gi in range(len(model.groups)) if (p, gi) in cars}
+            after = comp_entries(model, s, group, car_at, pins_ox)
+            before = [e for c in comps for e in assessment.entries[s].get(c, ())]
+            for e in after:
+                changes.append(_change(state, e, before))
+                worst_change = max(worst_change, e.utilization)
+                worst_net = max(worst_net, e.utilization)
+        worst_net = max(worst_net, assessment.worst_untouched(s, touched))
+    return Score(added, tuple(changes), worst_change, worst_net, is_legal(worst_net),
+                 not is_legal(worst_change), costs.cost(worst_change))
+
+
+def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[int, int]]],
+                  step: int) -> tuple[int, int]:
+    """Area and perimeter that candidate rects on one layer add to their group."""
+    if len(rects) == 1:
+        return state.local_delta(rects[0], state.routed_on(step, touches[0]), step)
+    seen: dict[int, None] = {}
+    for t in touches:
+        for e, _ in t:
+            seen[e] = None
+    local = state.routed_on(step, ((e, 0) for e in seen))
+    before_area, before_perim = union_measures(local)
+    after_area, after_perim = union_measures(local + rects)
+    if not state.model.side_needed[step]:
+        return after_area - before_area, 0
+    return after_area - before_area, after_perim - before_perim
+
+
+def _change(state: NetState, e: Entry, before: list[Entry]) -> RatioChange:
+    model = state.model
+    layer = model.deck.layers[e.step]
+    prior = [b for b in before if (b.measure, b.kind, b.oxide) == (e.measure, e.kind, e.oxide)]
+    worst_prior = max(prior, key=lambda b: b.utilization) if prior else None
+    rule = model.deck.rule(e.step, e.measure, e.oxide)
+    room = conductor_headroom(rule, e.limit, e.gate_um2, e.diff_um2, e.spent, e.conductor)
+    if layer.kind == "cut":
+        length = None
+    elif e.measure == "area":
+        length = room / (layer.wire_width / model.deck.dbu_per_micron) if layer.wire_width else None
+    else:
+        length = room / (2.0 * layer.thickness_um) if layer.thickness_um else None
+    return RatioChange(
+        layer.name, e.step, e.measure, e.kind, e.oxide, state.pins[e.gate].name,
+        worst_prior.ratio if worst_prior else None,
+        worst_prior.utilization if worst_prior else None,
+        e.ratio, e.limit, e.utilization, room, length)
