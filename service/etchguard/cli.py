@@ -32,8 +32,8 @@ def build_parser() -> argparse.ArgumentParser:
         try:
             module = importlib.import_module(module_name)
         except ModuleNotFoundError as exc:
-            if exc.name != module_name:
-                raise
+            if exc.name is None or not (module_name + ".").startswith(exc.name + "."):
+                raise  # a missing dependency inside the module, not the module itself
             continue  # a sub-command not built into this tree
         p = sub.add_parser(name, help=module.HELP, description=module.HELP)
         module.add_arguments(p)
@@ -48,6 +48,9 @@ def main(argv: list[str] | None = None) -> int:
     except EtchguardError as exc:
         print(f"etchguard {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:  # output piped into a pager or `head` that quit early
+        sys.stderr.close()
+        return EXIT_OK
 
 
 if __name__ == "__main__":
