@@ -8,7 +8,9 @@ worst utilization (so a what-if can find the worst component it did not touch).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 from ._netstate import Comp, NetState
 from ._ratios import CUMULATIVE, PARTIAL, StepModel, is_legal, utilization
@@ -17,7 +19,7 @@ from ._reports import CheckResult, NetReport
 CarTable = dict[tuple[int, int], list[float]]
 
 
-@dataclass
+@dataclass(slots=True)
 class Entry:
     """One check on one component: the values a report or a what-if needs."""
 
@@ -35,22 +37,39 @@ class Entry:
     diff_um2: float  # D of the component
 
 
-def comp_entries(model: StepModel, step: int, comp: Comp, car_at: dict[tuple[int, int], float],
-                 pins_ox: list[dict[str, float]]) -> list[Entry]:
-    """Every check of ``comp`` at ``step``; ``car_at`` gives (pin, group) -> CAR at step."""
-    out: list[Entry] = []
+_NO_CHANGE = (0.0, 0.0)
+
+
+def _utilization_only(step: int, measure: str, kind: str, oxide: str, ratio: float, limit: float,
+                      util: float, *_rest: object) -> float:
+    return util
+
+
+utilization_only: Callable[..., float] = _utilization_only
+
+
+def comp_entries(model: StepModel, step: int, comp: Comp, cars: CarTable,
+                 deltas: dict[tuple[int, int], list[float]], pins_ox: list[dict[str, float]],
+                 partial: bool = True, make: Callable[..., Any] = Entry) -> list[Any]:
+    """Every check of ``comp`` at ``step``. A gate's cumulative ratio is its value in
+    ``cars`` plus, for a what-if, its change in ``deltas`` (per lane). ``make`` builds
+    each result from Entry's fields; ``utilization_only`` keeps just the utilization,
+    which is all the hot path of a what-if without detail needs."""
+    out: list[Any] = []
     if comp.gate <= 0:
         return out
-    for key in model.partial_checks[step]:
-        if key.oxide not in comp.gate_ox:
-            continue
-        rule = key.rule
-        conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
-        ratio = rule.ratio(conductor, comp.gate, comp.diff)
-        limit = rule.partial_limit(comp.diff)
-        gate = next(p for p in comp.gates if key.oxide in pins_ox[p])
-        out.append(Entry(step, key.measure, PARTIAL, key.oxide, ratio, limit,
-                         utilization(ratio, limit), gate, conductor, 0.0, comp.gate, comp.diff))
+    if partial:
+        for key in model.partial_checks[step]:
+            if key.oxide not in comp.gate_ox:
+                continue
+            rule = key.rule
+            conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
+            ratio = rule.ratio(conductor, comp.gate, comp.diff)
+            limit = rule.partial_limit(comp.diff)
+            gate = next(p for p in comp.gates if key.oxide in pins_ox[p])
+            out.append(make(step, key.measure, PARTIAL, key.oxide, ratio, limit,
+                             utilization(ratio, limit), gate, conductor, 0.0, comp.gate, comp.diff))
+    lane = model.lane[step]
     for key in model.cumulative_checks[step]:
         if key.oxide not in comp.gate_ox:
             continue
@@ -58,14 +77,14 @@ def comp_entries(model: StepModel, step: int, comp: Comp, car_at: dict[tuple[int
         best_p, best = -1, -1.0
         for p in comp.gates:
             if key.oxide in pins_ox[p]:
-                value = car_at[(p, gi)]
+                value = cars[(p, gi)][step] + deltas.get((p, gi), _NO_CHANGE)[lane]
                 if value > best:
                     best_p, best = p, value
         rule = key.rule
         limit = rule.cumulative_limit(comp.diff)
         conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
         term = rule.ratio(conductor, comp.gate, comp.diff)
-        out.append(Entry(step, key.measure, CUMULATIVE, key.oxide, best, limit,
+        out.append(make(step, key.measure, CUMULATIVE, key.oxide, best, limit,
                          utilization(best, limit), best_p, conductor, best - term,
                          comp.gate, comp.diff))
     return out
@@ -95,19 +114,22 @@ class Assessment:
                 cars[(p, gi)] = row
         self.cars = cars
         self.entries: list[dict[Comp, list[Entry]]] = []
+        self.partial_worst: list[dict[Comp, float]] = []
         self.ranked: list[list[tuple[float, Comp]]] = []
         for s in range(n):
-            car_at = {k: row[s] for k, row in cars.items()}
             per_comp = {}
+            partial_worst = {}
             ranked = []
             for c in state.comps[s]:
                 if c.gate > 0:
-                    es = comp_entries(model, s, c, car_at, self.pins_ox)
+                    es = comp_entries(model, s, c, cars, {}, self.pins_ox)
                     per_comp[c] = es
+                    partial_worst[c] = max((e.utilization for e in es if e.kind == PARTIAL), default=0.0)
                     if es:
                         ranked.append((max(e.utilization for e in es), c))
             ranked.sort(key=lambda t: -t[0])
             self.entries.append(per_comp)
+            self.partial_worst.append(partial_worst)
             self.ranked.append(ranked)
         worst = [r[0][0] if r else 0.0 for r in self.ranked]
         self.step_worst = worst

@@ -173,6 +173,8 @@ class Engine:
 
     def _touch(self, name: str) -> None:
         hot = self._hot
+        if hot and next(reversed(hot)) == name:
+            return  # already the most recent: the common case of a router on one net
         with self._registry:
             hot[name] = None
             hot.move_to_end(name)
@@ -254,8 +256,9 @@ class Engine:
 
     # -- questions --------------------------------------------------------------------
 
-    def score(self, name: str, candidate: Sequence[Shape]) -> Score:
-        """What committing ``candidate`` would do; changes nothing."""
+    def score(self, name: str, candidate: Sequence[Shape], detail: bool = True) -> Score:
+        """What committing ``candidate`` would do; changes nothing. Without ``detail``
+        the per-ratio changes are left out (verdict, utilizations and cost are not)."""
         if not candidate:
             raise InputError("a candidate needs at least one shape", "candidate")
         self._check_shapes(candidate, 0)
@@ -265,11 +268,12 @@ class Engine:
         net = self._net(name)
         with net.lock:
             state = self._state(net)
-            result = score(state, self._assessment(net, state), list(candidate), self.costs)
+            result = score(state, self._assessment(net, state), list(candidate), self.costs, detail)
         self.counters["scores"] += 1
         return result
 
-    def score_many(self, name: str, candidates: Sequence[Sequence[Shape]]) -> list[Score]:
+    def score_many(self, name: str, candidates: Sequence[Sequence[Shape]],
+                   detail: bool = False) -> list[Score]:
         """Score candidates one by one against the same net state."""
         if len(candidates) > self.limits.max_candidates:
             raise LimitExceededError(f"{len(candidates)} candidates exceed the limit of "
@@ -282,7 +286,7 @@ class Engine:
         with net.lock:
             state = self._state(net)
             assessment = self._assessment(net, state)
-            out = [score(state, assessment, list(c), self.costs) for c in candidates]
+            out = [score(state, assessment, list(c), self.costs, detail) for c in candidates]
         self.counters["scores"] += len(candidates)
         return out
 

@@ -22,6 +22,36 @@ from ._nets import Pin
 from ._ratios import StepModel
 
 
+def _shared_perimeter(a: Rect, b: Rect) -> int:
+    """P(a) + P(b) - P(a | b) for two rectangles.
+
+    With a positive-area intersection I it is P(I) (inclusion-exclusion holds for the
+    horizontal and vertical boundary separately: in every slab where both are present
+    their intervals overlap); rectangles abutting along a segment of length l share
+    2*l of boundary; otherwise (apart, or a corner point) nothing.
+    """
+    ix = min(a[2], b[2]) - max(a[0], b[0])
+    iy = min(a[3], b[3]) - max(a[1], b[1])
+    if ix >= 0 and iy >= 0:  # with ix or iy 0 this is the abutting segment, 2*l
+        return 2 * (ix + iy)
+    return 0
+
+
+def _directly_linked(adj: dict[int, dict[int, int]], near: list[int], step: int) -> bool:
+    """Whether the elements ``near`` are connected by their own links at ``step``
+    (a cheap sufficient test that removing their common neighbour splits nothing)."""
+    linked = {near[0]}
+    frontier = [near[0]]
+    wanted = set(near)
+    while frontier:
+        e = frontier.pop()
+        for n, joined in adj[e].items():
+            if joined <= step and n in wanted and n not in linked:
+                linked.add(n)
+                frontier.append(n)
+    return len(linked) == len(wanted)
+
+
 class Comp:
     """A component at one step, with the aggregates the ratios need."""
 
@@ -113,8 +143,11 @@ class NetState:
             added_area = rect_area(r) - union_measures(clipped)[0]
         if not self.model.side_needed[step]:
             return added_area, 0
+        own = 2 * (r[2] - r[0] + r[3] - r[1])
         if not local:
-            return added_area, 2 * (r[2] - r[0] + r[3] - r[1])
+            return added_area, own
+        if len(local) == 1:
+            return added_area, own - _shared_perimeter(r, local[0])
         return added_area, union_measures(local + [r])[1] - union_measures(local)[1]
 
     # -- insertion and removal --------------------------------------------------------
@@ -218,6 +251,8 @@ class NetState:
     def _split(self, members: set[int], near: list[int], step: int) -> list[set[int]] | None:
         """Connected parts of ``members`` at ``step``, or None when they stay one."""
         adj = self.adj
+        if _directly_linked(adj, near, step):
+            return None  # the neighbours hold each other together without the shape
         parts: list[set[int]] = []
         unseen = set(members)
         for start in near:

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ._assess import Assessment, Entry, comp_entries
+from ._assess import Assessment, Entry, comp_entries, utilization_only
 from ._geometry import Rect, edge_touch, overlap, union_measures
 from ._netstate import Comp, NetState
 from ._nets import Shape
@@ -70,86 +70,117 @@ def _find(parent: list[int], i: int) -> int:
     return i
 
 
-def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: CostModel) -> Score:
+def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: CostModel,
+          detail: bool = True) -> Score:
+    """Score candidate shapes on a net; ``detail=False`` skips the per-ratio changes
+    (the verdict, worst utilizations and cost are the same)."""
     model = state.model
-    deck = model.deck
-    layers = deck.layers
+    layers = model.deck.layers
     steps = model.steps
     comp_at = state.comp_at
     anchor = state.anchor_of_pin
     pins_ox = assessment.pins_ox
-    cars = assessment.cars
+    groups_of_rules = model.groups
     k = len(cands)
     touches = [state.touching(c.layer, c.rect) for c in cands]
     links = _candidate_links(cands, model.is_cut) if k > 1 else []
     first = min(c.layer for c in cands)
 
     added: dict[str, float] = {}
-    deltas: dict[tuple[int, int], list[float]] = {}  # (pin, group) -> per-lane change
+    deltas: dict[tuple[int, int], list[float]] = {}  # (pin, group) -> change per lane
     changes: list[RatioChange] = []
     worst_change = 0.0
     worst_net = assessment.worst_below[first]
     for s in range(first, steps):
-        parent = list(range(k))
-        for i, j, joined in links:
-            if joined <= s:
-                ri, rj = _find(parent, i), _find(parent, j)
-                if ri != rj:
-                    parent[ri] = rj
-        groups: dict[int, tuple[list[int], set[Comp]]] = {}
-        for i in range(k):
-            if cands[i].layer > s:
-                continue
-            members, comps = groups.setdefault(_find(parent, i), ([], set()))
-            members.append(i)
-            for e, joined in touches[i]:
-                if joined <= s:
-                    comps.add(comp_at[s][e])
+        at_s = comp_at[s]
+        if k == 1:
+            groups = [([0], {at_s[e] for e, joined in touches[0] if joined <= s})]
+        else:
+            groups = list(_groups(cands, touches, links, at_s, s))
         touched: set[Comp] = set()
-        for members, comps in groups.values():
+        lane = model.lane[s]
+        for members, comps in groups:
             touched |= comps
-            on_layer = [i for i in members if cands[i].layer == s]
+            on_layer = [cands[i].rect for i in members if cands[i].layer == s]
             area = perim = 0
             if on_layer:
-                area, perim = _local_change(state, [cands[i].rect for i in on_layer],
-                                            [touches[i] for i in on_layer], s)
+                area, perim = _local_change(state, on_layer,
+                                            [touches[i] for i in members if cands[i].layer == s], s)
                 name = layers[s].name
                 added[name] = added.get(name, 0.0) + area * model.scale_area
-            if len(comps) == 1 and not on_layer:
-                (group,) = comps
-            else:
+            merged = len(comps) != 1 or bool(on_layer)
+            if merged:
                 group = Comp()
                 for c in comps:
                     group.absorb(c)
                 group.area += area
                 group.perim += perim
+            else:
+                (group,) = comps
             if group.gate <= 0:
                 continue
-            lane = model.lane[s]
-            if group not in comps:  # the step's terms change for every gate in it
+            if merged:  # this step's term changes for every gate in the group
                 for p in group.gates:
-                    old = comp_at[s][anchor[p]]
-                    for gi, (_m, ox) in enumerate(model.groups):
-                        if ox in pins_ox[p]:
-                            d = deltas.setdefault((p, gi), [0.0, 0.0])
+                    old = at_s[anchor[p]]
+                    ox_of_pin = pins_ox[p]
+                    for gi, (_measure, oxide) in enumerate(groups_of_rules):
+                        if oxide in ox_of_pin:
+                            d = deltas.get((p, gi))
+                            if d is None:
+                                d = deltas[(p, gi)] = [0.0, 0.0]
                             d[lane] += (model.term(s, gi, group.area, group.cell, group.perim,
                                                    group.gate, group.diff)
                                         - model.term(s, gi, old.area, old.cell, old.perim,
                                                      old.gate, old.diff))
-            elif not any((p, gi) in deltas and deltas[(p, gi)][lane]
-                         for p in group.gates for gi in range(len(model.groups))):
+            elif not any(d[lane] for (p, _gi), d in deltas.items() if p in group.gates):
+                worst_net = max(worst_net, assessment.partial_worst[s].get(group, 0.0),
+                                _unchanged_worst(assessment, s, group))
                 continue  # nothing about this component changes at this step
-            car_at = {(p, gi): cars[(p, gi)][s] + (deltas[(p, gi)][lane] if (p, gi) in deltas else 0.0)
-                      for p in group.gates for gi in range(len(model.groups)) if (p, gi) in cars}
-            after = comp_entries(model, s, group, car_at, pins_ox)
-            before = [e for c in comps for e in assessment.entries[s].get(c, ())]
-            for e in after:
-                changes.append(_change(state, e, before))
-                worst_change = max(worst_change, e.utilization)
-                worst_net = max(worst_net, e.utilization)
+            if not merged:
+                worst_net = max(worst_net, assessment.partial_worst[s].get(group, 0.0))
+            if detail:
+                after = comp_entries(model, s, group, assessment.cars, deltas, pins_ox, merged)
+                before = [e for c in comps for e in assessment.entries[s].get(c, ())]
+                for e in after:
+                    worst_change = max(worst_change, e.utilization)
+                    change = _change(state, e, before)
+                    if change is not None:
+                        changes.append(change)
+            else:
+                utils = comp_entries(model, s, group, assessment.cars, deltas, pins_ox, merged,
+                                     utilization_only)
+                if utils:
+                    worst_change = max(worst_change, *utils)
+            worst_net = max(worst_net, worst_change)
         worst_net = max(worst_net, assessment.worst_untouched(s, touched))
     return Score(added, tuple(changes), worst_change, worst_net, is_legal(worst_net),
                  not is_legal(worst_change), costs.cost(worst_change))
+
+
+def _unchanged_worst(assessment: Assessment, step: int, comp: Comp) -> float:
+    return max((e.utilization for e in assessment.entries[step].get(comp, ())), default=0.0)
+
+
+def _groups(cands: list[Shape], touches: list[list[tuple[int, int]]],
+            links: list[tuple[int, int, int]], at_s: dict[int, Comp], step: int):
+    """Connected groups of the candidates present at ``step``, with the components
+    each group joins."""
+    parent = list(range(len(cands)))
+    for i, j, joined in links:
+        if joined <= step:
+            ri, rj = _find(parent, i), _find(parent, j)
+            if ri != rj:
+                parent[ri] = rj
+    groups: dict[int, tuple[list[int], set[Comp]]] = {}
+    for i, c in enumerate(cands):
+        if c.layer > step:
+            continue
+        members, comps = groups.setdefault(_find(parent, i), ([], set()))
+        members.append(i)
+        for e, joined in touches[i]:
+            if joined <= step:
+                comps.add(at_s[e])
+    return groups.values()
 
 
 def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[int, int]]],
@@ -169,11 +200,15 @@ def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[i
     return after_area - before_area, after_perim - before_perim
 
 
-def _change(state: NetState, e: Entry, before: list[Entry]) -> RatioChange:
+def _change(state: NetState, e: Entry, before: list[Entry]) -> RatioChange | None:
+    """The change record for an after-entry, or None when nothing about it changed."""
     model = state.model
     layer = model.deck.layers[e.step]
-    prior = [b for b in before if (b.measure, b.kind, b.oxide) == (e.measure, e.kind, e.oxide)]
+    prior = [b for b in before if b.measure == e.measure and b.kind == e.kind and b.oxide == e.oxide]
     worst_prior = max(prior, key=lambda b: b.utilization) if prior else None
+    if (worst_prior is not None and len(prior) == 1 and worst_prior.ratio == e.ratio
+            and worst_prior.limit == e.limit):
+        return None
     rule = model.deck.rule(e.step, e.measure, e.oxide)
     room = conductor_headroom(rule, e.limit, e.gate_um2, e.diff_um2, e.spent, e.conductor)
     if layer.kind == "cut":

@@ -1,0 +1,222 @@
+"""The design-wide obstacle index: every net's metal and the blockages a router declares.
+
+Advice proposes new shapes on layers the net has not used yet; such a proposal is only
+useful if no other net (and no declared blockage) is in the way. This module keeps, per
+process layer, an R-tree (the ``rtree`` package, a binding of libspatialindex) of
+
+* every open net's committed shapes and its pin rectangles (both are that net's metal),
+* every blockage the router declares (an area no new shape may use).
+
+Conflict (the project's definition, common practice for same-layer spacing): a proposed
+rectangle ``a`` of net N conflicts with an entry ``b`` of another owner on the same
+layer when the two touch or overlap (distance 0 would short them) or when their
+Euclidean distance is below the layer's ``spacing``. The distance of two closed
+rectangles is ``hypot(dx, dy)`` with ``dx = max(0, b.xlo - a.xhi, a.xlo - b.xhi)`` and
+``dy`` likewise; it is compared squared, in exact integers. Entries of net N itself never
+conflict with N's proposals.
+
+The R-tree stores doubles; an exact-integer test follows every tree query, and queries
+are widened by a margin that covers double rounding of coordinates up to 2^62, so no
+conflict is missed. Many entries at once (a net opened with its routing, a deck
+reload) are bulk-loaded through rtree's stream constructor (sort-tile-recursive
+packing), which is both faster to build and faster to query than one insert per entry.
+The index has its own lock: it is shared by all nets, whose own locks do not cover it.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+from rtree import index as rtree_index
+
+from ._errors import InputError, NotFoundError
+from ._geometry import Rect
+
+# Below this many entries per call, single inserts are cheaper than a rebuild.
+BULK_MIN = 256
+
+OwnerKey = tuple[str, object]  # ("shape", sid) | ("pin", (pin_index, rect_index)) | ("blockage", bid)
+
+
+@dataclass(frozen=True)
+class Conflict:
+    """Another owner's rectangle that a proposed rectangle would touch or come too close to."""
+
+    layer: int
+    proposed: Rect
+    rect: Rect
+    owner: str  # "net <name>" or "blockage <id>"
+    net: str | None  # the other net's name; None for a blockage
+    blockage_id: int | None
+    distance: float  # DBU, Euclidean; 0 when touching or overlapping
+    spacing: int  # the layer's spacing applied (DBU)
+
+
+@dataclass
+class _Entry:
+    layer: int
+    rect: Rect
+    net: str | None
+    key: OwnerKey
+
+
+def _box(r: Rect, margin: int = 0) -> tuple[float, float, float, float]:
+    return (float(r[0] - margin), float(r[1] - margin), float(r[2] + margin), float(r[3] + margin))
+
+
+def squared_distance(a: Rect, b: Rect) -> int:
+    dx = max(0, b[0] - a[2], a[0] - b[2])
+    dy = max(0, b[1] - a[3], a[1] - b[3])
+    return dx * dx + dy * dy
+
+
+def conflicts_with(a: Rect, b: Rect, spacing: int) -> bool:
+    """Touching, overlapping, or closer than ``spacing`` (see the module docstring)."""
+    d2 = squared_distance(a, b)
+    return d2 == 0 or d2 < spacing * spacing
+
+
+class ObstacleIndex:
+    """Per-layer R-trees over all nets' metal and declared blockages. Thread-safe."""
+
+    def __init__(self, layers: int = 0) -> None:
+        self._lock = threading.Lock()
+        self._layers = layers
+        self._trees: list[rtree_index.Index | None] = [None] * layers
+        self._entries: dict[int, _Entry] = {}
+        self._by_owner: dict[tuple[str | None, OwnerKey], int] = {}
+        self._next_entry = 1
+        self._next_blockage = 1
+        self.blockages: dict[int, tuple[int, Rect]] = {}
+
+    # -- building ---------------------------------------------------------------------
+
+    def _tree(self, layer: int) -> rtree_index.Index:
+        tree = self._trees[layer]
+        if tree is None:
+            tree = self._trees[layer] = rtree_index.Index()
+        return tree
+
+    def _stream_rebuild(self, layer: int) -> None:
+        items = [(eid, _box(e.rect), None) for eid, e in self._entries.items() if e.layer == layer]
+        # The stream constructor refuses an empty stream; an empty layer needs no tree.
+        self._trees[layer] = rtree_index.Index(iter(items)) if items else None
+
+    def _add_locked(self, items: Sequence[tuple[int, Rect, str | None, OwnerKey]]) -> None:
+        per_layer: dict[int, list[int]] = {}
+        for layer, rect, net, key in items:
+            owner = (net, key)
+            if owner in self._by_owner:
+                raise InputError(f"obstacle {key} of {net or 'blockages'} is indexed already", "obstacles")
+            eid = self._next_entry
+            self._next_entry += 1
+            self._entries[eid] = _Entry(layer, rect, net, key)
+            self._by_owner[owner] = eid
+            per_layer.setdefault(layer, []).append(eid)
+        for layer, eids in per_layer.items():
+            tree = self._trees[layer]
+            held = 0 if tree is None else tree.get_size()
+            if len(eids) >= BULK_MIN and len(eids) >= held:
+                self._stream_rebuild(layer)
+            else:
+                tree = self._tree(layer)
+                for eid in eids:
+                    tree.insert(eid, _box(self._entries[eid].rect))
+
+    def _drop_locked(self, eids: Iterable[int]) -> None:
+        for eid in eids:
+            e = self._entries.pop(eid)
+            del self._by_owner[(e.net, e.key)]
+            tree = self._trees[e.layer]
+            if tree is not None:
+                tree.delete(eid, _box(e.rect))
+
+    def rebuild(self, layers: int, items: Sequence[tuple[int, Rect, str | None, OwnerKey]],
+                blockages: dict[int, tuple[int, Rect]]) -> None:
+        """Replace everything (a new deck): bulk-loads every layer from scratch."""
+        with self._lock:
+            self._layers = layers
+            self._trees = [None] * layers
+            self._entries.clear()
+            self._by_owner.clear()
+            self.blockages = dict(blockages)
+            all_items = list(items) + [(layer, rect, None, ("blockage", bid))
+                                       for bid, (layer, rect) in blockages.items()]
+            for layer, rect, net, key in all_items:
+                eid = self._next_entry
+                self._next_entry += 1
+                self._entries[eid] = _Entry(layer, rect, net, key)
+                self._by_owner[(net, key)] = eid
+            for layer in range(layers):
+                self._stream_rebuild(layer)
+
+    # -- nets ---------------------------------------------------------------------------
+
+    def add_net_items(self, net: str, items: Sequence[tuple[int, Rect, OwnerKey]]) -> None:
+        """Index shapes or pin rectangles of ``net``: (layer, rect, key) each."""
+        if not items:
+            return
+        with self._lock:
+            self._add_locked([(layer, rect, net, key) for layer, rect, key in items])
+
+    def remove_net_items(self, net: str, keys: Iterable[OwnerKey]) -> None:
+        with self._lock:
+            self._drop_locked([self._by_owner[(net, k)] for k in keys if (net, k) in self._by_owner])
+
+    def drop_net(self, net: str) -> None:
+        with self._lock:
+            self._drop_locked([eid for (owner, _k), eid in self._by_owner.items() if owner == net])
+
+    # -- blockages ----------------------------------------------------------------------
+
+    def add_blockage(self, layer: int, rect: Rect) -> int:
+        if not 0 <= layer < self._layers:
+            raise InputError("unknown layer", "layer")
+        with self._lock:
+            bid = self._next_blockage
+            self._next_blockage += 1
+            self._add_locked([(layer, rect, None, ("blockage", bid))])
+            self.blockages[bid] = (layer, rect)
+            return bid
+
+    def remove_blockage(self, bid: int) -> None:
+        with self._lock:
+            if bid not in self.blockages:
+                raise NotFoundError(f"no blockage {bid}", "blockage_id")
+            self._drop_locked([self._by_owner[(None, ("blockage", bid))]])
+            del self.blockages[bid]
+
+    # -- questions ----------------------------------------------------------------------
+
+    def __len__(self) -> int:
+        with self._lock:
+            return len(self._entries)
+
+    def conflicts(self, net: str, layer: int, rect: Rect, spacing: int) -> list[Conflict]:
+        """Entries of other owners on ``layer`` that ``rect`` (of ``net``) conflicts with."""
+        if not 0 <= layer < self._layers:
+            return []
+        # doubles keep 53 bits: widen by the rounding error of the largest coordinate
+        big = max(abs(v) for v in rect)
+        margin = spacing + 1 + (big >> 50)
+        with self._lock:
+            tree = self._trees[layer]
+            if tree is None:
+                return []
+            hits = list(tree.intersection(_box(rect, margin)))
+            entries = [self._entries[h] for h in hits]
+        out = []
+        for e in entries:
+            if e.net == net or e.net is None and e.key[0] != "blockage":
+                continue
+            if conflicts_with(rect, e.rect, spacing):
+                d = squared_distance(rect, e.rect) ** 0.5
+                if e.net is None:
+                    out.append(Conflict(layer, rect, e.rect, f"blockage {e.key[1]}", None,
+                                        int(e.key[1]), d, spacing))  # type: ignore[arg-type]
+                else:
+                    out.append(Conflict(layer, rect, e.rect, f"net {e.net}", e.net, None, d, spacing))
+        out.sort(key=lambda c: (c.distance, c.owner, c.rect))
+        return out
