@@ -1,0 +1,423 @@
+"""A typed Python client for the etchguard gRPC service (etchguard.v1).
+
+    from etchguard.client import Client, pin, rect, run
+
+    with Client("127.0.0.1:50051") as eg:
+        eg.open_net("n1", [pin("u1.a", "M1", [(0, 0, 200, 200)], gate_area={"thin": 0.05})])
+        ids = eg.commit("n1", [run("M1", 100, 100, 5000, 100)])
+        reply = eg.score("n1", [run("M2", 4900, 100, 4900, 9000)])
+        print(reply.cost, reply.legal)
+
+        with eg.session() as s:          # one ordered stream per router thread
+            s.commit("n1", [run("M1", 5000, 100, 8000, 100)])
+            s.score("n1", [run("M2", 8000, 100, 8000, 12000)])
+
+        scores = eg.score_batch("n1", rects, layers="M2")   # numpy in, numpy out
+
+Replies are the generated protobuf messages (``etchguard.v1.etchguard_pb2``, typed
+by its ``.pyi``); batch replies are numpy arrays. A refused call raises
+``ServiceError`` with the status code, the message and the field it names.
+All coordinates are int64 DBU; areas are um^2.
+"""
+
+from __future__ import annotations
+
+import itertools
+import queue
+import threading
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import grpc
+import numpy as np
+from google.rpc import error_details_pb2
+from grpc_health.v1 import health_pb2, health_pb2_grpc
+from grpc_status import rpc_status
+
+from ._geometry import square
+from .v1 import etchguard_pb2 as pb
+from .v1 import etchguard_pb2_grpc as pb_grpc
+
+__all__ = ["BatchScores", "Client", "ServiceError", "Session", "candidate_columns", "path",
+           "pb", "pin", "rect", "run", "runs_to_rects", "via"]
+
+RectLike = Sequence[int]
+
+
+class ServiceError(Exception):
+    """A call the server refused: ``code`` (grpc.StatusCode), ``message``, ``field``."""
+
+    def __init__(self, code: grpc.StatusCode, message: str, field: str = "") -> None:
+        super().__init__(f"{code.name}: {message}")
+        self.code = code
+        self.message = message
+        self.field = field
+
+    @classmethod
+    def from_rpc_error(cls, exc: grpc.RpcError) -> "ServiceError":
+        code = exc.code() if hasattr(exc, "code") else grpc.StatusCode.UNKNOWN
+        message = exc.details() if hasattr(exc, "details") else str(exc)
+        field_name = ""
+        status = rpc_status.from_call(exc) if hasattr(exc, "trailing_metadata") else None
+        if status is not None:
+            for detail in status.details:
+                if detail.Is(error_details_pb2.BadRequest.DESCRIPTOR):
+                    bad = error_details_pb2.BadRequest()
+                    detail.Unpack(bad)
+                    if bad.field_violations:
+                        field_name = bad.field_violations[0].field
+                elif detail.Is(error_details_pb2.ErrorInfo.DESCRIPTOR) and not field_name:
+                    info = error_details_pb2.ErrorInfo()
+                    detail.Unpack(info)
+                    field_name = info.metadata.get("field", "")
+        return cls(code, message or "", field_name)
+
+    @classmethod
+    def from_session(cls, error: pb.SessionError) -> "ServiceError":
+        return cls(_CODES.get(error.code, grpc.StatusCode.UNKNOWN), error.message, error.field)
+
+
+_CODES = {c.value[0]: c for c in grpc.StatusCode}
+
+
+# -- building requests ----------------------------------------------------------------
+
+def rect(layer: str, xlo: int, ylo: int, xhi: int, yhi: int) -> pb.Shape:
+    """A rectangle shape on ``layer`` (DBU, closed, xlo < xhi and ylo < yhi)."""
+    return pb.Shape(layer=layer, rect=pb.Rect(xlo=xlo, ylo=ylo, xhi=xhi, yhi=yhi))
+
+
+def run(layer: str, x1: int, y1: int, x2: int, y2: int, width: int = 0,
+        extension: int | None = None) -> pb.Shape:
+    """A straight run along its centre line (DBU), expanded by the server: ``width``
+    0 takes the layer's default wire width; ``extension`` None extends width/2."""
+    return pb.Shape(layer=layer, run=pb.Run(x1=x1, y1=y1, x2=x2, y2=y2, width=width,
+                                            extension=extension))
+
+
+def path(layer: str, points: Sequence[tuple[int, int]], width: int = 0) -> list[pb.Shape]:
+    """Runs along a rectilinear centre-line polyline, one per segment (DBU)."""
+    if len(points) < 2:
+        raise ValueError("a path needs at least two points")
+    return [run(layer, x1, y1, x2, y2, width) for (x1, y1), (x2, y2) in zip(points, points[1:])]
+
+
+def via(deck: pb.DeckInfo, cut_layer: str, x: int, y: int) -> list[pb.Shape]:
+    """The deck's default via centred at (x, y): pad below, cut, pad above (DBU)."""
+    names = [layer.name for layer in deck.layers]
+    if cut_layer not in names:
+        raise ValueError(f"unknown layer {cut_layer!r} (deck has {', '.join(names)})")
+    i = names.index(cut_layer)
+    info = deck.layers[i]
+    if info.kind != pb.LAYER_KIND_CUT or not info.cut_size or not 0 < i < len(names) - 1:
+        raise ValueError(f"{cut_layer} is not a cut layer with a cut_size")
+    pad = info.cut_size + 2 * info.enclosure
+    return [rect(names[i - 1], *square(x, y, pad)), rect(cut_layer, *square(x, y, info.cut_size)),
+            rect(names[i + 1], *square(x, y, pad))]
+
+
+def pin(name: str, layer: str, rects: Iterable[RectLike],
+        gate_area: Mapping[str, float] | float | None = None, diff_area: float = 0.0,
+        cell_area: Mapping[str, float] | None = None) -> pb.Pin:
+    """A pin: gate area um^2 per oxide (a number means oxide "thin"), diffusion um^2,
+    in-cell conductor um^2 per layer name; rectangles in DBU."""
+    gates = {"thin": float(gate_area)} if isinstance(gate_area, (int, float)) else dict(gate_area or {})
+    return pb.Pin(name=name, layer=layer,
+                  rects=[pb.Rect(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3]) for r in rects],
+                  gate_area=gates, diff_area=diff_area, cell_area=dict(cell_area or {}))
+
+
+def runs_to_rects(x1: Any, y1: Any, x2: Any, y2: Any, width: Any,
+                  extension: Any = None) -> np.ndarray:
+    """Rectangles (n, 4) int64 of straight runs given by centre lines, vectorised.
+
+    The same expansion as the server's ``Run``: ``extension`` past each end (width // 2
+    when None), ``width // 2`` below / left of the line. Every line must be horizontal
+    or vertical and every width positive (ValueError otherwise).
+    """
+    x1, y1, x2, y2 = (np.asarray(v, dtype=np.int64) for v in (x1, y1, x2, y2))
+    x1, y1, x2, y2, width = np.broadcast_arrays(x1, y1, x2, y2, np.asarray(width, dtype=np.int64))
+    if np.any(width <= 0):
+        raise ValueError("widths must be positive DBU")
+    ext = width // 2 if extension is None else np.broadcast_to(np.asarray(extension, dtype=np.int64), width.shape)
+    if np.any(ext < 0):
+        raise ValueError("end extensions must be >= 0 DBU")
+    horizontal = y1 == y2
+    if np.any(~horizontal & (x1 != x2)):
+        raise ValueError("a run's centre line must be horizontal or vertical")
+    below = width // 2
+    out = np.empty(x1.shape + (4,), dtype=np.int64)
+    lo_x, hi_x = np.minimum(x1, x2), np.maximum(x1, x2)
+    lo_y, hi_y = np.minimum(y1, y2), np.maximum(y1, y2)
+    out[..., 0] = np.where(horizontal, lo_x - ext, x1 - below)
+    out[..., 1] = np.where(horizontal, y1 - below, lo_y - ext)
+    out[..., 2] = np.where(horizontal, hi_x + ext, x1 - below + width)
+    out[..., 3] = np.where(horizontal, y1 - below + width, hi_y + ext)
+    return out.reshape(-1, 4)
+
+
+def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
+                      counts: Any = None) -> pb.CandidateColumns:
+    """Columnar candidates from numpy: ``rects`` (n, 4) int64 DBU, one row per shape;
+    ``layers`` one name for all shapes or a name per shape; ``counts`` shapes per
+    candidate (default: every shape is a candidate of its own)."""
+    rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
+    n = len(rects)
+    if isinstance(layers, str):
+        table, index = [layers], np.zeros(n, dtype=np.uint32)
+    else:
+        names = np.asarray(layers)
+        if names.shape != (n,):
+            raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
+        table_arr, index = np.unique(names, return_inverse=True)
+        table = [str(t) for t in table_arr]
+    counts_arr = np.ones(n, dtype=np.uint32) if counts is None else np.asarray(counts, dtype=np.uint32)
+    cols = pb.CandidateColumns(layers=table)
+    cols.shape_count.extend(counts_arr.tolist())
+    cols.layer.extend(np.asarray(index).tolist())
+    cols.xlo.extend(rects[:, 0].tolist())
+    cols.ylo.extend(rects[:, 1].tolist())
+    cols.xhi.extend(rects[:, 2].tolist())
+    cols.yhi.extend(rects[:, 3].tolist())
+    return cols
+
+
+@dataclass(frozen=True)
+class BatchScores:
+    """Scores of a batch, one array entry per candidate in request order."""
+
+    cost: np.ndarray  # router cost
+    worst_change_utilization: np.ndarray
+    worst_utilization: np.ndarray  # the whole net after the candidate
+    legal: np.ndarray  # bool: the whole net legal after
+    breaks_limit: np.ndarray  # bool: a changed ratio over its limit
+    added_area_um2: np.ndarray  # um^2 over all layers
+    details: list[pb.ScoreReply] = field(default_factory=list)  # when asked for
+
+    @classmethod
+    def from_reply(cls, reply: pb.ScoreBatchReply) -> "BatchScores":
+        return cls(np.array(reply.cost, dtype=np.float64),
+                   np.array(reply.worst_change_utilization, dtype=np.float64),
+                   np.array(reply.worst_utilization, dtype=np.float64),
+                   np.array(reply.legal, dtype=bool), np.array(reply.breaks_limit, dtype=bool),
+                   np.array(reply.added_area_um2, dtype=np.float64), list(reply.details))
+
+    def __len__(self) -> int:
+        return len(self.cost)
+
+
+# -- the client -------------------------------------------------------------------------
+
+def _ids(reply: pb.ShapeIds) -> list[int]:
+    return list(reply.shape_ids)
+
+
+class Client:
+    """A connection to an etchguard server. Use as a context manager, or call close().
+
+    ``target`` is ``host:port`` or ``unix:/path``; ``timeout`` (s) bounds each unary
+    call (None: no deadline).
+    """
+
+    def __init__(self, target: str = "127.0.0.1:50051", *, timeout: float | None = 30.0,
+                 options: Sequence[tuple[str, Any]] = (), channel: grpc.Channel | None = None) -> None:
+        self.target = target
+        self.timeout = timeout
+        self._owns_channel = channel is None
+        self.channel = channel or grpc.insecure_channel(target, options=list(options))
+        self.stub = pb_grpc.AntennaServiceStub(self.channel)
+        self._deck: pb.DeckInfo | None = None
+
+    def __enter__(self) -> "Client":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def close(self) -> None:
+        if self._owns_channel:
+            self.channel.close()
+
+    def _call(self, method, request):
+        try:
+            return method(request, timeout=self.timeout)
+        except grpc.RpcError as exc:
+            raise ServiceError.from_rpc_error(exc) from None
+
+    def wait_ready(self, timeout: float = 10.0) -> None:
+        """Block until the channel is connected (grpc.FutureTimeoutError otherwise)."""
+        grpc.channel_ready_future(self.channel).result(timeout=timeout)
+
+    def health(self, service: str = "") -> str:
+        """The standard health status name ("SERVING", "NOT_SERVING", ...)."""
+        stub = health_pb2_grpc.HealthStub(self.channel)
+        reply = self._call(stub.Check, health_pb2.HealthCheckRequest(service=service))
+        return health_pb2.HealthCheckResponse.ServingStatus.Name(reply.status)
+
+    # deck
+    def load_deck(self, toml: str | Path) -> pb.DeckInfo:
+        """Load or replace the rule deck: TOML text, or a local file read here."""
+        text = toml.read_text(encoding="utf-8") if isinstance(toml, Path) else toml
+        self._deck = self._call(self.stub.LoadDeck, pb.LoadDeckRequest(toml=text))
+        return self._deck
+
+    @property
+    def deck(self) -> pb.DeckInfo:
+        """The server's deck (fetched once, refreshed by load_deck)."""
+        if self._deck is None:
+            self._deck = self._call(self.stub.GetDeck, pb.GetDeckRequest())
+        return self._deck
+
+    def via(self, cut_layer: str, x: int, y: int) -> list[pb.Shape]:
+        return via(self.deck, cut_layer, x, y)
+
+    # nets and shapes
+    def open_net(self, net: str, pins: Sequence[pb.Pin], shapes: Sequence[pb.Shape] = (),
+                 layer_range: tuple[str, str] | None = None) -> list[int]:
+        request = pb.OpenNetRequest(net=net, pins=pins, shapes=shapes)
+        if layer_range is not None:
+            request.layer_range.lowest, request.layer_range.highest = layer_range
+        return _ids(self._call(self.stub.OpenNet, request))
+
+    def commit(self, net: str, shapes: Sequence[pb.Shape]) -> list[int]:
+        return _ids(self._call(self.stub.Commit, pb.CommitRequest(net=net, shapes=shapes)))
+
+    def remove(self, net: str, shape_ids: Sequence[int]) -> int:
+        return self._call(self.stub.Remove, pb.RemoveRequest(net=net, shape_ids=shape_ids)).removed
+
+    def close_net(self, net: str) -> None:
+        self._call(self.stub.CloseNet, pb.CloseNetRequest(net=net))
+
+    # questions
+    def score(self, net: str, candidate: Sequence[pb.Shape], *,
+              without_changes: bool = False) -> pb.ScoreReply:
+        """What the candidate would do; ``without_changes`` leaves out per-ratio detail."""
+        return self._call(self.stub.Score, pb.ScoreRequest(net=net, candidate=candidate,
+                                                           without_changes=without_changes))
+
+    def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
+                    counts: Any = None, details: bool = False) -> BatchScores:
+        """Score candidates given as numpy rectangles (see ``candidate_columns``)."""
+        return self.score_columns(net, candidate_columns(rects, layers, counts), details)
+
+    def score_columns(self, net: str, columns: pb.CandidateColumns, details: bool = False) -> BatchScores:
+        request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
+        return BatchScores.from_reply(self._call(self.stub.ScoreBatch, request))
+
+    def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
+        return self._call(self.stub.Headroom, pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def check(self, net: str) -> pb.NetReport:
+        return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
+
+    def check_all(self, violations_only: bool = False) -> Iterator[pb.NetReport]:
+        """Reports of every open net, streamed as the server computes them."""
+        try:
+            yield from self.stub.CheckAll(pb.CheckAllRequest(violations_only=violations_only))
+        except grpc.RpcError as exc:
+            raise ServiceError.from_rpc_error(exc) from None
+
+    def stats(self) -> pb.Stats:
+        return self._call(self.stub.GetStats, pb.GetStatsRequest())
+
+    def session(self) -> "Session":
+        return Session(self.stub)
+
+
+_DONE = object()
+
+
+class Session:
+    """One ordered bidirectional stream: requests are answered in order, one reply each.
+
+    The blocking methods (``commit``, ``score``, ...) send one request and wait for its
+    reply: one stream message per question. To pipeline, ``send(op, message)`` returns
+    the request's seq without waiting and ``receive()`` returns the next reply (in the
+    order sent). A refused request raises ``ServiceError`` (blocking methods) or comes
+    back with ``reply.error`` set (``receive``); the stream stays open either way.
+    """
+
+    def __init__(self, stub: pb_grpc.AntennaServiceStub) -> None:
+        self._outbox: queue.SimpleQueue = queue.SimpleQueue()
+        self._seq = itertools.count(1)
+        self._pending = 0
+        self._lock = threading.Lock()
+        self._replies = stub.Session(self._requests())
+
+    def _requests(self) -> Iterator[pb.SessionRequest]:
+        get = self._outbox.get
+        while True:
+            item = get()
+            if item is _DONE:
+                return
+            yield item
+
+    def __enter__(self) -> "Session":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """End the stream (replies not yet received are dropped)."""
+        self._outbox.put(_DONE)
+        self._replies.cancel()
+
+    def send(self, op: str, message: Any) -> int:
+        """Queue one request (``op`` a SessionRequest field: "score", "commit", ...)."""
+        seq = next(self._seq)
+        request = pb.SessionRequest(seq=seq, **{op: message})
+        self._outbox.put(request)
+        self._pending += 1
+        return seq
+
+    def receive(self) -> pb.SessionReply:
+        """The next reply, in the order the requests were sent."""
+        try:
+            reply = next(self._replies)
+        except grpc.RpcError as exc:
+            raise ServiceError.from_rpc_error(exc) from None
+        self._pending -= 1
+        return reply
+
+    def ask(self, op: str, message: Any):
+        """Send one request and return its result (raises ServiceError if refused)."""
+        with self._lock:
+            if self._pending:
+                raise RuntimeError(f"{self._pending} pipelined replies are not received yet")
+            self.send(op, message)
+            reply = self.receive()
+        if reply.HasField("error"):
+            raise ServiceError.from_session(reply.error)
+        return getattr(reply, op)
+
+    def open_net(self, net: str, pins: Sequence[pb.Pin], shapes: Sequence[pb.Shape] = ()) -> list[int]:
+        return _ids(self.ask("open_net", pb.OpenNetRequest(net=net, pins=pins, shapes=shapes)))
+
+    def commit(self, net: str, shapes: Sequence[pb.Shape]) -> list[int]:
+        return _ids(self.ask("commit", pb.CommitRequest(net=net, shapes=shapes)))
+
+    def remove(self, net: str, shape_ids: Sequence[int]) -> int:
+        return self.ask("remove", pb.RemoveRequest(net=net, shape_ids=shape_ids)).removed
+
+    def score(self, net: str, candidate: Sequence[pb.Shape], *,
+              without_changes: bool = False) -> pb.ScoreReply:
+        return self.ask("score", pb.ScoreRequest(net=net, candidate=candidate,
+                                                 without_changes=without_changes))
+
+    def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
+                    counts: Any = None, details: bool = False) -> BatchScores:
+        request = pb.ScoreBatchRequest(net=net, candidates=candidate_columns(rects, layers, counts),
+                                       details=details)
+        return BatchScores.from_reply(self.ask("score_batch", request))
+
+    def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
+        return self.ask("headroom", pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def check(self, net: str) -> pb.NetReport:
+        return self.ask("check", pb.CheckNetRequest(net=net))
+
+    def close_net(self, net: str) -> None:
+        self.ask("close_net", pb.CloseNetRequest(net=net))

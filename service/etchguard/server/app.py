@@ -1,0 +1,212 @@
+"""The server application: configuration, assembly, and a life that ends well.
+
+``build_server(config)`` assembles an ``EtchguardServer`` from a ``ServerConfig``:
+an Engine (with the deck, if one is given), the servicer, standard gRPC health
+checking and server reflection, message-size and engine limits, and the metrics
+endpoint. Later options plug in at one place each: credentials for a listen address
+(``_credentials``), call interceptors (``_interceptors``), the engine's construction
+(``_engine``); the config grows a field, nothing else is rewritten.
+
+``serve(config)`` runs it in the foreground until SIGTERM or SIGINT, then stops
+gracefully: health turns NOT_SERVING, new calls are refused, calls in flight get up
+to ``grace_s`` seconds to finish; a second signal stops at once.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import signal
+import socket
+import threading
+from concurrent import futures
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+
+import grpc
+from grpc_health.v1 import health, health_pb2, health_pb2_grpc
+from grpc_reflection.v1alpha import reflection
+
+from .. import Engine, EtchguardError, Limits, __version__, load_deck
+from ..v1 import etchguard_pb2 as pb
+from ..v1 import etchguard_pb2_grpc as pb_grpc
+from .metrics import Metrics, NullMetrics
+from .servicer import AntennaServicer
+
+log = logging.getLogger("etchguard.server")
+
+SERVICE_NAME = pb.DESCRIPTOR.services_by_name["AntennaService"].full_name
+_DEFAULT_LIMITS = Limits()
+
+
+class ServeError(EtchguardError):
+    """The server cannot start as configured (an address that will not bind, ...)."""
+
+
+@dataclass
+class ServerConfig:
+    """Everything ``etchguard serve`` can be told; defaults are a safe local server."""
+
+    listen: list[str] = field(default_factory=lambda: ["127.0.0.1:50051"])  # host:port | unix:/path
+    rules: Path | None = None  # rule deck loaded at start; None: wait for LoadDeck
+    metrics_port: int = 0  # Prometheus endpoint port; 0 = off
+    metrics_address: str = "127.0.0.1"
+    max_message_bytes: int = 64 * 1024 * 1024  # per message, both ways
+    max_nets: int = _DEFAULT_LIMITS.max_nets
+    max_shapes_per_net: int = _DEFAULT_LIMITS.max_shapes_per_net
+    max_pins_per_net: int = _DEFAULT_LIMITS.max_pins_per_net
+    max_candidates: int = _DEFAULT_LIMITS.max_candidates
+    hot_nets: int = _DEFAULT_LIMITS.hot_nets
+    workers: int = 64  # concurrent calls; each open Session stream holds one
+    grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
+    log_level: str = "info"
+
+    def limits(self) -> Limits:
+        names = {f.name for f in fields(Limits)}
+        return Limits(**{k: getattr(self, k) for k in names})
+
+
+def _engine(config: ServerConfig) -> Engine:
+    deck = load_deck(config.rules) if config.rules is not None else None
+    return Engine(deck, config.limits())
+
+
+def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials | None:
+    """Credentials for a listen address; None: plaintext (loopback / unix socket)."""
+    return None
+
+
+def _interceptors(config: ServerConfig) -> list[grpc.ServerInterceptor]:
+    return []
+
+
+class EtchguardServer:
+    """A built server: ``start()``, then ``stop()`` (or ``serve_forever()``)."""
+
+    def __init__(self, config: ServerConfig, engine: Engine, metrics, grpc_server: grpc.Server,
+                 health_servicer: health.HealthServicer, addresses: list[str]) -> None:
+        self.config = config
+        self.engine = engine
+        self.metrics = metrics
+        self.grpc_server = grpc_server
+        self.health = health_servicer
+        self.addresses = addresses  # as bound: port 0 resolved
+        self.metrics_port = 0
+        self._stopped = threading.Event()
+
+    def start(self) -> None:
+        self.grpc_server.start()
+        if self.config.metrics_port:
+            self.metrics_port = self.metrics.serve(self.config.metrics_address, self.config.metrics_port)
+        try:
+            deck = self.engine.deck.name
+        except EtchguardError:
+            deck = None
+        log.info("listening", extra={"fields": {
+            "addresses": self.addresses, "metrics_port": self.metrics_port, "deck": deck,
+            "pid": os.getpid(), "version": __version__, "workers": self.config.workers,
+            "limits": self.config.limits().__dict__}})
+
+    def stop(self, grace: float | None = None) -> None:
+        """Refuse new calls, let those in flight finish (up to ``grace`` s), then stop."""
+        if self._stopped.is_set():
+            return
+        grace = self.config.grace_s if grace is None else grace
+        log.info("stopping", extra={"fields": {"grace_s": grace}})
+        self.health.enter_graceful_shutdown()
+        self.grpc_server.stop(grace).wait()
+        self.metrics.close()
+        for address in self.addresses:
+            if address.startswith("unix:"):
+                _socket_path(address).unlink(missing_ok=True)
+        self._stopped.set()
+        log.info("stopped")
+
+    def serve_forever(self) -> int:
+        """Start, run until SIGTERM/SIGINT, stop gracefully; returns the exit status."""
+        requested = threading.Event()
+
+        def on_signal(signum, _frame):
+            if requested.is_set():  # a second signal: no more grace
+                log.warning("second signal, stopping now", extra={"fields": {"signal": signum}})
+                self.grpc_server.stop(0)
+                return
+            log.info("signal received", extra={"fields": {"signal": signal.Signals(signum).name}})
+            requested.set()
+
+        previous = {s: signal.signal(s, on_signal) for s in (signal.SIGTERM, signal.SIGINT)}
+        try:
+            self.start()
+            while not requested.wait(0.5):
+                pass
+            self.stop()
+        finally:
+            for s, handler in previous.items():
+                signal.signal(s, handler)
+        return 0
+
+
+def _socket_path(address: str) -> Path:
+    return Path(address.removeprefix("unix:").removeprefix("//"))
+
+
+def _clear_stale_socket(path: Path) -> None:
+    """Remove a socket file left by a server that is gone; refuse one still answering."""
+    if not path.is_socket():
+        return
+    probe = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
+    try:
+        probe.connect(str(path))
+    except ConnectionRefusedError:
+        path.unlink(missing_ok=True)
+        return
+    except OSError:
+        return
+    finally:
+        probe.close()
+    raise ServeError(f"another server is listening on unix:{path}", "listen")
+
+
+def _bind(server: grpc.Server, config: ServerConfig, address: str) -> str:
+    if address.startswith("unix:"):
+        _clear_stale_socket(_socket_path(address))
+    creds = _credentials(config, address)
+    try:
+        port = (server.add_secure_port(address, creds) if creds is not None
+                else server.add_insecure_port(address))
+    except RuntimeError as exc:
+        raise ServeError(f"cannot listen on {address}: {exc}", "listen") from None
+    if port == 0:
+        raise ServeError(f"cannot listen on {address}", "listen")
+    if address.startswith("unix:"):
+        return address
+    host = address.rsplit(":", 1)[0]
+    return f"{host}:{port}"
+
+
+def build_server(config: ServerConfig) -> EtchguardServer:
+    """Assemble (but do not start) a server from ``config``."""
+    if config.workers < 1:
+        raise ServeError("must be at least 1", "workers")
+    engine = _engine(config)
+    servicer_methods = AntennaServicer.METHODS
+    metrics = Metrics(engine.stats, servicer_methods) if config.metrics_port else NullMetrics()
+    options = [
+        ("grpc.max_receive_message_length", config.max_message_bytes),
+        ("grpc.max_send_message_length", config.max_message_bytes),
+        ("grpc.so_reuseport", 0),  # a second server on the same port must fail, not share it
+    ]
+    server = grpc.server(futures.ThreadPoolExecutor(max_workers=config.workers,
+                                                    thread_name_prefix="etchguard-rpc"),
+                         interceptors=_interceptors(config), options=options,
+                         maximum_concurrent_rpcs=config.workers)
+    pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
+    health_servicer = health.HealthServicer(experimental_non_blocking=True)
+    health_pb2_grpc.add_HealthServicer_to_server(health_servicer, server)
+    for name in ("", SERVICE_NAME):
+        health_servicer.set(name, health_pb2.HealthCheckResponse.SERVING)
+    reflection.enable_server_reflection(
+        (SERVICE_NAME, health_pb2.DESCRIPTOR.services_by_name["Health"].full_name,
+         reflection.SERVICE_NAME), server)
+    addresses = [_bind(server, config, address) for address in config.listen]
+    return EtchguardServer(config, engine, metrics, server, health_servicer, addresses)

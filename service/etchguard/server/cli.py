@@ -1,0 +1,63 @@
+"""``etchguard serve``: the headless gRPC server a detail router talks to."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from . import logs
+from .app import ServerConfig, build_server
+
+HELP = "Serve antenna ratios, what-if scores and checks to routers over gRPC (headless)."
+
+_DEFAULTS = ServerConfig()
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--rules", type=Path, metavar="DECK",
+                        help="rule deck (TOML) to load at start; without it, clients call LoadDeck")
+    parser.add_argument("--listen", action="append", metavar="ADDR",
+                        help="address to serve on: HOST:PORT (port 0 picks a free one) or "
+                             "unix:/path; repeat for several (default 127.0.0.1:50051)")
+    parser.add_argument("--metrics-port", type=int, default=_DEFAULTS.metrics_port, metavar="N",
+                        help="port of the Prometheus metrics endpoint; 0 = off (default)")
+    parser.add_argument("--metrics-address", default=_DEFAULTS.metrics_address, metavar="HOST",
+                        help="address the metrics endpoint binds (default %(default)s)")
+    parser.add_argument("--max-message-bytes", type=int, default=_DEFAULTS.max_message_bytes,
+                        metavar="N", help="largest message either way (default %(default)s)")
+    parser.add_argument("--max-nets", type=int, default=_DEFAULTS.max_nets, metavar="N",
+                        help="nets held at once (default %(default)s)")
+    parser.add_argument("--max-shapes-per-net", type=int, default=_DEFAULTS.max_shapes_per_net,
+                        metavar="N", help="committed shapes per net (default %(default)s)")
+    parser.add_argument("--max-pins-per-net", type=int, default=_DEFAULTS.max_pins_per_net,
+                        metavar="N", help="pins per net (default %(default)s)")
+    parser.add_argument("--max-candidates", type=int, default=_DEFAULTS.max_candidates,
+                        metavar="N", help="shapes in one candidate, candidates in one batch "
+                                          "(default %(default)s)")
+    parser.add_argument("--hot-nets", type=int, default=_DEFAULTS.hot_nets, metavar="N",
+                        help="nets whose incremental state is kept built (default %(default)s)")
+    parser.add_argument("--workers", type=int, default=_DEFAULTS.workers, metavar="N",
+                        help="concurrent calls, each open session stream holding one; calls "
+                             "beyond are refused with RESOURCE_EXHAUSTED (default %(default)s)")
+    parser.add_argument("--grace", type=float, default=_DEFAULTS.grace_s, metavar="SECONDS",
+                        help="on SIGTERM/SIGINT, time calls in flight get to finish "
+                             "(default %(default)s)")
+    parser.add_argument("--log-level", default=_DEFAULTS.log_level,
+                        choices=("debug", "info", "warning", "error"),
+                        help="JSON log lines on stderr from this level (default %(default)s)")
+
+
+def config_from_args(args: argparse.Namespace) -> ServerConfig:
+    return ServerConfig(
+        listen=args.listen or list(_DEFAULTS.listen), rules=args.rules,
+        metrics_port=args.metrics_port, metrics_address=args.metrics_address,
+        max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
+        max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
+        max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
+        grace_s=args.grace, log_level=args.log_level)
+
+
+def run(args: argparse.Namespace) -> int:
+    config = config_from_args(args)
+    logs.configure(config.log_level)
+    return build_server(config).serve_forever()

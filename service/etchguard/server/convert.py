@@ -1,0 +1,177 @@
+"""Protobuf <-> engine conversion: the only place that knows both shapes of a value.
+
+Inbound, every value goes through the engine's own validators (``make_shape``,
+``make_pin``, ``resolve_layer``, ...) with the proto field path as the field name, so
+an InputError names e.g. ``candidate[2].rect`` or ``pins[0].gate_area.thin``.
+Outbound, the ``*_into`` functions fill a message the caller owns (a unary reply or
+a session reply's oneof member), so no reply is built twice or copied.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+from .. import InputError, make_pin, make_shape, resolve_layer, run_shapes
+from .._nets import checked_layer_range
+from ..v1 import etchguard_pb2 as pb
+
+_MEASURE = {"area": pb.MEASURE_AREA, "side": pb.MEASURE_SIDE}
+_KIND = {"partial": pb.RATIO_KIND_PARTIAL, "cumulative": pb.RATIO_KIND_CUMULATIVE}
+_LAYER_KIND = {"routing": pb.LAYER_KIND_ROUTING, "cut": pb.LAYER_KIND_CUT}
+_DIRECTION = {"horizontal": pb.DIRECTION_HORIZONTAL, "vertical": pb.DIRECTION_VERTICAL, None: 0}
+# fields run_shapes / run_rect name, as paths under the Shape message
+_RUN_FIELDS = {"layer": "layer", "run": "run", "width": "run.width", "extension": "run.extension"}
+
+
+# -- inbound ----------------------------------------------------------------------------
+
+def shape(deck, msg, path: str):
+    """One proto Shape (rect or run) as an engine Shape."""
+    kind = msg.WhichOneof("geometry")
+    if kind == "rect":
+        r = msg.rect
+        return make_shape(deck, msg.layer, (r.xlo, r.ylo, r.xhi, r.yhi), path)
+    if kind == "run":
+        step = resolve_layer(deck, msg.layer, f"{path}.layer")
+        run = msg.run
+        extension = run.extension if run.HasField("extension") else None
+        try:
+            (expanded,) = run_shapes(deck, step, run.x1, run.y1, run.x2, run.y2,
+                                     run.width or None, extension)
+        except InputError as exc:
+            raise InputError(exc.message, f"{path}.{_RUN_FIELDS.get(exc.field, 'run')}") from None
+        return make_shape(deck, msg.layer, expanded.rect, f"{path}.run")
+    raise InputError("a shape needs a rect or a run", f"{path}.geometry")
+
+
+def shapes(deck, msgs, path: str) -> list:
+    return [shape(deck, m, f"{path}[{i}]") for i, m in enumerate(msgs)]
+
+
+def pins(deck, msgs, path: str = "pins") -> list:
+    out = []
+    for i, p in enumerate(msgs):
+        where = f"{path}[{i}]"
+        out.append(make_pin(deck, p.name, p.layer,
+                            [(r.xlo, r.ylo, r.xhi, r.yhi) for r in p.rects],
+                            dict(p.gate_area), p.diff_area, dict(p.cell_area), where))
+    return out
+
+
+def layer_range(deck, msg, path: str = "layer_range"):
+    return checked_layer_range(deck, msg.lowest, msg.highest, path)
+
+
+def candidate_columns(deck, cols, path: str = "candidates") -> list[list]:
+    """Columnar candidates (CandidateColumns) as a list of engine shape lists."""
+    counts = cols.shape_count
+    layer = cols.layer
+    n = len(layer)
+    for name in ("xlo", "ylo", "xhi", "yhi"):
+        if len(getattr(cols, name)) != n:
+            raise InputError(f"has {len(getattr(cols, name))} values, but `layer` has {n}",
+                             f"{path}.{name}")
+    if sum(counts) != n:
+        raise InputError(f"shape counts add up to {sum(counts)}, but there are {n} shapes",
+                         f"{path}.shape_count")
+    names = list(cols.layers)
+    for j, name in enumerate(names):
+        resolve_layer(deck, name, f"{path}.layers[{j}]")
+    xlo, ylo, xhi, yhi = list(cols.xlo), list(cols.ylo), list(cols.xhi), list(cols.yhi)
+    out: list[list] = []
+    i = 0
+    for j, count in enumerate(counts):
+        if count == 0:
+            raise InputError("a candidate needs at least one shape", f"{path}.shape_count[{j}]")
+        group = []
+        for k in range(i, i + count):
+            li = layer[k]
+            if li >= len(names):
+                raise InputError(f"index {li} is past the {len(names)} entries of `layers`",
+                                 f"{path}.layer[{k}]")
+            group.append(make_shape(deck, names[li], (xlo[k], ylo[k], xhi[k], yhi[k]),
+                                    f"{path}[{k}]"))
+        out.append(group)
+        i += count
+    return out
+
+
+# -- outbound ---------------------------------------------------------------------------
+
+def deck_into(out, deck) -> None:
+    out.name = deck.name
+    out.dbu_per_micron = deck.dbu_per_micron
+    out.cumulative_includes_cuts = deck.cumulative_includes_cuts
+    for layer in deck.layers:
+        out.layers.add(name=layer.name, step=layer.index, kind=_LAYER_KIND[layer.kind],
+                       direction=_DIRECTION[layer.direction],
+                       thickness_um=layer.thickness_um or 0.0, wire_width=layer.wire_width or 0,
+                       spacing=layer.spacing or 0, cut_size=layer.cut_size or 0,
+                       enclosure=layer.enclosure or 0)
+    out.oxides.extend(deck.oxides)
+    out.rule_count = len(deck.rules)
+
+
+def ids_into(out, ids: Sequence[int]) -> None:
+    out.shape_ids.extend(ids)
+
+
+def score_into(out, score) -> None:
+    """Fill a ScoreReply from an engine Score."""
+    out.worst_change_utilization = score.worst_change_utilization
+    out.worst_utilization = score.worst_utilization
+    out.legal = score.legal
+    out.breaks_limit = score.breaks_limit
+    out.cost = score.cost
+    added = out.added_area
+    for name, area in score.added_area_um2.items():
+        added.add(layer=name, area_um2=area)
+    add = out.changes.add
+    for c in score.changes:
+        add(layer=c.layer, step=c.step, measure=_MEASURE[c.measure], kind=_KIND[c.kind],
+            oxide=c.oxide, gate=c.gate, before_ratio=c.before_ratio,
+            before_utilization=c.before_utilization, ratio=c.ratio, limit=c.limit,
+            utilization=c.utilization, headroom_um2=c.headroom_um2,
+            headroom_length_um=c.headroom_length_um)
+
+
+def batch_into(out, scores, details: bool) -> None:
+    """Fill a ScoreBatchReply's columns (and, if asked, details) from engine Scores."""
+    out.cost.extend([s.cost for s in scores])
+    out.worst_change_utilization.extend([s.worst_change_utilization for s in scores])
+    out.worst_utilization.extend([s.worst_utilization for s in scores])
+    out.legal.extend([s.legal for s in scores])
+    out.breaks_limit.extend([s.breaks_limit for s in scores])
+    out.added_area_um2.extend([sum(s.added_area_um2.values()) for s in scores])
+    if details:
+        for s in scores:
+            score_into(out.details.add(), s)
+
+
+def headroom_into(out, h) -> None:
+    out.layer = h.layer
+    out.found = h.found
+    out.area_um2 = h.area_um2
+    out.side_um2 = h.side_um2
+    out.length_um = h.length_um
+    out.binding = h.binding
+
+
+def report_into(out, report) -> None:
+    out.net = report.name
+    out.legal = report.legal
+    out.worst_utilization = report.worst_utilization
+    add = out.checks.add
+    for c in report.checks:
+        add(layer=c.layer, step=c.step, measure=_MEASURE[c.measure], kind=_KIND[c.kind],
+            oxide=c.oxide, ratio=c.ratio, limit=c.limit, utilization=c.utilization,
+            legal=c.legal, gate=c.gate)
+
+
+def stats_into(out, stats: dict, deck_name: str, uptime_s: float, version: str) -> None:
+    for key in ("nets", "shapes", "hot_nets", "scores", "commits", "removals", "checks",
+                "violations_seen"):
+        setattr(out, key, int(stats.get(key, 0)))
+    out.deck = deck_name
+    out.uptime_s = uptime_s
+    out.version = version

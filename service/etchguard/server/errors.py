@@ -1,0 +1,69 @@
+"""Engine errors -> gRPC status codes, with rich details naming the field.
+
+Every engine error carries ``field`` (a proto field path by the time it gets here)
+and ``message``. The status message is ``"<field>: <message>"``; the details carry a
+``google.rpc.ErrorInfo`` (domain ``etchguard.v1``, reason the status code's name,
+metadata ``field``) and, for INVALID_ARGUMENT, a ``google.rpc.BadRequest`` with one
+field violation, which is what client libraries show for a bad argument.
+"""
+
+from __future__ import annotations
+
+import grpc
+from google.protobuf import any_pb2
+from google.rpc import error_details_pb2, status_pb2
+from grpc_status import rpc_status
+
+from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
+                NoDeckError, NotFoundError)
+
+DOMAIN = "etchguard.v1"
+
+CODES: dict[type, grpc.StatusCode] = {
+    InputError: grpc.StatusCode.INVALID_ARGUMENT,
+    DeckError: grpc.StatusCode.INVALID_ARGUMENT,
+    NotFoundError: grpc.StatusCode.NOT_FOUND,
+    NoDeckError: grpc.StatusCode.FAILED_PRECONDITION,
+    LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
+    AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
+}
+
+
+def code_of(exc: EtchguardError) -> grpc.StatusCode:
+    for cls in type(exc).__mro__:
+        code = CODES.get(cls)
+        if code is not None:
+            return code
+    return grpc.StatusCode.INVALID_ARGUMENT
+
+
+def field_path(exc: EtchguardError, prefix: str = "") -> str:
+    """The field an error names, under ``prefix`` (e.g. a session op's name)."""
+    field = exc.field or ""
+    if prefix:
+        return f"{prefix}.{field}" if field else prefix
+    return field
+
+
+def describe(exc: EtchguardError, prefix: str = "") -> tuple[grpc.StatusCode, str, str]:
+    """(status code, message naming the field, field path) of an engine error."""
+    field = field_path(exc, prefix)
+    message = f"{field}: {exc.message}" if field else exc.message
+    return code_of(exc), message, field
+
+
+def _pack(detail) -> any_pb2.Any:
+    packed = any_pb2.Any()
+    packed.Pack(detail)
+    return packed
+
+
+def rich_status(code: grpc.StatusCode, message: str, field: str) -> grpc.Status:
+    """A grpc.Status with ErrorInfo (and BadRequest for INVALID_ARGUMENT) details."""
+    details = [_pack(error_details_pb2.ErrorInfo(reason=code.name, domain=DOMAIN,
+                                                 metadata={"field": field}))]
+    if code is grpc.StatusCode.INVALID_ARGUMENT:
+        violation = error_details_pb2.BadRequest.FieldViolation(field=field, description=message)
+        details.append(_pack(error_details_pb2.BadRequest(field_violations=[violation])))
+    status = status_pb2.Status(code=code.value[0], message=message, details=details)
+    return rpc_status.to_status(status)

@@ -1,0 +1,1 @@
+"""Generated gRPC stubs of etchguard.v1 (see etchguard._protogen)."""
