@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import cProfile
+import functools
 import gc
 import io
 import json
@@ -22,6 +23,7 @@ import os
 import platform
 import pstats
 import random
+import inspect
 import sys
 import time
 import tracemalloc
@@ -106,6 +108,19 @@ class _NoGc:
         gc.enable()
 
 
+def engine_revision() -> str:
+    """The commit the engine was measured at, marked when its files had local changes."""
+    import subprocess
+    try:
+        head = subprocess.run(["git", "rev-parse", "--short", "HEAD"], cwd=REPO, capture_output=True,
+                              text=True, timeout=10).stdout.strip()
+        dirty = subprocess.run(["git", "status", "--porcelain", "--", "service/etchguard"], cwd=REPO,
+                               capture_output=True, text=True, timeout=10).stdout.strip()
+    except (OSError, subprocess.SubprocessError):
+        return "unknown"
+    return f"{head}{' + local engine changes' if dirty else ''}" if head else "unknown"
+
+
 def machine() -> dict[str, object]:
     model = "unknown"
     try:
@@ -136,13 +151,16 @@ def open_nets(engine: Engine, deck: Deck, size: int, count: int, seed: int | str
 
 def score_bench(deck: Deck, size: int, nets: int, candidates: int, reps: int, warmup: int,
                 sanity_checks: int, sanity: Sanity, seed: int | str = 1,
-                make_candidates: Callable[..., list[list[Shape]]] = extension_candidates) -> Timing:
-    """p50/p99 of ``Engine.score`` for one candidate on nets of ``size`` shapes."""
+                make_candidates: Callable[..., list[list[Shape]]] = extension_candidates,
+                detail: bool | None = None) -> Timing:
+    """p50/p99 of ``Engine.score`` for one candidate on nets of ``size`` shapes
+    (``detail`` is passed on when given: False asks for the verdict without the
+    per-ratio change records)."""
     engine = Engine(deck)
     opened = open_nets(engine, deck, size, nets, seed)
     work = [(net, c) for net in opened for c in make_candidates(deck, net, candidates, seed=seed)]
     random.Random(f"{seed}/order").shuffle(work)
-    score = engine.score
+    score = engine.score if detail is None else functools.partial(engine.score, detail=detail)
     for net in opened:  # the first question after opening builds the assessment
         score(net.name, work[0][1])
     for i in range(warmup):
@@ -382,17 +400,26 @@ def run(settings: Settings, log: Callable[[str], None] = print) -> dict[str, obj
     rows: list[Row] = []
     overhead = timer_overhead_ns()
     score_p50: dict[int, float] = {}
+    lean_p50: dict[int, float] = {}
+    lean = "detail" in inspect.signature(Engine.score).parameters
     for size in settings.score_sizes:
         big = size >= 1_000
-        log(f"score on nets of {size} shapes ...")
-        t = score_bench(deck, size, settings.big_nets if big else settings.score_nets,
-                        settings.candidates * (4 if big else 1), settings.big_reps if big else settings.reps,
-                        settings.warmup // (10 if big else 1), 1 if big else settings.sanity_checks, sanity)
-        score_p50[size] = t.p50_us
         target = SCORE_TARGET_US.get(size)
-        rows.append(Row(f"score, 1 run, net of {size} shapes", t.p50_us, "us", t.p99_us,
-                        f"p50 <= {target:g} us" if target else "",
-                        _met(t.p50_us, target) if target else None, calls=t.count))
+        for detail in ((None, False) if lean else (None,)):
+            kind = "lean (detail=False)" if detail is False else "full"
+            log(f"score ({kind}) on nets of {size} shapes ...")
+            t = score_bench(deck, size, settings.big_nets if big else settings.score_nets,
+                            settings.candidates * (4 if big else 1),
+                            settings.big_reps if big else settings.reps,
+                            settings.warmup // (10 if big else 1), 1 if big else settings.sanity_checks,
+                            sanity, detail=detail)
+            (score_p50 if detail is None else lean_p50)[size] = t.p50_us
+            label = "" if detail is None else ", lean"
+            rows.append(Row(f"score, 1 run{label}, net of {size} shapes", t.p50_us, "us", t.p99_us,
+                            f"p50 <= {target:g} us" if target else "",
+                            _met(t.p50_us, target) if target else None,
+                            "" if detail is None else "Engine.score(..., detail=False): verdict, no change records",
+                            calls=t.count))
     log(f"score of via + run (4 shapes) on nets of {settings.commit_size} shapes ...")
     t = score_bench(deck, settings.commit_size, settings.score_nets, settings.candidates, settings.reps // 2,
                     settings.warmup, settings.sanity_checks, sanity, make_candidates=via_run_candidates)
@@ -416,7 +443,9 @@ def run(settings: Settings, log: Callable[[str], None] = print) -> dict[str, obj
                     note="bench/recompute_reference.py (STRtree + vectorised shapely, networkx)", calls=base.count))
     ratio = base.p50_us / engine_p50
     rows.append(Row(f"speed-up of score over recompute, {size} shapes", ratio, "x", None,
-                    f">= {SPEEDUP_TARGET:g}x", _met(ratio, SPEEDUP_TARGET, True), "ratio of p50s, same run"))
+                    f">= {SPEEDUP_TARGET:g}x", _met(ratio, SPEEDUP_TARGET, True),
+                    "ratio of p50s, same run, full score" + (
+                        f"; lean score: {base.p50_us / lean_p50[size]:.0f}x" if size in lean_p50 else "")))
     if (REPO / "tests" / "reference.py").exists() and settings.brute_reps:
         log("brute-force test reference (tests/reference.py) for comparison ...")
         brute = recompute_bench(deck, size, 2, settings.brute_reps, brute=True)
@@ -434,7 +463,7 @@ def run(settings: Settings, log: Callable[[str], None] = print) -> dict[str, obj
                     note=f"tracemalloc, sample of {m.sample_nets} nets"))
     rows.append(Row("open_net throughput (bulk load)", m.shapes / m.build_seconds, "shapes/s", None,
                     note=f"{m.build_seconds:.1f} s for {m.nets} nets, state built on open"))
-    return {"machine": machine(), "timer_overhead_ns": overhead, "gc": "disabled inside timing loops",
+    return {"machine": machine(), "engine_revision": engine_revision(), "timer_overhead_ns": overhead, "gc": "disabled inside timing loops",
             "deck": str(BENCH_DECK.relative_to(REPO)), "settings": asdict(settings),
             "sanity": {"compared": sanity.compared, "problems": sanity.problems},
             "rows": [asdict(r) for r in rows]}
@@ -462,7 +491,7 @@ def format_table(result: dict[str, object]) -> str:
     sanity = result["sanity"]  # type: ignore[assignment]
     out = [f"etchguard engine bench -- {m['cpu']}, {m['cores']} cores, {m['implementation']} "  # type: ignore[index]
            f"{m['python']}, load {m['load_average_1m']} (shared machine: noisy)",  # type: ignore[index]
-           f"deck {result['deck']}; per-call perf_counter_ns (overhead {result['timer_overhead_ns']:.0f} ns "
+           f"engine at {result['engine_revision']}; deck {result['deck']}; per-call perf_counter_ns (overhead {result['timer_overhead_ns']:.0f} ns "
            f"included); gc {result['gc']}",
            line(head), line(["-" * w for w in widths]), *(line(b) for b in body),
            f"sanity: {sanity['compared']} engine answers compared with the shapely + networkx "  # type: ignore[index]
