@@ -16,7 +16,7 @@ which ones do; this script only draws the geometry.
 
 Run from the repository root (fixed seed, so the output is reproducible):
 
-    .venv/bin/python service/etchguard/data/make_demo_nets.py
+    .venv/bin/python service/etchguard/data/make_demo_nets.py [OUTPUT.json]
 """
 
 from __future__ import annotations
@@ -126,16 +126,22 @@ def make_net(deck: Deck, rng: random.Random, index: int, next_cell: list[int]) -
             "shapes": [{"layer": deck.layers[s.layer].name, "rect": list(s.rect)} for s in shapes]}
 
 
-def main() -> None:
+def demo_text() -> str:
+    """The net file's text: the same for the same SEED, on any machine."""
     deck = load_deck(HERE / "lumen-6m.toml")
     rng = random.Random(SEED)
     next_cell = [100]
     nets = [make_net(deck, rng, 100 + 3 * i + rng.randint(0, 2), next_cell) for i in range(NET_COUNT)]
-    out = HERE / "lumen-demo-nets.json"
     # one net per line: readable diffs when the generator changes
     lines = ",\n".join(json.dumps(n, separators=(",", ":")) for n in nets)
-    out.write_text('{"nets":[\n' + lines + "\n]}\n", encoding="utf-8")
-    print(f"wrote {len(nets)} nets to {out}")
+    return '{"nets":[\n' + lines + "\n]}\n"
+
+
+def main(argv: list[str] | None = None) -> None:
+    args = sys.argv[1:] if argv is None else argv
+    out = Path(args[0]) if args else HERE / "lumen-demo-nets.json"
+    out.write_text(demo_text(), encoding="utf-8")
+    print(f"wrote {NET_COUNT} nets to {out}")
 
 
 if __name__ == "__main__":
