@@ -33,6 +33,8 @@ from rtree import index as rtree_index
 
 from ._errors import InputError, NotFoundError
 from ._geometry import Rect
+from ._nets import Pin
+from ._rules import Deck
 
 # Below this many entries per call, single inserts are cheaper than a rebuild.
 BULK_MIN = 256
@@ -78,6 +80,19 @@ def conflicts_with(a: Rect, b: Rect, spacing: int) -> bool:
     return d2 == 0 or d2 < spacing * spacing
 
 
+def pin_items(pins: Sequence[Pin]) -> list[tuple[int, Rect, OwnerKey]]:
+    """A net's pin rectangles as index items (pins are that net's metal too)."""
+    return [(pin.layer, r, ("pin", (p, k))) for p, pin in enumerate(pins) for k, r in enumerate(pin.rects)]
+
+
+def net_items(name: str, pins: Sequence[Pin], shapes: dict[int, tuple[int, ...]]
+              ) -> list[tuple[int, Rect, str | None, OwnerKey]]:
+    """Everything of one net for a rebuild: pins and committed shapes (id -> (layer, *rect))."""
+    out: list[tuple[int, Rect, str | None, OwnerKey]] = [(l, r, name, k) for l, r, k in pin_items(pins)]
+    out.extend((v[0], tuple(v[1:]), name, ("shape", sid)) for sid, v in shapes.items())  # type: ignore[misc]
+    return out
+
+
 class ObstacleIndex:
     """Per-layer R-trees over all nets' metal and declared blockages. Thread-safe."""
 
@@ -87,6 +102,7 @@ class ObstacleIndex:
         self._trees: list[rtree_index.Index | None] = [None] * layers
         self._entries: dict[int, _Entry] = {}
         self._by_owner: dict[tuple[str | None, OwnerKey], int] = {}
+        self._by_net: dict[str | None, set[int]] = {}
         self._next_entry = 1
         self._next_blockage = 1
         self.blockages: dict[int, tuple[int, Rect]] = {}
@@ -114,6 +130,7 @@ class ObstacleIndex:
             self._next_entry += 1
             self._entries[eid] = _Entry(layer, rect, net, key)
             self._by_owner[owner] = eid
+            self._by_net.setdefault(net, set()).add(eid)
             per_layer.setdefault(layer, []).append(eid)
         for layer, eids in per_layer.items():
             tree = self._trees[layer]
@@ -129,6 +146,10 @@ class ObstacleIndex:
         for eid in eids:
             e = self._entries.pop(eid)
             del self._by_owner[(e.net, e.key)]
+            mine = self._by_net[e.net]
+            mine.discard(eid)
+            if not mine:
+                del self._by_net[e.net]
             tree = self._trees[e.layer]
             if tree is not None:
                 tree.delete(eid, _box(e.rect))
@@ -141,6 +162,7 @@ class ObstacleIndex:
             self._trees = [None] * layers
             self._entries.clear()
             self._by_owner.clear()
+            self._by_net.clear()
             self.blockages = dict(blockages)
             all_items = list(items) + [(layer, rect, None, ("blockage", bid))
                                        for bid, (layer, rect) in blockages.items()]
@@ -149,6 +171,7 @@ class ObstacleIndex:
                 self._next_entry += 1
                 self._entries[eid] = _Entry(layer, rect, net, key)
                 self._by_owner[(net, key)] = eid
+                self._by_net.setdefault(net, set()).add(eid)
             for layer in range(layers):
                 self._stream_rebuild(layer)
 
@@ -167,7 +190,7 @@ class ObstacleIndex:
 
     def drop_net(self, net: str) -> None:
         with self._lock:
-            self._drop_locked([eid for (owner, _k), eid in self._by_owner.items() if owner == net])
+            self._drop_locked(list(self._by_net.get(net, ())))
 
     # -- blockages ----------------------------------------------------------------------
 
@@ -187,6 +210,19 @@ class ObstacleIndex:
                 raise NotFoundError(f"no blockage {bid}", "blockage_id")
             self._drop_locked([self._by_owner[(None, ("blockage", bid))]])
             del self.blockages[bid]
+
+    def moved_blockages(self, old: Deck, new: Deck) -> dict[int, tuple[int, Rect]]:
+        """The blockages re-stepped for a new deck, by layer name; refuses (and changes
+        nothing) when one lies on a layer the new deck lacks."""
+        out = {}
+        with self._lock:
+            for bid, (layer, rect) in self.blockages.items():
+                name = old.layers[layer].name
+                if name not in new.layer_index:
+                    raise InputError(f"blockage {bid} lies on layer {name}, which the new deck "
+                                     f"lacks; remove it first", "deck.layers")
+                out[bid] = (new.layer_index[name], rect)
+        return out
 
     # -- questions ----------------------------------------------------------------------
 

@@ -1,0 +1,883 @@
+"""Repair advice for a candidate run that would break a limit: hop, jumper, diode.
+
+Definitions (the project's reading of the contract, antenna-model.md, "Where can it go
+instead?"). A request is a straight run R on routing layer L: centre line P..F, width w,
+rectangle ``run_rect(P, F, w)`` (extended w//2 past each end). Everything is integer DBU.
+
+* Joining end. The end whose end square ``run_rect(E, E, w)`` connects to an element of
+  the net (a committed shape or a pin, by the contract's contact rules, on L or through
+  a cut above or below it). When both ends connect, the end whose contact reaches a
+  gate (at the top step) is preferred, then the first end. The joining end is P below;
+  the other end is the far end F.
+* Via stack S(E, a, b) at a point E between routing layers a and b: for every cut layer
+  c between them, the deck's default via centred on E (cut square of ``cut_size``,
+  landing pads of ``cut_size + 2 * enclosure`` on the metals below and above), so every
+  layer crossed gets a landing pad.
+* Layer hop to L': ``S(P, L, L') + run_rect(P, F, w') on L' + S(F, L', L)``, where w' is
+  the larger of w and L''s default wire width (a router draws a layer no narrower).
+  Candidates are the routing layers of L's preferred direction (any direction when the
+  request allows non-preferred use) inside the net's layer range, L excluded, ranked
+  by |L' - L|, upward first on a tie, then by fewest cuts. Each is scored exactly by the
+  what-if engine (every step) and checked against the design's obstacle index.
+* Jumper with kept length l (0 <= l < |F - P|), hop point Q = P + l * dir and hop layer
+  T: ``run_rect(P, Q, w) on L + S(Q, L, T) + run_rect(Q, F, w') on T + S(F, T, L)``;
+  T is the best hop layer found (the first legal and free one, else the first free one;
+  with none, the kept part alone is scored). l = |F - P| is the run as is. The kept
+  length is the largest l whose jumper leaves the net legal at every step. The hop
+  must leave room for a proper hop: the stack at Q (and the kept part's end) may not
+  touch the far-end stack, which bounds l by ``hop_room``.
+* Diode of area D at gate pin g: a pin on g's layer with g's rectangles, diff_area D and
+  nothing else (so it joins g's component from g's step on). The advice is the smallest
+  D that makes the net plus the run legal at every step, over the gates of the
+  violated checks (the gate side).
+
+Search methods, and what they rest on:
+
+* Jumper. Let u(l) be the net's worst utilization with the jumper of length l. Every
+  shape edge of the jumper either stays or moves with l at unit speed. Between two
+  "events" (values of l at which a moving edge passes a coordinate of one of the net's
+  own elements near the run, +-1 for the strict/closed contact tests) nothing changes
+  in connectivity and every union area and perimeter is affine in l (the slab swept
+  per DBU is fixed). Gate and diffusion sums are then constant, so each partial ratio
+  ``max(0, f*A - k*D) / G_eff`` is a convex function of l, each cumulative ratio a sum
+  of such, and each limit is constant: u, a maximum of convex functions divided by
+  positive constants, is convex on every event interval. Its legal set there is an
+  interval (a sublevel set of a convex function). Intervals are searched from the far
+  end back: the right end legal wins at once; a legal left end gives a bracket in
+  which a hybrid of secant steps (the chord lies above a convex u, so it never
+  overshoots the legal side), tangent steps (the tangent lies below, so it bounds the
+  illegal side) and bisection finds the last legal DBU; with both ends illegal a
+  ternary search for the minimum of the convex u decides whether any point is legal.
+  Every value comes from the engine's exact what-if score, so the answer is tight by
+  construction: l + 1 DBU is illegal (or l is ``hop_room``).
+* Diode. Adding D only changes components that hold g. On them G_eff = G + k_gate*D
+  and A_eff = max(0, f*A - k_credit*D) make every partial ratio, and every cumulative
+  ratio (a sum of such terms), a convex non-increasing function of D > 0 (a
+  linear-fractional function (a - bD)/(c + dD) with a, b, c, d >= 0 is convex, and so is
+  its maximum with 0). The limits are piecewise linear in D (diode tables, shifted by
+  the diffusion the component already has) and may fall as well as rise; so legality
+  need not be monotone in D. Between the table breakpoints the limits are affine, so
+  ``h(D) = max_i (ratio_i(D) - limit_i(D) * (1 + 1e-9))`` is convex per segment and its
+  legal set is an interval. Segments are scanned upward: a legal left end is the
+  answer; otherwise a legal right end brackets a bisection; otherwise a golden-section
+  search for the segment's minimum decides. Beyond the last breakpoint the limits are
+  constant and h is non-increasing: a doubling search up to ``MAX_DIODE_UM2`` and a
+  bisection finish it. D = 0+ is a point of its own: with D > 0 the tables replace
+  the plain maxima and ``factor_with_diode_only`` switches the area factor on. No
+  diode suffices when a violation lies in a component g never joins, or when, at the
+  largest D considered, a check still fails (a table that flattens below a ratio the
+  diode cannot lower when k_gate = k_credit = 0); the reason names the check.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+
+from ._assess import Assessment, comp_entries
+from ._errors import InputError
+from ._geometry import COORD_LIMIT, Rect, run_rect
+from ._netstate import Comp, NetState
+from ._nets import Shape, via_shapes
+from ._obstacles import Conflict, ObstacleIndex
+from ._ratios import TOLERANCE, is_legal, utilization
+from ._reports import Score
+from ._whatif import CostModel, score
+
+MAX_DIODE_UM2 = 1.0e6  # a square millimetre: beyond any cell diode, the search stops there
+DIODE_REL_PRECISION = 1e-9  # relative width of the final bisection bracket
+MAX_DIODE_PLACEMENTS = 4  # gates of the violated checks tried as diode sites
+
+Point = tuple[int, int]
+
+
+# -- result records (plain dataclasses: the RPC layer translates them field by field) ----
+
+@dataclass(frozen=True)
+class PlacedShape:
+    """One shape of a proposal, explicit in DBU."""
+
+    layer: str
+    step: int
+    rect: Rect
+
+
+@dataclass(frozen=True)
+class LayerOption:
+    """The run moved to another layer with its via stacks, scored and checked for room."""
+
+    layer: str
+    step: int
+    preferred: bool  # the layer's preferred direction is the run's
+    status: str  # "legal" | "illegal" | "blocked"
+    legal: bool  # antenna-legal at every step (whether blocked or not)
+    blocked: bool
+    shapes: tuple[PlacedShape, ...]
+    cuts: int
+    score: Score
+    conflicts: tuple[Conflict, ...] = ()
+
+
+@dataclass(frozen=True)
+class JumperAdvice:
+    """How much of the run may stay on its layer before it hops."""
+
+    applicable: bool
+    reason: str
+    run_length: int = 0  # DBU, centre line
+    kept_length: int | None = None  # DBU from the joining end; None: not even 0 is legal
+    hop_room: int = 0  # the largest kept length that still leaves room for a hop
+    limited_by: str = ""  # "limit" (l + 1 is illegal) | "hop room" | "run" (no hop needed)
+    hop_point: Point | None = None
+    hop_layer: str | None = None
+    shapes: tuple[PlacedShape, ...] = ()
+    score: Score | None = None
+    legal: bool = False
+    blocked: bool = False
+    conflicts: tuple[Conflict, ...] = ()
+
+
+@dataclass(frozen=True)
+class DiodeAdvice:
+    """The smallest diode at the gate side that makes the net legal, or why none does."""
+
+    found: bool
+    reason: str
+    gate: str | None = None  # the pin the diode sits on
+    layer: str | None = None
+    rects: tuple[Rect, ...] = ()
+    diff_area_um2: float | None = None
+    worst_utilization: float | None = None  # the net with run and diode
+
+
+@dataclass(frozen=True)
+class Advice:
+    net: str
+    layer: str
+    run: tuple[int, int, int, int]
+    width: int
+    rect: Rect
+    score: Score  # the run as it is
+    legal_as_is: bool
+    join_end: Point | None
+    far_end: Point | None
+    options: tuple[LayerOption, ...]
+    best: LayerOption | None  # the first legal, unblocked option
+    jumper: JumperAdvice | None
+    diode: DiodeAdvice | None
+    explanation: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def found(self) -> bool:
+        """A legal way exists: as is, a free layer hop, a free jumper or a diode."""
+        return (self.legal_as_is or self.best is not None
+                or (self.jumper is not None and self.jumper.legal and not self.jumper.blocked)
+                or (self.diode is not None and self.diode.found))
+
+
+@dataclass(frozen=True)
+class AdviceRequest:
+    layer: int
+    x1: int
+    y1: int
+    x2: int
+    y2: int
+    width: int
+    allow_non_preferred: bool = False
+
+
+def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: object,
+                  width: object = None, allow_non_preferred: object = False) -> AdviceRequest:
+    """Validate a request, naming the field on refusal."""
+    if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
+        raise InputError(f"unknown layer {layer!r}", "layer")
+    info = deck.layers[layer]
+    if not info.is_routing:
+        raise InputError(f"{info.name} is a cut layer; a run needs a routing layer", "layer")
+    coords = []
+    for name, v in (("x1", x1), ("y1", y1), ("x2", x2), ("y2", y2)):
+        if isinstance(v, bool) or not isinstance(v, int):
+            raise InputError(f"coordinates are integer DBU, got {v!r}", name)
+        if not -COORD_LIMIT // 2 < v < COORD_LIMIT // 2:
+            raise InputError(f"coordinate {v} is outside +-2^61 DBU", name)
+        coords.append(v)
+    if coords[0] != coords[2] and coords[1] != coords[3]:
+        raise InputError("a run's centre line must be horizontal or vertical", "run")
+    if width is None:
+        if not info.wire_width:
+            raise InputError(f"{info.name} has no default wire_width; give a width", "width")
+        width = info.wire_width
+    if isinstance(width, bool) or not isinstance(width, int) or width <= 0:
+        raise InputError(f"width must be a positive integer DBU, got {width!r}", "width")
+    if not isinstance(allow_non_preferred, bool):
+        raise InputError("must be true or false", "allow_non_preferred")
+    return AdviceRequest(layer, coords[0], coords[1], coords[2], coords[3], width, allow_non_preferred)
+
+
+# -- geometry helpers -------------------------------------------------------------------
+
+def via_stack(deck, x: int, y: int, a: int, b: int) -> list[Shape]:
+    """Default vias at (x, y) through every cut layer between routing layers a and b."""
+    lo, hi = min(a, b), max(a, b)
+    out: list[Shape] = []
+    for cut in range(lo + 1, hi):
+        if not deck.layers[cut].is_routing:
+            out.extend(via_shapes(deck, cut, x, y))
+    return out
+
+
+def _cut_count(deck, a: int, b: int) -> int:
+    lo, hi = min(a, b), max(a, b)
+    return sum(1 for c in range(lo + 1, hi) if not deck.layers[c].is_routing)
+
+
+def _placed(deck, shapes: Sequence[Shape]) -> tuple[PlacedShape, ...]:
+    return tuple(PlacedShape(deck.layers[s.layer].name, s.layer, s.rect) for s in shapes)
+
+
+class _Run:
+    """The run's centre line seen from its joining end."""
+
+    def __init__(self, req: AdviceRequest, join_first: bool) -> None:
+        p, f = (req.x1, req.y1), (req.x2, req.y2)
+        if not join_first:
+            p, f = f, p
+        self.P, self.F = p, f
+        self.axis = 0 if p[1] == f[1] and p[0] != f[0] else 1
+        self.length = abs(f[self.axis] - p[self.axis])
+        self.dir = 1 if f[self.axis] >= p[self.axis] else -1
+
+    def at(self, kept: int) -> Point:
+        if self.axis == 0:
+            return (self.P[0] + self.dir * kept, self.P[1])
+        return (self.P[0], self.P[1] + self.dir * kept)
+
+
+# -- the advice -------------------------------------------------------------------------
+
+class _Advisor:
+    def __init__(self, net: str, state: NetState, assessment: Assessment, costs: CostModel,
+                 obstacles: ObstacleIndex | None, layer_range: tuple[int, int] | None,
+                 req: AdviceRequest) -> None:
+        self.net, self.state, self.assessment, self.costs = net, state, assessment, costs
+        self.model = state.model
+        self.deck = state.model.deck
+        self.obstacles = obstacles
+        self.layer_range = layer_range
+        self.req = req
+        self.rect = run_rect(req.x1, req.y1, req.x2, req.y2, req.width)
+        self.scores = 0
+
+    def score(self, shapes: list[Shape], detail: bool = True) -> Score:
+        self.scores += 1
+        return score(self.state, self.assessment, shapes, self.costs, detail)
+
+    # joining end ----------------------------------------------------------------------
+
+    def join_end(self) -> tuple[bool | None, bool]:
+        """(True: (x1, y1) joins, False: (x2, y2) joins, None: neither), and whether the
+        joining contact reaches a gate."""
+        req, state = self.req, self.state
+        top = self.model.steps - 1
+        found = []
+        for x, y in ((req.x1, req.y1), (req.x2, req.y2)):
+            touches = state.touching(req.layer, run_rect(x, y, x, y, req.width))
+            gate = any(state.comp_at[top][e].gate > 0 for e, _ in touches)
+            found.append((bool(touches), gate))
+        if not found[0][0] and not found[1][0]:
+            return None, False
+        first = found[0] >= found[1]
+        return first, found[0][1] if first else found[1][1]
+
+    # obstacles ------------------------------------------------------------------------
+
+    def conflicts(self, shapes: Sequence[Shape]) -> tuple[Conflict, ...]:
+        if self.obstacles is None:
+            return ()
+        out: list[Conflict] = []
+        seen: set[tuple[int, Rect]] = set()
+        for s in shapes:
+            if (s.layer, s.rect) in seen:
+                continue
+            seen.add((s.layer, s.rect))
+            spacing = self.deck.layers[s.layer].spacing or 0
+            out.extend(self.obstacles.conflicts(self.net, s.layer, s.rect, spacing))
+        return tuple(out)
+
+    # layer hops -----------------------------------------------------------------------
+
+    def hop_layers(self) -> list[int]:
+        deck, L = self.deck, self.req.layer
+        lo, hi = self.layer_range if self.layer_range is not None else (0, len(deck.layers) - 1)
+        direction = deck.layers[L].direction
+        out = [l.index for l in deck.layers
+               if l.is_routing and l.index != L and lo <= l.index <= hi
+               and (self.req.allow_non_preferred or l.direction == direction)]
+        out.sort(key=lambda t: (abs(t - L), 0 if t > L else 1, _cut_count(deck, L, t)))
+        return out
+
+    def target_width(self, target: int) -> int:
+        return max(self.req.width, self.deck.layers[target].wire_width or 0)
+
+    def option(self, run: _Run, target: int) -> LayerOption | str:
+        deck = self.deck
+        try:
+            shapes = (via_stack(deck, *run.P, self.req.layer, target)
+                      + [Shape(target, run_rect(*run.P, *run.F, self.target_width(target)))]
+                      + via_stack(deck, *run.F, target, self.req.layer))
+        except InputError as exc:
+            return f"{deck.layers[target].name} cannot be reached: {exc.message}"
+        result = self.score(shapes)
+        conflicts = self.conflicts(shapes)
+        blocked = bool(conflicts)
+        status = "blocked" if blocked else ("legal" if result.legal else "illegal")
+        info = deck.layers[target]
+        return LayerOption(info.name, target, info.direction == deck.layers[self.req.layer].direction,
+                           status, result.legal, blocked, _placed(deck, shapes),
+                           2 * _cut_count(deck, self.req.layer, target), result, conflicts)
+
+    # jumper ---------------------------------------------------------------------------
+
+    def jumper_shapes(self, run: _Run, kept: int, target: int | None) -> list[Shape]:
+        deck, L, w = self.deck, self.req.layer, self.req.width
+        q = run.at(kept)
+        shapes = [Shape(L, run_rect(*run.P, *q, w))]
+        if target is not None:
+            shapes += via_stack(deck, *q, L, target)
+            shapes.append(Shape(target, run_rect(*q, *run.F, self.target_width(target))))
+            shapes += via_stack(deck, *run.F, target, L)
+        return shapes
+
+    def hop_room(self, run: _Run, target: int | None) -> int:
+        """Largest kept length whose hop-point stack (and kept end) stays clear of the
+        far-end stack: moving edges must stay >= 1 DBU short of the fixed ones."""
+        last = run.length - 1
+        if target is None:
+            return last
+        a = self.jumper_shapes(run, 0, target)
+        fixed = via_stack(self.deck, *run.F, target, self.req.layer)
+        moving = [a[0]] + a[1:len(a) - 1 - len(fixed)]
+        ax, cross = run.axis, 1 - run.axis
+        room = last
+        for m in moving:
+            for f in fixed:
+                if abs(m.layer - f.layer) > 1:
+                    continue
+                if m.rect[cross] > f.rect[cross + 2] or f.rect[cross] > m.rect[cross + 2]:
+                    continue  # apart across the run: they never meet
+                if run.dir > 0:
+                    room = min(room, f.rect[ax] - m.rect[ax + 2] - 1)
+                else:
+                    room = min(room, m.rect[ax] - f.rect[ax + 2] - 1)
+        return room
+
+    def events(self, run: _Run, target: int | None, room: int) -> list[int]:
+        """Kept lengths at which a moving jumper edge meets a coordinate of an element of
+        the net it could contact (same layer, or a cut and a metal next to each other,
+        overlapping across the run), +-1 for the strict and the closed contact tests."""
+        ax, cross = run.axis, 1 - run.axis
+        at0 = self.jumper_shapes(run, 0, target)
+        at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
+        end = self.jumper_shapes(run, room, target)
+        state = self.state
+        out = {0, room}
+        for s0, s1, s2 in zip(at0, at1, end):
+            moving = [s0.rect[k] for k in (ax, ax + 2) if s1.rect[k] != s0.rect[k]]
+            if not moving:
+                continue
+            swept = (min(s0.rect[0], s2.rect[0]) - 1, min(s0.rect[1], s2.rect[1]) - 1,
+                     max(s0.rect[2], s2.rect[2]) + 1, max(s0.rect[3], s2.rect[3]) + 1)
+            for layer in (s0.layer - 1, s0.layer, s0.layer + 1):
+                if not 0 <= layer < self.model.steps:
+                    continue
+                if layer != s0.layer and self.model.is_cut[layer] == self.model.is_cut[s0.layer]:
+                    continue
+                for _e, r in state.index[layer].near(swept):
+                    if r[cross] > swept[cross + 2] or swept[cross] > r[cross + 2]:
+                        continue
+                    if r[ax] > swept[ax + 2] or swept[ax] > r[ax + 2]:
+                        continue
+                    for c in (r[ax], r[ax + 2]):
+                        for e0 in moving:
+                            base = run.dir * (c - e0)
+                            for v in (base - 1, base, base + 1):
+                                if 0 <= v <= room:
+                                    out.add(v)
+        return sorted(out)
+
+    def jumper(self, run: _Run | None, target: int | None, as_is: Score) -> JumperAdvice:
+        deck = self.deck
+        if run is None:
+            return JumperAdvice(False, "the run joins the net at neither end: no end to keep")
+        if run.length == 0:
+            return JumperAdvice(False, "the run has no length to split", 0)
+        if as_is.legal:
+            return JumperAdvice(True, "the whole run may stay", run.length, run.length, run.length - 1,
+                                "run", None, None, (), as_is, True)
+        room = self.hop_room(run, target)
+        tname = deck.layers[target].name if target is not None else None
+        if room < 0:
+            return JumperAdvice(False, f"the run is too short to hop to {tname} and back within it",
+                                run.length, None, room)
+        cache: dict[int, Score] = {}
+
+        def at(kept: int) -> Score:
+            s = cache.get(kept)
+            if s is None:
+                s = cache[kept] = self.score(self.jumper_shapes(run, kept, target), detail=False)
+            return s
+
+        best = None
+        points = self.events(run, target, room)
+        for a, b in reversed(list(zip(points, points[1:])) or [(points[0], points[0])]):
+            best = _last_legal_in(at, a, b)
+            if best is not None:
+                break
+        if best is None:
+            why = (f"even hopping to {tname} right at the joining end leaves the net over a limit"
+                   if target is not None else "no part of the run can stay on it, and no layer to hop to")
+            return JumperAdvice(True, why, run.length, None, room, "limit", None, tname)
+        shapes = self.jumper_shapes(run, best, target)
+        result = self.score(shapes)
+        conflicts = self.conflicts(shapes[1:]) if target is not None else ()
+        limited = "hop room" if best == room and not (best + 1 < run.length and not at(best + 1).legal) else "limit"
+        if best == room and best + 1 == run.length:
+            limited = "limit"  # l + 1 is the run as is, which is illegal
+        return JumperAdvice(True, "", run.length, best, room, limited, run.at(best), tname,
+                            _placed(deck, shapes), result, result.legal, bool(conflicts), conflicts)
+
+    # diode ----------------------------------------------------------------------------
+
+    def diode(self, as_is: Score) -> DiodeAdvice:
+        state = self.state
+        names = {p.name: i for i, p in enumerate(state.pins)}
+        order: list[int] = []
+        for c in sorted(as_is.changes, key=lambda c: -c.utilization):
+            if not is_legal(c.utilization) and c.gate in names and names[c.gate] not in order:
+                order.append(names[c.gate])
+        if not order:  # the run breaks nothing itself: the violation was there before
+            for s in range(self.model.steps):
+                for util, comp in self.assessment.ranked[s]:
+                    if not is_legal(util):
+                        for p in comp.gates:
+                            if p not in order:
+                                order.append(p)
+        if not order:
+            return DiodeAdvice(False, "no violated check has a gate to protect")
+        model = _DiodeModel(self.state, self.assessment, self.req.layer, self.rect)
+        best: DiodeAdvice | None = None
+        reasons = []
+        for p in order[:MAX_DIODE_PLACEMENTS]:
+            found = model.smallest(p)
+            pin = state.pins[p]
+            if isinstance(found, str):
+                reasons.append(f"at {pin.name}: {found}")
+                continue
+            area, worst = found
+            if best is None or area < best.diff_area_um2:  # type: ignore[operator]
+                best = DiodeAdvice(True, "", pin.name, self.deck.layers[pin.layer].name, pin.rects,
+                                   area, worst)
+        return best or DiodeAdvice(False, "; ".join(reasons))
+
+    # all of it -----------------------------------------------------------------------
+
+    def advise(self) -> Advice:
+        req, deck = self.req, self.deck
+        L = req.layer
+        lname = deck.layers[L].name
+        as_is = self.score([Shape(L, self.rect)])
+        joins, _gate = self.join_end()
+        run = _Run(req, joins is not False)
+        join_point = run.P if joins is not None else None
+        far_point = run.F if joins is not None else None
+        run_info = (req.x1, req.y1, req.x2, req.y2)
+        if as_is.legal:
+            text = (f"{lname} run is legal as is: worst {_pct(as_is.worst_utilization)} "
+                    f"of the limit at any step",)
+            return Advice(self.net, lname, run_info, req.width, self.rect, as_is, True, join_point,
+                          far_point, (), None, None, None, text)
+        explanation = [self._violation_sentence(lname, as_is)]
+        options: list[LayerOption] = []
+        notes: list[str] = []
+        for target in self.hop_layers():
+            opt = self.option(run, target)
+            if isinstance(opt, str):
+                notes.append(opt)
+            else:
+                options.append(opt)
+        best = next((o for o in options if o.status == "legal"), None)
+        explanation.append(self._options_sentence(best, options, notes))
+        free = [o for o in options if not o.blocked]
+        target_opt = best or (free[0] if free else None)
+        jumper = self.jumper(run if joins is not None else None,
+                             target_opt.step if target_opt else None, as_is)
+        explanation.append(self._jumper_sentence(lname, jumper))
+        diode = self.diode(as_is)
+        explanation.append(self._diode_sentence(diode))
+        return Advice(self.net, lname, run_info, req.width, self.rect, as_is, False, join_point,
+                      far_point, tuple(options), best, jumper, diode, tuple(explanation))
+
+    # sentences -------------------------------------------------------------------------
+
+    def _violation_sentence(self, lname: str, as_is: Score) -> str:
+        bad = [c for c in as_is.changes if not is_legal(c.utilization)]
+        if bad:
+            c = max(bad, key=lambda c: c.utilization)
+            return (f"{lname} would reach {c.ratio:.4g} of {c.limit:.4g} ({c.kind} {c.measure}, "
+                    f"{c.oxide} oxide) at step {c.layer} on the gate side of {c.gate}")
+        return (f"the net is over a limit already, before this run "
+                f"(worst {_pct(max(self.assessment.step_worst, default=0.0))}); "
+                f"no layer choice for the run can fix that")
+
+    @staticmethod
+    def _options_sentence(best: LayerOption | None, options: list[LayerOption], notes: list[str]) -> str:
+        if not options and not notes:
+            return "no other routing layer of the run's direction lies in the net's layer range"
+        parts = []
+        if best is not None:
+            parts.append(f"{best.layer} is free and legal at {_pct(best.score.worst_utilization)}")
+        for o in options:
+            if o is best:
+                continue
+            if o.blocked:
+                c = o.conflicts[0]
+                parts.append(f"{o.layer} is blocked by {c.owner} on {c.rect}")
+            elif not o.legal:
+                parts.append(f"{o.layer} would still reach {_pct(o.score.worst_utilization)}")
+            if best is not None and o.step == best.step:
+                break
+        parts.extend(notes)
+        if best is None:
+            parts.append("no layer in range is both free and legal")
+        return "; ".join(parts)
+
+    def _jumper_sentence(self, lname: str, j: JumperAdvice) -> str:
+        if not j.applicable:
+            return f"jumper: {j.reason}"
+        if j.kept_length is None:
+            return f"jumper: {j.reason}"
+        um = j.kept_length / self.deck.dbu_per_micron
+        if j.hop_layer is None:
+            return (f"jumper: at most {j.kept_length} DBU ({um:.4g} um) of the run may stay on {lname} "
+                    f"from the joining end; no layer is free to carry the rest")
+        state = "blocked at the hop" if j.blocked else f"legal at {_pct(j.score.worst_utilization)}"  # type: ignore[union-attr]
+        return (f"jumper: keep {j.kept_length} DBU ({um:.4g} um) on {lname}, hop to {j.hop_layer} "
+                f"at {_pt(j.hop_point)}: {state}")  # type: ignore[arg-type]
+
+    @staticmethod
+    def _diode_sentence(d: DiodeAdvice) -> str:
+        if d.found:
+            return (f"diode: {d.diff_area_um2:.6g} um^2 of diffusion at {d.gate} makes the net legal "
+                    f"(worst {_pct(d.worst_utilization or 0.0)})")
+        return f"diode: none suffices ({d.reason})"
+
+
+def _pct(u: float) -> str:
+    return "inf" if math.isinf(u) else f"{u * 100:.0f}%"
+
+
+def _pt(p: Point) -> str:
+    return f"({p[0]}, {p[1]})"
+
+
+def advise(net: str, state: NetState, assessment: Assessment, costs: CostModel,
+           obstacles: ObstacleIndex | None, layer_range: tuple[int, int] | None,
+           req: AdviceRequest) -> Advice:
+    """The advice for one run (the caller holds the net's lock)."""
+    return _Advisor(net, state, assessment, costs, obstacles, layer_range, req).advise()
+
+
+# -- jumper search on one event interval ---------------------------------------------------
+
+def _last_legal_in(at: Callable[[int], Score], a: int, b: int) -> int | None:
+    """The largest legal kept length in [a, b], where u is convex (see the docstring)."""
+    if at(b).legal:
+        return b
+    if a == b:
+        return None
+    if at(a).legal:
+        return _last_legal(at, a, b)
+    if b - a <= 3:
+        for v in range(b - 1, a, -1):
+            if at(v).legal:
+                return v
+        return None
+    u = lambda v: at(v).worst_utilization  # noqa: E731
+    # A convex sequence lies above the lines through its first and last differences;
+    # where their maximum stays above 1 no point of [a, b] is legal.
+    s1, s2 = u(a + 1) - u(a), u(b) - u(b - 1)
+    if not (math.isfinite(s1) and math.isfinite(s2)):
+        return None
+    if s1 >= 0 or s2 <= 0:
+        return None  # convex and monotone on [a, b]: its minimum is an illegal end
+    x = (u(b) - u(a) + s1 * a - s2 * b) / (s1 - s2)
+    if u(a) + s1 * (x - a) > 1.0 + TOLERANCE:
+        return None
+    lo, hi = a, b
+    while hi - lo > 2:
+        m1, m2 = lo + (hi - lo) // 3, hi - (hi - lo) // 3
+        if u(m1) <= u(m2):
+            hi = m2
+        else:
+            lo = m1
+    m = min(range(lo, hi + 1), key=u)
+    return _last_legal(at, m, b) if at(m).legal else None
+
+
+def _last_legal(at: Callable[[int], Score], lo: int, hi: int) -> int:
+    """Last legal point of a convex u with lo legal and hi illegal."""
+    while hi - lo > 1:
+        width = hi - lo
+        ulo, uhi = at(lo).worst_utilization, at(hi).worst_utilization
+        guesses = []
+        slope = at(lo + 1).worst_utilization - ulo
+        if slope > 0 and math.isfinite(slope):  # tangent: u >= tangent, so past it is illegal
+            guesses.append(lo + int(math.floor((1.0 - ulo) / slope)) + 1)
+        if math.isfinite(uhi) and uhi > ulo:  # chord: u <= chord, so before it is legal
+            guesses.append(lo + int(math.floor((1.0 - ulo) * width / (uhi - ulo))))
+        for g in guesses:
+            g = min(max(g, lo + 1), hi - 1)
+            if lo < g < hi:
+                if at(g).legal:
+                    lo = g
+                else:
+                    hi = g
+        if hi - lo > width // 2 and hi - lo > 1:
+            mid = (lo + hi) // 2
+            if at(mid).legal:
+                lo = mid
+            else:
+                hi = mid
+    return lo
+
+
+# -- diode: the run's components with a parametric diffusion -------------------------------
+
+class _DiodeModel:
+    """Checks of the net plus the run as functions of a diode's diffusion D at one pin.
+
+    Built from the net's state without changing it: the run (one rectangle) merges, at
+    each step s >= its layer, the components it touches into one (as the what-if does);
+    components that hold neither the run nor the diode keep their assessed checks.
+    """
+
+    def __init__(self, state: NetState, assessment: Assessment, layer: int, rect: Rect) -> None:
+        self.state, self.assessment = state, assessment
+        model = self.model = state.model
+        steps = model.steps
+        touches = state.touching(layer, rect)
+        self.layer = layer
+        self.merged_from: list[set[Comp]] = [set() for _ in range(steps)]
+        self.merged: list[Comp | None] = [None] * steps
+        routed = state.routed_on(layer, touches)
+        local = state.local_delta(rect, routed, layer)
+        for s in range(layer, steps):
+            comps = {state.comp_at[s][e] for e, joined in touches if joined <= s}
+            group = Comp()
+            for c in comps:  # aggregates only: members are not needed
+                group.gate += c.gate
+                for ox, g in c.gate_ox.items():
+                    group.gate_ox[ox] = group.gate_ox.get(ox, 0.0) + g
+                group.diff += c.diff
+                group.area += c.area
+                group.perim += c.perim
+                group.cell += c.cell
+                group.gates.extend(c.gates)
+            if s == layer:
+                group.area += local[0]
+                group.perim += local[1]
+            self.merged_from[s] = comps
+            self.merged[s] = group
+
+    def post(self, element: int, s: int) -> Comp | None:
+        c = self.state.comp_at[s].get(element)
+        if c is not None and s >= self.layer and c in self.merged_from[s]:
+            return self.merged[s]
+        return c
+
+    def smallest(self, p: int) -> tuple[float, float] | str:
+        """(D, worst utilization) of the smallest diode at pin p, or why there is none."""
+        state, model, assessment = self.state, self.model, self.assessment
+        deck = model.deck
+        steps = model.steps
+        anchor = state.anchor_of_pin
+        pins_ox = assessment.pins_ox
+        lp = state.pins[p].layer
+        site: list[Comp | None] = [self.post(anchor[p], s) if s >= lp else None for s in range(steps)]
+
+        def car_terms(q: int, gi: int) -> list[tuple[int, Comp, bool]]:
+            out = []
+            for t in range(state.pins[q].layer, steps):
+                c = self.post(anchor[q], t)
+                out.append((t, c, c is site[t]))  # type: ignore[arg-type]
+            return out
+
+        # checks that do not depend on D
+        fixed = 0.0
+        fixed_where = ""
+        for s in range(steps):
+            excluded: set[Comp] = set(self.merged_from[s]) if s >= self.layer else set()
+            if s >= lp:
+                excluded.add(state.comp_at[s][anchor[p]])
+            w = assessment.worst_untouched(s, excluded)
+            group = self.merged[s] if s >= self.layer else None
+            if group is not None and group.gate > 0 and group is not site[s]:
+                for e in comp_entries(model, s, group, self._cars_at(group, s), pins_ox):
+                    w = max(w, e.utilization)
+            if w > fixed:
+                fixed, fixed_where = w, deck.layers[s].name
+        if not is_legal(fixed):
+            return (f"a check at step {fixed_where} ({_pct(fixed)}) lies in a component "
+                    f"the pin never joins")
+
+        # checks that do: the site's component at every step from the pin's layer on
+        terms = {}
+        checks: list[tuple[int, object]] = []
+        breakpoints: set[float] = set()
+        for s in range(lp, steps):
+            c = site[s]
+            if c is None or c.gate <= 0:
+                continue
+            for key in model.partial_checks[s]:
+                if key.oxide in c.gate_ox:
+                    checks.append((s, ("p", key, model.conductor(s, key.measure, c.area, c.cell, c.perim))))
+                    breakpoints.update(x - c.diff for x, _ in key.rule.diode_partial_max)
+            for key in model.cumulative_checks[s]:
+                if key.oxide not in c.gate_ox:
+                    continue
+                gi = model.group_index[(key.measure, key.oxide)]
+                for q in c.gates:
+                    if key.oxide in pins_ox[q]:
+                        if (q, gi) not in terms:
+                            terms[(q, gi)] = car_terms(q, gi)
+                        checks.append((s, ("c", key, (q, gi))))
+                breakpoints.update(x - c.diff for x, _ in key.rule.diode_cumulative_max)
+        if not checks:
+            return "the pin's component has no check a diode could change"
+
+        def evaluate(D: float) -> tuple[float, float, str]:
+            """(h, worst utilization, which check is worst by h)."""
+            cars: dict[tuple[int, int], list[float]] = {}
+            for (q, gi), seq in terms.items():
+                row = [0.0] * steps
+                sums = [0.0, 0.0]
+                for t, c, has in seq:
+                    lane = model.lane[t]
+                    sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
+                                             c.diff + (D if has else 0.0))
+                    row[t] = sums[lane]
+                cars[(q, gi)] = row
+            h, worst, which = -math.inf, fixed, ""
+            for s, (kind, key, extra) in checks:  # type: ignore[misc]
+                c = site[s]
+                diff = c.diff + D  # type: ignore[union-attr]
+                if kind == "p":
+                    ratio = key.rule.ratio(extra, c.gate, diff)  # type: ignore[union-attr]
+                    limit = key.rule.partial_limit(diff)
+                else:
+                    ratio = cars[extra][s]
+                    limit = key.rule.cumulative_limit(diff)
+                g = ratio - limit * (1.0 + TOLERANCE)
+                worst = max(worst, utilization(ratio, limit))
+                if g > h:
+                    h, which = g, (f"{key.kind} {key.measure} at step {deck.layers[s].name}: "
+                                   f"ratio {ratio:.4g} against a limit of {limit:.4g}")
+            return h, worst, which
+
+        tiny = 1e-12
+        cuts = sorted(b for b in breakpoints if b > tiny)
+        segments = list(zip([tiny] + cuts, cuts + [math.inf]))
+        for lo, hi in segments:
+            hlo = evaluate(lo)[0]
+            if hlo <= 0:
+                return lo, evaluate(lo)[1]
+            if math.isinf(hi):
+                probe = max(2.0 * lo, 1.0)
+                while evaluate(probe)[0] > 0:
+                    if probe >= MAX_DIODE_UM2:
+                        _, _, which = evaluate(MAX_DIODE_UM2)
+                        return self._why_not(which)
+                    probe = min(probe * 2.0, MAX_DIODE_UM2)
+                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, probe)
+                return d, evaluate(d)[1]
+            if evaluate(hi)[0] <= 0:
+                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, hi)
+                return d, evaluate(d)[1]
+            # both ends illegal: the segment's convex minimum decides
+            if not _may_dip(lambda x: evaluate(x)[0], lo, hi):
+                continue
+            m = _golden_min(lambda x: evaluate(x)[0], lo, hi)
+            if evaluate(m)[0] <= 0:
+                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, m)
+                return d, evaluate(d)[1]
+        return self._why_not(evaluate(MAX_DIODE_UM2)[2])
+
+    @staticmethod
+    def _why_not(which: str) -> str:
+        return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {which}; the diode tables "
+                f"and factors of that rule do not reach it")
+
+    def _cars_at(self, group: Comp, s: int) -> dict[tuple[int, int], float]:
+        """Cumulative ratios at step s of the gates of a merged component (no diode in it)."""
+        state, model = self.state, self.model
+        out = {}
+        for q in group.gates:
+            for gi, (_m, ox) in enumerate(model.groups):
+                if ox not in self.assessment.pins_ox[q]:
+                    continue
+                total = 0.0
+                lane = model.lane[s]
+                for t in range(state.pins[q].layer, s + 1):
+                    if model.lane[t] != lane:
+                        continue
+                    c = self.post(state.anchor_of_pin[q], t)
+                    total += model.term(t, gi, c.area, c.cell, c.perim, c.gate, c.diff)  # type: ignore[union-attr]
+                out[(q, gi)] = total
+        return out
+
+
+def _bisect_left_edge(h: Callable[[float], float], lo: float, hi: float) -> float:
+    """Smallest legal D in (lo, hi] with h(lo) > 0 >= h(hi) and a convex h (one crossing)."""
+    while hi - lo > DIODE_REL_PRECISION * hi:
+        mid = 0.5 * (lo + hi)
+        if h(mid) <= 0:
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+def _may_dip(h: Callable[[float], float], lo: float, hi: float) -> bool:
+    """Whether a convex h, positive at both ends of [lo, hi], may be <= 0 inside: it lies
+    above its tangents at the ends, approximated by difference quotients over a step
+    delta (a difference quotient bounds the one-sided derivative from the inside)."""
+    delta = max(hi - lo, 1e-300) * 1e-7
+    h_lo, h_hi = h(lo), h(hi)
+    s1 = (h(lo + delta) - h_lo) / delta
+    s2 = (h_hi - h(hi - delta)) / delta
+    if s1 >= 0 or s2 <= 0:
+        return False
+    x = (h_hi - h_lo + s1 * lo - s2 * hi) / (s1 - s2)
+    return h_lo + s1 * (x - lo) <= 0
+
+
+def _golden_min(h: Callable[[float], float], lo: float, hi: float) -> float:
+    ratio = (math.sqrt(5.0) - 1.0) / 2.0
+    a, b = lo, hi
+    c, d = b - ratio * (b - a), a + ratio * (b - a)
+    hc, hd = h(c), h(d)
+    for _ in range(80):
+        if hc <= 0:
+            return c
+        if hd <= 0:
+            return d
+        if hc < hd:
+            b, d, hd = d, c, hc
+            c = b - ratio * (b - a)
+            hc = h(c)
+        else:
+            a, c, hc = c, d, hd
+            d = a + ratio * (b - a)
+            hd = h(d)
+    return c if hc < hd else d
