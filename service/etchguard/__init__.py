@@ -4,7 +4,10 @@ The public face of the package; the modules behind it are private rooms, one per
 concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 """
 
+from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption,
+                      PlacedShape)
 from ._engine import Engine, Limits
+from ._obstacles import Conflict
 from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
                       LimitExceededError, NoDeckError, NotFoundError)
 from ._geometry import Rect, run_rect, union_measures
@@ -17,6 +20,8 @@ from ._whatif import CostModel
 __version__ = "0.1.0"
 
 __all__ = [
+    "Advice", "AdviceRequest", "Conflict", "DiodeAdvice", "JumperAdvice", "LayerOption",
+    "PlacedShape",
     "AlreadyExistsError", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
     "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",

@@ -27,6 +27,10 @@ from ._ratios import StepModel, conductor_headroom
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck
 from ._whatif import CostModel, score
+# advice and the design-wide obstacle index (issue 4): see the "advice" section below
+from ._advice import Advice, advise as _advise, check_request as _check_advice_request
+from ._geometry import checked_rect as _checked_rect
+from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items
 
 
 @dataclass(frozen=True)
@@ -65,6 +69,7 @@ class Engine:
         self._deck: Deck | None = None
         self._model: StepModel | None = None
         self.counters = {"scores": 0, "commits": 0, "removals": 0, "checks": 0, "violations_seen": 0}
+        self._obstacles = ObstacleIndex()  # every net's metal + declared blockages (advice)
         if deck is not None:
             self.load_deck(deck)
 
@@ -86,11 +91,14 @@ class Engine:
                 net.lock.acquire()
             try:
                 moved = [self._moved(net, old, deck) for net in nets] if old is not None else []
+                blockages = self._obstacles.moved_blockages(old, deck) if old is not None else {}
                 self._deck, self._model = deck, StepModel(deck)
                 for net, (pins, shapes, layer_range) in zip(nets, moved):
                     net.pins, net.shapes, net.layer_range = pins, shapes, layer_range
                     net.state = net.assessment = None
                 self._hot.clear()
+                self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
+                    net.name, net.pins, net.shapes)], blockages)
             finally:
                 for net in nets:
                     net.lock.release()
@@ -136,6 +144,7 @@ class Engine:
                 raise LimitExceededError(f"{self.limits.max_nets} nets are held already", "net")
             net = _Net(name, tuple(pins), layer_range)
             self._nets[name] = net
+            self._obstacles.add_net_items(name, _pin_items(net.pins))
         with net.lock:
             return self._commit_locked(net, shapes)
 
@@ -145,6 +154,7 @@ class Engine:
                 raise NotFoundError(f"no open net {name!r}", "net")
             net = self._nets.pop(name)
             self._hot.pop(name, None)
+            self._obstacles.drop_net(name)
         with net.lock:
             net.state = net.assessment = None
 
@@ -220,6 +230,7 @@ class Engine:
             if state is not None:
                 state.add_shape(sid, s.layer, s.rect)
             ids.append(sid)
+        self._obstacles.add_net_items(net.name, [(s.layer, s.rect, ("shape", sid)) for s, sid in zip(shapes, ids)])
         self.counters["commits"] += len(shapes)
         return ids
 
@@ -235,6 +246,7 @@ class Engine:
                 seen.add(sid)
             for sid in ids:
                 del net.shapes[sid]
+            self._obstacles.remove_net_items(name, [("shape", sid) for sid in ids])
             if net.state is not None:
                 if len(ids) * 2 > len(net.state.shape_ids):
                     net.state = None  # cheaper to rebuild from what stays
@@ -330,6 +342,30 @@ class Engine:
         return {"nets": len(nets), "shapes": sum(len(n.shapes) for n in nets), "hot_nets": hot,
                 **self.counters}
 
+
+    # -- advice (issue 4): blockages and repair advice ---------------------------------
+
+    def declare_blockage(self, layer: int, rect: Sequence[int]) -> int:
+        """Declare an area of a layer no new shape may use; returns its id."""
+        deck = self.deck
+        if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
+            raise InputError(f"unknown layer {layer!r}", "layer")
+        return self._obstacles.add_blockage(layer, _checked_rect(list(rect), "rect"))
+
+    def remove_blockage(self, blockage_id: int) -> None:
+        self._obstacles.remove_blockage(blockage_id)
+
+    def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
+               width: int | None = None, allow_non_preferred: bool = False) -> Advice:
+        """Repair advice for a candidate run: layer hops, jumper point, diode (see _advice)."""
+        request = _check_advice_request(self.deck, layer, x1, y1, x2, y2, width, allow_non_preferred)
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            result = _advise(name, state, self._assessment(net, state), self.costs, self._obstacles,
+                             net.layer_range, request)
+        self.counters["scores"] += 1
+        return result
 
 def layer_headroom(state: NetState, assessment: Assessment, layer: int, element: int) -> Headroom:
     """Remaining conductor on ``layer`` for the component holding ``element``.
