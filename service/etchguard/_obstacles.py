@@ -134,7 +134,7 @@ class ObstacleIndex:
             per_layer.setdefault(layer, []).append(eid)
         for layer, eids in per_layer.items():
             tree = self._trees[layer]
-            held = 0 if tree is None else tree.get_size()
+            held = 0 if tree is None else len(tree)
             if len(eids) >= BULK_MIN and len(eids) >= held:
                 self._stream_rebuild(layer)
             else:
