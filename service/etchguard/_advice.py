@@ -170,9 +170,11 @@ class Advice:
 
     @property
     def found(self) -> bool:
-        """A legal way exists: as is, a free layer hop, a free jumper or a diode."""
+        """A legal way exists: as is, a free layer hop, a free jumper that hops (a kept
+        part alone leaves the rest unrouted, so it is no fix) or a diode."""
         return (self.legal_as_is or self.best is not None
-                or (self.jumper is not None and self.jumper.legal and not self.jumper.blocked)
+                or (self.jumper is not None and self.jumper.hop_layer is not None
+                    and self.jumper.legal and not self.jumper.blocked)
                 or (self.diode is not None and self.diode.found))
 
 

@@ -1,0 +1,94 @@
+"""``etchguard advise``: repair advice for one candidate run, for people at a terminal.
+
+Loads every net of the net file (so other nets' metal counts as obstacles), then asks
+the engine for advice on a run of the named net. Exit status: 0 when the run is legal
+as is or a legal fix was found, 1 when only illegal (or blocked) options exist, 2 on
+bad input.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import json
+import math
+import sys
+from typing import Any
+
+from ._advice import Advice
+from ._engine import Engine
+from ._errors import InputError
+from ._nets import load_net_file, resolve_layer
+from ._rules import load_deck
+
+HELP = "advise on a candidate run of one net: nearest legal layer hop, jumper point, diode"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("nets", help="net file (JSON); every net in it is loaded")
+    parser.add_argument("--rules", required=True, metavar="DECK", help="rule deck (TOML)")
+    parser.add_argument("--net", required=True, help="the net the run belongs to")
+    parser.add_argument("--run", required=True, nargs=5, metavar=("LAYER", "X1", "Y1", "X2", "Y2"),
+                        help="the candidate run: routing layer name and centre-line end points (DBU)")
+    parser.add_argument("--width", type=int, default=None, help="run width in DBU (default: the layer's)")
+    parser.add_argument("--non-preferred", action="store_true",
+                        help="also consider layers whose preferred direction differs from the run's")
+    parser.add_argument("--json", action="store_true", help="print the whole advice as JSON")
+
+
+def _plain(value: Any) -> Any:
+    """JSON-safe: non-finite floats become strings ("inf"), tuples lists."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return "inf" if value > 0 else ("-inf" if value < 0 else "nan")
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    return value
+
+
+def advice_as_dict(advice: Advice) -> dict[str, Any]:
+    out = _plain(dataclasses.asdict(advice))
+    out["found"] = advice.found
+    return out
+
+
+def format_text(advice: Advice) -> str:
+    lines = [f"net {advice.net}: {advice.layer} run {advice.run} width {advice.width}"]
+    lines += [f"  {sentence}" for sentence in advice.explanation]
+    if advice.options:
+        lines.append("  layer  state    use      cuts  blocked by")
+        for o in advice.options:
+            u = o.score.worst_utilization
+            use = "inf" if math.isinf(u) else f"{u:.1%}"
+            blocker = ", ".join(sorted({c.owner for c in o.conflicts})) or "-"
+            lines.append(f"  {o.layer:<5}  {o.status:<7}  {use:>7}  {o.cuts:>4}  {blocker}")
+    if advice.best is not None:
+        lines.append(f"  shapes for {advice.best.layer} (layer, rect in DBU):")
+        lines += [f"    {p.layer:<4} {list(p.rect)}" for p in advice.best.shapes]
+    return "\n".join(lines)
+
+
+def run(args: argparse.Namespace) -> int:
+    deck = load_deck(args.rules)
+    specs = load_net_file(deck, args.nets)
+    layer = resolve_layer(deck, args.run[0], "run.layer")
+    coords = []
+    for name, text in zip(("x1", "y1", "x2", "y2"), args.run[1:]):
+        try:
+            coords.append(int(text))
+        except ValueError:
+            raise InputError(f"coordinates are integer DBU, got {text!r}", f"run.{name}") from None
+    if not any(s.name == args.net for s in specs):
+        raise InputError(f"the net file has no net {args.net!r}", "net")
+    engine = Engine(deck)
+    for spec in specs:
+        engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
+    advice = engine.advise(args.net, layer, *coords, width=args.width,
+                           allow_non_preferred=args.non_preferred)
+    if args.json:
+        json.dump(advice_as_dict(advice), sys.stdout, indent=1)
+        sys.stdout.write("\n")
+    else:
+        print(format_text(advice))
+    return 0 if advice.found else 1
