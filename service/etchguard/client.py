@@ -368,10 +368,13 @@ class Session:
     def send(self, op: str, message: Any) -> int:
         """Queue one request (``op`` a SessionRequest field: "score", "commit", ...)."""
         seq = next(self._seq)
-        request = pb.SessionRequest(seq=seq, **{op: message})
+        self.send_request(pb.SessionRequest(seq=seq, **{op: message}))
+        return seq
+
+    def send_request(self, request: pb.SessionRequest) -> None:
+        """Queue a request built by the caller (its seq is the caller's to choose)."""
         self._outbox.put(request)
         self._pending += 1
-        return seq
 
     def receive(self) -> pb.SessionReply:
         """The next reply, in the order the requests were sent."""

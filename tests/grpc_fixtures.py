@@ -1,0 +1,138 @@
+"""A real ``etchguard serve`` process on a loopback port, for the gRPC tests.
+
+``start_server()`` runs the server as a subprocess with ``--listen 127.0.0.1:0`` (the
+kernel picks a free port) and reads the bound address from its JSON "listening" log
+line; the metrics endpoint gets a free port found the same way. ``stop()`` sends
+SIGTERM and waits. Test modules import the fixtures they use from here.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import socket
+import subprocess
+import sys
+import threading
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pytest
+
+from etchguard.client import Client, pin, rect, run
+
+REPO = Path(__file__).resolve().parents[1]
+DEMO_DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
+START_TIMEOUT_S = 20.0
+
+
+def free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@dataclass
+class ServerProcess:
+    proc: subprocess.Popen
+    address: str = ""
+    metrics_port: int = 0
+    logs: list[dict] = field(default_factory=list)
+    _listening: threading.Event = field(default_factory=threading.Event)
+
+    def _read(self) -> None:
+        assert self.proc.stderr is not None
+        for line in self.proc.stderr:
+            try:
+                entry = json.loads(line)
+            except json.JSONDecodeError:
+                entry = {"msg": line.rstrip("\n"), "level": "raw"}
+            self.logs.append(entry)
+            if entry.get("msg") == "listening":
+                self.address = entry["addresses"][0]
+                self.metrics_port = entry.get("metrics_port", 0)
+                self._listening.set()
+        self._listening.set()  # the process ended: stop waiting
+
+    def client(self, **kwargs) -> Client:
+        return Client(self.address, timeout=kwargs.pop("timeout", 20.0), **kwargs)
+
+    def signal(self, signum: int = signal.SIGTERM) -> None:
+        self.proc.send_signal(signum)
+
+    def stop(self, timeout: float = 15.0) -> int:
+        if self.proc.poll() is None:
+            self.proc.send_signal(signal.SIGTERM)
+        try:
+            return self.proc.wait(timeout)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+            raise
+
+    def messages(self) -> list[str]:
+        return [e.get("msg", "") for e in self.logs]
+
+
+def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = True,
+                 listen: str = "127.0.0.1:0") -> ServerProcess:
+    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", listen,
+           "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+    if rules is not None:
+        cmd += ["--rules", str(rules)]
+    env = dict(os.environ, PYTHONUNBUFFERED="1")
+    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
+    server = ServerProcess(proc)
+    threading.Thread(target=server._read, daemon=True).start()
+    if not server._listening.wait(START_TIMEOUT_S) or not server.address:
+        proc.kill()
+        proc.wait()
+        raise RuntimeError(f"etchguard serve did not start: {server.logs}")
+    return server
+
+
+@pytest.fixture(scope="module")
+def server():
+    """A server on the demo deck with metrics on, shared by a test module."""
+    s = start_server()
+    yield s
+    s.stop()
+
+
+@pytest.fixture
+def client(server):
+    with server.client() as c:
+        yield c
+
+
+_names = iter(range(1_000_000))
+
+
+def net_name(prefix: str = "n") -> str:
+    """A net name unique in this test process (tests share a server)."""
+    return f"{prefix}{next(_names)}"
+
+
+# A small net on the demo deck: a gate pin and a driver pin joined by M1 - V1 - M2.
+GATE = pin("u1.a", "M1", [(0, 0, 200, 200)], gate_area={"thin": 0.05}, cell_area={"M1": 0.02})
+DRIVER = pin("u0.y", "M1", [(20_000, 0, 20_200, 200)], diff_area=0.3)
+
+
+def trunk(deck) -> list:
+    """M1 from the gate, a via up to M2 (committed shapes of the small net)."""
+    from etchguard.client import via
+
+    return [rect("M1", 0, 30, 5000, 170)] + via(deck, "V1", 4900, 100)
+
+
+def candidate(length: int = 9000) -> list:
+    return [run("M2", 4900, 100, 4900, 100 + length)]
+
+
+def open_small_net(c: Client, name: str | None = None) -> tuple[str, list[int]]:
+    name = name or net_name()
+    c.open_net(name, [GATE, DRIVER])
+    return name, c.commit(name, trunk(c.deck))

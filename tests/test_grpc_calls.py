@@ -1,0 +1,192 @@
+"""Every call of etchguard.v1 against a real server on loopback, answers checked
+against the in-process engine on the same net (the service adds no numbers)."""
+
+from __future__ import annotations
+
+import math
+import urllib.request
+
+import grpc
+import numpy as np
+import pytest
+from google.protobuf import descriptor_pool
+from grpc_reflection.v1alpha.proto_reflection_descriptor_database import \
+    ProtoReflectionDescriptorDatabase
+
+import etchguard as eg
+from etchguard.client import BatchScores, ServiceError, pb, pin, rect, run, runs_to_rects
+from etchguard.server import convert
+from grpc_fixtures import (DEMO_DECK, DRIVER, GATE, candidate, client, net_name,  # noqa: F401
+                           open_small_net, server, trunk)
+
+
+@pytest.fixture(scope="module")
+def engine_twin():
+    """An in-process engine holding the same small net, to hold the server to."""
+    deck = eg.load_deck(DEMO_DECK)
+    engine = eg.Engine(deck)
+    engine.open_net("twin", convert.pins(deck, [GATE, DRIVER]))
+    return deck, engine
+
+
+def _twin_shapes(deck, shapes):
+    return convert.shapes(deck, shapes, "shapes")
+
+
+def test_deck_calls(client):
+    info = client.deck
+    assert info.name == "lumen-6m" and info.dbu_per_micron == 1000
+    assert [l.name for l in info.layers][:3] == ["M1", "V1", "M2"]
+    assert info.layers[0].kind == pb.LAYER_KIND_ROUTING and info.layers[1].kind == pb.LAYER_KIND_CUT
+    assert info.layers[0].direction == pb.DIRECTION_HORIZONTAL and info.layers[0].wire_width == 140
+    assert "thin" in info.oxides and info.rule_count > 0
+    again = client.load_deck(DEMO_DECK)  # replace with the same deck: nets carried over
+    assert again == info
+
+
+def test_open_commit_remove_close(client, engine_twin):
+    deck, engine = engine_twin
+    name = net_name()
+    assert client.open_net(name, [GATE, DRIVER], shapes=[rect("M1", 0, 30, 1000, 170)],
+                           layer_range=("M1", "M4")) == [1]
+    ids = client.commit(name, trunk(client.deck))
+    assert ids == [2, 3, 4, 5]
+    assert client.remove(name, [1, 3]) == 2
+    report = client.check(name)
+    assert report.net == name and report.checks
+    client.close_net(name)
+    with pytest.raises(ServiceError) as err:
+        client.check(name)
+    assert err.value.code == grpc.StatusCode.NOT_FOUND
+
+
+def test_score_equals_engine(client, engine_twin):
+    deck, engine = engine_twin
+    name, _ = open_small_net(client)
+    twin_ids = engine.commit("twin", _twin_shapes(deck, trunk(client.deck)))
+    try:
+        for length in (1000, 9000, 150_000):
+            cand = candidate(length)
+            reply = client.score(name, cand)
+            expected = pb.ScoreReply()
+            convert.score_into(expected, engine.score("twin", _twin_shapes(deck, cand)))
+            assert reply == expected
+            assert reply.changes and reply.added_area[0].layer == "M2"
+            lean = client.score(name, cand, without_changes=True)
+            assert not lean.changes
+            assert (lean.cost, lean.legal, lean.worst_utilization) == (reply.cost, reply.legal,
+                                                                       reply.worst_utilization)
+        assert client.score(name, candidate(150_000)).breaks_limit  # a long M2 run on a small gate
+    finally:
+        engine.remove("twin", twin_ids)
+
+
+def test_score_batch_columnar(client):
+    name, _ = open_small_net(client)
+    lengths = np.arange(1000, 1000 + 64 * 3000, 3000)
+    rects = runs_to_rects(4900, 100, 4900, 100 + lengths, 140)
+    batch = client.score_batch(name, rects, "M2")
+    assert isinstance(batch, BatchScores) and len(batch) == 64 and not batch.details
+    for i in (0, 17, 63):
+        one = client.score(name, [rect("M2", *map(int, rects[i]))])
+        assert batch.cost[i] == one.cost and batch.legal[i] == one.legal
+        assert batch.worst_utilization[i] == one.worst_utilization
+        assert batch.added_area_um2[i] == pytest.approx(sum(a.area_um2 for a in one.added_area))
+    assert batch.breaks_limit[-1] and not batch.breaks_limit[0]
+    # two-shape candidates, mixed layers, with details
+    pair = np.array([[4830, 30, 4970, 5000], [0, 4860, 5000, 5000],
+                     [4830, 30, 4970, 8000], [0, 7860, 5000, 8000]])
+    detailed = client.score_batch(name, pair, ["M2", "M3", "M2", "M3"], counts=[2, 2], details=True)
+    assert len(detailed) == 2 and len(detailed.details) == 2
+    assert detailed.details[1] == client.score(name, [rect("M2", 4830, 30, 4970, 8000),
+                                                     rect("M3", 0, 7860, 5000, 8000)])
+
+
+def test_headroom(client, engine_twin):
+    deck, engine = engine_twin
+    name, _ = open_small_net(client)
+    h = client.headroom(name, "M1", 100, 100)
+    assert h.found and h.layer == "M1" and 0 < h.area_um2 < math.inf and h.binding
+    nothing = client.headroom(name, "M5", 100, 100)
+    assert not nothing.found and nothing.area_um2 == math.inf
+
+
+def test_check_all_streams_every_net(client):
+    bad = net_name("bad")
+    client.open_net(bad, [pin("g", "M1", [(0, 0, 100, 100)], gate_area=0.01)])
+    client.commit(bad, [run("M1", 0, 50, 200_000, 50)])  # 28 um^2 of M1 on 0.01 um^2 of gate
+    good, _ = open_small_net(client)
+    reports = {r.net: r for r in client.check_all()}
+    assert {bad, good} <= set(reports)
+    assert not reports[bad].legal and reports[good].legal
+    assert reports[bad] == client.check(bad)
+    only = [r.net for r in client.check_all(violations_only=True)]
+    assert bad in only and good not in only
+
+
+def test_stats(client):
+    before = client.stats()
+    name, ids = open_small_net(client)
+    client.score(name, candidate())
+    after = client.stats()
+    assert after.nets == before.nets + 1
+    assert after.shapes == before.shapes + len(ids)
+    assert after.scores == before.scores + 1 and after.commits >= before.commits + len(ids)
+    assert after.deck == "lumen-6m" and after.version == eg.__version__ and after.uptime_s > 0
+
+
+def test_health_and_reflection(server, client):
+    assert client.health() == "SERVING"
+    assert client.health("etchguard.v1.AntennaService") == "SERVING"
+    with pytest.raises(ServiceError) as err:
+        client.health("no.such.Service")
+    assert err.value.code == grpc.StatusCode.NOT_FOUND
+    db = ProtoReflectionDescriptorDatabase(client.channel)
+    services = set(db.get_services())
+    assert {"etchguard.v1.AntennaService", "grpc.health.v1.Health"} <= services
+    svc = descriptor_pool.DescriptorPool(db).FindServiceByName("etchguard.v1.AntennaService")
+    assert {"Score", "ScoreBatch", "Session", "CheckAll", "OpenNet"} <= {m.name for m in svc.methods}
+
+
+def _scrape(port: int) -> str:
+    with urllib.request.urlopen(f"http://127.0.0.1:{port}/metrics", timeout=10) as response:
+        return response.read().decode()
+
+
+def _sample(text: str, name: str, **labels: str) -> float:
+    for line in text.splitlines():
+        if not line.startswith(name):
+            continue
+        head, _, value = line.rpartition(" ")
+        if head.split("{")[0] == name and all(f'{k}="{v}"' in head for k, v in labels.items()):
+            return float(value)
+    raise AssertionError(f"no sample {name} {labels} in the metrics")
+
+
+def test_metrics_endpoint(server, client):
+    name, _ = open_small_net(client)
+    before = _scrape(server.metrics_port)
+    for _ in range(3):
+        client.score(name, candidate())
+    with pytest.raises(ServiceError):
+        client.score("no-such-net", candidate())
+    bad = net_name("bad")
+    client.open_net(bad, [pin("g", "M1", [(0, 0, 100, 100)], gate_area=0.01)])
+    client.commit(bad, [run("M1", 0, 50, 200_000, 50)])
+    client.check(bad)
+    with client.session() as s:
+        s.score(name, candidate())
+    text = _scrape(server.metrics_port)
+    assert (_sample(text, "etchguard_calls_total", method="Score", code="OK")
+            == _sample(before, "etchguard_calls_total", method="Score", code="OK") + 3)
+    assert _sample(text, "etchguard_calls_total", method="Score", code="NOT_FOUND") >= 1
+    assert _sample(text, "etchguard_calls_total", method="Session/score", code="OK") >= 1
+    assert _sample(text, "etchguard_call_seconds_count", method="Score") >= 4
+    assert _sample(text, "etchguard_call_seconds_bucket", method="Score", le="+Inf") >= 4
+    stats = client.stats()
+    assert _sample(text, "etchguard_nets_held") == stats.nets
+    assert _sample(text, "etchguard_shapes_held") == stats.shapes
+    assert _sample(text, "etchguard_violations_seen_total") >= 1
+    assert _sample(text, "etchguard_scores_total") >= 4
+
+

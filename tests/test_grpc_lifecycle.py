@@ -1,0 +1,90 @@
+"""The server's life on a farm: graceful stop on SIGTERM/SIGINT with calls in flight
+finishing, unix sockets, a port that is taken, JSON logs."""
+
+from __future__ import annotations
+
+import signal
+import threading
+import time
+
+import grpc
+import numpy as np
+import pytest
+
+from etchguard.client import Client, ServiceError, pb, runs_to_rects
+from grpc_fixtures import candidate, open_small_net, start_server
+
+
+def _wait_for(predicate, timeout: float = 10.0) -> bool:
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if predicate():
+            return True
+        time.sleep(0.02)
+    return False
+
+
+def test_sigterm_lets_calls_in_flight_finish():
+    srv = start_server(metrics=False)
+    with srv.client() as c:
+        name, _ = open_small_net(c)
+        with c.session() as s:
+            assert s.score(name, candidate()).changes  # the stream is in flight
+            # a unary call in flight too: a batch sized to take about 1.5 s here
+            def rects(n: int):
+                return runs_to_rects(4900, 100, 4900, 100 + np.arange(3000, 3000 + n), 140)
+
+            t0 = time.perf_counter()
+            c.score_batch(name, rects(1000), "M2")
+            count = min(60_000, int(1000 * 1.5 / (time.perf_counter() - t0)))
+            batch: dict = {}
+            worker = threading.Thread(target=lambda: batch.update(r=c.score_batch(name, rects(count), "M2")))
+            worker.start()
+            time.sleep(0.3)
+            assert worker.is_alive()
+            srv.signal(signal.SIGTERM)
+            assert _wait_for(lambda: "stopping" in srv.messages())
+            with Client(srv.address, timeout=5) as late:  # new calls are refused now
+                with pytest.raises(ServiceError) as err:
+                    late.stats()
+                assert err.value.code == grpc.StatusCode.UNAVAILABLE
+            for _ in range(5):  # the open stream keeps being answered during the grace
+                assert s.score(name, candidate()).changes
+            worker.join(30)
+            assert len(batch["r"]) == count
+            assert srv.proc.poll() is None  # still waiting for the stream
+        assert srv.proc.wait(10) == 0
+    messages = srv.messages()
+    assert messages.index("signal received") < messages.index("stopping") < messages.index("stopped")
+    assert all(e.get("level") != "raw" for e in srv.logs), "every log line is JSON"
+
+
+def test_sigint_stops_and_unix_socket(tmp_path):
+    path = tmp_path / "eg.sock"
+    srv = start_server(metrics=False, listen=f"unix:{path}")
+    assert srv.address == f"unix:{path}" and path.is_socket()
+    with srv.client() as c:
+        assert c.health() == "SERVING" and c.deck.name == "lumen-6m"
+    srv.signal(signal.SIGINT)
+    assert srv.proc.wait(10) == 0
+    assert not path.exists()
+
+
+def test_taken_port_is_an_error():
+    first = start_server(metrics=False)
+    try:
+        with pytest.raises(RuntimeError, match="cannot listen"):
+            start_server(metrics=False, listen=first.address)
+    finally:
+        assert first.stop() == 0
+
+
+def test_listening_log_line_is_structured():
+    srv = start_server("--max-nets", "7", "--workers", "3")
+    try:
+        line = next(e for e in srv.logs if e.get("msg") == "listening")
+        assert line["level"] == "info" and line["logger"] == "etchguard.server" and "ts" in line
+        assert line["deck"] == "lumen-6m" and line["workers"] == 3
+        assert line["limits"]["max_nets"] == 7 and line["metrics_port"] == srv.metrics_port > 0
+    finally:
+        srv.stop()
