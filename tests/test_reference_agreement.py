@@ -28,7 +28,7 @@ GRID = 100  # DBU; coarse, so that rectangles touch, abut and overlap often
 SPAN = 8  # grid cells per side of the playing field
 OXIDES = ("thin", "thick")
 
-SETTINGS = settings(max_examples=60, deadline=None,
+SETTINGS = settings(max_examples=120, deadline=None,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 
 
@@ -167,6 +167,11 @@ def reference(deck_data: dict[str, Any], net: dict[str, Any]) -> RefAnalysis:
     return analyze(ref_deck(deck_data), net)
 
 
+def held_figures(engine: eg.Engine) -> dict[str, int]:
+    """Stats that describe what the engine holds (not the call counters)."""
+    return {k: v for k, v in engine.stats().items() if k in ("nets", "shapes", "commits", "removals")}
+
+
 def with_candidate(net: dict[str, Any], cand: list[dict[str, Any]]) -> dict[str, Any]:
     return {**net, "shapes": list(net["shapes"]) + list(cand)}
 
@@ -188,6 +193,8 @@ def test_commit_order_does_not_matter(case) -> None:
     deck, net, _ = case
     forward = engine_with(deck, net).check("n1")
     backward = engine_with(deck, net, reverse=True).check("n1")
+    problems = report_disagreements(backward, reference(deck, net))
+    assert not problems, "\n".join(problems)
     assert forward.legal == backward.legal
     assert close(forward.worst_utilization, backward.worst_utilization)
     assert [(c.layer, c.measure, c.kind, c.oxide) for c in forward.checks] == \
@@ -203,11 +210,11 @@ def test_score_equals_check_after_commit(case) -> None:
     deck, net, cand = case
     engine = engine_with(deck, net)
     before = engine.check("n1")
-    stats = {k: v for k, v in engine.stats().items() if k not in ("scores", "checks")}
+    held = held_figures(engine)
     score = engine.score("n1", engine_shapes(engine, cand))
     # Scoring changes nothing.
     assert engine.check("n1") == before
-    assert {k: v for k, v in engine.stats().items() if k not in ("scores", "checks")} == stats
+    assert held_figures(engine) == held
 
     engine.commit("n1", engine_shapes(engine, cand))
     after = engine.check("n1")
@@ -272,5 +279,7 @@ def test_commit_then_remove_restores_exactly(case, one_by_one: bool) -> None:
             engine.remove("n1", [sid])
     else:
         engine.remove("n1", ids)
-    assert engine.check("n1") == before
+    # Every figure of the contract's output, exactly (the engine's extra 'gate' label
+    # may name another of several gates tied for the worst case).
+    assert engine.check("n1").as_dict() == before.as_dict()
     assert {k: v for k, v in engine.stats().items() if k in ("nets", "shapes")} == stats
