@@ -265,20 +265,18 @@ def test_page_figures_are_inline_and_self_contained(page: str, records: list[Net
         assert ref in ids
 
 
-def test_page_highlights_offending_shapes(deck: eg.Deck, records: list[NetRecord]) -> None:
-    """A drawing shows red fill exactly when there is an offender on a drawn layer."""
-    bad = next(r for r in records if not r.report.legal)
-    page = render_html([bad], deck.name, deck=deck)
-    assert "#d62728" in page.split('<svg class="eg-fig eg-net"', 1)[1]
-    # the same net without geometry gets no drawing and says so
-    page = render_html([NetRecord(bad.report)], deck.name, deck=deck)
-    assert '<svg class="eg-fig eg-net"' not in page and "No geometry for this net" in page
-
-
-def test_drawing_cap(deck: eg.Deck, records: list[NetRecord]) -> None:
-    page = render_html(records, deck.name, deck=deck, max_drawings=2)
-    assert page.count('<svg class="eg-fig eg-net"') == 2
-    assert "Not drawn: the page draws at most 2 nets." in page
+def test_page_highlights_caps_and_missing_geometry(deck: eg.Deck, records: list[NetRecord]) -> None:
+    """Red fill in a drawing of a violating net; past the cap a net is listed but not
+    drawn; a record without a spec is listed and says it has no geometry."""
+    bad = [r for r in records if not r.report.legal][:3]
+    page = render_html([bad[0], bad[1], NetRecord(bad[2].report)], deck.name, deck=deck, max_drawings=1)
+    drawings = page.split('<svg class="eg-fig eg-net"')
+    assert len(drawings) == 2  # one drawing only
+    assert "#d62728" in drawings[1].split("</svg>", 1)[0]
+    assert page.count("Not drawn: the page draws at most 1 nets.") == 1
+    assert page.count("No geometry for this net: not drawn.") == 1
+    for r in bad:
+        assert f"<h3>{r.report.name} · worst" in page
 
 
 # -- progress bar ----------------------------------------------------------------------
@@ -315,7 +313,7 @@ def test_cli_writes_all_three(tmp_path: Path, engine_reports: dict[str, eg.NetRe
                               capsys: pytest.CaptureFixture[str]) -> None:
     out, csv_path, json_path = tmp_path / "r.html", tmp_path / "r.csv", tmp_path / "r.json"
     rc = main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "-o", str(out),
-               "--csv", str(csv_path), "--json", str(json_path), "--max-drawings", "1",
+               "--csv", str(csv_path), "--json", str(json_path), "--max-drawings", "0",
                "--progress", "never"])
     assert rc == 1  # the demo block has violations
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")

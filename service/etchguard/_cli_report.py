@@ -1,9 +1,13 @@
-"""``etchguard report``: a design report of a net file as HTML, CSV and/or JSON.
+"""``etchguard report``: a design report as HTML, CSV and/or JSON.
 
-The nets are checked offline against the rule deck (the same engine as ``check``);
-the page and the files are built by ``etchguard._report`` from the resulting records.
+Two sources of nets, one builder (``etchguard._report``):
+* a net file, checked offline against ``--rules`` (the same engine as ``check``);
+  the page then draws each violating net with its offending components;
+* ``--server ADDRESS``: every net a running server holds, as its CheckAll reports
+  them, with the server's deck. The server hands out reports, not geometry, so this
+  page has no net drawings.
 Exit status as for ``check``: 0 every net legal, 1 violations found (the outputs are
-written all the same), 2 bad input.
+written all the same), 2 bad input or an unreachable server.
 """
 
 from __future__ import annotations
@@ -13,18 +17,26 @@ import json
 import sys
 from pathlib import Path
 
+from collections.abc import Callable, Iterable
+from typing import Any
+
 from ._errors import InputError
 from ._nets import load_net_file
 from ._progress import progress
-from ._report import NetRecord, check_records, render_html, report_json, write_csv, OffenderFinder
-from ._rules import load_deck
+from ._report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
+from ._reports import CheckResult, NetReport
+from ._rules import Deck, load_deck
 
 HELP = "write a design report of a net file: an HTML page, and CSV or JSON for scripts"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("nets", help="net file (JSON)")
-    parser.add_argument("--rules", required=True, metavar="DECK", help="rule deck (TOML)")
+    parser.add_argument("nets", nargs="?", help="net file (JSON); not with --server")
+    parser.add_argument("--rules", metavar="DECK", help="rule deck (TOML), for a net file")
+    parser.add_argument("--server", metavar="ADDRESS",
+                        help="report the nets a running server holds (host:port or unix:PATH)")
+    parser.add_argument("--timeout", type=float, default=60.0, metavar="S",
+                        help="with --server: seconds to wait for the server (default 60)")
     parser.add_argument("-o", "--output", metavar="FILE", help="write the HTML page here")
     parser.add_argument("--csv", metavar="FILE", help="write one row per check here")
     parser.add_argument("--json", metavar="FILE", help="write the report as JSON here")
@@ -44,24 +56,66 @@ def _write(path: str, text: str, what: str) -> None:
         raise InputError(f"cannot write the {what}: {exc.strerror}", path) from exc
 
 
+def records_from_server(address: str, timeout: float,
+                        bar: Callable[[Iterable[Any], int, str], Iterable[Any]]
+                        ) -> tuple[str, list[str], list[NetRecord]]:
+    """(deck name, layer order, records) of every net a running server holds."""
+    try:
+        import grpc
+
+        from .client import Client, ServiceError, pb
+    except ImportError as exc:  # the gRPC client is not in this tree or not installed
+        raise InputError(f"--server needs the gRPC client: {exc}", "--server") from exc
+    measure = {pb.MEASURE_AREA: "area", pb.MEASURE_SIDE: "side"}
+    kind = {pb.RATIO_KIND_PARTIAL: "partial", pb.RATIO_KIND_CUMULATIVE: "cumulative"}
+    with Client(address, timeout=timeout) as client:
+        try:
+            client.wait_ready(timeout)
+            info = client.deck
+            total = int(client.stats().nets)
+            reports = []
+            for r in bar(client.check_all(), total, "fetching"):
+                checks = tuple(CheckResult(c.layer, c.step, measure[c.measure], kind[c.kind], c.oxide,
+                                           c.ratio, c.limit, c.utilization, c.legal, c.gate)
+                               for c in r.checks)
+                reports.append(NetRecord(NetReport(r.net, r.legal, r.worst_utilization, checks)))
+        except grpc.FutureTimeoutError as exc:
+            raise InputError(f"no server answered at {address} within {timeout:g} s", "--server") from exc
+        except ServiceError as exc:
+            raise InputError(f"the server refused: {exc}", "--server") from exc
+    return info.name, [layer.name for layer in info.layers], reports
+
+
 def run(args: argparse.Namespace) -> int:
     if not (args.output or args.csv or args.json):
         raise InputError("nothing to write: give -o FILE, --csv FILE and/or --json FILE", "output")
     if args.top < 0 or args.max_drawings < 0:
         raise InputError("must be >= 0", "--top" if args.top < 0 else "--max-drawings")
-    deck = load_deck(args.rules)
-    specs = load_net_file(deck, args.nets)
 
     def bar(items, total, label):  # type: ignore[no-untyped-def]
         if args.progress == "never":
             return items
         return progress(items, total, label, force=args.progress == "always")
 
-    records: list[NetRecord] = list(check_records(deck, bar(specs, len(specs), "checking")))
+    deck: Deck | None = None
+    if args.server:
+        if args.nets or args.rules:
+            raise InputError("--server reports the server's own nets and deck; give no net "
+                             "file and no --rules with it", "--server")
+        deck_name, layer_order, records = records_from_server(args.server, args.timeout, bar)
+        source = f"server {args.server}"
+    else:
+        if not args.nets or not args.rules:
+            raise InputError("give a net file and --rules DECK, or --server ADDRESS", "nets")
+        deck = load_deck(args.rules)
+        specs = load_net_file(deck, args.nets)
+        records = list(check_records(deck, bar(specs, len(specs), "checking")))
+        deck_name, layer_order, source = deck.name, [l.name for l in deck.layers], str(args.nets)
     if args.output:
         try:
-            page = render_html(records, deck.name, deck=deck, source=str(args.nets), title=args.title,
-                               top=args.top, max_drawings=args.max_drawings, progress=bar)
+            page = render_html(records, deck_name, deck=deck, layer_order=layer_order, source=source,
+                               title=args.title, top=args.top, max_drawings=args.max_drawings,
+                               progress=bar)
         except ImportError as exc:
             raise InputError("the HTML page needs matplotlib: install the 'report' extra "
                              "(pip install 'etchguard[report]')", "output") from exc
@@ -72,7 +126,7 @@ def run(args: argparse.Namespace) -> int:
         write_csv(records, buf)
         _write(args.csv, buf.getvalue(), "CSV file")
     if args.json:
-        data = report_json(records, deck.name, OffenderFinder(deck))
+        data = report_json(records, deck_name, OffenderFinder(deck) if deck is not None else None)
         _write(args.json, json.dumps(data, indent=1) + "\n", "JSON file")
     violating = sum(not r.report.legal for r in records)
     print(f"{len(records)} nets, {violating} violating; wrote "

@@ -298,6 +298,8 @@ def histogram_svg(layer: str, values: Sequence[float], prefix: str) -> str:
         # counts are skewed (most nets far below their limit): a log axis keeps a
         # single net over the limit visible next to a bar of two hundred
         ax.set_yscale("log")
+        from matplotlib.ticker import NullLocator
+        ax.yaxis.set_minor_locator(NullLocator())  # decades suffice; minor ticks cost time
         ax.set_ylim(0.7, max(counts + [1]) * 1.6)
         ax.axvline(1.0, color=C_OVER, linewidth=0.9, linestyle="--")
         ax.set_xlim(0, HIST_TOP)
@@ -522,11 +524,14 @@ def _check_cells(c: CheckResult) -> str:
 
 
 def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | None = None,
-                source: str = "", title: str = "", top: int = 25, max_drawings: int = 40,
+                layer_order: Sequence[str] = (), source: str = "", title: str = "", top: int = 25,
+                max_drawings: int = 40,
                 progress: Callable[[Iterable[Any], int, str], Iterable[Any]] | None = None) -> str:
-    """The whole page as a string. ``deck`` is needed for drawings (layer order and
-    geometry units); without it, or for records without a spec, nets are not drawn.
-    ``progress`` wraps the slow loops (drawing), e.g. ``etchguard._progress.progress``."""
+    """The whole page as a string. ``deck`` is needed for drawings (geometry units,
+    layers); without it, or for records without a spec, nets are not drawn.
+    ``layer_order`` orders the histograms when there is no deck (the deck's process
+    order otherwise). ``progress`` wraps the slow loop (drawing), e.g.
+    ``etchguard._progress.progress``."""
     wrap = progress or (lambda items, total, label: items)
     summary = summarize(records, deck_name)
     title = title or f"Antenna report — {deck_name}"
@@ -576,7 +581,7 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     add("</section>\n")
 
     # histograms
-    order = [l.name for l in deck.layers] if deck is not None else []
+    order = [l.name for l in deck.layers] if deck is not None else list(layer_order)
     per_layer = layer_utilizations(records, order)
     add('<section id="histograms"><h2>Utilization by layer</h2><p class="note">For each layer, '
         "each net's worst utilization there (every check of the layer's step: partial and "

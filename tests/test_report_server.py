@@ -1,0 +1,92 @@
+"""``etchguard report --server``: the same report from the nets a running server holds.
+
+A real ``etchguard serve`` on a loopback port (tests/grpc_fixtures.py) gets part of
+the demo block through the Python client; the report's JSON must equal an offline
+engine.check of the same nets, and its page must hold the figures it can draw
+without geometry (histograms), saying that nets are not drawn.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+import etchguard as eg
+from etchguard.cli import main
+from etchguard.client import pin, rect
+from grpc_fixtures import DEMO_DECK, free_port, start_server
+
+NETS_PATH = DEMO_DECK.parent / "lumen-demo-nets.json"
+
+
+def _some_demo_nets(deck: eg.Deck, count: int = 30) -> list[dict]:
+    """The first ``count`` nets plus every violating one (so the page has violations)."""
+    raw = json.loads(NETS_PATH.read_text(encoding="utf-8"))["nets"]
+    engine = eg.Engine(deck)
+    chosen = []
+    for i, (net, spec) in enumerate(zip(raw, eg.parse_net_file(deck, {"nets": raw}))):
+        engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
+        if i < count or not engine.check(spec.name).legal:
+            chosen.append(net)
+    return chosen
+
+
+@pytest.fixture(scope="module")
+def served() -> tuple[str, list[dict]]:
+    deck = eg.load_deck(DEMO_DECK)
+    nets = _some_demo_nets(deck)
+    server = start_server()
+    try:
+        with server.client() as c:
+            for net in nets:
+                pins = [pin(p["name"], p["layer"], p["rects"], p.get("gate_area"), p.get("diff_area", 0.0),
+                            p.get("cell_area")) for p in net["pins"]]
+                c.open_net(net["name"], pins, [rect(s["layer"], *s["rect"]) for s in net["shapes"]])
+        yield server.address, nets
+    finally:
+        server.stop()
+
+
+def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_path: Path) -> None:
+    address, nets = served
+    out_json, out_html = tmp_path / "s.json", tmp_path / "s.html"
+    rc = main(["report", "--server", address, "--json", str(out_json), "-o", str(out_html),
+               "--progress", "never"])
+    deck = eg.load_deck(DEMO_DECK)
+    engine = eg.Engine(deck)
+    expected = {}
+    for spec in eg.parse_net_file(deck, {"nets": nets}):
+        engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
+        expected[spec.name] = engine.check(spec.name).as_dict()
+    assert rc == (0 if all(e["legal"] for e in expected.values()) else 1)
+    data = json.loads(out_json.read_text(encoding="utf-8"))
+    assert data["deck"] == deck.name
+    got = {n["name"]: n for n in data["nets"]}
+    assert set(got) == set(expected)
+    for name, exp in expected.items():
+        g = got[name]
+        assert (g["legal"], g["worst_utilization"]) == (exp["legal"], exp["worst_utilization"])
+        # protobuf doubles carry the engine's floats unchanged
+        assert [{k: c[k] for k in exp["checks"][0]} for c in g["checks"]] == exp["checks"]
+    page = out_html.read_text(encoding="utf-8")
+    layers = {c["layer"] for e in expected.values() for c in e["checks"]}
+    assert page.count('<svg class="eg-fig eg-hist"') == len(layers)
+    assert '<svg class="eg-fig eg-net"' not in page
+    violating = sum(not e["legal"] for e in expected.values())
+    assert violating > 0 and page.count("No geometry for this net: not drawn.") == violating
+    assert f"server {address}" in page
+
+
+def test_server_unreachable_is_bad_input(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    port = free_port()  # nothing listens there
+    rc = main(["report", "--server", f"127.0.0.1:{port}", "--timeout", "1",
+               "--json", str(tmp_path / "x.json")])
+    assert rc == 2
+    assert "no server answered" in capsys.readouterr().err
+
+
+def test_server_with_a_net_file_is_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    rc = main(["report", "--server", "127.0.0.1:1", str(NETS_PATH), "--json", str(tmp_path / "x.json")])
+    assert rc == 2 and "--server reports the server's own nets" in capsys.readouterr().err
