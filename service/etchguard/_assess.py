@@ -66,7 +66,7 @@ def comp_entries(model: StepModel, step: int, comp: Comp, cars: CarTable,
             conductor = model.conductor(step, key.measure, comp.area, comp.cell, comp.perim)
             ratio = rule.ratio(conductor, comp.gate, comp.diff)
             limit = rule.partial_limit(comp.diff)
-            gate = next(p for p in comp.gates if key.oxide in pins_ox[p])
+            gate = min(p for p in comp.gates if key.oxide in pins_ox[p])
             out.append(make(step, key.measure, PARTIAL, key.oxide, ratio, limit,
                              utilization(ratio, limit), gate, conductor, 0.0, comp.gate, comp.diff))
     lane = model.lane[step]
@@ -78,7 +78,7 @@ def comp_entries(model: StepModel, step: int, comp: Comp, cars: CarTable,
         for p in comp.gates:
             if key.oxide in pins_ox[p]:
                 value = cars[(p, gi)][step] + deltas.get((p, gi), _NO_CHANGE)[lane]
-                if value > best:
+                if value > best or (value == best and p < best_p):
                     best_p, best = p, value
         rule = key.rule
         limit = rule.cumulative_limit(comp.diff)
@@ -88,6 +88,12 @@ def comp_entries(model: StepModel, step: int, comp: Comp, cars: CarTable,
                          utilization(best, limit), best_p, conductor, best - term,
                          comp.gate, comp.diff))
     return out
+
+
+def _severity(e: Entry) -> tuple[float, float, float, int]:
+    """Order of 'worse' between entries; ties go to the tighter limit, then the first
+    pin, so that a report does not depend on the order components were built in."""
+    return (e.utilization, e.ratio, -e.limit, -e.gate)
 
 
 class Assessment:
@@ -150,7 +156,7 @@ class Assessment:
             for es in per_comp.values():
                 for e in es:
                     key = (e.step, e.measure, e.kind, e.oxide)
-                    if key not in best or e.utilization > best[key].utilization:
+                    if key not in best or _severity(e) > _severity(best[key]):
                         best[key] = e
         checks = tuple(
             CheckResult(layers[e.step].name, e.step, e.measure, e.kind, e.oxide, e.ratio, e.limit,

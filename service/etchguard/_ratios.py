@@ -73,9 +73,13 @@ class StepModel:
         # term_rule[s][gi]: the rule giving step s's factors for group gi, or None (plain).
         self.term_rule: list[list[Rule | None]] = [
             [deck.rule(s, m, ox) for (m, ox) in self.groups] for s in range(n)]
-        self.side_needed = [any(r.measure == "side" for r in deck.rules if r.step == s)
-                            for s in range(n)]
         self.any_side = any(r.measure == "side" for r in deck.rules)
+        # Perimeters are kept wherever a side-wall figure can be asked for: at a step
+        # with a side rule, and at every routing step once a cumulative side rule
+        # exists (steps without a rule add their plain A / G to the sum).
+        cumulative_side = any(r.measure == "side" and r.has_cumulative for r in deck.rules)
+        self.side_needed = [not self.is_cut[s] and (cumulative_side or any(
+            r.measure == "side" and r.step == s for r in deck.rules)) for s in range(n)]
 
     def conductor(self, step: int, measure: str, area_dbu2: int, cell_um2: float,
                   perimeter_dbu: int) -> float:

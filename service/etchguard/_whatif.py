@@ -143,7 +143,7 @@ def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: Co
                 before = [e for c in comps for e in assessment.entries[s].get(c, ())]
                 for e in after:
                     worst_change = max(worst_change, e.utilization)
-                    change = _change(state, e, before)
+                    change = _change(state, e, before, len(comps) == 1)
                     if change is not None:
                         changes.append(change)
             else:
@@ -164,13 +164,23 @@ def _unchanged_worst(assessment: Assessment, step: int, comp: Comp) -> float:
 def _groups(cands: list[Shape], touches: list[list[tuple[int, int]]],
             links: list[tuple[int, int, int]], at_s: dict[int, Comp], step: int):
     """Connected groups of the candidates present at ``step``, with the components
-    each group joins."""
+    each group joins (two candidates touching one component are one group)."""
     parent = list(range(len(cands)))
+
+    def join(i: int, j: int) -> None:
+        ri, rj = _find(parent, i), _find(parent, j)
+        if ri != rj:
+            parent[ri] = rj
+
     for i, j, joined in links:
         if joined <= step:
-            ri, rj = _find(parent, i), _find(parent, j)
-            if ri != rj:
-                parent[ri] = rj
+            join(i, j)
+    first_toucher: dict[int, int] = {}  # id(component) -> a candidate touching it
+    for i, c in enumerate(cands):
+        if c.layer <= step:
+            for e, joined in touches[i]:
+                if joined <= step:
+                    join(i, first_toucher.setdefault(id(at_s[e]), i))
     groups: dict[int, tuple[list[int], set[Comp]]] = {}
     for i, c in enumerate(cands):
         if c.layer > step:
@@ -200,13 +210,14 @@ def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[i
     return after_area - before_area, after_perim - before_perim
 
 
-def _change(state: NetState, e: Entry, before: list[Entry]) -> RatioChange | None:
-    """The change record for an after-entry, or None when nothing about it changed."""
+def _change(state: NetState, e: Entry, before: list[Entry], one_predecessor: bool) -> RatioChange | None:
+    """The change record for an after-entry, or None when it is the same component's
+    same figure as before (a merge of several components always counts as a change)."""
     model = state.model
     layer = model.deck.layers[e.step]
     prior = [b for b in before if b.measure == e.measure and b.kind == e.kind and b.oxide == e.oxide]
     worst_prior = max(prior, key=lambda b: b.utilization) if prior else None
-    if (worst_prior is not None and len(prior) == 1 and worst_prior.ratio == e.ratio
+    if (one_predecessor and worst_prior is not None and worst_prior.ratio == e.ratio
             and worst_prior.limit == e.limit):
         return None
     rule = model.deck.rule(e.step, e.measure, e.oxide)
