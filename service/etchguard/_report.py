@@ -369,11 +369,11 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
         grow = (0.6 * width_um - height_um) / 2
         ylim, height_um = (ylim[0] - grow, ylim[1] + grow), 0.6 * width_um
     if width_um >= height_um:
-        pw, ph = 2.9, 2.9 * height_um / width_um
+        pw, ph = 2.5, 2.5 * height_um / width_um
     else:
-        pw, ph = 2.5 * width_um / height_um, 2.5
+        pw, ph = 2.3 * width_um / height_um, 2.3
     left, right, gap_x, top_m, gap_y, legend = 0.5, 0.15, 0.3, 0.42, 0.7, 0.45  # inches
-    cols = max(1, min(len(panels), int((8.8 - left - right + gap_x) // (pw + gap_x))))
+    cols = max(1, min(len(panels), int((11.0 - left - right + gap_x) // (pw + gap_x))))
     rows = max(1, math.ceil(len(panels) / cols))
     fig_w = left + right + cols * pw + (cols - 1) * gap_x
     fig_h = top_m + rows * ph + (rows - 1) * gap_y + legend + 0.35
