@@ -57,7 +57,7 @@ Search methods, and what they rest on:
   its maximum with 0). The limits are piecewise linear in D (diode tables, shifted by
   the diffusion the component already has) and may fall as well as rise; so legality
   need not be monotone in D. Between the table breakpoints the limits are affine, so
-  ``h(D) = max_i (ratio_i(D) - limit_i(D) * (1 + 1e-9))`` is convex per segment and its
+  ``h(D) = max_i (ratio_i(D) - limit_i(D))`` (no tolerance: the answer is legal outright) is convex per segment and its
   legal set is an interval. Segments are scanned upward: a legal left end is the
   answer; otherwise a legal right end brackets a bisection; otherwise a golden-section
   search for the segment's minimum decides. Beyond the last breakpoint the limits are
@@ -780,7 +780,9 @@ class _DiodeModel:
                 else:
                     ratio = cars[extra][s]
                     limit = key.rule.cumulative_limit(diff)
-                g = ratio - limit * (1.0 + TOLERANCE)
+                # no tolerance here: the answer satisfies ratio <= limit outright, so every
+                # reader of the contract (whatever its rounding) finds it legal
+                g = ratio - limit
                 worst = max(worst, utilization(ratio, limit))
                 if g > h:
                     h, which = g, (f"{key.kind} {key.measure} at step {deck.layers[s].name}: "
@@ -840,13 +842,38 @@ class _DiodeModel:
 
 
 def _bisect_left_edge(h: Callable[[float], float], lo: float, hi: float) -> float:
-    """Smallest legal D in (lo, hi] with h(lo) > 0 >= h(hi) and a convex h (one crossing)."""
+    """Smallest legal D in (lo, hi] with h(lo) > 0 >= h(hi) and a convex h (one crossing).
+
+    Regula falsi with the Illinois modification (the retained end's value is halved when
+    the same end is kept twice, which restores superlinear convergence), falling back to
+    a bisection step whenever the bracket fails to halve; the bracket always holds the
+    crossing, so the answer is the legal end once it is within the precision."""
+    h_lo, h_hi = h(lo), h(hi)
+    side = 0
     while hi - lo > DIODE_REL_PRECISION * hi:
-        mid = 0.5 * (lo + hi)
-        if h(mid) <= 0:
-            hi = mid
+        width = hi - lo
+        x = hi - h_hi * (hi - lo) / (h_hi - h_lo) if math.isfinite(h_lo) and h_hi != h_lo else 0.5 * (lo + hi)
+        if not lo < x < hi:
+            x = 0.5 * (lo + hi)
+        hx = h(x)
+        if hx <= 0:
+            hi, h_hi = x, hx
+            if side == -1:
+                h_lo *= 0.5
+            side = -1
         else:
-            lo = mid
+            lo, h_lo = x, hx
+            if side == 1:
+                h_hi *= 0.5
+            side = 1
+        if hi - lo > 0.5 * width:
+            mid = 0.5 * (lo + hi)
+            hm = h(mid)
+            if hm <= 0:
+                hi, h_hi = mid, hm
+            else:
+                lo, h_lo = mid, hm
+            side = 0
     return hi
 
 
