@@ -21,8 +21,8 @@ proto: venv
 serve: venv
 	$(BIN)/etchguard serve --rules $(DECK)
 
-check: venv
-	$(BIN)/etchguard check --rules $(DECK) $(NETS)
+check: venv  # exit 1 (violations found) is an answer, not a failure of make
+	$(BIN)/etchguard check --rules $(DECK) $(NETS); test $$? -le 1
 
 test: venv
 	$(BIN)/python -m pytest
