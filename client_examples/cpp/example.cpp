@@ -1,0 +1,150 @@
+// etchguard C++ example: what a router thread does with the service.
+//
+//   etchguard_example ADDRESS [NET]
+//
+// Opens one net (a gate on M1 routed to a via up to M2, with its driver not yet
+// joined), streams commits and scores over one Session, scores the same candidate
+// by a unary call, scores a columnar batch, shows a refusal naming its field, and
+// closes the net. It prints every figure as one `key value` line (doubles with 17
+// significant digits, so they read back exactly), for people and scripts alike.
+// Exit status: 0 done, 1 a call failed, 2 bad arguments.
+#include <cstdio>
+#include <exception>
+#include <string>
+#include <vector>
+
+#include "etchguard/client.hpp"
+
+namespace eg = etchguard::client;
+namespace pb = etchguard::v1;
+
+namespace {
+
+void Print(const std::string& key, double value) { std::printf("%s %.17g\n", key.c_str(), value); }
+void Print(const std::string& key, bool value) { std::printf("%s %s\n", key.c_str(), value ? "true" : "false"); }
+void Print(const std::string& key, const std::string& value) {
+  std::printf("%s %s\n", key.c_str(), value.c_str());
+}
+void PrintCount(const std::string& key, std::uint64_t value) {
+  std::printf("%s %llu\n", key.c_str(), static_cast<unsigned long long>(value));
+}
+void PrintIds(const std::string& key, const std::vector<std::uint64_t>& ids) {
+  std::printf("%s", key.c_str());
+  for (std::uint64_t id : ids) std::printf(" %llu", static_cast<unsigned long long>(id));
+  std::printf("\n");
+}
+
+// The figures of one what-if answer under `prefix`.
+void PrintScore(const std::string& prefix, const pb::ScoreReply& s) {
+  Print(prefix + ".worst_utilization", s.worst_utilization());
+  Print(prefix + ".worst_change_utilization", s.worst_change_utilization());
+  Print(prefix + ".legal", s.legal());
+  Print(prefix + ".breaks_limit", s.breaks_limit());
+  Print(prefix + ".cost", s.cost());
+  for (const pb::LayerArea& a : s.added_area()) Print(prefix + ".added_area." + a.layer(), a.area_um2());
+  PrintCount(prefix + ".changes", static_cast<std::uint64_t>(s.changes_size()));
+}
+
+// The demo net: gate u1.a on M1 at the origin, driver u0.y 20 um away on M1, not yet
+// joined (so the gate side sees no diffusion while M1 and M2 are etched).
+std::vector<pb::Pin> DemoPins() {
+  return {eg::GatePin("u1.a", "M1", {0, 0, 200, 200}, 0.05, "thin", {{"M1", 0.02}}),
+          eg::DiffusionPin("u0.y", "M1", {20000, 0, 20200, 200}, 0.3)};
+}
+
+// M1 from the gate out to x = 5 um, and the deck's V1 via there up to M2.
+std::vector<pb::Shape> Trunk(const pb::DeckInfo& deck) {
+  std::vector<pb::Shape> shapes = {eg::RectShape("M1", {0, 30, 5000, 170})};
+  for (pb::Shape& s : eg::ViaShapes(deck, "V1", 4900, 100)) shapes.push_back(std::move(s));
+  return shapes;
+}
+
+// A vertical M2 run up from the via, `length` DBU long, the deck's default width.
+std::vector<pb::Shape> Riser(std::int64_t length) {
+  return {eg::RunShape("M2", 4900, 100, 4900, 100 + length)};
+}
+
+// The batch: M2 risers of growing length (140 DBU wide, as rectangles), then one
+// two-shape candidate, a short M2 riser with an M1 stub beside the via.
+eg::CandidateBatch DemoBatch() {
+  eg::CandidateBatch batch;
+  for (std::int64_t length : {2000, 20000, 60000, 140000, 300000}) {
+    batch.Add("M2", eg::RunBox(4900, 100, 4900, 100 + length, 140));
+  }
+  batch.Add({eg::RectShape("M2", eg::RunBox(4900, 100, 4900, 8100, 140)),
+             eg::RectShape("M1", eg::RunBox(5000, 100, 9000, 100, 140))});
+  return batch;
+}
+
+int Run(const std::string& address, const std::string& net) {
+  eg::Client client(address);
+  if (!client.WaitReady(std::chrono::seconds(10))) {
+    std::fprintf(stderr, "etchguard_example: no server at %s\n", address.c_str());
+    return 1;
+  }
+  const pb::DeckInfo& deck = client.Deck();
+  Print("deck.name", deck.name());
+  PrintCount("deck.layers", static_cast<std::uint64_t>(deck.layers_size()));
+
+  PrintIds("open_net.ids", client.OpenNet(net, DemoPins()));
+
+  {
+    eg::Session session = client.OpenSession();
+    PrintIds("stream.commit.ids", session.Commit(net, Trunk(deck)));
+    PrintScore("stream.score.short", session.Score(net, Riser(9000)));
+    PrintScore("stream.score.long", session.Score(net, Riser(200000)));
+    const std::vector<std::uint64_t> riser_ids = session.Commit(net, Riser(9000));
+    PrintIds("stream.commit_riser.ids", riser_ids);
+    const pb::NetReport report = session.Check(net);
+    Print("stream.check.worst_utilization", report.worst_utilization());
+    Print("stream.check.legal", report.legal());
+    PrintCount("stream.remove.removed", session.Remove(net, riser_ids));
+    session.Finish();
+  }
+
+  PrintScore("unary.score.long", client.Score(net, Riser(200000)));
+
+  const eg::CandidateBatch batch = DemoBatch();
+  const pb::ScoreBatchReply scores = client.ScoreBatch(net, batch);
+  PrintCount("batch.size", batch.size());
+  for (int i = 0; i < scores.cost_size(); ++i) {
+    const std::string prefix = "batch." + std::to_string(i);
+    Print(prefix + ".worst_utilization", scores.worst_utilization(i));
+    Print(prefix + ".worst_change_utilization", scores.worst_change_utilization(i));
+    Print(prefix + ".legal", static_cast<bool>(scores.legal(i)));
+    Print(prefix + ".breaks_limit", static_cast<bool>(scores.breaks_limit(i)));
+    Print(prefix + ".cost", scores.cost(i));
+    Print(prefix + ".added_area_um2", scores.added_area_um2(i));
+  }
+
+  // A refusal: a layer the deck does not have. The call changes nothing.
+  try {
+    client.Score(net, {eg::RunShape("M9", 0, 0, 1000, 0)});
+    Print("refusal.code", std::string("none"));
+  } catch (const eg::ServiceError& e) {
+    PrintCount("refusal.code", static_cast<std::uint64_t>(e.code()));
+    Print("refusal.field", e.field());
+  }
+
+  client.CloseNet(net);
+  Print("closed", net);
+  return 0;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  if (argc < 2 || argc > 3) {
+    std::fprintf(stderr, "usage: %s ADDRESS [NET]   (ADDRESS host:port or unix:/path)\n", argv[0]);
+    return 2;
+  }
+  try {
+    return Run(argv[1], argc == 3 ? argv[2] : "blk_a/n1");
+  } catch (const eg::ServiceError& e) {
+    std::fprintf(stderr, "etchguard_example: refused (%d) %s [field %s]\n", static_cast<int>(e.code()),
+                 e.what(), e.field().c_str());
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "etchguard_example: %s\n", e.what());
+  }
+  return 1;
+}
