@@ -32,3 +32,9 @@ bench: venv
 
 clean:
 	rm -rf $(VENV) build *.egg-info service/*.egg-info .pytest_cache
+
+# Build the C++ client example (client_examples/cpp) and run it against a server it starts.
+.PHONY: cpp-example
+cpp-example: venv
+	bash .ci/install-cpp-deps.sh
+	bash client_examples/cpp/run_example.sh
