@@ -184,22 +184,27 @@ def _bind(server: grpc.Server, config: ServerConfig, address: str) -> str:
     return f"{host}:{port}"
 
 
-def build_server(config: ServerConfig) -> EtchguardServer:
-    """Assemble (but do not start) a server from ``config``."""
-    if config.workers < 1:
-        raise ServeError("must be at least 1", "workers")
-    engine = _engine(config)
-    servicer_methods = AntennaServicer.METHODS
-    metrics = Metrics(engine.stats, servicer_methods) if config.metrics_port else NullMetrics()
+def grpc_server(config: ServerConfig) -> grpc.Server:
+    """The bare grpc.Server: thread pool, message limits, interceptors, no services.
+    (The bench's echo server is built here too, so both pay the same transport.)"""
     options = [
         ("grpc.max_receive_message_length", config.max_message_bytes),
         ("grpc.max_send_message_length", config.max_message_bytes),
         ("grpc.so_reuseport", 0),  # a second server on the same port must fail, not share it
     ]
-    server = grpc.server(futures.ThreadPoolExecutor(max_workers=config.workers,
-                                                    thread_name_prefix="etchguard-rpc"),
-                         interceptors=_interceptors(config), options=options,
-                         maximum_concurrent_rpcs=config.workers)
+    return grpc.server(futures.ThreadPoolExecutor(max_workers=config.workers,
+                                                  thread_name_prefix="etchguard-rpc"),
+                       interceptors=_interceptors(config), options=options,
+                       maximum_concurrent_rpcs=config.workers)
+
+
+def build_server(config: ServerConfig) -> EtchguardServer:
+    """Assemble (but do not start) a server from ``config``."""
+    if config.workers < 1:
+        raise ServeError("must be at least 1", "workers")
+    engine = _engine(config)
+    metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
+    server = grpc_server(config)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
     health_servicer = health.HealthServicer(experimental_non_blocking=True)
     health_pb2_grpc.add_HealthServicer_to_server(health_servicer, server)

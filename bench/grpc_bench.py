@@ -1,0 +1,316 @@
+"""gRPC bench: what etchguard's service costs a router, against a bare echo floor.
+
+Both servers run in this run, on loopback, as separate processes, called by the same
+Python client with the same requests:
+
+* **ours**: ``etchguard serve`` on the bench deck (metrics on, as in production),
+  holding one generated net (``bench.netgen``, 50 shapes);
+* **floor**: ``bench.echo_server``, the same gRPC server (``grpc_server``: pool,
+  options, limits) answering raw bytes with the replies ours gave to the same
+  requests, captured just before: same message sizes both ways, no protobuf, no engine.
+
+Each case is measured in rounds that alternate floor and ours (order swapped every
+round), so the machine's drift hits both; p50 and p99 are over all rounds. The
+``engine`` column is the same engine call in this process (no gRPC); ``service`` is
+what is left for the service layer itself: p50 - floor p50 - engine p50 (noisy, can
+be negative). Candidates mix run extensions (1 shape) and via + run (4 shapes).
+
+Targets (issue 3): streamed and unary score p50 <= 1.15 x floor p50; batches of 1,024
+>= 100,000 candidate scores per second. Ratios are reported; nothing here fails on them.
+
+    python -m bench.grpc_bench [--quick] [--rounds N] [--calls N] [--batches N] [--json PATH]
+
+Prints one table and writes bench/out/grpc_bench.json (``--json``). Bounded to
+about a minute (a time budget stops the rounds early, and says so).
+"""
+
+from __future__ import annotations
+
+import argparse
+import base64
+import json
+import os
+import platform
+import random
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+import grpc
+
+from etchguard import Engine
+from etchguard.client import Client, candidate_columns, pb
+
+from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
+
+OUT_DIR = Path(__file__).resolve().parent / "out"
+REPO = Path(__file__).resolve().parents[1]
+SERVICE = "/etchguard.v1.AntennaService"
+RATIO_TARGET = 1.15
+BATCH_SIZE = 1024
+BATCH_TARGET_PER_S = 100_000
+NET = "bench"
+TIME_BUDGET_S = 100.0
+
+
+@dataclass
+class Row:
+    method: str
+    p50_us: float
+    p99_us: float
+    floor_p50_us: float
+    ratio: float
+    target: str
+    engine_p50_us: float
+    service_us: float
+    throughput: str
+    met: bool | None
+
+
+def _pct(values: list[int], q: float) -> float:
+    s = sorted(values)
+    return s[min(len(s) - 1, int(q * len(s)))] / 1000.0  # ns -> us
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def _start(cmd: list[str], ready: Callable[[str], str | None], stream: str) -> tuple[subprocess.Popen, str]:
+    proc = subprocess.Popen(cmd, cwd=REPO, stdin=subprocess.DEVNULL, text=True,
+                            stdout=subprocess.PIPE if stream == "stdout" else subprocess.DEVNULL,
+                            stderr=subprocess.PIPE if stream == "stderr" else subprocess.DEVNULL,
+                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
+    pipe = proc.stdout if stream == "stdout" else proc.stderr
+    assert pipe is not None
+    deadline = time.monotonic() + 30
+    for line in pipe:
+        address = ready(line)
+        if address:
+            # keep draining in the background so the server never blocks on its pipe
+            import threading
+            threading.Thread(target=lambda: [None for _ in pipe], daemon=True).start()
+            return proc, address
+        if time.monotonic() > deadline:
+            break
+    proc.kill()
+    raise RuntimeError(f"{cmd[2:4]} did not start")
+
+
+def _ours_ready(line: str) -> str | None:
+    try:
+        entry = json.loads(line)
+    except json.JSONDecodeError:
+        return None
+    return entry["addresses"][0] if entry.get("msg") == "listening" else None
+
+
+def _echo_ready(line: str) -> str | None:
+    try:
+        return json.loads(line).get("listening")
+    except json.JSONDecodeError:
+        return None
+
+
+def _pb_shapes(deck, shapes) -> list[pb.Shape]:
+    names = [l.name for l in deck.layers]
+    return [pb.Shape(layer=names[s.layer], rect=pb.Rect(xlo=s.rect[0], ylo=s.rect[1], xhi=s.rect[2], yhi=s.rect[3]))
+            for s in shapes]
+
+
+def _pb_pins(deck, pins) -> list[pb.Pin]:
+    names = [l.name for l in deck.layers]
+    return [pb.Pin(name=p.name, layer=names[p.layer],
+                   rects=[pb.Rect(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3]) for r in p.rects],
+                   gate_area=dict(p.gate_area), diff_area=p.diff_area,
+                   cell_area={names[k]: v for k, v in p.cell_area.items()}) for p in pins]
+
+
+def _columns(deck, candidates) -> pb.CandidateColumns:
+    names = [l.name for l in deck.layers]
+    rects = [s.rect for c in candidates for s in c]
+    layers = [names[s.layer] for c in candidates for s in c]
+    return candidate_columns(rects, layers, [len(c) for c in candidates])
+
+
+class Case:
+    """One measured question: how to ask it on a client, and its canned replies."""
+
+    def __init__(self, name: str, label: str, kind: str, requests: list, op: str = "",
+                 engine: Callable[[int], object] | None = None, per_call: int = 1) -> None:
+        self.name, self.label, self.kind, self.requests, self.op = name, label, kind, requests, op
+        self.engine, self.per_call = engine, per_call
+
+    def capture(self, client: Client) -> dict[str, list[str]]:
+        """Our server's reply bytes to every request, in order (for the echo floor)."""
+        if self.kind == "stream":
+            with client.session() as s:
+                seqs = [s.send(self.op, r) for r in self.requests]
+                replies = [s.receive().SerializeToString() for _ in seqs]
+            return {f"{SERVICE}/Session": [base64.b64encode(r).decode() for r in replies]}
+        method = getattr(client.stub, self.kind).with_call
+        replies = [method(r, timeout=60)[0].SerializeToString() for r in self.requests]
+        return {f"{SERVICE}/{self.kind}": [base64.b64encode(r).decode() for r in replies]}
+
+    def run(self, client: Client, warmup: int, calls: int) -> list[int]:
+        """Latencies (ns) of ``calls`` questions after ``warmup``, cycling the requests."""
+        reqs, n = self.requests, len(self.requests)
+        clock = time.perf_counter_ns
+        out = []
+        if self.kind == "stream":
+            with client.session() as s:
+                ask, op = s.ask, self.op
+                for i in range(warmup + calls):
+                    t = clock()
+                    ask(op, reqs[i % n])
+                    if i >= warmup:
+                        out.append(clock() - t)
+            return out
+        method = getattr(client.stub, self.kind)
+        for i in range(warmup + calls):
+            t = clock()
+            method(reqs[i % n], timeout=60)
+            if i >= warmup:
+                out.append(clock() - t)
+        return out
+
+
+def _engine_p50(fn: Callable[[int], object], count: int, n: int) -> float:
+    for i in range(min(count, 50)):
+        fn(i % n)
+    times = []
+    for i in range(count):
+        t = time.perf_counter_ns()
+        fn(i % n)
+        times.append(time.perf_counter_ns() - t)
+    return _pct(times, 0.5)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(prog="python -m bench.grpc_bench", description=__doc__.split("\n")[0])
+    parser.add_argument("--quick", action="store_true", help="a few calls only (smoke test)")
+    parser.add_argument("--rounds", type=int, default=5, help="alternating rounds per case")
+    parser.add_argument("--calls", type=int, default=400, help="timed calls per round and server")
+    parser.add_argument("--batches", type=int, default=6, help="timed batches per round and server")
+    parser.add_argument("--shapes", type=int, default=50, help="routed shapes of the bench net")
+    parser.add_argument("--json", type=Path, default=OUT_DIR / "grpc_bench.json", help="where the rows go")
+    args = parser.parse_args([] if argv is None else argv)
+    if args.quick:
+        args.rounds, args.calls, args.batches = 1, 30, 1
+    warmup = max(20, args.calls // 5)
+    started = time.monotonic()
+
+    deck = bench_deck()
+    net = generate_net(deck, args.shapes, seed=1, name=NET)
+    rng = random.Random(3)
+    singles = extension_candidates(deck, net, 64, seed=1) + via_run_candidates(deck, net, 64, seed=1)
+    rng.shuffle(singles)
+    batch = extension_candidates(deck, net, BATCH_SIZE // 2, seed=2) + via_run_candidates(deck, net, BATCH_SIZE // 2, seed=2)
+    rng.shuffle(batch)
+
+    engine = Engine(deck)
+    engine.open_net(NET, net.pins, None, net.shapes)
+    pb_singles = [_pb_shapes(deck, c) for c in singles]
+    score_reqs = [pb.ScoreRequest(net=NET, candidate=c) for c in pb_singles]
+    lean_reqs = [pb.ScoreRequest(net=NET, candidate=c, without_changes=True) for c in pb_singles]
+    batch_req = pb.ScoreBatchRequest(net=NET, candidates=_columns(deck, batch))
+    n = len(singles)
+    cases = [
+        Case("stream_score", "stream score", "stream", score_reqs, "score",
+             lambda i: engine.score(NET, singles[i], True)),
+        Case("unary_score", "unary score", "Score", score_reqs, "",
+             lambda i: engine.score(NET, singles[i], True)),
+        Case("stream_lean", "stream score, no changes", "stream", lean_reqs, "score",
+             lambda i: engine.score(NET, singles[i], False)),
+        Case("unary_lean", "unary score, no changes", "Score", lean_reqs, "",
+             lambda i: engine.score(NET, singles[i], False)),
+        Case("batch", f"batch score x{BATCH_SIZE}", "ScoreBatch", [batch_req], "",
+             lambda i: engine.score_many(NET, batch, False), per_call=BATCH_SIZE),
+    ]
+
+    ours_cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
+                "--listen", "127.0.0.1:0", "--metrics-port", str(_free_port())]
+    ours, ours_addr = _start(ours_cmd, _ours_ready, "stderr")
+    echo = None
+    try:
+        with Client(ours_addr, timeout=60) as setup:
+            setup.open_net(NET, _pb_pins(deck, net.pins), _pb_shapes(deck, net.shapes))
+            canned = {c.name: c.capture(setup) for c in cases}
+        with tempfile.NamedTemporaryFile("w", suffix=".json", delete=False) as f:
+            json.dump(canned, f)
+            replies_file = f.name
+        echo, echo_addr = _start([sys.executable, "-m", "bench.echo_server", "--replies", replies_file,
+                                  "--listen", "127.0.0.1:0"], _echo_ready, "stdout")
+        os.unlink(replies_file)
+        rows = []
+        with Client(ours_addr, timeout=60) as mine, Client(echo_addr, timeout=60) as floor:
+            select = floor.channel.unary_unary("/bench.Echo/Select")
+            for case in cases:
+                calls = args.batches if case.kind == "ScoreBatch" else args.calls
+                warm = 1 if case.kind == "ScoreBatch" else warmup
+                samples: dict[str, list[int]] = {"ours": [], "floor": []}
+                for r in range(args.rounds):
+                    order = ("floor", "ours") if r % 2 == 0 else ("ours", "floor")
+                    for who in order:
+                        if who == "floor":
+                            select(case.name.encode())
+                        samples[who] += case.run(mine if who == "ours" else floor, warm, calls)
+                    if time.monotonic() - started > TIME_BUDGET_S:
+                        print(f"(time budget reached: {case.label} after {r + 1} rounds)", flush=True)
+                        break
+                engine_us = _engine_p50(case.engine, calls * 2 if case.per_call == 1 else 3, n)
+                rows.append(_row(case, samples, engine_us))
+    finally:
+        for proc in (ours, echo):
+            if proc is not None and proc.poll() is None:
+                proc.terminate()
+                try:
+                    proc.wait(15)
+                except subprocess.TimeoutExpired:
+                    proc.kill()
+
+    _print(rows, args, time.monotonic() - started)
+    args.json.parent.mkdir(parents=True, exist_ok=True)
+    args.json.write_text(json.dumps({
+        "machine": {"cpus": os.cpu_count(), "python": platform.python_version(), "grpc": grpc.__version__},
+        "net_shapes": args.shapes, "rounds": args.rounds, "calls": args.calls,
+        "rows": [asdict(r) for r in rows]}, indent=2))
+    return 0
+
+
+def _row(case: Case, samples: dict[str, list[int]], engine_us: float) -> Row:
+    p50, p99 = _pct(samples["ours"], 0.5), _pct(samples["ours"], 0.99)
+    floor = _pct(samples["floor"], 0.5)
+    ratio = p50 / floor
+    if case.per_call > 1:
+        per_s = case.per_call / (p50 / 1e6)
+        return Row(case.label, p50, p99, floor, ratio, f">= {BATCH_TARGET_PER_S:,}/s", engine_us,
+                   p50 - floor - engine_us, f"{per_s:,.0f}/s (floor {case.per_call / (floor / 1e6):,.0f}/s, "
+                   f"engine {case.per_call / (engine_us / 1e6):,.0f}/s)", per_s >= BATCH_TARGET_PER_S)
+    target = f"<= {RATIO_TARGET}x" if case.name in ("stream_score", "unary_score") else ""
+    return Row(case.label, p50, p99, floor, ratio, target, engine_us, p50 - floor - engine_us,
+               f"{1e6 / p50:,.0f} calls/s", ratio <= RATIO_TARGET if target else None)
+
+
+def _print(rows: list[Row], args, elapsed: float) -> None:
+    head = (f"{'method':<26} {'p50 us':>9} {'p99 us':>9} {'floor p50':>10} {'ratio':>6} {'target':>14} "
+            f"{'engine us':>10} {'service us':>10}  throughput")
+    print(f"gRPC bench: {args.shapes}-shape net, {args.rounds} rounds x {args.calls} calls per server "
+          f"({args.batches} batches), floor = bare echo in the same run; {elapsed:.0f} s")
+    print(head)
+    print("-" * len(head))
+    for r in rows:
+        met = "" if r.met is None else ("  met" if r.met else "  NOT met")
+        print(f"{r.method:<26} {r.p50_us:>9.0f} {r.p99_us:>9.0f} {r.floor_p50_us:>10.0f} {r.ratio:>6.2f} "
+              f"{r.target + met:>14} {r.engine_p50_us:>10.0f} {r.service_us:>10.0f}  {r.throughput}")
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
