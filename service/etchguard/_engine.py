@@ -27,6 +27,9 @@ from ._ratios import StepModel, conductor_headroom
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck
 from ._whatif import CostModel, score
+# columnar batch scores of single-rectangle candidates (numpy): see score_columns below
+import numpy as np
+from ._batch import BatchScores, score_columns as _score_columns
 # advice and the design-wide obstacle index (issue 4): see the "advice" section below
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
 from ._geometry import checked_rect as _checked_rect
@@ -302,6 +305,56 @@ class Engine:
         self.counters["scores"] += len(candidates)
         return out
 
+    # -- columnar batch scores (one rectangle per candidate; see _batch) -----------------
+
+    def score_columns(self, name: str, layers: Sequence[int] | np.ndarray,
+                      rects: np.ndarray) -> BatchScores:
+        """Score N one-rectangle candidates (``layers[i]``, ``rects[i]`` = xlo, ylo, xhi,
+        yhi in DBU) against the same net state; entry i equals
+        ``score(name, [Shape(layers[i], rects[i])], detail=False)``. Validated as a whole
+        before anything is computed; the first bad row is named (``rects[i]``)."""
+        deck = self.deck
+        rect_arr = np.asarray(rects)
+        if rect_arr.ndim != 2 or rect_arr.shape[1] != 4:
+            raise InputError(f"rects must be an (N, 4) array, got shape {rect_arr.shape}", "rects")
+        count = rect_arr.shape[0]
+        if count > self.limits.max_candidates:
+            raise LimitExceededError(f"{count} candidates exceed the limit of "
+                                     f"{self.limits.max_candidates} per batch", "rects")
+        if rect_arr.dtype.kind not in "iu":
+            raise InputError(f"coordinates are integer DBU (int64), got {rect_arr.dtype}", "rects")
+        layer_arr = np.asarray(layers)
+        if layer_arr.ndim != 1 or layer_arr.shape[0] != count:
+            raise InputError(f"layers must list one layer per rectangle ({count}), got shape "
+                             f"{layer_arr.shape}", "layers")
+        if count and layer_arr.dtype.kind not in "iu":
+            raise InputError(f"layers are integer step indices, got {layer_arr.dtype}", "layers")
+        bad = np.nonzero((layer_arr < 0) | (layer_arr >= len(deck.layers)))[0]
+        if len(bad):
+            raise InputError(f"unknown layer {int(layer_arr[bad[0]])} (deck has "
+                             f"{len(deck.layers)})", f"layers[{int(bad[0])}]")
+        limit = 1 << 62  # _geometry.COORD_LIMIT
+        if rect_arr.dtype.kind == "u":
+            far = np.nonzero((rect_arr >= limit).any(axis=1))[0]
+            if len(far):
+                raise InputError("a coordinate is outside +-2^62 DBU", f"rects[{int(far[0])}]")
+        rect_arr = rect_arr.astype(np.int64, copy=False)
+        far = (rect_arr <= -limit) | (rect_arr >= limit)
+        empty = (rect_arr[:, 0] >= rect_arr[:, 2]) | (rect_arr[:, 1] >= rect_arr[:, 3])
+        bad = np.nonzero(far.any(axis=1) | empty)[0]
+        if len(bad):
+            i = int(bad[0])
+            why = ("a coordinate is outside +-2^62 DBU" if far[i].any() else
+                   f"rectangle {rect_arr[i].tolist()} is empty or inverted (need xlo < xhi, ylo < yhi)")
+            raise InputError(why, f"rects[{i}]")
+        net = self._net(name)
+        with net.lock:
+            state = self._state(net)
+            result = _score_columns(state, self._assessment(net, state),
+                                    layer_arr.astype(np.int64, copy=False), rect_arr, self.costs)
+        self.counters["scores"] += count
+        return result
+
     def check(self, name: str) -> NetReport:
         net = self._net(name)
         with net.lock:
@@ -409,11 +462,13 @@ def layer_headroom(state: NetState, assessment: Assessment, layer: int, element:
                         best[key.measure] = room
                         binding[key.measure] = (f"{deck.layers[s].name} cumulative {key.measure} "
                                                 f"{key.oxide} of {state.pins[p].name}")
-    lengths = [float("inf")]
-    if info.is_routing and info.wire_width:
-        lengths.append(best["area"] / (info.wire_width / deck.dbu_per_micron))
-    if info.is_routing and info.thickness_um:
-        lengths.append(best["side"] / (2.0 * info.thickness_um))
-    length = min(lengths)
-    which = binding["area"] if best["area"] / max(1e-30, (info.wire_width or 1) / deck.dbu_per_micron) <= length else binding["side"]
-    return Headroom(info.name, True, best["area"], best["side"], length, which or binding["side"])
+    # Run length at the default width: a um of run adds width um^2 of area and two
+    # side walls of thickness um^2 each (the ends are already counted in the run).
+    length, which = float("inf"), ""
+    if info.is_routing and info.wire_width and best["area"] < float("inf"):
+        length, which = best["area"] / (info.wire_width / deck.dbu_per_micron), binding["area"]
+    if info.is_routing and info.thickness_um and best["side"] < float("inf"):
+        side_length = best["side"] / (2.0 * info.thickness_um)
+        if side_length < length:
+            length, which = side_length, binding["side"]
+    return Headroom(info.name, True, best["area"], best["side"], length, which)

@@ -14,7 +14,8 @@ edge or an area can alter it.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
+from math import fsum
 
 from ._geometry import Rect, edge_touch, intersection, overlap, rect_area, union_measures
 from ._index import LayerIndex
@@ -53,9 +54,15 @@ def _directly_linked(adj: dict[int, dict[int, int]], near: list[int], step: int)
 
 
 class Comp:
-    """A component at one step, with the aggregates the ratios need."""
+    """A component at one step, with the aggregates the ratios need.
 
-    __slots__ = ("members", "gate", "gate_ox", "diff", "area", "perim", "cell", "gates")
+    Pin figures (gate, diffusion, in-cell area) are floats; they are summed with
+    ``math.fsum`` over the component's pin terms, which is exactly rounded and so
+    independent of the order components were merged in: a commit followed by its
+    removal restores every figure to the bit.
+    """
+
+    __slots__ = ("members", "gate", "gate_ox", "diff", "area", "perim", "cell", "gates", "terms")
 
     def __init__(self) -> None:
         self.members: set[int] = set()
@@ -66,17 +73,24 @@ class Comp:
         self.perim = 0  # DBU, perimeter of that union
         self.cell = 0.0  # um^2, pins' in-cell conductor on the step's layer
         self.gates: list[int] = []  # pin indices with gate area
+        self.terms: list[tuple[float, float, float, Mapping[str, float]]] = []  # per pin
 
     def absorb(self, other: "Comp") -> None:
         self.members |= other.members
-        self.gate += other.gate
-        for ox, g in other.gate_ox.items():
-            self.gate_ox[ox] = self.gate_ox.get(ox, 0.0) + g
-        self.diff += other.diff
         self.area += other.area
         self.perim += other.perim
-        self.cell += other.cell
-        self.gates.extend(other.gates)
+        if other.terms:
+            self.gates.extend(other.gates)
+            self.terms.extend(other.terms)
+            self._sum_terms()
+
+    def _sum_terms(self) -> None:
+        terms = self.terms
+        self.gate = fsum(t[0] for t in terms)
+        self.diff = fsum(t[1] for t in terms)
+        self.cell = fsum(t[2] for t in terms)
+        oxides = {ox for t in terms for ox in t[3]}
+        self.gate_ox = {ox: fsum(t[3][ox] for t in terms if ox in t[3]) for ox in sorted(oxides)}
 
 
 class NetState:
@@ -159,10 +173,9 @@ class NetState:
         p = self.pin_of.get(eid)
         if p is not None and self.anchor_of_pin[p] == eid:
             pin = self.pins[p]
-            c.gate = pin.total_gate_area
-            c.gate_ox = dict(pin.gate_area)
-            c.diff = pin.diff_area
-            c.cell = pin.cell_area.get(step, 0.0)
+            c.terms.append((pin.total_gate_area, pin.diff_area, pin.cell_area.get(step, 0.0),
+                            pin.gate_area))
+            c._sum_terms()
             if c.gate > 0:
                 c.gates.append(p)
         return c
@@ -207,10 +220,11 @@ class NetState:
         routed: list[Rect] = []
         for m in members:
             own = self._own_comp(m, step)
-            own.members = set()
-            c.absorb(own)
+            c.terms.extend(own.terms)
+            c.gates.extend(own.gates)
             if self.layer_of[m] == step and m not in self.pin_of:
                 routed.append(self.rect_of[m])
+        c._sum_terms()
         c.members = members
         c.area, c.perim = union_measures(routed)
         if not self.model.side_needed[step]:

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 
 @dataclass(frozen=True)
@@ -83,5 +83,4 @@ class Headroom:
     area_um2: float  # remaining area (area rules); inf when unconstrained
     side_um2: float  # remaining side-wall area (side rules); inf when unconstrained
     length_um: float  # remaining run length at the layer's default width
-    binding: str = ""  # which check binds, e.g. "M3 cumulative area thin"
-    limits: tuple[str, ...] = field(default_factory=tuple)
+    binding: str = ""  # which check binds, e.g. "M3 cumulative area thin of u1.a"
