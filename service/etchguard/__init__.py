@@ -6,6 +6,7 @@ concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 
 from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption,
                       PlacedShape)
+from ._batch import BatchScores  # columnar batch scores (Engine.score_columns)
 from ._engine import Engine, Limits
 from ._obstacles import Conflict
 from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,

@@ -1,0 +1,592 @@
+"""Batch what-if scores of single-rectangle candidates, vectorized with numpy.
+
+``score_columns`` answers, for N candidates (one rectangle each, on any layers) against
+one net state, what ``_whatif.score(state, assessment, [Shape(layer, rect)], costs,
+detail=False)`` answers for each: the worst utilization among the changed ratios, the
+net's worst after, the two verdicts, the router cost and the union area the candidate
+adds on its layer. Candidates of the common case are answered with column arithmetic;
+the others are handed, one by one, to the scalar ``score``.
+
+The common case, and why the columns equal the scalar path
+----------------------------------------------------------
+Let the candidate be rectangle r on layer L. The scalar path walks the steps s >= L; at
+each it gathers the set of existing components r touches (elements joined at step L:
+the same-layer ones by edge contact, the adjacent layer below by area overlap; joined
+at L+1: the adjacent layer above). The column path takes a candidate only when
+
+1. at step L its touches lie in at most one component C_L, and at step L+1 all its
+   touches (both layers) lie in at most one component C_{L+1}. Components only grow
+   with the steps, so then every later step s also sees at most one component C_s,
+   the one holding C_{L+1} (found from any member). Nothing is merged after step L,
+   so the scalar path's term changes all happen at step L;
+2. it meets at most ``MAX_LOCAL`` routed rectangles on L, and its coordinates stay
+   within +-2^30 DBU (so every area below is an exact int64);
+3. every oxide class present in C_L or a C_s has a gate pin in it (always so for pins
+   the net parser builds; otherwise the scalar path decides what to do).
+
+In that case the scalar path computes, step by step, only quantities that are either
+constants of the pair (C_L, C_{L+1}) or functions of two integers per candidate, the
+area dA and perimeter dP it adds to C_L on layer L:
+
+* dA, dP: with no routed neighbour, area(r) and P(r); with one, q, the scalar's
+  ``area(r) - area(r & q)`` and ``P(r) - _shared_perimeter(r, q)``, evaluated by the
+  same integer formulas; with several, the exact change of union area and perimeter,
+  computed on the compressed grid of the rectangles' coordinates (every cell inside or
+  outside, the boundary counted cell edge by cell edge). That grid measure equals the
+  plane sweep of ``union_measures`` (both are the exact measures of one closed set);
+  the neighbours are first clipped to r grown by 1 DBU, which changes neither
+  difference because the union changes only inside r.
+* At step L the group is C_L with area + dA and perimeter + dP; its partial checks and
+  the term change of each (measure, oxide) group follow by the same IEEE operations
+  in the same order as ``StepModel.conductor``, ``Rule.ratio`` and ``utilization``
+  (numpy ufuncs round each operation once, as Python floats do, and fuse nothing).
+  Limits depend on D only, which does not change. Every gate of C_L has the same term
+  change (one old component, one new group), so a cumulative check takes
+  ``max(cars of C_L's gates) + delta``; rounding is monotone, so this equals the
+  scalar's maximum over the gates of ``cars + delta``.
+* At a later step s of L's lane, the scalar path re-evaluates C_s's cumulative checks
+  only when some gate of C_L has a non-zero change in that lane (the same test on the
+  same floats here, ``moved``); the best value is then
+  ``max(max(cars of C_L's gates) + delta, max(cars of C_s's other gates))``. Otherwise,
+  and at steps of the other lane, C_s is unchanged and contributes its worst entries.
+* Every step also contributes the worst component not touched
+  (``Assessment.worst_untouched``), and the net takes ``worst_below[L]`` from the steps
+  under L. These are constants per (C_L, C_{L+1}) and are computed once per pair with
+  the scalar path's own calls, then cached with the net's assessment.
+
+Candidates that join several components at one step (a merge), meet too many routed
+rectangles, or lie far out go to the scalar path, which is exact by construction.
+"""
+
+from __future__ import annotations
+
+import threading
+import weakref
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._assess import Assessment
+from ._netstate import Comp, NetState
+from ._nets import Shape
+from ._ratios import TOLERANCE, CheckKey, StepModel
+from ._rules import Rule
+from ._whatif import CostModel, score
+
+SAFE_COORD = 1 << 30  # candidate coordinates within +-2^30: areas are exact int64s
+SAFE_AGGREGATE = 1 << 61  # component area/perimeter (DBU) that may take a candidate's change
+MAX_LOCAL = 6  # routed rectangles on the candidate's layer the vectorized union takes
+
+_F8 = np.float64
+_NONE = -1
+
+
+@dataclass(frozen=True)
+class BatchScores:
+    """One entry per candidate, in the order given (see ``_reports.Score``)."""
+
+    worst_change_utilization: np.ndarray  # float64
+    worst_utilization: np.ndarray  # float64, the whole net after the candidate
+    legal: np.ndarray  # bool
+    breaks_limit: np.ndarray  # bool
+    cost: np.ndarray  # float64
+    added_area_um2: np.ndarray  # float64, union area added on the candidate's layer
+    vectorized: np.ndarray  # bool: answered by the column path (else by the scalar score)
+
+    def __len__(self) -> int:
+        return len(self.cost)
+
+    @property
+    def vectorized_fraction(self) -> float:
+        return float(self.vectorized.mean()) if len(self.vectorized) else 0.0
+
+
+# -- per-layer plan (depends on the deck only) -----------------------------------------
+
+@dataclass(frozen=True)
+class _Plan:
+    """The checks a change of conductor on layer L can move, in a fixed order."""
+
+    partial: tuple[CheckKey, ...]  # partial checks at L
+    cumulative: tuple[tuple[CheckKey, int], ...]  # cumulative checks at L, with group index
+    later: tuple[tuple[int, CheckKey, int], ...]  # (s, key, group) for s > L in L's lane
+    terms: tuple[tuple[int, str, Rule | None], ...]  # (group, measure, factor rule at L)
+
+
+def _plan(model: StepModel, layer: int) -> _Plan:
+    lane = model.lane[layer]
+    return _Plan(
+        tuple(model.partial_checks[layer]),
+        tuple((k, model.group_index[(k.measure, k.oxide)]) for k in model.cumulative_checks[layer]),
+        tuple((s, k, model.group_index[(k.measure, k.oxide)])
+              for s in range(layer + 1, model.steps) if model.lane[s] == lane
+              for k in model.cumulative_checks[s]),
+        tuple((gi, measure, model.term_rule[layer][gi])
+              for gi, (measure, _oxide) in enumerate(model.groups)))
+
+
+# -- per-assessment tables (depend on the net state) -----------------------------------
+
+@dataclass(frozen=True)
+class _LayerTables:
+    """The net's elements a rectangle on layer L can touch, with their components."""
+
+    same: np.ndarray  # (m, 4) int64, elements on L
+    routed: np.ndarray  # (m,) bool: a routed shape (pins add no area)
+    below: np.ndarray  # (b, 4): layer L-1 when it connects to L by overlap, else empty
+    above: np.ndarray  # (a, 4): layer L+1 likewise (joined from step L+1)
+    comp_l: np.ndarray  # (m + b,) component index at step L of same, then below
+    comp_next: np.ndarray | None  # (m + b + a,) component index at step L+1, None at the top
+    comps_l: list[Comp]
+    comps_next: list[Comp] | None
+
+
+@dataclass(frozen=True)
+class _Group:
+    """Everything about a (C_L, C_{L+1}) pair the columns need; see the module notes."""
+
+    area: int
+    perim: int
+    cell: float
+    gate: float  # 1.0 stands in when C_L has no gate (its checks are then all inactive)
+    diff: float
+    part_active: list[bool]
+    part_limit: list[float]
+    cum_active: list[bool]
+    cum_best: list[float]
+    cum_limit: list[float]
+    present: list[bool]  # per (measure, oxide) group: some gate of C_L carries the oxide
+    term_old: list[float]
+    later_active: list[bool]
+    later_own: list[float]  # best cumulative of C_L's gates at s (-inf: none)
+    later_other: list[float]  # best of C_s's other gates (-inf: none)
+    later_limit: list[float]
+    base: float  # net worst from what the candidate cannot move
+    if_moved: float  # extra net worst when C_L's terms change (changed path later)
+    if_still: float  # extra net worst when they do not
+
+
+class _Tables:
+    def __init__(self, state: NetState) -> None:
+        self.state = weakref.ref(state)
+        self.version = state.version
+        self.layers: dict[int, _LayerTables] = {}
+        self.groups: dict[tuple[int, int, int], _Group | None] = {}
+        self.comp_lists: dict[int, tuple[list[Comp], dict[int, int]]] = {}
+
+    def comps(self, state: NetState, step: int) -> tuple[list[Comp], dict[int, int]]:
+        got = self.comp_lists.get(step)
+        if got is None:
+            lst = list(state.comps[step])
+            got = self.comp_lists[step] = (lst, {id(c): i for i, c in enumerate(lst)})
+        return got
+
+
+_CACHE: "weakref.WeakKeyDictionary[Assessment, _Tables]" = weakref.WeakKeyDictionary()
+_CACHE_LOCK = threading.Lock()
+_PLANS: "weakref.WeakKeyDictionary[StepModel, dict[int, _Plan]]" = weakref.WeakKeyDictionary()
+
+
+def _tables(state: NetState, assessment: Assessment) -> _Tables:
+    with _CACHE_LOCK:
+        t = _CACHE.get(assessment)
+        if t is None or t.state() is not state or t.version != state.version:
+            t = _CACHE[assessment] = _Tables(state)
+        return t
+
+
+def _plan_for(model: StepModel, layer: int) -> _Plan:
+    with _CACHE_LOCK:
+        plans = _PLANS.get(model)
+        if plans is None:
+            plans = _PLANS[model] = {}
+        p = plans.get(layer)
+        if p is None:
+            p = plans[layer] = _plan(model, layer)
+        return p
+
+
+def _rect_array(rects: list) -> np.ndarray:
+    return np.array(rects, dtype=np.int64).reshape(-1, 4)
+
+
+def _layer_tables(tab: _Tables, state: NetState, layer: int) -> _LayerTables:
+    lt = tab.layers.get(layer)
+    if lt is not None:
+        return lt
+    model = state.model
+    is_cut = model.is_cut
+
+    def elements(other: int) -> tuple[list[int], list]:
+        if not 0 <= other < model.steps or is_cut[other] == is_cut[layer]:
+            return [], []
+        items = list(state.index[other].rects.items())
+        return [e for e, _ in items], [r for _, r in items]
+
+    same_items = list(state.index[layer].rects.items())
+    same_ids = [e for e, _ in same_items]
+    below_ids, below_rects = elements(layer - 1)
+    above_ids, above_rects = elements(layer + 1)
+    comps_l, index_l = tab.comps(state, layer)
+    at_l = state.comp_at[layer]
+    comp_l = np.array([index_l[id(at_l[e])] for e in same_ids + below_ids], dtype=np.int64)
+    comp_next = comps_next = None
+    if layer + 1 < model.steps:
+        comps_next, index_next = tab.comps(state, layer + 1)
+        at_next = state.comp_at[layer + 1]
+        comp_next = np.array([index_next[id(at_next[e])] for e in same_ids + below_ids + above_ids],
+                             dtype=np.int64)
+    lt = _LayerTables(_rect_array([r for _, r in same_items]),
+                      np.array([e not in state.pin_of for e in same_ids], dtype=bool),
+                      _rect_array(below_rects), _rect_array(above_rects), comp_l, comp_next,
+                      comps_l, comps_next)
+    tab.layers[layer] = lt
+    return lt
+
+
+def _consistent(comp: Comp, pins_ox: list[dict[str, float]]) -> bool:
+    """Every oxide of the component has a gate pin carrying it (so that the scalar
+    check code finds a gate for each of its checks)."""
+    return all(any(ox in pins_ox[p] for p in comp.gates) for ox in comp.gate_ox)
+
+
+def _build_group(state: NetState, assessment: Assessment, plan: _Plan, layer: int,
+                 c_l: Comp | None, c_next: Comp | None) -> _Group | None:
+    """The pair's constants, by the scalar path's own calls; None: leave it to score()."""
+    model = state.model
+    pins_ox = assessment.pins_ox
+    cars = assessment.cars
+    later_comps: dict[int, Comp | None] = {}
+    rep = next(iter(c_next.members)) if c_next is not None else None
+    for s in range(layer + 1, model.steps):
+        later_comps[s] = state.comp_at[s][rep] if rep is not None else None
+    has_gate = c_l is not None and c_l.gate > 0
+    if has_gate and not _consistent(c_l, pins_ox):  # type: ignore[arg-type]
+        return None
+    for c in later_comps.values():
+        if c is not None and c.gate > 0 and not _consistent(c, pins_ox):
+            return None
+    if c_l is not None and not (abs(c_l.area) < SAFE_AGGREGATE and abs(c_l.perim) < SAFE_AGGREGATE):
+        return None
+    area = c_l.area if c_l is not None else 0
+    perim = c_l.perim if c_l is not None else 0
+    cell = c_l.cell if c_l is not None else 0.0
+    gate = c_l.gate if has_gate else 1.0
+    diff = c_l.diff if c_l is not None else 0.0
+    gate_ox = c_l.gate_ox if has_gate else {}  # type: ignore[union-attr]
+    gates_l = list(c_l.gates) if has_gate else []  # type: ignore[union-attr]
+    own_set = set(gates_l)
+
+    def best_of(pins, oxide: str, gi: int, s: int) -> float:
+        return max((cars[(p, gi)][s] for p in pins if oxide in pins_ox[p]), default=-np.inf)
+
+    part_active = [has_gate and k.oxide in gate_ox for k in plan.partial]
+    part_limit = [k.rule.partial_limit(diff) if a else 1.0 for k, a in zip(plan.partial, part_active)]
+    cum_active = [has_gate and k.oxide in gate_ox for k, _ in plan.cumulative]
+    cum_best = [best_of(gates_l, k.oxide, gi, layer) if a else 0.0
+                for (k, gi), a in zip(plan.cumulative, cum_active)]
+    cum_limit = [k.rule.cumulative_limit(diff) if a else 1.0
+                 for (k, _), a in zip(plan.cumulative, cum_active)]
+    present = [has_gate and any(model.groups[gi][1] in pins_ox[p] for p in gates_l)
+               for gi, _, _ in plan.terms]
+    term_old = [model.term(layer, gi, area, cell, perim, gate, diff) if pr else 0.0
+                for (gi, _, _), pr in zip(plan.terms, present)]
+    has_deltas = any(present)
+    later_active, later_own, later_other, later_limit = [], [], [], []
+    for s, k, gi in plan.later:
+        c = later_comps[s]
+        active = has_deltas and c is not None and c.gate > 0 and k.oxide in c.gate_ox
+        later_active.append(active)
+        if active:
+            later_own.append(best_of(gates_l, k.oxide, gi, s))
+            later_other.append(best_of([p for p in c.gates if p not in own_set], k.oxide, gi, s))  # type: ignore[union-attr]
+            later_limit.append(k.rule.cumulative_limit(c.diff))  # type: ignore[union-attr]
+        else:
+            later_own.append(0.0)
+            later_other.append(0.0)
+            later_limit.append(1.0)
+
+    base = assessment.worst_below[layer]
+    base = max(base, assessment.worst_untouched(layer, {c_l} if c_l is not None else set()))
+    if_moved = if_still = 0.0
+    lane = model.lane[layer]
+    for s in range(layer + 1, model.steps):
+        c = later_comps[s]
+        if c is not None and c.gate > 0:
+            pw = assessment.partial_worst[s].get(c, 0.0)
+            uw = max((e.utilization for e in assessment.entries[s].get(c, ())), default=0.0)
+            if has_deltas and model.lane[s] == lane:
+                if_moved = max(if_moved, pw)
+                if_still = max(if_still, pw, uw)
+            else:
+                base = max(base, pw, uw)
+        base = max(base, assessment.worst_untouched(s, {c} if c is not None else set()))
+    return _Group(area, perim, cell, gate, diff, part_active, part_limit, cum_active, cum_best,
+                  cum_limit, present, term_old, later_active, later_own, later_other, later_limit,
+                  base, if_moved, if_still)
+
+
+# -- vectorized twins of the scalar formulas --------------------------------------------
+
+def _ratio(rule: Rule, conductor: np.ndarray, gate: np.ndarray, diff: np.ndarray) -> np.ndarray:
+    """Rule.ratio, elementwise: max(0, f*A - k_credit*D) / (G + k_gate*D)."""
+    factor = np.where(diff <= 0, 1.0, rule.area_factor) if rule.factor_with_diode_only else rule.area_factor
+    a = factor * conductor - rule.diode_area_credit * diff
+    a_eff = np.where(a > 0.0, a, 0.0)  # Python's max(0.0, a): a only when a > 0
+    return a_eff / (gate + rule.diode_gate_factor * diff)
+
+
+def _utilization(ratio: np.ndarray, limit: np.ndarray) -> np.ndarray:
+    """_ratios.utilization, elementwise."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = ratio / limit
+    return np.where(limit > 0, q, np.where(ratio > 0, np.inf, 0.0))
+
+
+def _union_measures(rects: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Exact (area, perimeter) of the union of K closed rectangles per row, (n, K, 4).
+
+    The K rectangles' x and y coordinates cut the plane into (2K-1)^2 cells (some of
+    zero width or height when coordinates repeat); a cell is covered when some
+    rectangle holds it (closed: its low edges at or below the cell's, its high edges
+    at or above). Area is the sum of covered cells; the horizontal boundary
+    is, per column, its width times the changes between covered and uncovered along y
+    (outside counts as uncovered), the vertical one likewise per row. A repeated
+    coordinate gives a zero-size cell that is covered exactly when a rectangle reaching
+    it is, so touching rectangles merge as closed sets do. Padding a row with copies of
+    one of its own rectangles changes nothing.
+    """
+    k = rects.shape[1]
+    # Each (K, n), C-contiguous: n last, so that every operation below runs along it
+    # (ufunc results keep their inputs' memory order, so a strided start stays slow).
+    x0, y0, x1, y1 = np.ascontiguousarray(rects.transpose(2, 1, 0))
+    xs = np.sort(np.concatenate([x0, x1]), axis=0)
+    ys = np.sort(np.concatenate([y0, y1]), axis=0)
+    in_col = (x0[None] <= xs[:-1, None]) & (x1[None] >= xs[1:, None])  # (columns, K, n)
+    in_row = (y0[None] <= ys[:-1, None]) & (y1[None] >= ys[1:, None])  # (rows, K, n)
+    cov = in_col[:, None, 0] & in_row[None, :, 0]  # (columns, rows, n)
+    for j in range(1, k):
+        cov |= in_col[:, None, j] & in_row[None, :, j]
+    wx, wy = xs[1:] - xs[:-1], ys[1:] - ys[:-1]
+    area = ((cov * wy[None]).sum(axis=1) * wx).sum(axis=0)
+    changes_y = cov[:, 0].astype(np.int64) + cov[:, -1] + (cov[:, 1:] != cov[:, :-1]).sum(axis=1)
+    changes_x = cov[0].astype(np.int64) + cov[-1] + (cov[1:] != cov[:-1]).sum(axis=0)
+    return area, (changes_y * wx).sum(axis=0) + (changes_x * wy).sum(axis=0)
+
+
+def _single_component(touch: np.ndarray, comp: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per row: whether the touched elements lie in at most one component, and its
+    index (-1 when nothing is touched)."""
+    if touch.shape[1] == 0:
+        none = np.full(touch.shape[0], _NONE, dtype=np.int64)
+        return np.ones(touch.shape[0], dtype=bool), none
+    lo = np.where(touch, comp[None, :], count).min(axis=1)
+    hi = np.where(touch, comp[None, :], _NONE).max(axis=1)
+    return (hi == _NONE) | (lo == hi), hi
+
+
+# -- one layer's candidates ---------------------------------------------------------------
+
+def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: int,
+                 r: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Column scores of the candidates on one layer: (done, worst change, worst net,
+    added area); rows not done are left to the scalar path."""
+    model = state.model
+    lt = _layer_tables(tab, state, layer)
+    plan = _plan_for(model, layer)
+    n = len(r)
+    xlo, ylo, xhi, yhi = (r[:, i:i + 1] for i in range(4))
+    s = lt.same
+    ix = np.minimum(xhi, s[:, 2]) - np.maximum(xlo, s[:, 0])
+    iy = np.minimum(yhi, s[:, 3]) - np.maximum(ylo, s[:, 1])
+    edge = (ix >= 0) & (iy >= 0) & ((ix > 0) | (iy > 0))  # _geometry.edge_touch
+
+    def overlapping(q: np.ndarray) -> np.ndarray:  # _geometry.overlap
+        return ((np.minimum(xhi, q[:, 2]) > np.maximum(xlo, q[:, 0]))
+                & (np.minimum(yhi, q[:, 3]) > np.maximum(ylo, q[:, 1])))
+
+    touch_l = np.concatenate([edge, overlapping(lt.below)], axis=1)
+    ok, c_l = _single_component(touch_l, lt.comp_l, len(lt.comps_l))
+    if lt.comp_next is not None:
+        touch_next = np.concatenate([touch_l, overlapping(lt.above)], axis=1)
+        ok_next, c_next = _single_component(touch_next, lt.comp_next, len(lt.comps_next or ()))
+        ok &= ok_next
+    else:
+        c_next = np.full(n, _NONE, dtype=np.int64)
+    local = edge & lt.routed[None, :]
+    n_local = local.sum(axis=1)
+    ok &= (n_local <= MAX_LOCAL) & ((r > -SAFE_COORD) & (r < SAFE_COORD)).all(axis=1)
+
+    # Group the candidates by the pair of components they join.
+    span = len(lt.comps_next or ()) + 1
+    keys = (c_l + 1) * span + (c_next + 1)
+    uniq, inverse = np.unique(keys[ok], return_inverse=True)
+    groups: list[_Group] = []
+    usable = np.ones(len(uniq), dtype=bool)
+    for j, key in enumerate(uniq.tolist()):
+        cl, cn = key // span - 1, key % span - 1
+        memo = (layer, cl, cn)
+        if memo not in tab.groups:
+            comp_l = lt.comps_l[cl] if cl >= 0 else None
+            comp_n = lt.comps_next[cn] if cn >= 0 and lt.comps_next is not None else None
+            tab.groups[memo] = _build_group(state, assessment, plan, layer, comp_l, comp_n)
+        g = tab.groups[memo]
+        if g is None:
+            usable[j] = False
+        else:
+            groups.append(g)
+    rows = np.nonzero(ok)[0]
+    if not usable.all():
+        keep = usable[inverse]
+        rows, inverse = rows[keep], inverse[keep]
+        inverse = (np.cumsum(usable) - 1)[inverse]
+    done = np.zeros(n, dtype=bool)
+    done[rows] = True
+    zeros = np.zeros(n, dtype=_F8)
+    if len(rows) == 0:
+        return done, zeros, zeros, zeros
+
+    # Area and perimeter each candidate adds to C_L on layer L (NetState.local_delta).
+    rr = r[rows]
+    w, h = rr[:, 2] - rr[:, 0], rr[:, 3] - rr[:, 1]
+    d_area = w * h
+    d_perim = 2 * (w + h)
+    k_local = n_local[rows]
+    one = np.nonzero(k_local == 1)[0]
+    if len(one):
+        col = np.argmax(local[rows[one]], axis=1)
+        qx, qy = ix[rows[one], col], iy[rows[one], col]
+        d_area[one] -= np.where((qx > 0) & (qy > 0), qx * qy, 0)
+        d_perim[one] -= 2 * (qx + qy)  # _shared_perimeter: qx, qy >= 0 for a contact
+    many = np.nonzero(k_local >= 2)[0]
+    if len(many):
+        sub = local[rows[many]]
+        k = int(k_local[many].max())
+        hit_row, hit_col = np.nonzero(sub)
+        start = np.concatenate([[0], np.cumsum(k_local[many])[:-1]])
+        slot = np.arange(len(hit_row)) - start[hit_row]
+        q = np.empty((len(many), k, 4), dtype=np.int64)
+        q[:] = s[hit_col[start]][:, None, :]  # pad with the row's first neighbour
+        q[hit_row, slot] = s[hit_col]
+        box = rr[many]  # clip to r grown by 1 DBU: the change lies inside r
+        q[:, :, 0] = np.maximum(q[:, :, 0], box[:, None, 0] - 1)
+        q[:, :, 1] = np.maximum(q[:, :, 1], box[:, None, 1] - 1)
+        q[:, :, 2] = np.minimum(q[:, :, 2], box[:, None, 2] + 1)
+        q[:, :, 3] = np.minimum(q[:, :, 3], box[:, None, 3] + 1)
+        # One call for both unions: without r (q padded with its first rectangle) and with.
+        both = np.concatenate([np.concatenate([q, q[:, :1, :]], axis=1),
+                               np.concatenate([q, box[:, None, :]], axis=1)])
+        a, p = _union_measures(both)
+        d_area[many] = a[len(many):] - a[:len(many)]
+        d_perim[many] = p[len(many):] - p[:len(many)]
+    if not model.side_needed[layer]:
+        d_perim[:] = 0
+
+    # The pair's constants, one row per candidate.
+    def column(name: str, dtype=_F8) -> np.ndarray:
+        return np.array([getattr(g, name) for g in groups], dtype=dtype)[inverse]
+
+    def columns(name: str, dtype=_F8) -> np.ndarray:  # only for a non-empty list field
+        table = np.array([getattr(g, name) for g in groups], dtype=dtype)
+        return table.reshape(len(groups), len(getattr(groups[0], name)))[inverse]
+
+    area = column("area", np.int64) + d_area
+    perim = column("perim", np.int64) + d_perim
+    gate, diff = column("gate"), column("diff")
+    conductor = {"area": area.astype(_F8) * model.scale_area + column("cell")}
+    if model.is_cut[layer]:
+        conductor["side"] = np.zeros(len(rows), dtype=_F8)
+    else:
+        conductor["side"] = perim.astype(_F8) * model.scale_length * model.thickness[layer]
+
+    worst_change = np.zeros(len(rows), dtype=_F8)
+    if plan.partial:
+        active, limit = columns("part_active", bool), columns("part_limit")
+        for i, key in enumerate(plan.partial):
+            if active[:, i].any():
+                u = _utilization(_ratio(key.rule, conductor[key.measure], gate, diff), limit[:, i])
+                worst_change = np.maximum(worst_change, np.where(active[:, i], u, 0.0))
+    deltas: dict[int, np.ndarray] = {}
+    moved = np.zeros(len(rows), dtype=bool)
+    if plan.terms:
+        present, term_old = columns("present", bool), columns("term_old")
+    for i, (gi, measure, rule) in enumerate(plan.terms):
+        if present[:, i].any():
+            c = conductor[measure]
+            new = c / gate if rule is None else _ratio(rule, c, gate, diff)
+            d = np.where(present[:, i], new - term_old[:, i], 0.0)
+            deltas[gi] = d
+            moved |= d != 0
+    no_change = np.zeros(len(rows), dtype=_F8)
+    if plan.cumulative:
+        active, best, limit = columns("cum_active", bool), columns("cum_best"), columns("cum_limit")
+        for i, (_key, gi) in enumerate(plan.cumulative):
+            if active[:, i].any():
+                u = _utilization(best[:, i] + deltas.get(gi, no_change), limit[:, i])
+                worst_change = np.maximum(worst_change, np.where(active[:, i], u, 0.0))
+    if plan.later and moved.any():
+        active = columns("later_active", bool) & moved[:, None]
+        own, other, limit = columns("later_own"), columns("later_other"), columns("later_limit")
+        for i, (_s, _key, gi) in enumerate(plan.later):
+            if active[:, i].any():
+                best = np.maximum(own[:, i] + deltas.get(gi, no_change), other[:, i])
+                u = _utilization(best, limit[:, i])
+                worst_change = np.maximum(worst_change, np.where(active[:, i], u, 0.0))
+    worst_net = np.maximum(np.maximum(column("base"), np.where(moved, column("if_moved"),
+                                                                  column("if_still"))), worst_change)
+    out_change, out_net, out_added = zeros.copy(), zeros.copy(), zeros.copy()
+    out_change[rows] = worst_change
+    out_net[rows] = worst_net
+    out_added[rows] = d_area.astype(_F8) * model.scale_area
+    return done, out_change, out_net, out_added
+
+
+def _costs(costs: CostModel, u: np.ndarray) -> np.ndarray:
+    """CostModel.cost per entry: the flat and the linear parts in columns, the curved
+    part (knee < u <= 1, a power) by the model itself so that it rounds the same."""
+    out = np.zeros(len(u), dtype=_F8)
+    if type(costs) is not CostModel:  # a subclass may cost differently: ask it
+        out[:] = [costs.cost(x) for x in u.tolist()]
+        return out
+    flat = u <= costs.knee
+    within = u <= 1.0
+    over = ~flat & ~within
+    out[over] = costs.violation + costs.scale * costs.over_slope * (u[over] - 1.0)
+    curved = ~flat & within
+    if curved.any():
+        out[curved] = [costs.cost(x) for x in u[curved].tolist()]
+    return out
+
+
+def score_columns(state: NetState, assessment: Assessment, layers: np.ndarray, rects: np.ndarray,
+                  costs: CostModel) -> BatchScores:
+    """Score N single-rectangle candidates (``layers[i]``, ``rects[i]``) against the net;
+    entry i equals ``score(state, assessment, [Shape(layers[i], rects[i])], costs,
+    detail=False)``. Inputs are trusted (the engine validates them)."""
+    layers = np.asarray(layers, dtype=np.int64).reshape(-1)
+    rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
+    n = len(layers)
+    worst_change = np.zeros(n, dtype=_F8)
+    worst_net = np.zeros(n, dtype=_F8)
+    added = np.zeros(n, dtype=_F8)
+    cost = np.zeros(n, dtype=_F8)
+    vectorized = np.zeros(n, dtype=bool)
+    if n:
+        tab = _tables(state, assessment)
+        for layer in np.unique(layers).tolist():
+            idx = np.nonzero(layers == layer)[0]
+            done, wc, wn, aa = _score_layer(tab, state, assessment, layer, rects[idx])
+            hit = idx[done]
+            vectorized[hit] = True
+            worst_change[hit], worst_net[hit], added[hit] = wc[done], wn[done], aa[done]
+        cost[vectorized] = _costs(costs, worst_change[vectorized])
+        names = [l.name for l in state.model.deck.layers]
+        for i in np.nonzero(~vectorized)[0].tolist():
+            layer = int(layers[i])
+            rect = tuple(int(v) for v in rects[i])
+            s = score(state, assessment, [Shape(layer, rect)], costs, detail=False)  # type: ignore[arg-type]
+            worst_change[i], worst_net[i], cost[i] = s.worst_change_utilization, s.worst_utilization, s.cost
+            added[i] = s.added_area_um2.get(names[layer], 0.0)
+    limit = 1.0 + TOLERANCE  # _ratios.is_legal
+    return BatchScores(worst_change, worst_net, worst_net <= limit, ~(worst_change <= limit), cost,
+                       added, vectorized)
