@@ -10,10 +10,13 @@ Python client with the same requests:
   requests, captured just before: same message sizes both ways, no protobuf, no engine.
 
 Each case is measured in rounds that alternate floor and ours (order swapped every
-round), so the machine's drift hits both; p50 and p99 are over all rounds. The
-``engine`` column is the same engine call in this process (no gRPC); ``service`` is
-what is left for the service layer itself: p50 - floor p50 - engine p50 (noisy, can
-be negative). Candidates mix run extensions (1 shape) and via + run (4 shapes).
+round), so the machine's drift hits both; p50 and p99 are over all rounds. Columns
+that explain a ratio, measured in this process in thread CPU time (no transport):
+``engine us``, the engine call alone (p50); ``service us``, what the service layer
+adds to it (request parse, conversion, servicer, reply, metrics, serialization: the
+median of paired differences). ``server cpu`` is ours / the floor's process CPU per
+call (all threads, from /proc). Candidates mix run extensions (1 shape) and via +
+run (4 shapes).
 
 Targets (issue 3): streamed and unary score p50 <= 1.15 x floor p50; batches of 1,024
 >= 100,000 candidate scores per second. Ratios are reported; nothing here fails on them.
@@ -45,6 +48,8 @@ import grpc
 
 from etchguard import Engine
 from etchguard.client import Client, candidate_columns, pb
+from etchguard.server.metrics import Metrics
+from etchguard.server.servicer import AntennaServicer
 
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
@@ -66,8 +71,10 @@ class Row:
     floor_p50_us: float
     ratio: float
     target: str
-    engine_p50_us: float
-    service_us: float
+    engine_p50_us: float  # the engine call alone, in process
+    service_us: float  # what the service layer adds to it, in process (paired median)
+    cpu_us: float  # our server process's CPU per call (all threads)
+    floor_cpu_us: float  # the echo server's CPU per call
     throughput: str
     met: bool | None
 
@@ -148,6 +155,19 @@ class Case:
         self.name, self.label, self.kind, self.requests, self.op = name, label, kind, requests, op
         self.engine, self.per_call = engine, per_call
 
+    def translator(self, servicer: AntennaServicer) -> Callable[[int], object]:
+        """Request i through the service layer in this process: bytes in, the servicer
+        (conversion, engine call, reply, metrics), bytes out; no transport."""
+        if self.kind == "stream":
+            wire = [pb.SessionRequest(seq=i + 1, **{self.op: r}).SerializeToString()
+                    for i, r in enumerate(self.requests)]
+            parse = pb.SessionRequest.FromString
+            return lambda i: [r.SerializeToString() for r in servicer.Session(iter([parse(wire[i])]), None)]
+        wire = [r.SerializeToString() for r in self.requests]
+        parse = type(self.requests[0]).FromString
+        method = getattr(servicer, self.kind)
+        return lambda i: method(parse(wire[i]), None).SerializeToString()
+
     def capture(self, client: Client) -> dict[str, list[str]]:
         """Our server's reply bytes to every request, in order (for the echo floor)."""
         if self.kind == "stream":
@@ -182,15 +202,37 @@ class Case:
         return out
 
 
-def _engine_p50(fn: Callable[[int], object], count: int, n: int) -> float:
+def _in_process(engine: Callable[[int], object], service: Callable[[int], object], count: int,
+                n: int) -> tuple[float, float]:
+    """(engine p50, service-layer p50) in us of thread CPU time, in this process: each
+    request once through the engine alone and once through the service layer, paired
+    and interleaved, so the service figure is the median of the pairs' differences."""
     for i in range(min(count, 50)):
-        fn(i % n)
-    times = []
+        engine(i % n)
+        service(i % n)
+    clock = time.thread_time_ns
+    alone, extra = [], []
     for i in range(count):
-        t = time.perf_counter_ns()
-        fn(i % n)
-        times.append(time.perf_counter_ns() - t)
-    return _pct(times, 0.5)
+        t = clock()
+        engine(i % n)
+        a = clock() - t
+        t = clock()
+        service(i % n)
+        extra.append(clock() - t - a)
+        alone.append(a)
+    return _pct(alone, 0.5), _pct(extra, 0.5)
+
+
+_TICK_S = 1.0 / os.sysconf("SC_CLK_TCK") if hasattr(os, "sysconf") else 0.01
+
+
+def _cpu_s(pid: int) -> float:
+    """User + system CPU seconds of a process so far (Linux /proc; NaN elsewhere)."""
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    except OSError:
+        return float("nan")
+    return (int(fields[11]) + int(fields[12])) * _TICK_S
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -217,6 +259,7 @@ def main(argv: list[str] | None = None) -> int:
 
     engine = Engine(deck)
     engine.open_net(NET, net.pins, None, net.shapes)
+    servicer = AntennaServicer(engine, Metrics(engine.stats, AntennaServicer.METHODS))  # as served
     pb_singles = [_pb_shapes(deck, c) for c in singles]
     score_reqs = [pb.ScoreRequest(net=NET, candidate=c) for c in pb_singles]
     lean_reqs = [pb.ScoreRequest(net=NET, candidate=c, without_changes=True) for c in pb_singles]
@@ -256,17 +299,24 @@ def main(argv: list[str] | None = None) -> int:
                 calls = args.batches if case.kind == "ScoreBatch" else args.calls
                 warm = 1 if case.kind == "ScoreBatch" else warmup
                 samples: dict[str, list[int]] = {"ours": [], "floor": []}
+                cpu = {"ours": 0.0, "floor": 0.0}
+                pids = {"ours": ours.pid, "floor": echo.pid}
                 for r in range(args.rounds):
                     order = ("floor", "ours") if r % 2 == 0 else ("ours", "floor")
                     for who in order:
                         if who == "floor":
                             select(case.name.encode())
+                        before = _cpu_s(pids[who])
                         samples[who] += case.run(mine if who == "ours" else floor, warm, calls)
+                        cpu[who] += (_cpu_s(pids[who]) - before) / (warm + calls)
                     if time.monotonic() - started > TIME_BUDGET_S:
                         print(f"(time budget reached: {case.label} after {r + 1} rounds)", flush=True)
                         break
-                engine_us = _engine_p50(case.engine, calls * 2 if case.per_call == 1 else 3, n)
-                rows.append(_row(case, samples, engine_us))
+                engine_cpu = _in_process(case.engine, case.translator(servicer),
+                                         calls * 2 if case.per_call == 1 else 3, len(case.requests))
+                rounds_done = r + 1
+                rows.append(_row(case, samples, engine_cpu,
+                                 {k: v / rounds_done * 1e6 for k, v in cpu.items()}))
     finally:
         for proc in (ours, echo):
             if proc is not None and proc.poll() is None:
@@ -285,23 +335,28 @@ def main(argv: list[str] | None = None) -> int:
     return 0
 
 
-def _row(case: Case, samples: dict[str, list[int]], engine_us: float) -> Row:
+def _row(case: Case, samples: dict[str, list[int]], in_process: tuple[float, float],
+         cpu: dict[str, float]) -> Row:
     p50, p99 = _pct(samples["ours"], 0.5), _pct(samples["ours"], 0.99)
     floor = _pct(samples["floor"], 0.5)
-    ratio = p50 / floor
+    engine_p50, service = in_process
+    common = dict(method=case.label, p50_us=p50, p99_us=p99, floor_p50_us=floor, ratio=p50 / floor,
+                  engine_p50_us=engine_p50, service_us=service, cpu_us=cpu["ours"],
+                  floor_cpu_us=cpu["floor"])
     if case.per_call > 1:
         per_s = case.per_call / (p50 / 1e6)
-        return Row(case.label, p50, p99, floor, ratio, f">= {BATCH_TARGET_PER_S:,}/s", engine_us,
-                   p50 - floor - engine_us, f"{per_s:,.0f}/s (floor {case.per_call / (floor / 1e6):,.0f}/s, "
-                   f"engine {case.per_call / (engine_us / 1e6):,.0f}/s)", per_s >= BATCH_TARGET_PER_S)
+        return Row(**common, target=f">= {BATCH_TARGET_PER_S:,}/s",
+                   throughput=f"{per_s:,.0f}/s (floor {case.per_call / (floor / 1e6):,.0f}/s, "
+                              f"engine {case.per_call / (engine_p50 / 1e6):,.0f}/s)",
+                   met=per_s >= BATCH_TARGET_PER_S)
     target = f"<= {RATIO_TARGET}x" if case.name in ("stream_score", "unary_score") else ""
-    return Row(case.label, p50, p99, floor, ratio, target, engine_us, p50 - floor - engine_us,
-               f"{1e6 / p50:,.0f} calls/s", ratio <= RATIO_TARGET if target else None)
+    return Row(**common, target=target, throughput=f"{1e6 / p50:,.0f} calls/s",
+               met=p50 / floor <= RATIO_TARGET if target else None)
 
 
 def _print(rows: list[Row], args, elapsed: float) -> None:
-    head = (f"{'method':<26} {'p50 us':>9} {'p99 us':>9} {'floor p50':>10} {'ratio':>6} {'target':>14} "
-            f"{'engine us':>10} {'service us':>10}  throughput")
+    head = (f"{'method':<26} {'p50 us':>9} {'p99 us':>9} {'floor p50':>10} {'ratio':>6} {'target':>20} "
+            f"{'engine us':>10} {'service us':>10} {'server cpu':>14}  throughput")
     print(f"gRPC bench: {args.shapes}-shape net, {args.rounds} rounds x {args.calls} calls per server "
           f"({args.batches} batches), floor = bare echo in the same run; {elapsed:.0f} s")
     print(head)
@@ -309,7 +364,8 @@ def _print(rows: list[Row], args, elapsed: float) -> None:
     for r in rows:
         met = "" if r.met is None else ("  met" if r.met else "  NOT met")
         print(f"{r.method:<26} {r.p50_us:>9.0f} {r.p99_us:>9.0f} {r.floor_p50_us:>10.0f} {r.ratio:>6.2f} "
-              f"{r.target + met:>14} {r.engine_p50_us:>10.0f} {r.service_us:>10.0f}  {r.throughput}")
+              f"{r.target + met:>20} {r.engine_p50_us:>10.0f} {r.service_us:>10.0f} "
+              f"{f'{r.cpu_us:.0f} / {r.floor_cpu_us:.0f}':>14}  {r.throughput}")
 
 
 if __name__ == "__main__":
