@@ -49,17 +49,24 @@ class CostModel:
 
 
 def _candidate_links(cands: list[Shape], is_cut: list[bool]) -> list[tuple[int, int, int]]:
+    """Contacts among the candidates themselves: (i, j, step from which they connect)."""
+    by_layer: dict[int, list[int]] = {}
+    for i, c in enumerate(cands):
+        by_layer.setdefault(c.layer, []).append(i)
     links = []
-    for i in range(len(cands)):
-        a = cands[i]
-        for j in range(i + 1, len(cands)):
-            b = cands[j]
-            if a.layer == b.layer:
-                if edge_touch(a.rect, b.rect):
-                    links.append((i, j, a.layer))
-            elif abs(a.layer - b.layer) == 1 and is_cut[a.layer] != is_cut[b.layer]:
-                if overlap(a.rect, b.rect):
-                    links.append((i, j, max(a.layer, b.layer)))
+    for layer, members in by_layer.items():
+        for a, i in enumerate(members):
+            ri = cands[i].rect
+            for j in members[a + 1:]:
+                if edge_touch(ri, cands[j].rect):
+                    links.append((i, j, layer))
+        above = by_layer.get(layer + 1)
+        if above and is_cut[layer] != is_cut[layer + 1]:
+            for i in members:
+                ri = cands[i].rect
+                for j in above:
+                    if overlap(ri, cands[j].rect):
+                        links.append((i, j, layer + 1))
     return links
 
 
@@ -68,6 +75,46 @@ def _find(parent: list[int], i: int) -> int:
         parent[i] = parent[parent[i]]
         i = parent[i]
     return i
+
+
+class _Grouper:
+    """Connected groups of the candidates, step by step.
+
+    Contacts only appear as the steps rise and components only grow, so the
+    union-find over candidates carries from one step to the next: each step adds the
+    candidate contacts that start there and joins candidates touching one component.
+    """
+
+    def __init__(self, cands: list[Shape], touches: list[list[tuple[int, int]]],
+                 links: list[tuple[int, int, int]]) -> None:
+        self.cands, self.touches = cands, touches
+        self.parent = list(range(len(cands)))
+        self.links_at: dict[int, list[tuple[int, int]]] = {}
+        for i, j, joined in links:
+            self.links_at.setdefault(joined, []).append((i, j))
+
+    def _join(self, i: int, j: int) -> None:
+        ri, rj = _find(self.parent, i), _find(self.parent, j)
+        if ri != rj:
+            self.parent[ri] = rj
+
+    def at(self, at_s: dict[int, Comp], step: int) -> list[tuple[list[int], set[Comp]]]:
+        for i, j in self.links_at.get(step, ()):
+            self._join(i, j)
+        present = [i for i, c in enumerate(self.cands) if c.layer <= step]
+        first_toucher: dict[int, int] = {}  # id(component) -> a candidate touching it
+        for i in present:
+            for e, joined in self.touches[i]:
+                if joined <= step:
+                    self._join(i, first_toucher.setdefault(id(at_s[e]), i))
+        groups: dict[int, tuple[list[int], set[Comp]]] = {}
+        for i in present:
+            members, comps = groups.setdefault(_find(self.parent, i), ([], set()))
+            members.append(i)
+            for e, joined in self.touches[i]:
+                if joined <= step:
+                    comps.add(at_s[e])
+        return list(groups.values())
 
 
 def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: CostModel,
@@ -83,7 +130,7 @@ def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: Co
     groups_of_rules = model.groups
     k = len(cands)
     touches = [state.touching(c.layer, c.rect) for c in cands]
-    links = _candidate_links(cands, model.is_cut) if k > 1 else []
+    grouper = _Grouper(cands, touches, _candidate_links(cands, model.is_cut)) if k > 1 else None
     first = min(c.layer for c in cands)
 
     added: dict[str, float] = {}
@@ -93,10 +140,10 @@ def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: Co
     worst_net = assessment.worst_below[first]
     for s in range(first, steps):
         at_s = comp_at[s]
-        if k == 1:
+        if grouper is None:
             groups = [([0], {at_s[e] for e, joined in touches[0] if joined <= s})]
         else:
-            groups = list(_groups(cands, touches, links, at_s, s))
+            groups = grouper.at(at_s, s)
         touched: set[Comp] = set()
         lane = model.lane[s]
         for members, comps in groups:
@@ -159,38 +206,6 @@ def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: Co
 
 def _unchanged_worst(assessment: Assessment, step: int, comp: Comp) -> float:
     return max((e.utilization for e in assessment.entries[step].get(comp, ())), default=0.0)
-
-
-def _groups(cands: list[Shape], touches: list[list[tuple[int, int]]],
-            links: list[tuple[int, int, int]], at_s: dict[int, Comp], step: int):
-    """Connected groups of the candidates present at ``step``, with the components
-    each group joins (two candidates touching one component are one group)."""
-    parent = list(range(len(cands)))
-
-    def join(i: int, j: int) -> None:
-        ri, rj = _find(parent, i), _find(parent, j)
-        if ri != rj:
-            parent[ri] = rj
-
-    for i, j, joined in links:
-        if joined <= step:
-            join(i, j)
-    first_toucher: dict[int, int] = {}  # id(component) -> a candidate touching it
-    for i, c in enumerate(cands):
-        if c.layer <= step:
-            for e, joined in touches[i]:
-                if joined <= step:
-                    join(i, first_toucher.setdefault(id(at_s[e]), i))
-    groups: dict[int, tuple[list[int], set[Comp]]] = {}
-    for i, c in enumerate(cands):
-        if c.layer > step:
-            continue
-        members, comps = groups.setdefault(_find(parent, i), ([], set()))
-        members.append(i)
-        for e, joined in touches[i]:
-            if joined <= step:
-                comps.add(at_s[e])
-    return groups.values()
 
 
 def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[int, int]]],
