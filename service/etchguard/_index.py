@@ -12,7 +12,7 @@ from collections.abc import Iterator
 
 from ._geometry import Rect
 
-SCAN_LIMIT = 24
+SCAN_LIMIT = 16
 GRID_SHIFT = 12  # 4096 DBU buckets
 WIDE_CELLS = 64
 
