@@ -30,15 +30,17 @@ def test_sigterm_lets_calls_in_flight_finish():
         name, _ = open_small_net(c)
         with c.session() as s:
             assert s.score(name, candidate()).changes  # the stream is in flight
-            # a unary call in flight too: a batch sized to take about 1.5 s here
+            # a unary call in flight too: a batch (with details: the slow path) sized to
+            # take about 1.5 s here
             def rects(n: int):
                 return runs_to_rects(4900, 100, 4900, 100 + np.arange(3000, 3000 + n), 140)
 
             t0 = time.perf_counter()
-            c.score_batch(name, rects(1000), "M2")
-            count = min(60_000, int(1000 * 1.5 / (time.perf_counter() - t0)))
+            c.score_batch(name, rects(500), "M2", details=True)
+            count = min(40_000, int(500 * 1.5 / (time.perf_counter() - t0)))
             batch: dict = {}
-            worker = threading.Thread(target=lambda: batch.update(r=c.score_batch(name, rects(count), "M2")))
+            worker = threading.Thread(target=lambda: batch.update(
+                r=c.score_batch(name, rects(count), "M2", details=True)))
             worker.start()
             time.sleep(0.3)
             assert worker.is_alive()

@@ -80,6 +80,8 @@ class ServiceError(Exception):
 
 
 _CODES = {c.value[0]: c for c in grpc.StatusCode}
+MAX_MESSAGE_BYTES = 64 * 1024 * 1024  # as the server's default --max-message-bytes
+_SIZE_OPTIONS = ("grpc.max_receive_message_length", "grpc.max_send_message_length")
 
 
 # -- building requests ----------------------------------------------------------------
@@ -218,7 +220,8 @@ class Client:
     """A connection to an etchguard server. Use as a context manager, or call close().
 
     ``target`` is ``host:port`` or ``unix:/path``; ``timeout`` (s) bounds each unary
-    call (None: no deadline).
+    call (None: no deadline). Messages may be as large as the server's default limit
+    (64 MiB) both ways unless ``options`` say otherwise.
     """
 
     def __init__(self, target: str = "127.0.0.1:50051", *, timeout: float | None = 30.0,
@@ -226,7 +229,11 @@ class Client:
         self.target = target
         self.timeout = timeout
         self._owns_channel = channel is None
-        self.channel = channel or grpc.insecure_channel(target, options=list(options))
+        if channel is None:
+            given = {name for name, _ in options}
+            defaults = [(name, MAX_MESSAGE_BYTES) for name in _SIZE_OPTIONS if name not in given]
+            channel = grpc.insecure_channel(target, options=[*defaults, *options])
+        self.channel = channel
         self.stub = pb_grpc.AntennaServiceStub(self.channel)
         self._deck: pb.DeckInfo | None = None
 

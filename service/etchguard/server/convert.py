@@ -9,9 +9,12 @@ a session reply's oneof member), so no reply is built twice or copied.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 
-from .. import InputError, make_pin, make_shape, resolve_layer, run_shapes
+import numpy as np
+
+from .. import EtchguardError, InputError, make_pin, make_shape, resolve_layer, run_shapes
 from .._nets import checked_layer_range
 from ..v1 import etchguard_pb2 as pb
 
@@ -62,36 +65,69 @@ def layer_range(deck, msg, path: str = "layer_range"):
     return checked_layer_range(deck, msg.lowest, msg.highest, path)
 
 
-def candidate_columns(deck, cols, path: str = "candidates") -> list[list]:
-    """Columnar candidates (CandidateColumns) as a list of engine shape lists."""
-    counts = cols.shape_count
-    layer = cols.layer
-    n = len(layer)
+def _checked_columns(deck, cols, path: str) -> tuple[np.ndarray, np.ndarray]:
+    """Shape counts agree with the columns, no candidate is empty, the layer table
+    resolves and every index is in it. Returns (counts, deck step per shape)."""
+    n = len(cols.layer)
     for name in ("xlo", "ylo", "xhi", "yhi"):
         if len(getattr(cols, name)) != n:
             raise InputError(f"has {len(getattr(cols, name))} values, but `layer` has {n}",
                              f"{path}.{name}")
-    if sum(counts) != n:
-        raise InputError(f"shape counts add up to {sum(counts)}, but there are {n} shapes",
+    counts = np.array(cols.shape_count, dtype=np.int64)
+    if int(counts.sum()) != n:
+        raise InputError(f"shape counts add up to {int(counts.sum())}, but there are {n} shapes",
                          f"{path}.shape_count")
-    names = list(cols.layers)
-    for j, name in enumerate(names):
-        resolve_layer(deck, name, f"{path}.layers[{j}]")
+    empty = np.flatnonzero(counts == 0)
+    if len(empty):
+        raise InputError("a candidate needs at least one shape", f"{path}.shape_count[{empty[0]}]")
+    table = np.array([resolve_layer(deck, name, f"{path}.layers[{j}]")
+                      for j, name in enumerate(cols.layers)], dtype=np.int64)
+    index = np.array(cols.layer, dtype=np.int64)
+    past = np.flatnonzero(index >= len(table))
+    if len(past):
+        k = past[0]
+        raise InputError(f"index {index[k]} is past the {len(table)} entries of `layers`",
+                         f"{path}.layer[{k}]")
+    return counts, table[index] if n else index
+
+
+def one_rect_candidates(cols) -> bool:
+    """Whether every candidate of the columns is a single rectangle."""
+    return all(c == 1 for c in cols.shape_count)
+
+
+def candidate_arrays(deck, cols, path: str = "candidates") -> tuple[np.ndarray, np.ndarray]:
+    """One-rectangle candidates as (deck step per candidate, (N, 4) int64 DBU rects),
+    the engine's columnar form (Engine.score_columns validates the rectangles)."""
+    _counts, steps = _checked_columns(deck, cols, path)
+    rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
+                             for name in ("xlo", "ylo", "xhi", "yhi")]).reshape(-1, 4)
+    return steps, rects
+
+
+def columns_error(exc: EtchguardError, path: str = "candidates") -> EtchguardError:
+    """An error of Engine.score_columns (fields ``rects[i]``, ``layers[i]``, ``rects``)
+    renamed to the CandidateColumns field paths."""
+    field = exc.field or ""
+    m = re.fullmatch(r"(rects|layers)\[(\d+)\]", field)
+    if m:
+        field = f"{path}[{m[2]}].rect" if m[1] == "rects" else f"{path}.layer[{m[2]}]"
+    else:
+        field = path
+    return type(exc)(exc.message, field)
+
+
+def candidate_columns(deck, cols, path: str = "candidates") -> list[list]:
+    """Columnar candidates (CandidateColumns) as a list of engine shape lists."""
+    counts, steps = _checked_columns(deck, cols, path)
+    names = [layer.name for layer in deck.layers]
+    layer = steps.tolist()
     xlo, ylo, xhi, yhi = list(cols.xlo), list(cols.ylo), list(cols.xhi), list(cols.yhi)
     out: list[list] = []
     i = 0
-    for j, count in enumerate(counts):
-        if count == 0:
-            raise InputError("a candidate needs at least one shape", f"{path}.shape_count[{j}]")
-        group = []
-        for k in range(i, i + count):
-            li = layer[k]
-            if li >= len(names):
-                raise InputError(f"index {li} is past the {len(names)} entries of `layers`",
-                                 f"{path}.layer[{k}]")
-            group.append(make_shape(deck, names[li], (xlo[k], ylo[k], xhi[k], yhi[k]),
-                                    f"{path}[{k}]"))
-        out.append(group)
+    for count in counts.tolist():
+        out.append([make_shape(deck, names[layer[k]], (xlo[k], ylo[k], xhi[k], yhi[k]), f"{path}[{k}]")
+                    for k in range(i, i + count)])
         i += count
     return out
 
@@ -133,6 +169,16 @@ def score_into(out, score) -> None:
             before_utilization=c.before_utilization, ratio=c.ratio, limit=c.limit,
             utilization=c.utilization, headroom_um2=c.headroom_um2,
             headroom_length_um=c.headroom_length_um)
+
+
+def columns_into(out, scores) -> None:
+    """Fill a ScoreBatchReply from the engine's columnar BatchScores (numpy arrays)."""
+    out.cost.extend(scores.cost.tolist())
+    out.worst_change_utilization.extend(scores.worst_change_utilization.tolist())
+    out.worst_utilization.extend(scores.worst_utilization.tolist())
+    out.legal.extend(scores.legal.tolist())
+    out.breaks_limit.extend(scores.breaks_limit.tolist())
+    out.added_area_um2.extend(scores.added_area_um2.tolist())
 
 
 def batch_into(out, scores, details: bool) -> None:

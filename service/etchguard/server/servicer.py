@@ -66,7 +66,16 @@ def _score(self, req, out):
 
 
 def _score_batch(self, req, out):
-    candidates = convert.candidate_columns(self.engine.deck, req.candidates)
+    deck = self.engine.deck
+    if not req.details and convert.one_rect_candidates(req.candidates):  # the columnar path
+        steps, rects = convert.candidate_arrays(deck, req.candidates)
+        try:
+            scores = self.engine.score_columns(req.net, steps, rects)
+        except EtchguardError as exc:
+            raise convert.columns_error(exc) from None
+        convert.columns_into(out, scores)
+        return
+    candidates = convert.candidate_columns(deck, req.candidates)
     convert.batch_into(out, self.engine.score_many(req.net, candidates, req.details), req.details)
 
 
