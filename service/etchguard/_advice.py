@@ -270,6 +270,7 @@ class _Advisor:
         self.req = req
         self.rect = run_rect(req.x1, req.y1, req.x2, req.y2, req.width)
         self.scores = 0
+        self.tangent_search = True  # False: the bisection search alone (tests compare the two)
 
     def score(self, shapes: list[Shape], detail: bool = True) -> Score:
         self.scores += 1
@@ -423,6 +424,7 @@ class _Advisor:
             return JumperAdvice(False, f"the run is too short to hop to {tname} and back within it",
                                 run.length, None, room)
         cache: dict[int, Score] = {}
+        detailed: set[int] = set()  # kept lengths whose cached score has the per-ratio detail
 
         def at(kept: int) -> Score:
             s = cache.get(kept)
@@ -430,10 +432,21 @@ class _Advisor:
                 s = cache[kept] = self.score(self.jumper_shapes(run, kept, target), detail=False)
             return s
 
+        def at_detail(kept: int) -> Score:
+            # a point the tangent search may answer with: scored with detail at once, so
+            # the answer's own score is not computed twice
+            if kept not in detailed:
+                cache[kept] = self.score(self.jumper_shapes(run, kept, target))
+                detailed.add(kept)
+            return cache[kept]
+
         best = None
         points = self.events(run, target, room)
         for a, b in reversed(list(zip(points, points[1:])) or [(points[0], points[0])]):
-            best = _last_legal_in(at, a, b)
+            best = (_last_legal_by_tangents(at, a, b, at_detail) if self.tangent_search
+                    else NEEDS_FALLBACK)
+            if best is NEEDS_FALLBACK:
+                best = _last_legal_in(at, a, b)
             if best is not None:
                 break
         if best is None:
@@ -441,7 +454,7 @@ class _Advisor:
                    if target is not None else "no part of the run can stay on it, and no layer to hop to")
             return JumperAdvice(True, why, run.length, None, room, "limit", None, tname)
         shapes = self.jumper_shapes(run, best, target)
-        result = self.score(shapes)
+        result = at_detail(best)
         conflicts = self.conflicts(shapes[1:]) if target is not None else ()
         limited = "hop room" if best == room and not (best + 1 < run.length and not at(best + 1).legal) else "limit"
         if best == room and best + 1 == run.length:
@@ -627,6 +640,57 @@ def _last_legal_in(at: Callable[[int], Score], a: int, b: int) -> int | None:
     return _last_legal(at, m, b) if at(m).legal else None
 
 
+class _Fallback:
+    """Marker: the tangent search could not settle an interval (see its docstring)."""
+
+
+NEEDS_FALLBACK = _Fallback()
+MAX_TANGENT_STEPS = 8  # a piecewise-linear u has few pieces per interval; past this, bisect
+
+
+def _last_legal_by_tangents(at: Callable[[int], Score], a: int, b: int,
+                            at_detail: Callable[[int], Score] | None = None) -> int | None | _Fallback:
+    """The largest legal kept length in [a, b] by secant steps from the right end.
+
+    On an event interval u is convex and piecewise linear (see the module docstring).
+    For an illegal x > a, the line through (x - 1, u(x - 1)) and (x, u(x)) lies on or
+    below u left of x - 1 (a chord of a convex function, extended, bounds it from
+    below). Where that line exceeds the legal bound 1 + TOLERANCE, every point is
+    illegal: so the last legal point of [a, x] is at most the line's crossing xt, and
+    with a slope <= 0 (u non-increasing up to x) there is none. The next point tried is
+    floor(xt); on a linear piece that is the answer at once. A point found legal this
+    way is confirmed by the exact score of the point after it (the line bound is
+    computed in floating point); when that confirmation fails, a utilization is not
+    finite, or the steps run out, the caller falls back to the bisection search
+    (``_last_legal_in``). ``at_detail`` scores the points that may be the answer with
+    the per-ratio detail the advice reports."""
+    fetch = at_detail or at
+    x = b
+    for step in range(MAX_TANGENT_STEPS):
+        sx = at(x) if step == 0 else fetch(x)
+        if sx.legal:
+            if x == b:
+                return x
+            return x if not at(x + 1).legal else NEEDS_FALLBACK
+        if x == a:
+            return None
+        before = at(x - 1)
+        if before.legal:
+            return x - 1  # x itself is illegal
+        ux, up = sx.worst_utilization, before.worst_utilization
+        if not (math.isfinite(ux) and math.isfinite(up)):
+            return NEEDS_FALLBACK
+        slope = ux - up
+        if slope <= 0:
+            return None  # convex and non-increasing on [a, x], illegal at x
+        crossing = (x - 1) - (up - (1.0 + TOLERANCE)) / slope
+        nxt = math.floor(crossing)
+        if nxt < a:
+            return None
+        x = min(nxt, x - 2)
+    return NEEDS_FALLBACK
+
+
 def _last_legal(at: Callable[[int], Score], lo: int, hi: int) -> int:
     """Last legal point of a convex u with lo legal and hi illegal."""
     while hi - lo > 1:
@@ -698,8 +762,9 @@ class _DiodeModel:
             return self.merged[s]
         return c
 
-    def smallest(self, p: int) -> tuple[float, float] | str:
-        """(D, worst utilization) of the smallest diode at pin p, or why there is none."""
+    def smallest(self, p: int, closed_form: bool = True) -> tuple[float, float] | str:
+        """(D, worst utilization) of the smallest diode at pin p, or why there is none.
+        ``closed_form=False`` skips the closed form (tests compare it with the search)."""
         state, model, assessment = self.state, self.model, self.assessment
         deck = model.deck
         steps = model.steps
@@ -790,6 +855,10 @@ class _DiodeModel:
             return h, worst, which
 
         tiny = 1e-12
+        if closed_form:
+            found = self._closed_form(checks, terms, site, evaluate, tiny)
+            if found is not None:
+                return found
         cuts = sorted(b for b in breakpoints if b > tiny)
         segments = list(zip([tiny] + cuts, cuts + [math.inf]))
         for lo, hi in segments:
@@ -816,6 +885,88 @@ class _DiodeModel:
                 d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, m)
                 return d, evaluate(d)[1]
         return self._why_not(evaluate(MAX_DIODE_UM2)[2])
+
+    def _closed_form(self, checks: list[tuple[int, object]], terms: dict, site: list[Comp | None],
+                     evaluate: Callable[[float], tuple[float, float, str]], tiny: float
+                     ) -> tuple[float, float] | str | None:
+        """The smallest legal D without a search, when no check's ratio depends on D.
+
+        With k_gate = k_credit = 0 in every rule a check's terms at the diode's
+        components use, a ratio is the same for every D > 0 (for D > 0 the area factor
+        is the rule's, whatever ``factor_with_diode_only`` says); only the limits move,
+        piecewise linearly. A check's legal set is then where its limit table, shifted
+        by the component's own diffusion, is >= its ratio: a union of intervals whose
+        left edges are tiny D or upward crossings of the ratio, each solved on its
+        table segment. The overall legal set is their intersection; its least point is
+        tiny D or one of those crossings, the first of them (ascending) at which every
+        check holds; when none holds every check, no D does (the reason is returned).
+        The point is confirmed by the exact evaluation (rounded up by a few ulps where
+        the crossing's rounding lands just short). None: a ratio moves with D, the
+        least point lies beyond ``MAX_DIODE_UM2``, or the confirmation fails; the search
+        then decides.
+        """
+        model = self.model
+        for s, (kind, key, extra) in checks:  # type: ignore[misc]
+            if kind == "p":
+                if key.rule.diode_area_credit or key.rule.diode_gate_factor:  # type: ignore[union-attr]
+                    return None
+            else:
+                q, gi = extra  # type: ignore[misc]
+                for t, _c, has in terms[(q, gi)]:
+                    rule = model.term_rule[t][gi]
+                    if has and rule is not None and (rule.diode_area_credit or rule.diode_gate_factor):
+                        return None
+        # the ratios at any D > 0: evaluate's own arithmetic at tiny D
+        ratios = self._ratios_at(checks, terms, site, tiny)
+        candidates = {tiny}
+        limits = []
+        for (s, (kind, key, _extra)), r in zip(checks, ratios):  # type: ignore[misc]
+            rule = key.rule  # type: ignore[union-attr]
+            table = rule.diode_partial_max if kind == "p" else rule.diode_cumulative_max
+            limit = rule.partial_limit if kind == "p" else rule.cumulative_limit
+            diff = site[s].diff  # type: ignore[union-attr]
+            limits.append((limit, diff, r))
+            for (x0, y0), (x1, y1) in zip(table, table[1:]):
+                if y0 < r <= y1 and x1 > x0:
+                    d = (x0 - diff) + (r - y0) * (x1 - x0) / (y1 - y0)
+                    if d > tiny:
+                        candidates.add(d)
+        for d in sorted(candidates):
+            if d > MAX_DIODE_UM2:
+                return None
+            if all(r - limit(diff + d) <= 1e-12 * max(1.0, abs(r)) for limit, diff, r in limits):
+                for k in range(6):  # the crossing may round a hair short of the limit
+                    x = d * (1.0 + 2.0e-16 * 4 ** k) if k else d
+                    h, worst, _ = evaluate(x)
+                    if h <= 0:
+                        return x, worst
+                return None
+        # no candidate holds every check, so no D > 0 does (the least legal point would
+        # be one of them): the reason is the search's, the worst check at the largest D
+        return self._why_not(evaluate(MAX_DIODE_UM2)[2])
+
+    def _ratios_at(self, checks: list[tuple[int, object]], terms: dict, site: list[Comp | None],
+                   D: float) -> list[float]:
+        """Every check's ratio with a diode of D at the site (evaluate's arithmetic)."""
+        model = self.model
+        steps = model.steps
+        cars: dict[tuple[int, int], list[float]] = {}
+        for (q, gi), seq in terms.items():
+            row = [0.0] * steps
+            sums = [0.0, 0.0]
+            for t, c, has in seq:
+                lane = model.lane[t]
+                sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
+                                         c.diff + (D if has else 0.0))
+                row[t] = sums[lane]
+            cars[(q, gi)] = row
+        out = []
+        for s, (kind, key, extra) in checks:  # type: ignore[misc]
+            if kind == "p":
+                out.append(key.rule.ratio(extra, site[s].gate, site[s].diff + D))  # type: ignore[union-attr]
+            else:
+                out.append(cars[extra][s])  # type: ignore[index]
+        return out
 
     @staticmethod
     def _why_not(which: str) -> str:
