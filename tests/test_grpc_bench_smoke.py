@@ -17,7 +17,7 @@ from bench import grpc_bench  # noqa: E402
 def test_quick_grpc_bench_prints_the_table(capsys, tmp_path):
     assert grpc_bench.main(["--quick", "--json", str(tmp_path / "rows.json")]) == 0
     out = capsys.readouterr().out
-    for method in ("stream score", "unary score", "stream score, no changes", "batch score x1024"):
+    for method in ("stream score", "unary score", "stream score, no changes", "batch x1024, 1 rect"):
         assert f"\n{method} " in out
     rows = json.loads((tmp_path / "rows.json").read_text())["rows"]
-    assert len(rows) == 5 and all(r["p50_us"] > 0 and r["floor_p50_us"] > 0 for r in rows)
+    assert len(rows) == 6 and all(r["p50_us"] > 0 and r["floor_p50_us"] > 0 for r in rows)
