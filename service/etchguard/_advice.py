@@ -88,6 +88,7 @@ from ._whatif import CostModel, score
 MAX_DIODE_UM2 = 1.0e6  # a square millimetre: beyond any cell diode, the search stops there
 DIODE_REL_PRECISION = 1e-9  # relative width of the final bisection bracket
 MAX_DIODE_PLACEMENTS = 4  # gates of the violated checks tried as diode sites
+ANSWERS = ("hop", "jumper", "diode")  # the parts of an advice a caller may ask for
 
 Point = tuple[int, int]
 
@@ -167,6 +168,7 @@ class Advice:
     jumper: JumperAdvice | None
     diode: DiodeAdvice | None
     explanation: tuple[str, ...] = field(default_factory=tuple)
+    exact_scores: int = 0  # what-if scores this answer took (a load-independent cost)
 
     @property
     def found(self) -> bool:
@@ -187,11 +189,14 @@ class AdviceRequest:
     y2: int
     width: int
     allow_non_preferred: bool = False
+    want: frozenset[str] = frozenset(ANSWERS)
 
 
 def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: object,
-                  width: object = None, allow_non_preferred: object = False) -> AdviceRequest:
-    """Validate a request, naming the field on refusal."""
+                  width: object = None, allow_non_preferred: object = False,
+                  want: object = None) -> AdviceRequest:
+    """Validate a request, naming the field on refusal. ``want`` names the answers asked
+    for (a subset of ``ANSWERS``; None: all of them)."""
     if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
         raise InputError(f"unknown layer {layer!r}", "layer")
     info = deck.layers[layer]
@@ -214,7 +219,17 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
         raise InputError(f"width must be a positive integer DBU, got {width!r}", "width")
     if not isinstance(allow_non_preferred, bool):
         raise InputError("must be true or false", "allow_non_preferred")
-    return AdviceRequest(layer, coords[0], coords[1], coords[2], coords[3], width, allow_non_preferred)
+    if want is None:
+        wanted = frozenset(ANSWERS)
+    else:
+        if isinstance(want, str) or not isinstance(want, (list, tuple, set, frozenset)):
+            raise InputError(f"a collection of answer names {ANSWERS} is needed, got {want!r}", "want")
+        unknown = [w for w in want if w not in ANSWERS]
+        if unknown:
+            raise InputError(f"unknown answer {unknown[0]!r}; choose from {', '.join(ANSWERS)}", "want")
+        wanted = frozenset(want)
+    return AdviceRequest(layer, coords[0], coords[1], coords[2], coords[3], width, allow_non_preferred,
+                         wanted)
 
 
 # -- geometry helpers -------------------------------------------------------------------
@@ -298,14 +313,20 @@ class _Advisor:
     def conflicts(self, shapes: Sequence[Shape]) -> tuple[Conflict, ...]:
         if self.obstacles is None:
             return ()
+        per_layer: dict[int, dict[Rect, None]] = {}  # distinct rectangles, in order
+        for s in shapes:
+            per_layer.setdefault(s.layer, {})[s.rect] = None
+        found: dict[tuple[int, Rect], list[Conflict]] = {}
+        for layer, rects in per_layer.items():  # one index query per layer
+            spacing = self.deck.layers[layer].spacing or 0
+            for rect, hits in zip(rects, self.obstacles.conflicts_many(self.net, layer, list(rects), spacing)):
+                found[(layer, rect)] = hits
         out: list[Conflict] = []
         seen: set[tuple[int, Rect]] = set()
-        for s in shapes:
-            if (s.layer, s.rect) in seen:
-                continue
-            seen.add((s.layer, s.rect))
-            spacing = self.deck.layers[s.layer].spacing or 0
-            out.extend(self.obstacles.conflicts(self.net, s.layer, s.rect, spacing))
+        for s in shapes:  # the order of the shapes, as one query per shape gave it
+            if (s.layer, s.rect) not in seen:
+                seen.add((s.layer, s.rect))
+                out.extend(found[(s.layer, s.rect)])
         return tuple(out)
 
     # layer hops -----------------------------------------------------------------------
@@ -511,27 +532,45 @@ class _Advisor:
             text = (f"{lname} run is legal as is: worst {_pct(as_is.worst_utilization)} "
                     f"of the limit at any step",)
             return Advice(self.net, lname, run_info, req.width, self.rect, as_is, True, join_point,
-                          far_point, (), None, None, None, text)
+                          far_point, (), None, None, None, text, self.scores)
+        want = req.want
         explanation = [self._violation_sentence(lname, as_is)]
         options: list[LayerOption] = []
         notes: list[str] = []
-        for target in self.hop_layers():
-            opt = self.option(run, target)
-            if isinstance(opt, str):
-                notes.append(opt)
-            else:
+        best: LayerOption | None = None
+        target_opt: LayerOption | None = None
+        if want & {"hop", "jumper"}:
+            # Without "hop" the options serve only to pick the jumper's hop layer: they
+            # are scored nearest first until the first legal free one (that is the
+            # layer picked), and not reported.
+            lazy = "hop" not in want
+            for target in self.hop_layers():
+                opt = self.option(run, target)
+                if isinstance(opt, str):
+                    notes.append(opt)
+                    continue
                 options.append(opt)
-        best = next((o for o in options if o.status == "legal"), None)
-        explanation.append(self._options_sentence(best, options, notes))
-        free = [o for o in options if not o.blocked]
-        target_opt = best or (free[0] if free else None)
-        jumper = self.jumper(run if joins is not None else None,
-                             target_opt.step if target_opt else None, as_is)
-        explanation.append(self._jumper_sentence(lname, jumper))
-        diode = self.diode(as_is)
-        explanation.append(self._diode_sentence(diode))
+                if lazy and opt.status == "legal":
+                    break
+            best = next((o for o in options if o.status == "legal"), None)
+            free = [o for o in options if not o.blocked]
+            target_opt = best or (free[0] if free else None)
+            if lazy:
+                options, notes, best = [], [], None
+            else:
+                explanation.append(self._options_sentence(best, options, notes))
+        jumper = None
+        if "jumper" in want:
+            jumper = self.jumper(run if joins is not None else None,
+                                 target_opt.step if target_opt else None, as_is)
+            explanation.append(self._jumper_sentence(lname, jumper))
+        diode = None
+        if "diode" in want:
+            diode = self.diode(as_is)
+            explanation.append(self._diode_sentence(diode))
         return Advice(self.net, lname, run_info, req.width, self.rect, as_is, False, join_point,
-                      far_point, tuple(options), best, jumper, diode, tuple(explanation))
+                      far_point, tuple(options), best, jumper, diode, tuple(explanation),
+                      self.scores)
 
     # sentences -------------------------------------------------------------------------
 

@@ -409,9 +409,12 @@ class Engine:
         self._obstacles.remove_blockage(blockage_id)
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
-               width: int | None = None, allow_non_preferred: bool = False) -> Advice:
-        """Repair advice for a candidate run: layer hops, jumper point, diode (see _advice)."""
-        request = _check_advice_request(self.deck, layer, x1, y1, x2, y2, width, allow_non_preferred)
+               width: int | None = None, allow_non_preferred: bool = False,
+               want: Sequence[str] | None = None) -> Advice:
+        """Repair advice for a candidate run: layer hops, jumper point, diode (see _advice);
+        ``want`` asks for only some of them (e.g. ``("hop",)``; None: all)."""
+        request = _check_advice_request(self.deck, layer, x1, y1, x2, y2, width, allow_non_preferred,
+                                        want)
         net = self._net(name)
         with net.lock:
             state = self._state(net)
