@@ -44,8 +44,7 @@ def test_deck_calls(client):
     assert again == info
 
 
-def test_open_commit_remove_close(client, engine_twin):
-    deck, engine = engine_twin
+def test_open_commit_remove_close(client):
     name = net_name()
     assert client.open_net(name, [GATE, DRIVER], shapes=[rect("M1", 0, 30, 1000, 170)],
                            layer_range=("M1", "M4")) == [1]
@@ -102,8 +101,7 @@ def test_score_batch_columnar(client):
                                                      rect("M3", 0, 7860, 5000, 8000)])
 
 
-def test_headroom(client, engine_twin):
-    deck, engine = engine_twin
+def test_headroom(client):
     name, _ = open_small_net(client)
     h = client.headroom(name, "M1", 100, 100)
     assert h.found and h.layer == "M1" and 0 < h.area_um2 < math.inf and h.binding

@@ -11,7 +11,7 @@ import grpc
 import numpy as np
 import pytest
 
-from etchguard.client import Client, ServiceError, pb, runs_to_rects
+from etchguard.client import Client, ServiceError, runs_to_rects
 from grpc_fixtures import candidate, open_small_net, start_server
 
 
