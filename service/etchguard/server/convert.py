@@ -112,8 +112,10 @@ def columns_error(exc: EtchguardError, path: str = "candidates") -> EtchguardErr
     m = re.fullmatch(r"(rects|layers)\[(\d+)\]", field)
     if m:
         field = f"{path}[{m[2]}].rect" if m[1] == "rects" else f"{path}.layer[{m[2]}]"
-    else:
+    elif field in ("rects", "layers"):
         field = path
+    else:
+        return exc  # about the request, not the columns ("net", "deck")
     return type(exc)(exc.message, field)
 
 
