@@ -38,10 +38,21 @@ def test_descriptor_matches_the_proto():
     assert committed == proto, HINT
 
 
+def test_journal_descriptor_matches_the_proto():
+    from etchguard.v1 import journal_pb2
+
+    fresh = descriptor_pb2.FileDescriptorSet.FromString(protogen.descriptor_set())
+    (proto,) = [f for f in fresh.file if f.name == "etchguard/v1/journal.proto"]
+    _without_json_names(proto.message_type)
+    committed = descriptor_pb2.FileDescriptorProto.FromString(journal_pb2.DESCRIPTOR.serialized_pb)
+    assert committed == proto, HINT
+
+
 def test_regenerated_files_match(tmp_path):
     written = protogen.generate(tmp_path)
     names = sorted(p.name for p in written)
-    assert names == ["etchguard_pb2.py", "etchguard_pb2.pyi", "etchguard_pb2_grpc.py"]
+    assert names == ["etchguard_pb2.py", "etchguard_pb2.pyi", "etchguard_pb2_grpc.py",
+                     "journal_pb2.py", "journal_pb2.pyi", "journal_pb2_grpc.py"]  # journal: issue 5
     for name in names:
         fresh = (tmp_path / name).read_text(encoding="utf-8")
         committed = (COMMITTED / name).read_text(encoding="utf-8")

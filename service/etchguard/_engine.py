@@ -34,6 +34,13 @@ from ._batch import BatchScores, score_columns as _score_columns
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
 from ._geometry import checked_rect as _checked_rect
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items
+# durability (issue 5): the change-log hook and whole-state images; see the "durability" section
+from collections.abc import Callable
+from typing import TypeVar
+from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
+                         NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
+from ._rules import loads_deck as _loads_deck
+_Mark = TypeVar("_Mark")
 
 
 @dataclass(frozen=True)
@@ -57,16 +64,23 @@ class _Net:
     lock: threading.Lock = field(default_factory=threading.Lock)
     state: NetState | None = None
     assessment: Assessment | None = None
+    closed: bool = False  # set under the lock by close_net: a late commit must not land here
 
 
 class Engine:
     """Holds every net of a design and answers antenna questions about them."""
 
     def __init__(self, deck: Deck | None = None, limits: Limits | None = None,
-                 costs: CostModel | None = None) -> None:
+                 costs: CostModel | None = None, changelog: ChangeLog | None = None) -> None:
         self.limits = limits or Limits()
         self.costs = costs or CostModel()
+        self.changelog = changelog  # records every change under the lock that ordered it
+        self._deck_text: str | None = None  # the loaded deck's TOML, for snapshots
         self._registry = threading.Lock()
+        # Lock order: registry -> net lock -> hot lock (a leaf). The hot list has a lock
+        # of its own because it is touched while a net lock is held; taking the registry
+        # there would deadlock against load_deck/close_net (registry, then net locks).
+        self._hot_lock = threading.Lock()
         self._nets: dict[str, _Net] = {}
         self._hot: OrderedDict[str, None] = OrderedDict()
         self._deck: Deck | None = None
@@ -84,9 +98,10 @@ class Engine:
             raise NoDeckError("no rule deck is loaded; load one first", "deck")
         return self._deck
 
-    def load_deck(self, deck: Deck) -> None:
+    def load_deck(self, deck: Deck, text: str | None = None) -> None:
         """Load or replace the deck. Held nets are carried over by layer name; if one
-        uses a layer the new deck lacks, the call is refused and nothing changes."""
+        uses a layer the new deck lacks, the call is refused and nothing changes.
+        ``text`` is the deck's TOML source, which a change log needs to replay it."""
         with self._registry:
             old = self._deck
             nets = list(self._nets.values())
@@ -99,9 +114,12 @@ class Engine:
                 for net, (pins, shapes, layer_range) in zip(nets, moved):
                     net.pins, net.shapes, net.layer_range = pins, shapes, layer_range
                     net.state = net.assessment = None
-                self._hot.clear()
+                with self._hot_lock:
+                    self._hot.clear()
                 self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
                     net.name, net.pins, net.shapes)], blockages)
+                self._deck_text = text
+                self._record(DeckLoaded(deck, text))
             finally:
                 for net in nets:
                     net.lock.release()
@@ -146,20 +164,28 @@ class Engine:
             if len(self._nets) >= self.limits.max_nets:
                 raise LimitExceededError(f"{self.limits.max_nets} nets are held already", "net")
             net = _Net(name, tuple(pins), layer_range)
+            net.lock.acquire()  # free (the net is new); held so no close or commit overtakes the open
             self._nets[name] = net
             self._obstacles.add_net_items(name, _pin_items(net.pins))
-        with net.lock:
-            return self._commit_locked(net, shapes)
+        try:
+            ids = self._commit_locked(net, shapes)
+            self._record(NetOpened(name, net.pins, net.layer_range, tuple(shapes), 1))
+            return ids
+        finally:
+            net.lock.release()
 
     def close_net(self, name: str) -> None:
         with self._registry:
             if name not in self._nets:
                 raise NotFoundError(f"no open net {name!r}", "net")
             net = self._nets.pop(name)
-            self._hot.pop(name, None)
+            with self._hot_lock:
+                self._hot.pop(name, None)
             self._obstacles.drop_net(name)
-        with net.lock:
-            net.state = net.assessment = None
+            with net.lock:  # registry -> net: no reopen of the name is logged before this close
+                net.closed = True
+                net.state = net.assessment = None
+                self._record(NetClosed(name))
 
     def net_names(self) -> list[str]:
         with self._registry:
@@ -188,7 +214,7 @@ class Engine:
         hot = self._hot
         if hot and next(reversed(hot)) == name:
             return  # already the most recent: the common case of a router on one net
-        with self._registry:
+        with self._hot_lock:
             hot[name] = None
             hot.move_to_end(name)
             while len(hot) > self.limits.hot_nets:
@@ -220,8 +246,13 @@ class Engine:
         """Add shapes to a net; returns their ids, in order."""
         net = self._net(name)
         with net.lock:
+            if net.closed:
+                raise NotFoundError(f"no open net {name!r}", "net")
             self._check_shapes(shapes, len(net.shapes))
-            return self._commit_locked(net, shapes)
+            ids = self._commit_locked(net, shapes)
+            if ids:
+                self._record(ShapesCommitted(name, tuple(shapes), ids[0]))
+            return ids
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
         state = self._state(net) if shapes else net.state
@@ -241,6 +272,8 @@ class Engine:
         """Remove (rip up) shapes by id: all of them or, on an unknown id, none."""
         net = self._net(name)
         with net.lock:
+            if net.closed:
+                raise NotFoundError(f"no open net {name!r}", "net")
             seen = set()
             for i, sid in enumerate(ids):
                 if sid not in net.shapes or sid in seen:
@@ -257,6 +290,8 @@ class Engine:
                     for sid in ids:
                         net.state.remove_shape(sid)
             self.counters["removals"] += len(ids)
+            if ids:
+                self._record(ShapesRemoved(name, tuple(ids)))
 
     def shapes(self, name: str) -> dict[int, Shape]:
         net = self._net(name)
@@ -403,10 +438,16 @@ class Engine:
         deck = self.deck
         if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
             raise InputError(f"unknown layer {layer!r}", "layer")
-        return self._obstacles.add_blockage(layer, _checked_rect(list(rect), "rect"))
+        checked = _checked_rect(list(rect), "rect")
+        with self._registry:  # ordered against deck loads and snapshots in the change log
+            bid = self._obstacles.add_blockage(layer, checked)
+            self._record(BlockageDeclared(bid, layer, checked))
+        return bid
 
     def remove_blockage(self, blockage_id: int) -> None:
-        self._obstacles.remove_blockage(blockage_id)
+        with self._registry:
+            self._obstacles.remove_blockage(blockage_id)
+            self._record(BlockageRemoved(blockage_id))
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
                width: int | None = None, allow_non_preferred: bool = False,
@@ -422,6 +463,55 @@ class Engine:
                              net.layer_range, request)
         self.counters["scores"] += 1
         return result
+
+    # -- durability (issue 5): change-log hook and whole-state images --------------------
+
+    def _record(self, change) -> None:
+        """Hand a change that has been applied to the change log, if there is one
+        (the caller holds the lock that ordered the change; see _changelog)."""
+        log = self.changelog
+        if log is not None:
+            log.record(change)
+
+    def export_state(self, mark: Callable[[], _Mark]) -> tuple[EngineImage, _Mark]:
+        """An image of everything held, and ``mark()`` called at the same instant (with
+        every lock held, so no change is half in the image): a snapshot names with it
+        the change-log position the image covers. Nets are copied, not converted, under
+        the locks, so the pause is a dict copy per net."""
+        with self._registry:
+            nets = list(self._nets.values())
+            for net in nets:
+                net.lock.acquire()
+            try:
+                images = tuple(NetImage(n.name, n.pins, n.layer_range, dict(n.shapes), n.next_id)
+                               for n in nets)
+                image = EngineImage(self._deck_text if self._deck is not None else None, images,
+                                    dict(self._obstacles.blockages), self._obstacles._next_blockage)
+                return image, mark()
+            finally:
+                for net in nets:
+                    net.lock.release()
+
+    def restore_state(self, image: EngineImage) -> None:
+        """Bring back an exported image into an engine that holds nothing yet (before a
+        change log is attached: a restore is not a change)."""
+        if self._nets or self._deck is not None or self.changelog is not None:
+            raise InputError("restore_state needs an empty engine without a change log", "engine")
+        if image.deck_text is None:
+            if image.nets or image.blockages:
+                raise InputError("an image with nets or blockages needs a deck", "deck")
+            return
+        deck = _loads_deck(image.deck_text, "<snapshot deck>")
+        self.load_deck(deck, image.deck_text)
+        with self._registry:
+            for ni in image.nets:
+                self._nets[ni.name] = _Net(ni.name, tuple(ni.pins), ni.layer_range, dict(ni.shapes),
+                                           ni.next_id)
+            self._obstacles.rebuild(len(deck.layers), [item for n in self._nets.values() for item in
+                                                       _net_items(n.name, n.pins, n.shapes)],
+                                    dict(image.blockages))
+            self._obstacles._next_blockage = image.next_blockage_id  # ids continue, never reused
+
 
 def layer_headroom(state: NetState, assessment: Assessment, layer: int, element: int) -> Headroom:
     """Remaining conductor on ``layer`` for the component holding ``element``.

@@ -221,18 +221,30 @@ class Client:
 
     ``target`` is ``host:port`` or ``unix:/path``; ``timeout`` (s) bounds each unary
     call (None: no deadline). Messages may be as large as the server's default limit
-    (64 MiB) both ways unless ``options`` say otherwise.
+    (64 MiB) both ways unless ``options`` say otherwise. ``tls_roots`` (PEM bytes or a
+    file) speaks TLS to a server with a certificate they sign; ``tls_client_cert`` and
+    ``tls_client_key`` add a client certificate; ``token`` sends
+    ``authorization: Bearer <token>`` on every call.
     """
 
     def __init__(self, target: str = "127.0.0.1:50051", *, timeout: float | None = 30.0,
-                 options: Sequence[tuple[str, Any]] = (), channel: grpc.Channel | None = None) -> None:
+                 options: Sequence[tuple[str, Any]] = (), channel: grpc.Channel | None = None,
+                 tls_roots: bytes | Path | None = None, tls_client_cert: bytes | Path | None = None,
+                 tls_client_key: bytes | Path | None = None, token: str | None = None) -> None:
         self.target = target
         self.timeout = timeout
         self._owns_channel = channel is None
         if channel is None:
             given = {name for name, _ in options}
             defaults = [(name, MAX_MESSAGE_BYTES) for name in _SIZE_OPTIONS if name not in given]
-            channel = grpc.insecure_channel(target, options=[*defaults, *options])
+            if tls_roots is not None:
+                creds = grpc.ssl_channel_credentials(_pem(tls_roots), _pem(tls_client_key),
+                                                     _pem(tls_client_cert))
+                channel = grpc.secure_channel(target, creds, options=[*defaults, *options])
+            else:
+                channel = grpc.insecure_channel(target, options=[*defaults, *options])
+        if token is not None:
+            channel = grpc.intercept_channel(channel, _BearerToken(token))
         self.channel = channel
         self.stub = pb_grpc.AntennaServiceStub(self.channel)
         self._deck: pb.DeckInfo | None = None
@@ -334,6 +346,46 @@ class Client:
 
 
 _DONE = object()
+
+
+def _pem(value: bytes | Path | None) -> bytes | None:
+    return value.read_bytes() if isinstance(value, Path) else value
+
+
+class _BearerToken(grpc.UnaryUnaryClientInterceptor, grpc.UnaryStreamClientInterceptor,
+                   grpc.StreamUnaryClientInterceptor, grpc.StreamStreamClientInterceptor):
+    """Adds ``authorization: Bearer <token>`` to every call (TLS or loopback plaintext)."""
+
+    def __init__(self, token: str) -> None:
+        self._header = ("authorization", f"Bearer {token}")
+
+    def _with_token(self, details: grpc.ClientCallDetails) -> grpc.ClientCallDetails:
+        return _CallDetails(details.method, details.timeout,
+                            [*(details.metadata or ()), self._header], details.credentials,
+                            getattr(details, "wait_for_ready", None),
+                            getattr(details, "compression", None))
+
+    def intercept_unary_unary(self, continuation, details, request):
+        return continuation(self._with_token(details), request)
+
+    def intercept_unary_stream(self, continuation, details, request):
+        return continuation(self._with_token(details), request)
+
+    def intercept_stream_unary(self, continuation, details, request_iterator):
+        return continuation(self._with_token(details), request_iterator)
+
+    def intercept_stream_stream(self, continuation, details, request_iterator):
+        return continuation(self._with_token(details), request_iterator)
+
+
+@dataclass(frozen=True)
+class _CallDetails(grpc.ClientCallDetails):
+    method: str
+    timeout: float | None
+    metadata: Any
+    credentials: Any
+    wait_for_ready: Any
+    compression: Any
 
 
 class Session:

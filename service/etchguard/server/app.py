@@ -32,6 +32,10 @@ from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from .metrics import Metrics, NullMetrics
 from .servicer import AntennaServicer
+# durability and access (issue 5): the journal, TLS, the token, malformed requests
+from .. import DeckError, loads_deck
+from .._journal import Journal, SyncPolicy
+from . import security
 
 log = logging.getLogger("etchguard.server")
 
@@ -60,6 +64,16 @@ class ServerConfig:
     workers: int = 64  # concurrent calls; each open Session stream holds one
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"
+    # durability (issue 5): see etchguard._journal for the formats and the loss bounds
+    state_dir: Path | None = None  # journal + snapshots; None: state is held in memory only
+    sync: str = SyncPolicy.BATCH.value  # always | batch | none
+    sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
+    snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
+    # access (issue 5): see server/security.py
+    tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
+    tls_key: Path | None = None  # PEM private key
+    tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates
+    token_file: Path | None = None  # file holding the bearer token every call must carry
 
     def limits(self) -> Limits:
         names = {f.name for f in fields(Limits)}
@@ -71,13 +85,51 @@ def _engine(config: ServerConfig) -> Engine:
     return Engine(deck, config.limits())
 
 
+def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
+    """An engine rebuilt from the state folder with the journal attached. ``--rules``
+    is then loaded like a LoadDeck (journaled, held nets carried over) unless the
+    recovered deck is the same text."""
+    if config.sync not in {p.value for p in SyncPolicy}:
+        raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
+    if not config.sync_interval_ms > 0:
+        raise ServeError("must be > 0 ms", "sync_interval_ms")
+    engine = Engine(None, config.limits())
+    journal = Journal.open(config.state_dir, engine, sync=config.sync,
+                           interval_ms=config.sync_interval_ms,
+                           snapshot_every=config.snapshot_every, version=__version__)
+    r = journal.recovery
+    log.info("state recovered", extra={"fields": {
+        "state_dir": str(config.state_dir), "snapshot": str(r.snapshot) if r.snapshot else None,
+        "snapshot_nets": r.snapshot_nets, "records_replayed": r.records, "torn_tails": len(r.torn),
+        "nets": len(engine.net_names()), "seconds": round(r.seconds, 3), "sync": config.sync}})
+    if config.rules is not None:
+        try:
+            text = Path(config.rules).read_text(encoding="utf-8")
+        except OSError as exc:
+            journal.close(snapshot=False)
+            raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(config.rules)) from None
+        if text != r.deck_text:
+            try:
+                engine.load_deck(loads_deck(text, str(config.rules)), text)
+            except EtchguardError:
+                journal.close(snapshot=False)
+                raise
+    return engine, journal
+
+
 def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials | None:
     """Credentials for a listen address; None: plaintext (loopback / unix socket)."""
-    return None
+    if address.startswith("unix:"):
+        return None
+    return security.server_credentials(config)
 
 
 def _interceptors(config: ServerConfig) -> list[grpc.ServerInterceptor]:
-    return []
+    chain: list[grpc.ServerInterceptor] = []
+    if config.token_file is not None:  # outermost: a stranger's call goes no further
+        chain.append(security.TokenInterceptor(security.read_token(config.token_file)))
+    chain.append(security.MalformedRequestInterceptor())
+    return chain
 
 
 class EtchguardServer:
@@ -93,6 +145,7 @@ class EtchguardServer:
         self.addresses = addresses  # as bound: port 0 resolved
         self.metrics_port = 0
         self._stopped = threading.Event()
+        self.journal: Journal | None = None  # set by build_server with a state folder
 
     def start(self) -> None:
         self.grpc_server.start()
@@ -115,6 +168,8 @@ class EtchguardServer:
         log.info("stopping", extra={"fields": {"grace_s": grace}})
         self.health.enter_graceful_shutdown()
         self.grpc_server.stop(grace).wait()
+        if self.journal is not None:  # after the last call: a final snapshot, then fsync
+            self.journal.close()
         self.metrics.close()
         for address in self.addresses:
             if address.startswith("unix:"):
@@ -202,7 +257,12 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     """Assemble (but do not start) a server from ``config``."""
     if config.workers < 1:
         raise ServeError("must be at least 1", "workers")
-    engine = _engine(config)
+    security.check_listen(config)
+    journal = None
+    if config.state_dir is not None:
+        engine, journal = _journaled_engine(config)
+    else:
+        engine = _engine(config)
     metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
     server = grpc_server(config)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
@@ -213,5 +273,12 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     reflection.enable_server_reflection(
         (SERVICE_NAME, health_pb2.DESCRIPTOR.services_by_name["Health"].full_name,
          reflection.SERVICE_NAME), server)
-    addresses = [_bind(server, config, address) for address in config.listen]
-    return EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
+    try:
+        addresses = [_bind(server, config, address) for address in config.listen]
+    except BaseException:
+        if journal is not None:
+            journal.close(snapshot=False)
+        raise
+    built = EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
+    built.journal = journal
+    return built

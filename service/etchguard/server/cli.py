@@ -45,6 +45,32 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--log-level", default=_DEFAULTS.log_level,
                         choices=("debug", "info", "warning", "error"),
                         help="JSON log lines on stderr from this level (default %(default)s)")
+    # durability (issue 5)
+    parser.add_argument("--state-dir", type=Path, metavar="DIR",
+                        help="keep a journal of every acknowledged change and snapshots in DIR; "
+                             "on start the state is rebuilt from them (default: memory only)")
+    parser.add_argument("--sync", default=_DEFAULTS.sync, choices=("always", "batch", "none"),
+                        help="when the journal is fsynced: 'always' before each reply (survives "
+                             "power loss); 'batch' written before the reply, fsynced every "
+                             "--sync-interval-ms (a process crash loses nothing, a machine crash "
+                             "at most the acknowledged changes of the last interval); 'none' "
+                             "written before the reply, fsync left to the OS (default %(default)s)")
+    parser.add_argument("--sync-interval-ms", type=float, default=_DEFAULTS.sync_interval_ms,
+                        metavar="MS", help="batch: longest wait of a change for fsync "
+                                           "(default %(default)s)")
+    parser.add_argument("--snapshot-every", type=int, default=_DEFAULTS.snapshot_every,
+                        metavar="N", help="journal records between snapshots, which bound the "
+                                          "replay on start; 0 = at shutdown only (default %(default)s)")
+    # access (issue 5)
+    parser.add_argument("--tls-cert", type=Path, metavar="PEM",
+                        help="TLS certificate chain; with --tls-key every TCP address is TLS. "
+                             "Needed for any address other than loopback or a unix socket")
+    parser.add_argument("--tls-key", type=Path, metavar="PEM", help="TLS private key")
+    parser.add_argument("--tls-client-ca", type=Path, metavar="PEM",
+                        help="require client certificates signed by these CAs")
+    parser.add_argument("--token-file", type=Path, metavar="FILE",
+                        help="every call must carry 'authorization: Bearer <token>' with the "
+                             "token in FILE (health checks stay open); others get UNAUTHENTICATED")
 
 
 def config_from_args(args: argparse.Namespace) -> ServerConfig:
@@ -54,7 +80,10 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
         max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
-        grace_s=args.grace, log_level=args.log_level)
+        grace_s=args.grace, log_level=args.log_level,
+        state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
+        snapshot_every=args.snapshot_every, tls_cert=args.tls_cert, tls_key=args.tls_key,
+        tls_client_ca=args.tls_client_ca, token_file=args.token_file)
 
 
 def run(args: argparse.Namespace) -> int:

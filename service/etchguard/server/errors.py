@@ -16,6 +16,7 @@ from grpc_status import rpc_status
 
 from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
                 NoDeckError, NotFoundError)
+from .._changelog import ChangeLogError
 
 DOMAIN = "etchguard.v1"
 
@@ -26,6 +27,7 @@ CODES: dict[type, grpc.StatusCode] = {
     NoDeckError: grpc.StatusCode.FAILED_PRECONDITION,
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
+    ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
 }
 
 

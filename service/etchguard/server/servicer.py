@@ -27,7 +27,7 @@ log = logging.getLogger("etchguard.server")
 
 def _load_deck(self, req, out):
     deck = loads_deck(req.toml, "toml")
-    self.engine.load_deck(deck)
+    self.engine.load_deck(deck, req.toml)  # the text: a journal replays it
     convert.deck_into(out, deck)
     log.info("deck loaded", extra={"fields": {"deck": deck.name, "layers": len(deck.layers),
                                               "rules": len(deck.rules)}})

@@ -1,0 +1,632 @@
+"""The journal: every acknowledged change on disk before its reply, and a fast restart.
+
+A server with ``--state-dir DIR`` keeps there:
+
+* ``journal-NNNNNNNN.log`` - segments of the journal, numbered upwards. Each starts
+  with a 12-byte header (8 bytes of magic, ``JOURNAL_MAGIC``; a little-endian uint32
+  format version, ``FORMAT_VERSION``), then frames: uint32 payload length, uint32
+  CRC-32 of the payload (zlib), the payload, one ``etchguard.v1.JournalRecord``
+  (proto/etchguard/v1/journal.proto). Records come in the order the engine applied
+  them to each net (the engine records under the net's lock, see ``_changelog``).
+* ``snapshot.pb`` - the whole state at one instant: the same header with
+  ``SNAPSHOT_MAGIC``, a ``SnapshotHeader`` frame (it names the first segment *not*
+  in the snapshot), one ``NetImage`` frame per net, a ``SnapshotEnd`` frame. Written
+  to a temporary file, fsynced, renamed over the old one, the folder fsynced; then
+  the segments it covers are deleted.
+* ``LOCK`` - held (flock) by the one server using the folder.
+
+Start = snapshot (if any) + replay of the segments from the one it names, in order.
+Replay checks that every shape and blockage gets back the id it had.
+
+Damage on start:
+* the last frame of the last segment torn or failing its CRC (a crash in the middle
+  of a write): reported in the log and truncated away; the records before it stand;
+* anything else (a bad frame with valid data after it, a torn frame in an older
+  segment, a gap in the numbering, a record the engine refuses): the server refuses
+  to start and names the file and the offset;
+* another magic or format version: refused, naming the file and both versions.
+
+Sync policy (``SyncPolicy``), what an acknowledged change survives:
+* ``always`` - fsync before the reply (commits waiting at once share one fsync);
+  survives a crash of the process and of the machine (power loss).
+* ``batch`` - every record is written to the OS (``os.write``) before the reply and a
+  background flusher fsyncs at most every ``interval_ms`` (default 50 ms). Survives a
+  crash or kill of the process entirely; a crash of the machine loses at most the
+  acknowledged changes of the last ``interval_ms`` (plus the fsync's own duration).
+* ``none`` - written to the OS before the reply, never fsynced except at segment
+  rotation and shutdown: survives a process crash; a machine crash loses what the OS
+  had not written back (its own writeback policy, typically tens of seconds).
+"""
+
+from __future__ import annotations
+
+import fcntl
+import logging
+import os
+import re
+import struct
+import threading
+import time
+import zlib
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from enum import Enum
+from pathlib import Path
+
+from ._changelog import (BlockageDeclared, BlockageRemoved, Change, ChangeLogError, DeckLoaded,
+                         EngineImage, NetClosed, NetImage, NetOpened, ShapesCommitted,
+                         ShapesRemoved)
+from ._errors import EtchguardError
+from ._nets import Pin, Shape
+from ._rules import loads_deck
+from .v1 import journal_pb2 as jpb
+
+log = logging.getLogger("etchguard.journal")
+
+JOURNAL_MAGIC = b"EGJOURN\n"
+SNAPSHOT_MAGIC = b"EGSNAPS\n"
+FORMAT_VERSION = 1
+_HEADER = struct.Struct("<8sI")
+_FRAME = struct.Struct("<II")  # payload length, crc32(payload)
+SNAPSHOT_NAME = "snapshot.pb"
+_SEGMENT = re.compile(r"^journal-(\d{8})\.log$")
+
+
+class JournalError(EtchguardError):
+    """The state folder cannot be used: damage, another format version, another server."""
+
+
+class SyncPolicy(str, Enum):
+    ALWAYS = "always"
+    BATCH = "batch"
+    NONE = "none"
+
+
+# -- frames ----------------------------------------------------------------------------
+
+def frame(payload: bytes) -> bytes:
+    return _FRAME.pack(len(payload), zlib.crc32(payload)) + payload
+
+
+def file_header(magic: bytes) -> bytes:
+    return _HEADER.pack(magic, FORMAT_VERSION)
+
+
+def check_header(path: Path, data: bytes, magic: bytes, what: str) -> None:
+    if len(data) < _HEADER.size:
+        raise JournalError(f"too short for a {what} header ({len(data)} bytes)", str(path))
+    found, version = _HEADER.unpack_from(data)
+    if found != magic:
+        raise JournalError(f"not an etchguard {what} (magic {found!r}, expected {magic!r})", str(path))
+    if version != FORMAT_VERSION:
+        raise JournalError(f"written in {what} format version {version}; this etchguard reads "
+                           f"version {FORMAT_VERSION} only. Start from a matching etchguard, or "
+                           f"move the state folder aside to start empty", str(path))
+
+
+@dataclass
+class TornTail:
+    """A damaged last frame that was cut off: where, and why."""
+
+    path: Path
+    offset: int
+    dropped_bytes: int
+    reason: str
+
+
+def read_frames(path: Path, data: bytes, last: bool) -> tuple[list[tuple[int, bytes]], TornTail | None]:
+    """The frames after the header as (offset, payload). A bad frame that reaches the
+    end of the data is a torn tail (allowed only when ``last``); one followed by more
+    data is corruption: JournalError naming the offset."""
+    frames: list[tuple[int, bytes]] = []
+    offset, end = _HEADER.size, len(data)
+    while offset < end:
+        reason = ""
+        frame_end = end
+        if end - offset < _FRAME.size:
+            reason = f"{end - offset} bytes, less than a frame header"
+        else:
+            length, crc = _FRAME.unpack_from(data, offset)
+            frame_end = offset + _FRAME.size + length
+            if length == 0:  # no record is empty; zeros to the end are a file the OS extended
+                reason = "zero frame length"
+                frame_end = end if not any(data[offset:]) else -1
+            elif frame_end > end:  # the write of the last frame did not finish
+                reason = f"frame of {length} bytes runs past the end ({end - offset - _FRAME.size} there)"
+                frame_end = end
+            else:
+                payload = data[offset + _FRAME.size:frame_end]
+                if zlib.crc32(payload) != crc:
+                    reason = "CRC mismatch"
+                else:
+                    frames.append((offset, payload))
+                    offset = frame_end
+                    continue
+        if frame_end == end and last:
+            return frames, TornTail(path, offset, end - offset, reason)
+        where = "the last frame of an older segment" if frame_end == end else "data follows it"
+        raise JournalError(f"damaged frame at byte offset {offset}: {reason}; {where}, so this is "
+                           f"corruption, not a torn write; refusing to start", str(path))
+    return frames, None
+
+
+def _fsync_dir(path: Path) -> None:
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+# -- changes <-> records ---------------------------------------------------------------
+
+def _columns_into(cols: jpb.ShapeColumns, shapes) -> None:
+    cols.layer.extend([s.layer for s in shapes])
+    cols.xlo.extend([s.rect[0] for s in shapes])
+    cols.ylo.extend([s.rect[1] for s in shapes])
+    cols.xhi.extend([s.rect[2] for s in shapes])
+    cols.yhi.extend([s.rect[3] for s in shapes])
+
+
+def _shapes_of(cols: jpb.ShapeColumns) -> list[Shape]:
+    return [Shape(layer, (a, b, c, d)) for layer, a, b, c, d in
+            zip(cols.layer, cols.xlo, cols.ylo, cols.xhi, cols.yhi)]
+
+
+def _pin_into(msg: jpb.PinImage, pin: Pin) -> None:
+    msg.name = pin.name
+    msg.layer = pin.layer
+    msg.rects.extend([v for r in pin.rects for v in r])
+    msg.gate_area.update(pin.gate_area)
+    msg.diff_area = pin.diff_area
+    msg.cell_area.update(pin.cell_area)
+
+
+def _pin_of(msg: jpb.PinImage) -> Pin:
+    v = list(msg.rects)
+    rects = tuple(tuple(v[i:i + 4]) for i in range(0, len(v), 4))
+    return Pin(msg.name, msg.layer, rects, dict(msg.gate_area), msg.diff_area,  # type: ignore[arg-type]
+               dict(msg.cell_area))
+
+
+def encode(change: Change) -> bytes:
+    """One change as a serialized JournalRecord."""
+    rec = jpb.JournalRecord()
+    if isinstance(change, ShapesCommitted):
+        m = rec.shapes_committed
+        m.net, m.first_id = change.net, change.first_id
+        _columns_into(m.shapes, change.shapes)
+    elif isinstance(change, ShapesRemoved):
+        m = rec.shapes_removed
+        m.net = change.net
+        m.ids.extend(change.ids)
+    elif isinstance(change, NetOpened):
+        m = rec.net_opened
+        m.net, m.first_id = change.net, change.first_id
+        for p in change.pins:
+            _pin_into(m.pins.add(), p)
+        if change.layer_range is not None:
+            m.has_layer_range = True
+            m.lowest, m.highest = change.layer_range
+        _columns_into(m.shapes, change.shapes)
+        m.shapes.SetInParent()
+    elif isinstance(change, NetClosed):
+        rec.net_closed.net = change.net
+    elif isinstance(change, DeckLoaded):
+        if change.text is None:
+            raise ChangeLogError("a deck loaded without its TOML text cannot be journaled", "deck")
+        rec.deck_loaded.toml = change.text
+    elif isinstance(change, BlockageDeclared):
+        m = rec.blockage_declared
+        m.blockage_id, m.layer = change.blockage_id, change.layer
+        m.xlo, m.ylo, m.xhi, m.yhi = change.rect
+    elif isinstance(change, BlockageRemoved):
+        rec.blockage_removed.blockage_id = change.blockage_id
+    else:
+        raise ChangeLogError(f"no journal record for {type(change).__name__}", "change")
+    return rec.SerializeToString()
+
+
+def _expect_ids(got: list[int], first: int, where: str) -> None:
+    want = list(range(first, first + len(got)))
+    if got != want:
+        raise JournalError(f"replay gave shape ids {got[:3]}..., the journal says {want[:3]}...; "
+                           "the journal does not match this engine", where)
+
+
+def apply(engine, rec: jpb.JournalRecord, where: str) -> str | None:
+    """Replay one record into ``engine``; returns the deck text when it loads one."""
+    kind = rec.WhichOneof("change")
+    try:
+        if kind == "shapes_committed":
+            m = rec.shapes_committed
+            _expect_ids(engine.commit(m.net, _shapes_of(m.shapes)), m.first_id, where)
+        elif kind == "shapes_removed":
+            engine.remove(rec.shapes_removed.net, list(rec.shapes_removed.ids))
+        elif kind == "net_opened":
+            m = rec.net_opened
+            layer_range = (m.lowest, m.highest) if m.has_layer_range else None
+            ids = engine.open_net(m.net, [_pin_of(p) for p in m.pins], layer_range, _shapes_of(m.shapes))
+            _expect_ids(ids, m.first_id, where)
+        elif kind == "net_closed":
+            engine.close_net(rec.net_closed.net)
+        elif kind == "deck_loaded":
+            text = rec.deck_loaded.toml
+            engine.load_deck(loads_deck(text, f"{where} deck"), text)
+            return text
+        elif kind == "blockage_declared":
+            m = rec.blockage_declared
+            bid = engine.declare_blockage(m.layer, (m.xlo, m.ylo, m.xhi, m.yhi))
+            if bid != m.blockage_id:
+                raise JournalError(f"replay gave blockage id {bid}, the journal says {m.blockage_id}", where)
+        elif kind == "blockage_removed":
+            engine.remove_blockage(rec.blockage_removed.blockage_id)
+        else:
+            raise JournalError("a record without a change (written by a newer version?)", where)
+    except JournalError:
+        raise
+    except EtchguardError as exc:
+        raise JournalError(f"the engine refuses this record on replay: {exc}", where) from None
+    return None
+
+
+# -- snapshots ----------------------------------------------------------------------------
+
+def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: int,
+                   version: str) -> Path:
+    """Write ``snapshot.pb`` atomically (temp file, fsync, rename, fsync the folder)."""
+    final = directory / SNAPSHOT_NAME
+    tmp = directory / (SNAPSHOT_NAME + ".tmp")
+    header = jpb.SnapshotHeader(covers_segments_below=covers_segments_below,
+                                has_deck=image.deck_text is not None, deck_toml=image.deck_text or "",
+                                next_blockage_id=image.next_blockage_id, net_count=len(image.nets),
+                                written_by=version)
+    for bid, (layer, (xlo, ylo, xhi, yhi)) in sorted(image.blockages.items()):
+        header.blockages.add(blockage_id=bid, layer=layer, xlo=xlo, ylo=ylo, xhi=xhi, yhi=yhi)
+    shapes = 0
+    with open(tmp, "wb") as f:
+        f.write(file_header(SNAPSHOT_MAGIC))
+        f.write(frame(header.SerializeToString()))
+        for net in image.nets:
+            msg = jpb.NetImage(net=net.name, next_id=net.next_id)
+            for p in net.pins:
+                _pin_into(msg.pins.add(), p)
+            if net.layer_range is not None:
+                msg.has_layer_range = True
+                msg.lowest, msg.highest = net.layer_range
+            cols = msg.shapes
+            items = sorted(net.shapes.items())
+            cols.id.extend([sid for sid, _ in items])
+            cols.layer.extend([v[0] for _, v in items])
+            cols.xlo.extend([v[1] for _, v in items])
+            cols.ylo.extend([v[2] for _, v in items])
+            cols.xhi.extend([v[3] for _, v in items])
+            cols.yhi.extend([v[4] for _, v in items])
+            shapes += len(items)
+            f.write(frame(msg.SerializeToString()))
+        f.write(frame(jpb.SnapshotEnd(net_count=len(image.nets), shape_count=shapes).SerializeToString()))
+        f.flush()
+        os.fsync(f.fileno())
+    os.replace(tmp, final)
+    _fsync_dir(directory)
+    return final
+
+
+def read_snapshot(path: Path) -> tuple[EngineImage, int]:
+    """The image a snapshot holds and the first segment number it does not cover."""
+    data = path.read_bytes()
+    check_header(path, data, SNAPSHOT_MAGIC, "snapshot")
+    frames, _ = read_frames(path, data, last=False)  # a snapshot is renamed in whole: no torn tail
+    if len(frames) < 2:
+        raise JournalError("a snapshot needs a header and an end frame", str(path))
+    try:
+        header = jpb.SnapshotHeader.FromString(frames[0][1])
+        end = jpb.SnapshotEnd.FromString(frames[-1][1])
+        nets = []
+        for offset, payload in frames[1:-1]:
+            m = jpb.NetImage.FromString(payload)
+            c = m.shapes
+            shapes = {sid: (layer, a, b, cc, d) for sid, layer, a, b, cc, d in
+                      zip(c.id, c.layer, c.xlo, c.ylo, c.xhi, c.yhi)}
+            nets.append(NetImage(m.net, tuple(_pin_of(p) for p in m.pins),
+                                 (m.lowest, m.highest) if m.has_layer_range else None, shapes, m.next_id))
+    except Exception as exc:  # noqa: BLE001 - a protobuf decode error, any kind
+        raise JournalError(f"a snapshot frame does not decode: {exc}", str(path)) from None
+    if len(nets) != header.net_count or end.net_count != header.net_count:
+        raise JournalError(f"snapshot lists {header.net_count} nets but holds {len(nets)}", str(path))
+    blockages = {b.blockage_id: (b.layer, (b.xlo, b.ylo, b.xhi, b.yhi)) for b in header.blockages}
+    image = EngineImage(header.deck_toml if header.has_deck else None, tuple(nets), blockages,
+                        header.next_blockage_id or 1)
+    return image, header.covers_segments_below
+
+
+# -- recovery ---------------------------------------------------------------------------
+
+@dataclass
+class Recovery:
+    """What a start found in the state folder."""
+
+    snapshot: Path | None = None
+    snapshot_nets: int = 0
+    segments: list[Path] = field(default_factory=list)
+    records: int = 0
+    torn: list[TornTail] = field(default_factory=list)
+    deck_text: str | None = None  # the deck in force after recovery
+    next_segment: int = 1
+    seconds: float = 0.0
+
+
+def segment_path(directory: Path, number: int) -> Path:
+    return directory / f"journal-{number:08d}.log"
+
+
+def segments(directory: Path) -> list[tuple[int, Path]]:
+    found = []
+    for p in directory.iterdir():
+        m = _SEGMENT.match(p.name)
+        if m:
+            found.append((int(m.group(1)), p))
+    return sorted(found)
+
+
+def recover(directory: Path, engine) -> Recovery:
+    """Rebuild ``engine`` (empty, without a change log) from the folder's snapshot and
+    journal. Truncates a torn tail (and logs it); raises JournalError on anything else."""
+    t0 = time.perf_counter()
+    out = Recovery()
+    snap = directory / SNAPSHOT_NAME
+    first = 1
+    if snap.exists():
+        image, first = read_snapshot(snap)
+        engine.restore_state(image)
+        out.snapshot, out.snapshot_nets, out.deck_text = snap, len(image.nets), image.deck_text
+    found = segments(directory)
+    for number, path in found:
+        if number < first:  # covered by the snapshot; left by a stop before their deletion
+            path.unlink()
+    found = [(n, p) for n, p in found if n >= first]
+    for i, (number, path) in enumerate(found):
+        expected = first if i == 0 else found[i - 1][0] + 1
+        if number != expected:
+            raise JournalError(f"journal segment {expected:08d} is missing before this one", str(path))
+        data = path.read_bytes()
+        check_header(path, data, JOURNAL_MAGIC, "journal")
+        last = i == len(found) - 1
+        frames, torn = read_frames(path, data, last)
+        for offset, payload in frames:
+            where = f"{path}: record at byte offset {offset}"
+            try:
+                rec = jpb.JournalRecord.FromString(payload)
+            except Exception as exc:  # noqa: BLE001 - a protobuf decode error
+                raise JournalError(f"does not decode: {exc}", where) from None
+            text = apply(engine, rec, where)
+            if text is not None:
+                out.deck_text = text
+            out.records += 1
+        if torn is not None:
+            log.warning("torn journal tail truncated", extra={"fields": {
+                "file": str(path), "offset": torn.offset, "dropped_bytes": torn.dropped_bytes,
+                "reason": torn.reason}})
+            with open(path, "r+b") as f:
+                f.truncate(torn.offset)
+                os.fsync(f.fileno())
+            out.torn.append(torn)
+        out.segments.append(path)
+    out.next_segment = (found[-1][0] + 1) if found else first
+    out.seconds = time.perf_counter() - t0
+    return out
+
+
+# -- the writer ---------------------------------------------------------------------------
+
+class Journal:
+    """The change log of a server with a state folder (a ``ChangeLog`` for the engine).
+
+    ``Journal.open(directory, engine, ...)`` locks the folder, recovers the engine,
+    starts a new segment and attaches itself; ``close()`` takes a final snapshot and
+    stops. ``record`` is called by the engine under the lock of the change's net.
+    """
+
+    def __init__(self, directory: Path, engine, recovery: Recovery, lock_fd: int,
+                 sync: SyncPolicy, interval_ms: float, snapshot_every: int, version: str) -> None:
+        self.directory = directory
+        self.engine = engine
+        self.recovery = recovery
+        self.sync = SyncPolicy(sync)
+        self.interval_s = interval_ms / 1000.0
+        self.snapshot_every = snapshot_every
+        self.version = version
+        self._lock_fd = lock_fd
+        self._write_lock = threading.Lock()  # one append at a time, in record order
+        self._sync_cond = threading.Condition()
+        self._syncing = False
+        self._written = 0  # bytes appended since start (all segments)
+        self._synced = 0  # bytes known on disk
+        self._since_snapshot = recovery.records
+        self._failed: BaseException | None = None
+        self._closed = False
+        self._segment = recovery.next_segment
+        self._fd = self._new_segment(self._segment)
+        self._snapshot_lock = threading.Lock()
+        self._wake = threading.Event()
+        self._stop = threading.Event()
+        self.snapshots_written = 0
+        self._threads = [threading.Thread(target=self._snapshotter, name="etchguard-snapshot", daemon=True)]
+        if self.sync is SyncPolicy.BATCH:
+            self._threads.append(threading.Thread(target=self._flusher, name="etchguard-flush", daemon=True))
+        for t in self._threads:
+            t.start()
+        if snapshot_every and recovery.records >= snapshot_every:
+            self._wake.set()  # a long replay: the next start should not repeat it
+
+    @classmethod
+    def open(cls, directory: Path, engine, *, sync: SyncPolicy | str = SyncPolicy.BATCH,
+             interval_ms: float = 50.0, snapshot_every: int = 100_000, version: str = "") -> "Journal":
+        directory = Path(directory)
+        directory.mkdir(parents=True, exist_ok=True)
+        lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(lock_fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(lock_fd)
+            raise JournalError("another etchguard server uses this state folder", str(directory)) from None
+        try:
+            recovery = recover(directory, engine)
+            journal = cls(directory, engine, recovery, lock_fd, SyncPolicy(sync), interval_ms,
+                          snapshot_every, version)
+        except BaseException:
+            os.close(lock_fd)
+            raise
+        engine.changelog = journal
+        return journal
+
+    def _new_segment(self, number: int) -> int:
+        fd = os.open(segment_path(self.directory, number), os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_APPEND, 0o644)
+        os.write(fd, file_header(JOURNAL_MAGIC))
+        os.fsync(fd)
+        _fsync_dir(self.directory)
+        return fd
+
+    # -- ChangeLog --------------------------------------------------------------------
+
+    def record(self, change: Change) -> None:
+        data = frame(encode(change))
+        with self._write_lock:
+            if self._failed is not None or self._closed:
+                raise ChangeLogError("the journal is closed or failed earlier; changes are refused "
+                                     f"({self._failed or 'closed'})", "journal")
+            try:
+                view = memoryview(data)
+                while view:
+                    n = os.write(self._fd, view)
+                    view = view[n:]
+            except OSError as exc:
+                self._failed = exc
+                log.error("journal write failed", extra={"fields": {"error": str(exc)}})
+                raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change "
+                                     "is held but not durable, and later changes are refused",
+                                     "journal") from None
+            self._written += len(data)
+            mark = self._written
+            self._since_snapshot += 1
+            if self.snapshot_every and self._since_snapshot >= self.snapshot_every:
+                self._wake.set()
+        if self.sync is SyncPolicy.ALWAYS:
+            self._sync_to(mark)
+
+    # -- syncing ----------------------------------------------------------------------
+
+    def _sync_to(self, mark: int) -> None:
+        """Return once the bytes up to ``mark`` are fsynced; one thread fsyncs for all
+        that wait (group commit), the others wait on its result."""
+        cond = self._sync_cond
+        with cond:
+            while self._synced < mark:
+                if self._syncing:
+                    cond.wait()
+                    continue
+                self._syncing = True
+                target, fd = self._written, self._fd
+                cond.release()
+                try:
+                    os.fsync(fd)
+                    error = None
+                except OSError as exc:
+                    error = exc
+                finally:
+                    cond.acquire()
+                    self._syncing = False
+                    cond.notify_all()
+                if error is not None:
+                    self._failed = error
+                    raise ChangeLogError(f"the journal cannot be synced ({error.strerror})", "journal")
+                self._synced = max(self._synced, target)
+
+    def _flusher(self) -> None:
+        while not self._stop.wait(self.interval_s):
+            if self._synced < self._written and self._failed is None:
+                try:
+                    self._sync_to(self._written)
+                except ChangeLogError:
+                    log.error("journal fsync failed; changes are refused from now on")
+
+    # -- snapshots --------------------------------------------------------------------
+
+    def _rotate(self) -> int:
+        """Start a new segment (called with every engine lock held); returns its number,
+        the first segment the snapshot being taken does not cover."""
+        with self._write_lock, self._sync_cond:
+            while self._syncing:
+                self._sync_cond.wait()
+            os.fsync(self._fd)
+            self._synced = self._written
+            os.close(self._fd)
+            self._segment += 1
+            self._fd = self._new_segment(self._segment)
+            self._since_snapshot = 0
+            return self._segment
+
+    def snapshot(self) -> Path:
+        """Write a snapshot of the engine now and drop the segments it covers."""
+        with self._snapshot_lock:
+            t0 = time.perf_counter()
+            image, covers = self.engine.export_state(self._rotate)
+            paused = time.perf_counter() - t0
+            path = write_snapshot(self.directory, image, covers, self.version)
+            for number, seg in segments(self.directory):
+                if number < covers:
+                    seg.unlink()
+            self.snapshots_written += 1
+            log.info("snapshot written", extra={"fields": {
+                "file": str(path), "nets": len(image.nets), "covers_segments_below": covers,
+                "pause_s": round(paused, 4), "seconds": round(time.perf_counter() - t0, 4)}})
+            return path
+
+    def _snapshotter(self) -> None:
+        while True:
+            self._wake.wait()
+            self._wake.clear()
+            if self._stop.is_set():
+                return
+            try:
+                self.snapshot()
+            except Exception:  # noqa: BLE001 - the journal still holds everything; retry later
+                log.exception("snapshot failed; the journal keeps every change")
+
+    # -- shutdown ---------------------------------------------------------------------
+
+    def close(self, snapshot: bool = True) -> None:
+        """Final snapshot (so the next start replays nothing), fsync, release the folder."""
+        if self._closed:
+            return
+        self._stop.set()
+        self._wake.set()
+        for t in self._threads:
+            t.join()
+        if snapshot and self._failed is None:
+            try:
+                self.snapshot()
+            except Exception:  # noqa: BLE001 - the journal is still complete
+                log.exception("final snapshot failed; the journal keeps every change")
+        with self._write_lock:
+            self._closed = True
+            try:
+                os.fsync(self._fd)
+            finally:
+                os.close(self._fd)
+        os.close(self._lock_fd)
+
+    def stats(self) -> dict[str, int]:
+        return {"journal_bytes_written": self._written, "journal_bytes_synced": self._synced,
+                "journal_segment": self._segment, "snapshots_written": self.snapshots_written}
+
+
+def iter_records(directory: Path) -> Iterator[tuple[Path, int, jpb.JournalRecord]]:
+    """Every record of the folder's segments, in order (for tools and tests)."""
+    found = segments(Path(directory))
+    for i, (_, path) in enumerate(found):
+        data = path.read_bytes()
+        check_header(path, data, JOURNAL_MAGIC, "journal")
+        frames, _ = read_frames(path, data, last=i == len(found) - 1)
+        for offset, payload in frames:
+            yield path, offset, jpb.JournalRecord.FromString(payload)
