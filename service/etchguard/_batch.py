@@ -75,7 +75,8 @@ from ._whatif import CostModel, score
 
 SAFE_COORD = 1 << 30  # candidate coordinates within +-2^30: areas are exact int64s
 SAFE_AGGREGATE = 1 << 61  # component area/perimeter (DBU) that may take a candidate's change
-MAX_LOCAL = 6  # routed rectangles on the candidate's layer the vectorized union takes
+MAX_LOCAL = 32  # routed rectangles on the candidate's layer the vectorized union takes
+_LOCAL_BUCKETS = ((2, 3), (4, 7), (8, 15), (16, MAX_LOCAL))  # rows padded only within a bucket
 
 _F8 = np.float64
 _NONE = -1
@@ -132,9 +133,10 @@ class _LayerTables:
     """The net's elements a rectangle on layer L can touch, with their components."""
 
     same: np.ndarray  # (m, 4) int64, elements on L
+    same_cols: tuple[np.ndarray, ...]  # its four coordinate columns, each contiguous
     routed: np.ndarray  # (m,) bool: a routed shape (pins add no area)
-    below: np.ndarray  # (b, 4): layer L-1 when it connects to L by overlap, else empty
-    above: np.ndarray  # (a, 4): layer L+1 likewise (joined from step L+1)
+    below: tuple[np.ndarray, ...]  # columns of layer L-1 when it connects by overlap, else empty
+    above: tuple[np.ndarray, ...]  # layer L+1 likewise (joined from step L+1)
     comp_l: np.ndarray  # (m + b,) component index at step L of same, then below
     comp_next: np.ndarray | None  # (m + b + a,) component index at step L+1, None at the top
     comps_l: list[Comp]
@@ -166,12 +168,35 @@ class _Group:
     if_still: float  # extra net worst when they do not
 
 
+class _GroupStack:
+    """The groups met so far on one layer, and their fields stacked as arrays."""
+
+    def __init__(self) -> None:
+        self.row: dict[tuple[int, int], int] = {}  # (C_L, C_{L+1}) index -> row, -1: scalar
+        self.groups: list[_Group] = []
+        self.arrays: dict[str, np.ndarray] = {}
+
+    def add(self, key: tuple[int, int], group: _Group | None) -> None:
+        if group is None:
+            self.row[key] = -1
+            return
+        self.row[key] = len(self.groups)
+        self.groups.append(group)
+        self.arrays.clear()
+
+    def array(self, name: str, dtype: type = np.float64) -> np.ndarray:
+        got = self.arrays.get(name)
+        if got is None:
+            got = self.arrays[name] = np.array([getattr(g, name) for g in self.groups], dtype=dtype)
+        return got
+
+
 class _Tables:
     def __init__(self, state: NetState) -> None:
         self.state = weakref.ref(state)
         self.version = state.version
         self.layers: dict[int, _LayerTables] = {}
-        self.groups: dict[tuple[int, int, int], _Group | None] = {}
+        self.groups: dict[int, _GroupStack] = {}
         self.comp_lists: dict[int, tuple[list[Comp], dict[int, int]]] = {}
 
     def comps(self, state: NetState, step: int) -> tuple[list[Comp], dict[int, int]]:
@@ -210,6 +235,12 @@ def _rect_array(rects: list) -> np.ndarray:
     return np.array(rects, dtype=np.int64).reshape(-1, 4)
 
 
+def _columns(rects: np.ndarray) -> tuple[np.ndarray, ...]:
+    """xlo, ylo, xhi, yhi as contiguous arrays: a strided column makes every
+    broadcast against it several times slower."""
+    return tuple(np.ascontiguousarray(rects[:, i]) for i in range(4))
+
+
 def _layer_tables(tab: _Tables, state: NetState, layer: int) -> _LayerTables:
     lt = tab.layers.get(layer)
     if lt is not None:
@@ -236,10 +267,11 @@ def _layer_tables(tab: _Tables, state: NetState, layer: int) -> _LayerTables:
         at_next = state.comp_at[layer + 1]
         comp_next = np.array([index_next[id(at_next[e])] for e in same_ids + below_ids + above_ids],
                              dtype=np.int64)
-    lt = _LayerTables(_rect_array([r for _, r in same_items]),
+    same = _rect_array([r for _, r in same_items])
+    lt = _LayerTables(same, _columns(same),
                       np.array([e not in state.pin_of for e in same_ids], dtype=bool),
-                      _rect_array(below_rects), _rect_array(above_rects), comp_l, comp_next,
-                      comps_l, comps_next)
+                      _columns(_rect_array(below_rects)), _columns(_rect_array(above_rects)),
+                      comp_l, comp_next, comps_l, comps_next)
     tab.layers[layer] = lt
     return lt
 
@@ -385,6 +417,32 @@ def _single_component(touch: np.ndarray, comp: np.ndarray, count: int) -> tuple[
     return (hi == _NONE) | (lo == hi), hi
 
 
+def _add_union_change(many: np.ndarray, rows: np.ndarray, k_local: np.ndarray, local: np.ndarray,
+                      same: np.ndarray, rr: np.ndarray, d_area: np.ndarray, d_perim: np.ndarray) -> None:
+    """d_area, d_perim of rows ``many`` (two or more routed neighbours): the exact change
+    of union area and perimeter, in one grid measure for without and with r."""
+    s = same
+    sub = local[rows[many]]
+    k = int(k_local[many].max())
+    hit_row, hit_col = np.nonzero(sub)
+    start = np.concatenate([[0], np.cumsum(k_local[many])[:-1]])
+    slot = np.arange(len(hit_row)) - start[hit_row]
+    q = np.empty((len(many), k, 4), dtype=np.int64)
+    q[:] = s[hit_col[start]][:, None, :]  # pad with the row's first neighbour
+    q[hit_row, slot] = s[hit_col]
+    box = rr[many]  # clip to r grown by 1 DBU: the change lies inside r
+    q[:, :, 0] = np.maximum(q[:, :, 0], box[:, None, 0] - 1)
+    q[:, :, 1] = np.maximum(q[:, :, 1], box[:, None, 1] - 1)
+    q[:, :, 2] = np.minimum(q[:, :, 2], box[:, None, 2] + 1)
+    q[:, :, 3] = np.minimum(q[:, :, 3], box[:, None, 3] + 1)
+    # One call for both unions: without r (q padded with its first rectangle) and with.
+    both = np.concatenate([np.concatenate([q, q[:, :1, :]], axis=1),
+                           np.concatenate([q, box[:, None, :]], axis=1)])
+    a, p = _union_measures(both)
+    d_area[many] = a[len(many):] - a[:len(many)]
+    d_perim[many] = p[len(many):] - p[:len(many)]
+
+
 # -- one layer's candidates ---------------------------------------------------------------
 
 def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: int,
@@ -395,15 +453,16 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
     lt = _layer_tables(tab, state, layer)
     plan = _plan_for(model, layer)
     n = len(r)
-    xlo, ylo, xhi, yhi = (r[:, i:i + 1] for i in range(4))
+    xlo, ylo, xhi, yhi = (c[:, None] for c in _columns(r))
     s = lt.same
-    ix = np.minimum(xhi, s[:, 2]) - np.maximum(xlo, s[:, 0])
-    iy = np.minimum(yhi, s[:, 3]) - np.maximum(ylo, s[:, 1])
+    sx0, sy0, sx1, sy1 = lt.same_cols
+    ix = np.minimum(xhi, sx1) - np.maximum(xlo, sx0)
+    iy = np.minimum(yhi, sy1) - np.maximum(ylo, sy0)
     edge = (ix >= 0) & (iy >= 0) & ((ix > 0) | (iy > 0))  # _geometry.edge_touch
 
-    def overlapping(q: np.ndarray) -> np.ndarray:  # _geometry.overlap
-        return ((np.minimum(xhi, q[:, 2]) > np.maximum(xlo, q[:, 0]))
-                & (np.minimum(yhi, q[:, 3]) > np.maximum(ylo, q[:, 1])))
+    def overlapping(q: tuple[np.ndarray, ...]) -> np.ndarray:  # _geometry.overlap
+        return ((np.minimum(xhi, q[2]) > np.maximum(xlo, q[0]))
+                & (np.minimum(yhi, q[3]) > np.maximum(ylo, q[1])))
 
     touch_l = np.concatenate([edge, overlapping(lt.below)], axis=1)
     ok, c_l = _single_component(touch_l, lt.comp_l, len(lt.comps_l))
@@ -421,25 +480,23 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
     span = len(lt.comps_next or ()) + 1
     keys = (c_l + 1) * span + (c_next + 1)
     uniq, inverse = np.unique(keys[ok], return_inverse=True)
-    groups: list[_Group] = []
-    usable = np.ones(len(uniq), dtype=bool)
+    stack = tab.groups.get(layer)
+    if stack is None:
+        stack = tab.groups[layer] = _GroupStack()
+    where = np.empty(len(uniq), dtype=np.int64)
     for j, key in enumerate(uniq.tolist()):
-        cl, cn = key // span - 1, key % span - 1
-        memo = (layer, cl, cn)
-        if memo not in tab.groups:
+        pair = (key // span - 1, key % span - 1)
+        if pair not in stack.row:
+            cl, cn = pair
             comp_l = lt.comps_l[cl] if cl >= 0 else None
             comp_n = lt.comps_next[cn] if cn >= 0 and lt.comps_next is not None else None
-            tab.groups[memo] = _build_group(state, assessment, plan, layer, comp_l, comp_n)
-        g = tab.groups[memo]
-        if g is None:
-            usable[j] = False
-        else:
-            groups.append(g)
+            stack.add(pair, _build_group(state, assessment, plan, layer, comp_l, comp_n))
+        where[j] = stack.row[pair]
     rows = np.nonzero(ok)[0]
-    if not usable.all():
-        keep = usable[inverse]
+    inverse = where[inverse]  # row of each candidate's group in the stack, -1: scalar
+    if (inverse < 0).any():
+        keep = inverse >= 0
         rows, inverse = rows[keep], inverse[keep]
-        inverse = (np.cumsum(usable) - 1)[inverse]
     done = np.zeros(n, dtype=bool)
     done[rows] = True
     zeros = np.zeros(n, dtype=_F8)
@@ -458,37 +515,18 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
         qx, qy = ix[rows[one], col], iy[rows[one], col]
         d_area[one] -= np.where((qx > 0) & (qy > 0), qx * qy, 0)
         d_perim[one] -= 2 * (qx + qy)  # _shared_perimeter: qx, qy >= 0 for a contact
-    many = np.nonzero(k_local >= 2)[0]
-    if len(many):
-        sub = local[rows[many]]
-        k = int(k_local[many].max())
-        hit_row, hit_col = np.nonzero(sub)
-        start = np.concatenate([[0], np.cumsum(k_local[many])[:-1]])
-        slot = np.arange(len(hit_row)) - start[hit_row]
-        q = np.empty((len(many), k, 4), dtype=np.int64)
-        q[:] = s[hit_col[start]][:, None, :]  # pad with the row's first neighbour
-        q[hit_row, slot] = s[hit_col]
-        box = rr[many]  # clip to r grown by 1 DBU: the change lies inside r
-        q[:, :, 0] = np.maximum(q[:, :, 0], box[:, None, 0] - 1)
-        q[:, :, 1] = np.maximum(q[:, :, 1], box[:, None, 1] - 1)
-        q[:, :, 2] = np.minimum(q[:, :, 2], box[:, None, 2] + 1)
-        q[:, :, 3] = np.minimum(q[:, :, 3], box[:, None, 3] + 1)
-        # One call for both unions: without r (q padded with its first rectangle) and with.
-        both = np.concatenate([np.concatenate([q, q[:, :1, :]], axis=1),
-                               np.concatenate([q, box[:, None, :]], axis=1)])
-        a, p = _union_measures(both)
-        d_area[many] = a[len(many):] - a[:len(many)]
-        d_perim[many] = p[len(many):] - p[:len(many)]
+    for low, high in _LOCAL_BUCKETS:
+        many = np.nonzero((k_local >= low) & (k_local <= high))[0]
+        if len(many):
+            _add_union_change(many, rows, k_local, local, s, rr, d_area, d_perim)
     if not model.side_needed[layer]:
         d_perim[:] = 0
 
     # The pair's constants, one row per candidate.
-    def column(name: str, dtype=_F8) -> np.ndarray:
-        return np.array([getattr(g, name) for g in groups], dtype=dtype)[inverse]
+    def column(name: str, dtype: type = _F8) -> np.ndarray:
+        return stack.array(name, dtype)[inverse]
 
-    def columns(name: str, dtype=_F8) -> np.ndarray:  # only for a non-empty list field
-        table = np.array([getattr(g, name) for g in groups], dtype=dtype)
-        return table.reshape(len(groups), len(getattr(groups[0], name)))[inverse]
+    columns = column  # a list field gives (n, its length)
 
     area = column("area", np.int64) + d_area
     perim = column("perim", np.int64) + d_perim

@@ -1,0 +1,237 @@
+"""Columnar batch scores (Engine.score_columns) against the scalar score, per candidate.
+
+Random nets on random and bundled decks (the generators of test_reference_agreement)
+and bench-like nets (bench/netgen.py) get batches that mix the column path's common
+case with the cases it hands to the scalar path: runs extending a wire, runs crossing
+two wires, floating runs, runs over a via, cuts. Every entry must equal
+``Engine.score(name, [shape], detail=False)``: utilizations and cost within 1e-12
+relative, verdicts and added area equal. The fraction the column path answered is
+printed; on the bench-like nets it must be positive, so the fast path really runs.
+"""
+
+from __future__ import annotations
+
+import math
+import random
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import etchguard as eg
+from etchguard._batch import _union_measures
+from etchguard._geometry import union_measures
+from test_reference_agreement import GRID, SPAN, decks, engine_with, pins_for, shapes_on
+
+REPO = Path(__file__).resolve().parents[1]
+if str(REPO) not in sys.path:
+    sys.path.insert(0, str(REPO))
+from bench.batch_bench import frontier_candidates  # noqa: E402
+from bench.netgen import bench_deck, generate_net  # noqa: E402
+
+REL = 1e-12
+SETTINGS = settings(max_examples=60, deadline=None,
+                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+TALLY = {"random": [0, 0], "bench": [0, 0]}  # [vectorized, total]
+
+
+def same(a: float, b: float) -> bool:
+    return a == b or math.isclose(a, b, rel_tol=REL, abs_tol=0.0)
+
+
+def assert_agrees(engine: eg.Engine, name: str, shapes: list[eg.Shape], tally: str) -> eg.BatchScores:
+    layers = np.array([s.layer for s in shapes], dtype=np.int64)
+    rects = np.array([s.rect for s in shapes], dtype=np.int64).reshape(-1, 4)
+    before = engine.check(name)
+    got = engine.score_columns(name, layers, rects)
+    assert engine.check(name) == before  # scoring changes nothing
+    assert len(got) == len(shapes)
+    names = [l.name for l in engine.deck.layers]
+    for i, shape in enumerate(shapes):
+        want = engine.score(name, [shape], detail=False)
+        where = f"candidate {i} {shape} (vectorized={bool(got.vectorized[i])})"
+        assert same(got.worst_change_utilization[i], want.worst_change_utilization), \
+            (where, got.worst_change_utilization[i], want.worst_change_utilization)
+        assert same(got.worst_utilization[i], want.worst_utilization), \
+            (where, got.worst_utilization[i], want.worst_utilization)
+        assert bool(got.legal[i]) == want.legal, where
+        assert bool(got.breaks_limit[i]) == want.breaks_limit, where
+        assert same(got.cost[i], want.cost), (where, got.cost[i], want.cost)
+        assert same(got.added_area_um2[i], want.added_area_um2.get(names[shape.layer], 0.0)), \
+            (where, got.added_area_um2[i], want.added_area_um2)
+    TALLY[tally][0] += int(got.vectorized.sum())
+    TALLY[tally][1] += len(shapes)
+    return got
+
+
+# -- random nets, random decks -------------------------------------------------------------
+
+@st.composite
+def batch_cases(draw: st.DrawFn):
+    deck = draw(decks)
+    net = {"name": "n1", "pins": draw(pins_for(deck)), "shapes": draw(shapes_on(deck, True, 0, 12))}
+    names = [l["name"] for l in deck["layers"]]
+    picks = []
+    for _ in range(draw(st.integers(1, 24))):
+        kind = draw(st.sampled_from(["grid", "extend", "inside", "stretch"]))
+        if kind != "grid" and net["shapes"]:
+            base = draw(st.sampled_from(net["shapes"]))
+            x0, y0, x1, y1 = base["rect"]
+            if kind == "extend":  # continue the shape to one side, by a few grid cells
+                d = draw(st.integers(1, 4)) * GRID
+                rect = draw(st.sampled_from([[x1, y0, x1 + d, y1], [x0 - d, y0, x0, y1],
+                                             [x0, y1, x1, y1 + d], [x0, y0 - d, x1, y0],
+                                             [x0 + GRID // 2, y0, x1 + d, y1]]))
+            elif kind == "inside":  # within an existing shape: adds nothing
+                rect = [x0, y0, max(x0 + 1, x1 - GRID // 2), y1]
+            else:  # a long run across the field through the shape
+                rect = draw(st.sampled_from([[-GRID, y0, (SPAN + 2) * GRID, y1],
+                                             [x0, -GRID, x1, (SPAN + 2) * GRID]]))
+            layer = draw(st.sampled_from([base["layer"]] + names))
+        else:
+            x, y = draw(st.integers(0, SPAN)), draw(st.integers(0, SPAN))
+            w, h = draw(st.integers(1, 5)), draw(st.integers(1, 5))
+            rect = [x * GRID, y * GRID, (x + w) * GRID, (y + h) * GRID]
+            layer = draw(st.sampled_from(names))
+        picks.append({"layer": layer, "rect": rect})
+    return deck, net, picks
+
+
+@SETTINGS
+@given(batch_cases())
+def test_columns_equal_scalar_on_random_nets(case) -> None:
+    deck, net, picks = case
+    engine = engine_with(deck, net)
+    shapes = [eg.make_shape(engine.deck, p["layer"], p["rect"]) for p in picks]
+    assert_agrees(engine, "n1", shapes, "random")
+
+
+# -- bench-like nets ------------------------------------------------------------------------
+
+def bench_batch(deck: eg.Deck, net, seed: int, count: int) -> list[eg.Shape]:
+    """Frontier runs plus the cases around them: runs crossing two wires (long runs
+    across the net's extent), floating runs far away, runs over a via, lone cuts."""
+    rng = random.Random(f"test/{seed}")
+    shapes = frontier_candidates(deck, net, count, seed=seed, mix=(0.6, 0.2))
+    xs = [v for s in net.shapes for v in (s.rect[0], s.rect[2])]
+    ys = [v for s in net.shapes for v in (s.rect[1], s.rect[3])]
+    for _ in range(count // 8):
+        run = rng.choice(net.runs)
+        t = rng.random()
+        x = round(run.x1 + t * (run.x2 - run.x1))
+        y = round(run.y1 + t * (run.y2 - run.y1))
+        layer = run.layer
+        w = deck.layers[layer].wire_width or 100
+        if rng.random() < 0.5:  # across the whole net: crosses several wires
+            shapes.append(eg.Shape(layer, (min(xs) - w, y - w // 2, max(xs) + w, y - w // 2 + w)))
+        else:
+            shapes.append(eg.Shape(layer, (x - w // 2, min(ys) - w, x - w // 2 + w, max(ys) + w)))
+        shapes.append(eg.Shape(layer, (max(xs) + 10 * w, y, max(xs) + 30 * w, y + w)))  # floating
+    vias = [s for s in net.shapes if deck.layers[s.layer].kind == "cut"]
+    for s in rng.sample(vias, min(len(vias), count // 8)):  # over a via, on the metal above/below
+        x, y = (s.rect[0] + s.rect[2]) // 2, (s.rect[1] + s.rect[3]) // 2
+        metal = s.layer + rng.choice((-1, 1))
+        shapes += eg.run_shapes(deck, metal, x, y, x + rng.choice((-1, 1)) * rng.randint(200, 3000), y)
+    return shapes
+
+
+@pytest.mark.parametrize("size,seed", [(10, 0), (30, 1), (50, 2), (100, 3)])
+def test_columns_equal_scalar_on_bench_nets(size: int, seed: int) -> None:
+    deck = bench_deck()
+    net = generate_net(deck, size, seed=seed)
+    engine = eg.Engine(deck)
+    engine.open_net(net.name, net.pins, None, net.shapes)
+    got = assert_agrees(engine, net.name, bench_batch(deck, net, seed, 160), "bench")
+    print(f"\nbench net of {size} shapes: {got.vectorized_fraction:.3f} of {len(got)} "
+          f"candidates on the column path")
+    assert got.vectorized.any()  # the fast path is exercised
+    assert not got.vectorized.all() or size < 50  # and so is the hand-over on bigger nets
+
+
+def test_columns_follow_commits_and_removals() -> None:
+    """The per-state tables are rebuilt when the net changes."""
+    deck = bench_deck()
+    net = generate_net(deck, 30, seed=5)
+    engine = eg.Engine(deck)
+    engine.open_net(net.name, net.pins, None, net.shapes)
+    cands = frontier_candidates(deck, net, 64, seed=5)
+    assert_agrees(engine, net.name, cands, "bench")
+    ids = engine.commit(net.name, cands[:3])
+    assert_agrees(engine, net.name, cands, "bench")
+    engine.remove(net.name, ids[:2])
+    assert_agrees(engine, net.name, cands, "bench")
+
+
+def test_report_fraction() -> None:
+    for what, (fast, total) in TALLY.items():
+        if total:
+            print(f"\n{what}: {fast}/{total} = {fast / total:.3f} on the column path")
+
+
+# -- the grid union measure ----------------------------------------------------------------
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.lists(st.tuples(st.integers(0, 8), st.integers(0, 8), st.integers(1, 4),
+                                   st.integers(1, 4)), min_size=1, max_size=6),
+                min_size=1, max_size=8))
+def test_union_measures_equal_the_sweep(rows) -> None:
+    k = max(len(r) for r in rows)
+    batch = []
+    for r in rows:
+        rects = [(x, y, x + w, y + h) for x, y, w, h in r]
+        batch.append(rects + [rects[0]] * (k - len(rects)))  # padded as the column path pads
+    area, perim = _union_measures(np.array(batch, dtype=np.int64))
+    for i, r in enumerate(rows):
+        want = union_measures([(x, y, x + w, y + h) for x, y, w, h in r])
+        assert (int(area[i]), int(perim[i])) == want, (r, area[i], perim[i], want)
+
+
+# -- validation ------------------------------------------------------------------------------
+
+@pytest.fixture()
+def small_engine() -> eg.Engine:
+    deck = bench_deck()
+    net = generate_net(deck, 10, seed=0, name="v")
+    engine = eg.Engine(deck, limits=eg.Limits(max_candidates=8))
+    engine.open_net(net.name, net.pins, None, net.shapes)
+    return engine
+
+
+def test_refusals_name_the_first_bad_row(small_engine: eg.Engine) -> None:
+    good = np.array([[0, 0, 100, 100]] * 4, dtype=np.int64)
+    layers = np.zeros(4, dtype=np.int64)
+    bad = good.copy()
+    bad[2] = [5, 0, 5, 10]
+    bad[3] = [0, 0, -1, 10]
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", layers, bad)
+    assert err.value.field == "rects[2]"
+    far = good.copy()
+    far[1, 2] = 1 << 62
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", layers, far)
+    assert err.value.field == "rects[1]"
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", np.array([0, 0, 99, -1]), good)
+    assert err.value.field == "layers[2]"
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", layers, good.astype(np.float64))
+    assert err.value.field == "rects"
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", layers, good[:, :3])
+    assert err.value.field == "rects"
+    with pytest.raises(eg.InputError) as err:
+        small_engine.score_columns("v", layers[:3], good)
+    assert err.value.field == "layers"
+    with pytest.raises(eg.LimitExceededError):
+        small_engine.score_columns("v", np.zeros(9, dtype=np.int64), np.repeat(good[:1], 9, axis=0))
+    with pytest.raises(eg.NotFoundError):
+        small_engine.score_columns("nope", layers, good)
+
+
+def test_empty_batch(small_engine: eg.Engine) -> None:
+    got = small_engine.score_columns("v", np.zeros(0, dtype=np.int64), np.zeros((0, 4), dtype=np.int64))
+    assert len(got) == 0 and got.vectorized_fraction == 0.0
