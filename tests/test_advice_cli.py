@@ -43,6 +43,16 @@ def test_json_output(tmp_path, capsys):
     assert data["diode"]["diff_area_um2"] == pytest.approx(101 / 36000, rel=1e-6)
 
 
+def test_only_some_answers(tmp_path, capsys):
+    deck, nets = write_case(tmp_path)
+    code = cli.main(["advise", "--rules", deck, nets, "--net", "n", "--run", "M1", "50", "50",
+                     "50050", "50", "--only", "hop", "--json"])
+    data = json.loads(capsys.readouterr().out)
+    assert code == 0 and data["best"]["layer"] == "M3"
+    assert data["jumper"] is None and data["diode"] is None
+    assert data["exact_scores"] == 3  # the run as is, then M3 and M5
+
+
 def test_exit_1_when_only_illegal_options(tmp_path, capsys):
     # M1..M2 only, and the flat table: no hop, the jumper keeps part but leaves the rest
     # unrouted (not a fix), and no diode suffices.

@@ -274,6 +274,10 @@ class _Run:
 # -- the advice -------------------------------------------------------------------------
 
 class _Advisor:
+    # False: the searches alone, without the closed forms (tests and the bench compare)
+    tangent_search = True
+    diode_closed_form = True
+
     def __init__(self, net: str, state: NetState, assessment: Assessment, costs: CostModel,
                  obstacles: ObstacleIndex | None, layer_range: tuple[int, int] | None,
                  req: AdviceRequest) -> None:
@@ -285,7 +289,6 @@ class _Advisor:
         self.req = req
         self.rect = run_rect(req.x1, req.y1, req.x2, req.y2, req.width)
         self.scores = 0
-        self.tangent_search = True  # False: the bisection search alone (tests compare the two)
 
     def score(self, shapes: list[Shape], detail: bool = True) -> Score:
         self.scores += 1
@@ -505,7 +508,7 @@ class _Advisor:
         best: DiodeAdvice | None = None
         reasons = []
         for p in order[:MAX_DIODE_PLACEMENTS]:
-            found = model.smallest(p)
+            found = model.smallest(p, self.diode_closed_form)
             pin = state.pins[p]
             if isinstance(found, str):
                 reasons.append(f"at {pin.name}: {found}")

@@ -15,7 +15,7 @@ import math
 import sys
 from typing import Any
 
-from ._advice import Advice
+from ._advice import ANSWERS, Advice
 from ._engine import Engine
 from ._errors import InputError
 from ._nets import load_net_file, resolve_layer
@@ -33,6 +33,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--width", type=int, default=None, help="run width in DBU (default: the layer's)")
     parser.add_argument("--non-preferred", action="store_true",
                         help="also consider layers whose preferred direction differs from the run's")
+    parser.add_argument("--only", nargs="+", choices=ANSWERS, default=None, metavar="ANSWER",
+                        help=f"compute only these answers ({', '.join(ANSWERS)}; default: all)")
     parser.add_argument("--json", action="store_true", help="print the whole advice as JSON")
 
 
@@ -85,7 +87,7 @@ def run(args: argparse.Namespace) -> int:
     for spec in specs:
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
     advice = engine.advise(args.net, layer, *coords, width=args.width,
-                           allow_non_preferred=args.non_preferred)
+                           allow_non_preferred=args.non_preferred, want=args.only)
     if args.json:
         json.dump(advice_as_dict(advice), sys.stdout, indent=1)
         sys.stdout.write("\n")

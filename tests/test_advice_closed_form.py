@@ -1,0 +1,173 @@
+"""The fast paths of the advice against the searches they replace, on seeded random cases.
+
+* Jumper: the secant steps from the far end (``_last_legal_by_tangents``) give the same
+  kept length as the bisection search alone, on every case; and the kept length is
+  tight by the independent shapely + networkx reference (tests/reference.py): legal,
+  and one DBU more illegal when the limit binds.
+* Diode: the closed form (no ratio depends on D) gives the search's area to the
+  search's precision (1e-9 relative), or "none" exactly when the search finds none;
+  decks with a gate factor or an area credit take the search (the closed form
+  declines) and must agree trivially, which the same comparison checks.
+* ``want``: asking for some answers gives those answers exactly as a full advice does.
+* The per-layer obstacle query finds what one query per rectangle finds.
+"""
+
+from __future__ import annotations
+
+import random
+
+import pytest
+
+from etchguard import Engine, InputError, Shape, loads_deck, make_pin
+from etchguard._advice import DIODE_REL_PRECISION, _Advisor
+from etchguard._obstacles import ObstacleIndex
+from test_advice import ADVICE_DECK, net_json, reference_legal
+from test_advice_random import jumper_at
+from etchguard._advice import via_stack
+
+CASES = 16
+
+
+def random_deck_text(rng: random.Random) -> str:
+    """The advice test deck's layers with random area rules per metal: a diode table
+    rising, or rising then falling, and on some cases a gate factor or an area credit
+    (which the closed form declines). Demo values."""
+    text = ADVICE_DECK.split("[[rules]]")[0]
+    factored = rng.random() < 0.25  # a deck with factors on some metals
+    for m in ("M1", "M2", "M3", "M4", "M5"):
+        mid = rng.choice([0.02, 0.05, 0.2])
+        table = [[0.0, 400.0], [mid, rng.choice([500.0, 900.0, 2000.0])],
+                 [mid * 3, rng.choice([450.0, 1500.0, 6000.0])]]
+        extra = rng.choice(["", "diode_gate_factor = 0.5", "diode_area_credit = 2.0"]) if factored else ""
+        text += (f'\n[[rules]]\nlayer = "{m}"\nmeasure = "area"\npartial_max = 400.0\n'
+                 f"diode_partial_max = {table!r}\n{extra}\n")
+    return text
+
+
+def far_side_case(seed: int):
+    rng = random.Random(1000 + seed)
+    toml = random_deck_text(rng)
+    deck = loads_deck(toml, f"closed-form-{seed}")
+    L = deck.layer_index
+    gate = make_pin(deck, "g", "M1", [[0, 0, 100, 100]], {"thin": rng.choice([0.006, 0.01, 0.013])})
+    driver = make_pin(deck, "d", "M1", [[119950, 0, 120050, 100]], None, rng.choice([0.05, 0.5]))
+    far_x = rng.randrange(30000, 90000, 10) + 50
+    shapes = via_stack(deck, far_x, 50, L["M1"], L["M3"]) + [Shape(L["M3"], (far_x - 50, 0, 120100, 100))]
+    shapes += via_stack(deck, 120000, 50, L["M1"], L["M3"])
+    # some of the net's own metal near the run: events for the jumper search
+    for _ in range(rng.randrange(0, 4)):
+        x = rng.randrange(2000, far_x - 2000)
+        shapes.append(Shape(L["M1"], (x, rng.choice([100, 150, -400]), x + rng.randrange(100, 3000),
+                                      rng.choice([300, 600]))))
+    engine = Engine(deck)
+    engine.open_net("n", [gate, driver], None, shapes)
+    return toml, deck, engine, far_x
+
+
+def advise_both(engine: Engine, *args, **kwargs):
+    """The advice with the closed forms and with the searches alone."""
+    fast = engine.advise(*args, **kwargs)
+    try:
+        _Advisor.tangent_search = _Advisor.diode_closed_form = False
+        slow = engine.advise(*args, **kwargs)
+    finally:
+        _Advisor.tangent_search = _Advisor.diode_closed_form = True
+    return fast, slow
+
+
+@pytest.mark.parametrize("seed", range(CASES))
+def test_closed_forms_equal_the_searches(seed):
+    toml, deck, engine, far_x = far_side_case(seed)
+    fast, slow = advise_both(engine, "n", 0, 50, 50, far_x, 50)
+    assert fast.legal_as_is == slow.legal_as_is
+    if fast.legal_as_is:
+        return
+    assert fast.options == slow.options
+    jf, js = fast.jumper, slow.jumper
+    assert (jf.kept_length, jf.limited_by, jf.hop_layer, jf.legal) == (js.kept_length, js.limited_by,
+                                                                      js.hop_layer, js.legal)
+    assert jf.shapes == js.shapes and jf.score == js.score
+    if jf.kept_length is not None and jf.hop_layer is not None:
+        target = deck.layer_index[jf.hop_layer]
+        assert reference_legal(toml, net_json(deck, engine, "n", jumper_at(deck, fast, jf.kept_length, target)))
+        if jf.limited_by == "limit" and jf.kept_length + 1 < jf.run_length:
+            more = jumper_at(deck, fast, jf.kept_length + 1, target)
+            assert not reference_legal(toml, net_json(deck, engine, "n", more))
+    df, ds = fast.diode, slow.diode
+    assert df.found == ds.found
+    if df.found:
+        assert df.gate == ds.gate
+        # the closed form is the least legal point; the search's bisection ends within
+        # its precision above it
+        assert df.diff_area_um2 == pytest.approx(ds.diff_area_um2, rel=2 * DIODE_REL_PRECISION, abs=1e-12)
+        run = [Shape(0, fast.rect)]
+        rects = [list(r) for r in df.rects]
+        ok = make_pin(deck, "diode", "M1", rects, None, df.diff_area_um2)
+        less = make_pin(deck, "diode", "M1", rects, None, df.diff_area_um2 * (1 - 1e-6))
+        assert reference_legal(toml, net_json(deck, engine, "n", run, [ok]))
+        assert not reference_legal(toml, net_json(deck, engine, "n", run, [less]))
+    # the fast paths take fewer exact scores, never more
+    assert fast.exact_scores <= slow.exact_scores
+
+
+def test_closed_forms_on_generated_nets():
+    from bench.netgen import generate_net
+    from bench.advice_bench import DECK, RUN_UM
+    from etchguard import load_deck
+    deck = load_deck(DECK)
+    engine = Engine(deck)
+    m1 = deck.layer_index["M1"]
+    for i in range(6):
+        net = generate_net(deck, 50, seed=11 + i, name=f"g{i}", origin=(i * 400_000, 0))
+        engine.open_net(net.name, net.pins, None, net.shapes)
+        gate = next(p for p in net.pins if p.gate_area)
+        r = gate.rects[0]
+        x, y = (r[0] + r[2]) // 2, (r[1] + r[3]) // 2
+        for length in (RUN_UM * 1000, RUN_UM * 400):
+            fast, slow = advise_both(engine, net.name, m1, x, y, x - length, y)
+            if fast.jumper is not None:
+                assert fast.jumper.kept_length == slow.jumper.kept_length
+                assert fast.jumper.score == slow.jumper.score
+            if fast.diode is not None:
+                assert fast.diode.found == slow.diode.found
+                if fast.diode.found:
+                    assert fast.diode.diff_area_um2 == pytest.approx(slow.diode.diff_area_um2,
+                                                                     rel=2 * DIODE_REL_PRECISION)
+
+
+def test_want_gives_the_same_answers_as_a_full_advice():
+    toml, deck, engine, far_x = far_side_case(3)
+    full = engine.advise("n", 0, 50, 50, far_x, 50)
+    assert not full.legal_as_is
+    hop = engine.advise("n", 0, 50, 50, far_x, 50, want=("hop",))
+    assert hop.options == full.options and hop.best == full.best
+    assert hop.jumper is None and hop.diode is None
+    assert hop.exact_scores == 1 + len(full.options)
+    jumper = engine.advise("n", 0, 50, 50, far_x, 50, want=["jumper"])
+    assert jumper.jumper == full.jumper and jumper.options == () and jumper.diode is None
+    diode = engine.advise("n", 0, 50, 50, far_x, 50, want={"diode"})
+    assert diode.diode == full.diode and diode.jumper is None and diode.options == ()
+    assert diode.exact_scores == 1  # the run as is; the diode model needs no what-if score
+    for bad in ("hop", ("hop", "via"), 3):
+        with pytest.raises(InputError) as e:
+            engine.advise("n", 0, 50, 50, far_x, 50, want=bad)
+        assert e.value.field == "want"
+
+
+def test_one_query_per_layer_finds_what_one_query_per_rect_finds():
+    rng = random.Random(5)
+    index = ObstacleIndex(2)
+    index.rebuild(2, [(rng.randrange(2), (x, y, x + rng.randrange(1, 300), y + rng.randrange(1, 300)),
+                       rng.choice(["a", "b", None]), ("shape", i))
+                      for i, (x, y) in enumerate((rng.randrange(0, 5000), rng.randrange(0, 5000))
+                                                 for _ in range(400))],
+                  {1: (0, (100, 100, 400, 400))})
+    for _ in range(200):
+        layer = rng.randrange(2)
+        rects = []
+        for _ in range(rng.randrange(1, 6)):
+            x, y = rng.randrange(0, 5000), rng.randrange(0, 5000)
+            rects.append((x, y, x + rng.randrange(1, 400), y + rng.randrange(1, 400)))
+        spacing = rng.choice([0, 50, 120])
+        assert index.conflicts_many("a", layer, rects, spacing) == [
+            index.conflicts("a", layer, r, spacing) for r in rects]
