@@ -50,6 +50,15 @@ Search methods, and what they rest on:
   ternary search for the minimum of the convex u decides whether any point is legal.
   Every value comes from the engine's exact what-if score, so the answer is tight by
   construction: l + 1 DBU is illegal (or l is ``hop_room``).
+  The first method tried on each interval is faster: within an interval every area is
+  affine in l, so u is convex and piecewise linear. From the right end, the line
+  through u at x - 1 and x bounds u from below left of x - 1 (convexity); past its
+  crossing of the legal bound no point is legal, so the next point tried is the
+  crossing's floor, which on a linear piece is the answer at once (typically four
+  exact scores for the whole search). The point found is confirmed by the exact
+  score of the next DBU; the bisection search above is the fallback whenever that
+  confirmation fails, a utilization is not finite, or eight steps do not settle it
+  (``_last_legal_by_tangents``).
 * Diode. Adding D only changes components that hold g. On them G_eff = G + k_gate*D
   and A_eff = max(0, f*A - k_credit*D) make every partial ratio, and every cumulative
   ratio (a sum of such terms), a convex non-increasing function of D > 0 (a
@@ -67,6 +76,17 @@ Search methods, and what they rest on:
   diode suffices when a violation lies in a component g never joins, or when, at the
   largest D considered, a check still fails (a table that flattens below a ratio the
   diode cannot lower when k_gate = k_credit = 0); the reason names the check.
+  Closed form, tried first: when no rule a check uses at the diode's components has
+  k_gate or k_credit, every ratio is the same for all D > 0 and only the limits move.
+  The least legal D is then tiny D or the first upward crossing of a check's ratio by
+  its (shifted) table, solved on that table segment, at which every check holds; none
+  holding means no D is legal. It is confirmed by the exact evaluation; otherwise the
+  search decides (``_DiodeModel._closed_form``).
+
+Answers asked for (``want``, a subset of ``ANSWERS``): without "hop" the layer options
+are not reported; when the jumper needs its hop layer they are scored nearest first
+only up to the first legal free one (the layer a full advice would pick too).
+``Advice.exact_scores`` counts the what-if scores an answer took.
 """
 
 from __future__ import annotations
