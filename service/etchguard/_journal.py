@@ -351,7 +351,7 @@ class Recovery:
     segments: list[Path] = field(default_factory=list)
     records: int = 0
     torn: list[TornTail] = field(default_factory=list)
-    deck_text: str | None = None  # the deck in force after recovery
+    deck_text: str | None = field(default=None, repr=False)  # the deck in force after recovery
     next_segment: int = 1
     seconds: float = 0.0
 
