@@ -22,7 +22,7 @@ from ._assess import Assessment
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from ._geometry import Rect
 from ._netstate import NetState
-from ._nets import NetSpec, Pin, Shape
+from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._ratios import StepModel, conductor_headroom
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck
@@ -153,7 +153,9 @@ class Engine:
             raise LimitExceededError(f"{len(pins)} pins exceed the limit of "
                                      f"{self.limits.max_pins_per_net} per net", "pins")
         names = set()
+        steps = len(self.deck.layers)
         for i, pin in enumerate(pins):
+            check_pin_object(steps, pin, f"pins[{i}]")
             if pin.name in names:
                 raise InputError(f"pin {pin.name!r} appears twice", f"pins[{i}].name")
             names.add(pin.name)
@@ -239,8 +241,7 @@ class Engine:
             raise LimitExceededError(f"{held + len(shapes)} shapes would exceed the limit of "
                                      f"{self.limits.max_shapes_per_net} per net", "shapes")
         for i, s in enumerate(shapes):
-            if not isinstance(s, Shape) or not 0 <= s.layer < n:
-                raise InputError("not a shape on a layer of the deck", f"shapes[{i}]")
+            check_shape_object(n, s, f"shapes[{i}]")
 
     def commit(self, name: str, shapes: Sequence[Shape]) -> list[int]:
         """Add shapes to a net; returns their ids, in order."""

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from ._errors import InputError
-from ._geometry import Rect, checked_rect, run_rect, square
+from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect, square
 from ._rules import DEFAULT_OXIDE, Deck
 
 
@@ -186,3 +186,46 @@ def via_shapes(deck: Deck, cut_layer: int, x: int, y: int) -> list[Shape]:
     pad = info.cut_size + 2 * (info.enclosure or 0)
     return [Shape(cut_layer - 1, square(x, y, pad)), Shape(cut_layer, square(x, y, info.cut_size)),
             Shape(cut_layer + 1, square(x, y, pad))]
+
+
+def _fast_rect_ok(r: object) -> bool:
+    return (type(r) is tuple and len(r) == 4 and all(type(v) is int for v in r)
+            and r[0] < r[2] and r[1] < r[3]  # type: ignore[index]
+            and -COORD_LIMIT < r[0] and r[2] < COORD_LIMIT  # type: ignore[index]
+            and -COORD_LIMIT < r[1] and r[3] < COORD_LIMIT)  # type: ignore[index]
+
+
+def check_shape_object(steps: int, shape: object, field_name: str) -> None:
+    """Refuse a Shape object handed to the engine directly that the edge would refuse."""
+    if not isinstance(shape, Shape) or type(shape.layer) is not int or not 0 <= shape.layer < steps:
+        raise InputError("not a shape on a layer of the deck", field_name)
+    if not _fast_rect_ok(shape.rect):
+        if not isinstance(shape.rect, (tuple, list)):
+            raise InputError("a rectangle is four integer DBU coordinates", f"{field_name}.rect")
+        checked_rect(shape.rect, f"{field_name}.rect")  # raises with the precise reason
+        raise InputError("a rectangle is a tuple of four ints", f"{field_name}.rect")
+
+
+def check_pin_object(steps: int, pin: object, field_name: str) -> None:
+    """Refuse a Pin object handed to the engine directly that make_pin would refuse."""
+    if not isinstance(pin, Pin):
+        raise InputError("not a pin", field_name)
+    if not isinstance(pin.name, str) or not pin.name:
+        raise InputError("a pin needs a non-empty name", f"{field_name}.name")
+    if type(pin.layer) is not int or not 0 <= pin.layer < steps:
+        raise InputError("not a layer of the deck", f"{field_name}.layer")
+    if not pin.rects:
+        raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
+    for i, r in enumerate(pin.rects):
+        if not _fast_rect_ok(r):
+            checked_rect(r if isinstance(r, (tuple, list)) else (), f"{field_name}.rects[{i}]")
+            raise InputError("a rectangle is a tuple of four ints", f"{field_name}.rects[{i}]")
+    for oxide, value in pin.gate_area.items():
+        if not isinstance(oxide, str) or not oxide:
+            raise InputError(f"oxide class must be a non-empty name, got {oxide!r}", f"{field_name}.gate_area")
+        _area(value, f"{field_name}.gate_area.{oxide}")
+    _area(pin.diff_area, f"{field_name}.diff_area")
+    for step, value in pin.cell_area.items():
+        if type(step) is not int or not 0 <= step < steps:
+            raise InputError("not a layer of the deck", f"{field_name}.cell_area")
+        _area(value, f"{field_name}.cell_area")

@@ -274,6 +274,11 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
                                 "listed bottom-up in process order)",
                                 f"{source}: layers[{layer.index}] ({layer.name})")
 
+    for above, below in zip(layers[1:], layers):
+        if above.is_routing and below.is_routing:
+            raise DeckError("routing layers are interleaved with cut layers (M1, V1, M2, ...); "
+                            f"{below.name} and {above.name} have no cut layer between them",
+                            f"{source}: layers[{above.index}] ({above.name})")
     raw_rules = data.get("rules", [])
     if not isinstance(raw_rules, list):
         top.fail("rules", "must be an array of tables ([[rules]])")
