@@ -216,6 +216,13 @@ def _ids(reply: pb.ShapeIds) -> list[int]:
     return list(reply.shape_ids)
 
 
+def advise_request(net: str, layer: str, x1: int, y1: int, x2: int, y2: int, width: int = 0,
+                   allow_non_preferred: bool = False, want: Sequence[str] = ()) -> pb.AdviseRequest:
+    """An AdviseRequest for a run given by its centre line (width 0: the layer's)."""
+    return pb.AdviseRequest(net=net, layer=layer, x1=x1, y1=y1, x2=x2, y2=y2, width=width,
+                            allow_non_preferred=allow_non_preferred, want=list(want))
+
+
 class Client:
     """A connection to an etchguard server. Use as a context manager, or call close().
 
@@ -330,6 +337,12 @@ class Client:
 
     def check(self, net: str) -> pb.NetReport:
         return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
+
+    def advise(self, net: str, layer: str, x1: int, y1: int, x2: int, y2: int, *, width: int = 0,
+               allow_non_preferred: bool = False, want: Sequence[str] = ()) -> pb.AdviseReply:
+        """Repair advice for a run (layer hop, jumper point, diode); ``want`` picks some."""
+        return self._call(self.stub.Advise, advise_request(net, layer, x1, y1, x2, y2, width,
+                                                           allow_non_preferred, want))
 
     def check_all(self, violations_only: bool = False) -> Iterator[pb.NetReport]:
         """Reports of every open net, streamed as the server computes them."""
@@ -480,6 +493,11 @@ class Session:
 
     def check(self, net: str) -> pb.NetReport:
         return self.ask("check", pb.CheckNetRequest(net=net))
+
+    def advise(self, net: str, layer: str, x1: int, y1: int, x2: int, y2: int, *, width: int = 0,
+               allow_non_preferred: bool = False, want: Sequence[str] = ()) -> pb.AdviseReply:
+        return self.ask("advise", advise_request(net, layer, x1, y1, x2, y2, width,
+                                                 allow_non_preferred, want))
 
     def close_net(self, net: str) -> None:
         self.ask("close_net", pb.CloseNetRequest(net=net))

@@ -223,3 +223,72 @@ def stats_into(out, stats: dict, deck_name: str, uptime_s: float, version: str) 
     out.deck = deck_name
     out.uptime_s = uptime_s
     out.version = version
+
+
+def _rect_into(out, r) -> None:
+    out.xlo, out.ylo, out.xhi, out.yhi = r
+
+
+def _placed_into(container, shapes) -> None:
+    for placed in shapes:
+        _rect_into(container.add(layer=placed.layer).rect, placed.rect)
+
+
+def _conflicts_into(container, conflicts, layer_names) -> None:
+    for c in conflicts:
+        msg = container.add(layer=layer_names[c.layer], owner=c.owner, other_net=c.net or "", distance_dbu=c.distance,
+                            spacing_dbu=c.spacing)
+        _rect_into(msg.proposed, c.proposed)
+        _rect_into(msg.rect, c.rect)
+        if c.blockage_id is not None:
+            msg.blockage_id = c.blockage_id
+
+
+def advice_into(out, advice, layer_names) -> None:
+    """Fill an AdviseReply from an engine Advice (``layer_names``: step -> name)."""
+    score_into(out.score, advice.score)
+    out.legal_as_is = advice.legal_as_is
+    out.found = advice.found
+    _rect_into(out.rect, advice.rect)
+    out.width = advice.width
+    if advice.join_end is not None:
+        out.join_end.x, out.join_end.y = advice.join_end
+    if advice.far_end is not None:
+        out.far_end.x, out.far_end.y = advice.far_end
+    for i, option in enumerate(advice.options):
+        msg = out.options.add(layer=option.layer, preferred=option.preferred, status=option.status,
+                              legal=option.legal, blocked=option.blocked, cuts=option.cuts)
+        _placed_into(msg.shapes, option.shapes)
+        score_into(msg.score, option.score)
+        _conflicts_into(msg.conflicts, option.conflicts, layer_names)
+        if option is advice.best:
+            out.best_option = i
+    j = advice.jumper
+    if j is not None:
+        msg = out.jumper
+        msg.applicable, msg.reason = j.applicable, j.reason
+        msg.run_length_dbu, msg.hop_room_dbu, msg.limited_by = j.run_length, j.hop_room, j.limited_by
+        if j.kept_length is not None:
+            msg.kept_length_dbu = j.kept_length
+        if j.hop_point is not None:
+            msg.hop_point.x, msg.hop_point.y = j.hop_point
+        msg.hop_layer = j.hop_layer or ""
+        _placed_into(msg.shapes, j.shapes)
+        if j.score is not None:
+            score_into(msg.score, j.score)
+        msg.legal, msg.blocked = j.legal, j.blocked
+        _conflicts_into(msg.conflicts, j.conflicts, layer_names)
+    d = advice.diode
+    if d is not None:
+        msg = out.diode
+        msg.found, msg.reason = d.found, d.reason
+        msg.gate, msg.layer = d.gate or "", d.layer or ""
+        for r in d.rects:
+            _rect_into(msg.rects.add(), r)
+        if d.diff_area_um2 is not None:
+            msg.diff_area_um2 = d.diff_area_um2
+        if d.worst_utilization is not None:
+            msg.worst_utilization = d.worst_utilization
+    out.explanation.extend(advice.explanation)
+    out.exact_scores = advice.exact_scores
+

@@ -15,7 +15,7 @@ from time import perf_counter
 
 import grpc
 
-from .. import EtchguardError, NoDeckError, __version__, loads_deck, resolve_layer
+from .. import EtchguardError, InputError, NoDeckError, __version__, loads_deck, resolve_layer
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from . import convert, errors
@@ -89,6 +89,16 @@ def _check(self, req, out):
     convert.report_into(out, self.engine.check(req.net))
 
 
+def _advise(self, req, out):
+    deck = self.engine.deck
+    layer = resolve_layer(deck, req.layer, "layer")
+    if req.width < 0:
+        raise InputError(f"width must be >= 0 DBU (0 = the layer default), got {req.width}", "width")
+    advice = self.engine.advise(req.net, layer, req.x1, req.y1, req.x2, req.y2, req.width or None,
+                                req.allow_non_preferred, list(req.want) or None)
+    convert.advice_into(out, advice, [l.name for l in deck.layers])
+
+
 def _stats(self, req, out):
     try:
         deck_name = self.engine.deck.name
@@ -119,6 +129,7 @@ def _unary(name: str, fill, reply_type):
 _SESSION_OPS = {
     "commit": _commit, "remove": _remove, "score": _score, "score_batch": _score_batch,
     "headroom": _headroom, "check": _check, "open_net": _open_net, "close_net": _close_net,
+    "advise": _advise,
 }
 
 
@@ -128,7 +139,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
     METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
-               "ScoreBatch", "Headroom", "CheckNet", "CheckAll", "GetStats",
+               "ScoreBatch", "Headroom", "CheckNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
     def __init__(self, engine, metrics) -> None:
@@ -146,6 +157,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)
     CheckNet = _unary("CheckNet", _check, pb.NetReport)
+    Advise = _unary("Advise", _advise, pb.AdviseReply)
     GetStats = _unary("GetStats", _stats, pb.Stats)
 
     def CheckAll(self, request, context):

@@ -405,6 +405,164 @@ class NetReport(_message.Message):
     checks: _containers.RepeatedCompositeFieldContainer[Check]
     def __init__(self, net: _Optional[str] = ..., legal: _Optional[bool] = ..., worst_utilization: _Optional[float] = ..., checks: _Optional[_Iterable[_Union[Check, _Mapping]]] = ...) -> None: ...
 
+class AdviseRequest(_message.Message):
+    __slots__ = ("net", "layer", "x1", "y1", "x2", "y2", "width", "allow_non_preferred", "want")
+    NET_FIELD_NUMBER: _ClassVar[int]
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    X1_FIELD_NUMBER: _ClassVar[int]
+    Y1_FIELD_NUMBER: _ClassVar[int]
+    X2_FIELD_NUMBER: _ClassVar[int]
+    Y2_FIELD_NUMBER: _ClassVar[int]
+    WIDTH_FIELD_NUMBER: _ClassVar[int]
+    ALLOW_NON_PREFERRED_FIELD_NUMBER: _ClassVar[int]
+    WANT_FIELD_NUMBER: _ClassVar[int]
+    net: str
+    layer: str
+    x1: int
+    y1: int
+    x2: int
+    y2: int
+    width: int
+    allow_non_preferred: bool
+    want: _containers.RepeatedScalarFieldContainer[str]
+    def __init__(self, net: _Optional[str] = ..., layer: _Optional[str] = ..., x1: _Optional[int] = ..., y1: _Optional[int] = ..., x2: _Optional[int] = ..., y2: _Optional[int] = ..., width: _Optional[int] = ..., allow_non_preferred: _Optional[bool] = ..., want: _Optional[_Iterable[str]] = ...) -> None: ...
+
+class Point(_message.Message):
+    __slots__ = ("x", "y")
+    X_FIELD_NUMBER: _ClassVar[int]
+    Y_FIELD_NUMBER: _ClassVar[int]
+    x: int
+    y: int
+    def __init__(self, x: _Optional[int] = ..., y: _Optional[int] = ...) -> None: ...
+
+class PlacedShape(_message.Message):
+    __slots__ = ("layer", "rect")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    RECT_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    rect: Rect
+    def __init__(self, layer: _Optional[str] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ...) -> None: ...
+
+class Conflict(_message.Message):
+    __slots__ = ("layer", "proposed", "rect", "owner", "other_net", "blockage_id", "distance_dbu", "spacing_dbu")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    PROPOSED_FIELD_NUMBER: _ClassVar[int]
+    RECT_FIELD_NUMBER: _ClassVar[int]
+    OWNER_FIELD_NUMBER: _ClassVar[int]
+    OTHER_NET_FIELD_NUMBER: _ClassVar[int]
+    BLOCKAGE_ID_FIELD_NUMBER: _ClassVar[int]
+    DISTANCE_DBU_FIELD_NUMBER: _ClassVar[int]
+    SPACING_DBU_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    proposed: Rect
+    rect: Rect
+    owner: str
+    other_net: str
+    blockage_id: int
+    distance_dbu: float
+    spacing_dbu: int
+    def __init__(self, layer: _Optional[str] = ..., proposed: _Optional[_Union[Rect, _Mapping]] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., owner: _Optional[str] = ..., other_net: _Optional[str] = ..., blockage_id: _Optional[int] = ..., distance_dbu: _Optional[float] = ..., spacing_dbu: _Optional[int] = ...) -> None: ...
+
+class LayerOption(_message.Message):
+    __slots__ = ("layer", "preferred", "status", "legal", "blocked", "shapes", "cuts", "score", "conflicts")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    PREFERRED_FIELD_NUMBER: _ClassVar[int]
+    STATUS_FIELD_NUMBER: _ClassVar[int]
+    LEGAL_FIELD_NUMBER: _ClassVar[int]
+    BLOCKED_FIELD_NUMBER: _ClassVar[int]
+    SHAPES_FIELD_NUMBER: _ClassVar[int]
+    CUTS_FIELD_NUMBER: _ClassVar[int]
+    SCORE_FIELD_NUMBER: _ClassVar[int]
+    CONFLICTS_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    preferred: bool
+    status: str
+    legal: bool
+    blocked: bool
+    shapes: _containers.RepeatedCompositeFieldContainer[PlacedShape]
+    cuts: int
+    score: ScoreReply
+    conflicts: _containers.RepeatedCompositeFieldContainer[Conflict]
+    def __init__(self, layer: _Optional[str] = ..., preferred: _Optional[bool] = ..., status: _Optional[str] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., cuts: _Optional[int] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
+
+class JumperAdvice(_message.Message):
+    __slots__ = ("applicable", "reason", "run_length_dbu", "kept_length_dbu", "hop_room_dbu", "limited_by", "hop_point", "hop_layer", "shapes", "score", "legal", "blocked", "conflicts")
+    APPLICABLE_FIELD_NUMBER: _ClassVar[int]
+    REASON_FIELD_NUMBER: _ClassVar[int]
+    RUN_LENGTH_DBU_FIELD_NUMBER: _ClassVar[int]
+    KEPT_LENGTH_DBU_FIELD_NUMBER: _ClassVar[int]
+    HOP_ROOM_DBU_FIELD_NUMBER: _ClassVar[int]
+    LIMITED_BY_FIELD_NUMBER: _ClassVar[int]
+    HOP_POINT_FIELD_NUMBER: _ClassVar[int]
+    HOP_LAYER_FIELD_NUMBER: _ClassVar[int]
+    SHAPES_FIELD_NUMBER: _ClassVar[int]
+    SCORE_FIELD_NUMBER: _ClassVar[int]
+    LEGAL_FIELD_NUMBER: _ClassVar[int]
+    BLOCKED_FIELD_NUMBER: _ClassVar[int]
+    CONFLICTS_FIELD_NUMBER: _ClassVar[int]
+    applicable: bool
+    reason: str
+    run_length_dbu: int
+    kept_length_dbu: int
+    hop_room_dbu: int
+    limited_by: str
+    hop_point: Point
+    hop_layer: str
+    shapes: _containers.RepeatedCompositeFieldContainer[PlacedShape]
+    score: ScoreReply
+    legal: bool
+    blocked: bool
+    conflicts: _containers.RepeatedCompositeFieldContainer[Conflict]
+    def __init__(self, applicable: _Optional[bool] = ..., reason: _Optional[str] = ..., run_length_dbu: _Optional[int] = ..., kept_length_dbu: _Optional[int] = ..., hop_room_dbu: _Optional[int] = ..., limited_by: _Optional[str] = ..., hop_point: _Optional[_Union[Point, _Mapping]] = ..., hop_layer: _Optional[str] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
+
+class DiodeAdvice(_message.Message):
+    __slots__ = ("found", "reason", "gate", "layer", "rects", "diff_area_um2", "worst_utilization")
+    FOUND_FIELD_NUMBER: _ClassVar[int]
+    REASON_FIELD_NUMBER: _ClassVar[int]
+    GATE_FIELD_NUMBER: _ClassVar[int]
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    RECTS_FIELD_NUMBER: _ClassVar[int]
+    DIFF_AREA_UM2_FIELD_NUMBER: _ClassVar[int]
+    WORST_UTILIZATION_FIELD_NUMBER: _ClassVar[int]
+    found: bool
+    reason: str
+    gate: str
+    layer: str
+    rects: _containers.RepeatedCompositeFieldContainer[Rect]
+    diff_area_um2: float
+    worst_utilization: float
+    def __init__(self, found: _Optional[bool] = ..., reason: _Optional[str] = ..., gate: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., diff_area_um2: _Optional[float] = ..., worst_utilization: _Optional[float] = ...) -> None: ...
+
+class AdviseReply(_message.Message):
+    __slots__ = ("score", "legal_as_is", "found", "rect", "width", "join_end", "far_end", "options", "best_option", "jumper", "diode", "explanation", "exact_scores")
+    SCORE_FIELD_NUMBER: _ClassVar[int]
+    LEGAL_AS_IS_FIELD_NUMBER: _ClassVar[int]
+    FOUND_FIELD_NUMBER: _ClassVar[int]
+    RECT_FIELD_NUMBER: _ClassVar[int]
+    WIDTH_FIELD_NUMBER: _ClassVar[int]
+    JOIN_END_FIELD_NUMBER: _ClassVar[int]
+    FAR_END_FIELD_NUMBER: _ClassVar[int]
+    OPTIONS_FIELD_NUMBER: _ClassVar[int]
+    BEST_OPTION_FIELD_NUMBER: _ClassVar[int]
+    JUMPER_FIELD_NUMBER: _ClassVar[int]
+    DIODE_FIELD_NUMBER: _ClassVar[int]
+    EXPLANATION_FIELD_NUMBER: _ClassVar[int]
+    EXACT_SCORES_FIELD_NUMBER: _ClassVar[int]
+    score: ScoreReply
+    legal_as_is: bool
+    found: bool
+    rect: Rect
+    width: int
+    join_end: Point
+    far_end: Point
+    options: _containers.RepeatedCompositeFieldContainer[LayerOption]
+    best_option: int
+    jumper: JumperAdvice
+    diode: DiodeAdvice
+    explanation: _containers.RepeatedScalarFieldContainer[str]
+    exact_scores: int
+    def __init__(self, score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal_as_is: _Optional[bool] = ..., found: _Optional[bool] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., width: _Optional[int] = ..., join_end: _Optional[_Union[Point, _Mapping]] = ..., far_end: _Optional[_Union[Point, _Mapping]] = ..., options: _Optional[_Iterable[_Union[LayerOption, _Mapping]]] = ..., best_option: _Optional[int] = ..., jumper: _Optional[_Union[JumperAdvice, _Mapping]] = ..., diode: _Optional[_Union[DiodeAdvice, _Mapping]] = ..., explanation: _Optional[_Iterable[str]] = ..., exact_scores: _Optional[int] = ...) -> None: ...
+
 class GetStatsRequest(_message.Message):
     __slots__ = ()
     def __init__(self) -> None: ...
@@ -436,7 +594,7 @@ class Stats(_message.Message):
     def __init__(self, nets: _Optional[int] = ..., shapes: _Optional[int] = ..., hot_nets: _Optional[int] = ..., scores: _Optional[int] = ..., commits: _Optional[int] = ..., removals: _Optional[int] = ..., checks: _Optional[int] = ..., violations_seen: _Optional[int] = ..., deck: _Optional[str] = ..., uptime_s: _Optional[float] = ..., version: _Optional[str] = ...) -> None: ...
 
 class SessionRequest(_message.Message):
-    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net")
+    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
     REMOVE_FIELD_NUMBER: _ClassVar[int]
@@ -446,6 +604,7 @@ class SessionRequest(_message.Message):
     CHECK_FIELD_NUMBER: _ClassVar[int]
     OPEN_NET_FIELD_NUMBER: _ClassVar[int]
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
+    ADVISE_FIELD_NUMBER: _ClassVar[int]
     seq: int
     commit: CommitRequest
     remove: RemoveRequest
@@ -455,7 +614,8 @@ class SessionRequest(_message.Message):
     check: CheckNetRequest
     open_net: OpenNetRequest
     close_net: CloseNetRequest
-    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ...) -> None: ...
+    advise: AdviseRequest
+    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ..., advise: _Optional[_Union[AdviseRequest, _Mapping]] = ...) -> None: ...
 
 class SessionError(_message.Message):
     __slots__ = ("code", "message", "field")
@@ -468,7 +628,7 @@ class SessionError(_message.Message):
     def __init__(self, code: _Optional[int] = ..., message: _Optional[str] = ..., field: _Optional[str] = ...) -> None: ...
 
 class SessionReply(_message.Message):
-    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net")
+    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     ERROR_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
@@ -479,6 +639,7 @@ class SessionReply(_message.Message):
     CHECK_FIELD_NUMBER: _ClassVar[int]
     OPEN_NET_FIELD_NUMBER: _ClassVar[int]
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
+    ADVISE_FIELD_NUMBER: _ClassVar[int]
     seq: int
     error: SessionError
     commit: ShapeIds
@@ -489,4 +650,5 @@ class SessionReply(_message.Message):
     check: NetReport
     open_net: ShapeIds
     close_net: CloseNetReply
-    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ...) -> None: ...
+    advise: AdviseReply
+    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ..., advise: _Optional[_Union[AdviseReply, _Mapping]] = ...) -> None: ...

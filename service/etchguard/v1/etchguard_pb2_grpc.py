@@ -90,6 +90,11 @@ class AntennaServiceStub:
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CheckAllRequest.SerializeToString,
                 response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.NetReport.FromString,
                 _registered_method=True)
+        self.Advise = channel.unary_unary(
+                '/etchguard.v1.AntennaService/Advise',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.AdviseRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.AdviseReply.FromString,
+                _registered_method=True)
         self.GetStats = channel.unary_unary(
                 '/etchguard.v1.AntennaService/GetStats',
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.GetStatsRequest.SerializeToString,
@@ -185,6 +190,15 @@ class AntennaServiceServicer:
         context.set_details('Method not implemented!')
         raise NotImplementedError('Method not implemented!')
 
+    def Advise(self, request, context):
+        """Repair advice for a candidate run that would break a limit: the nearest legal
+        layer hop (a jumper) with its via stacks, how much of the run may stay on its
+        layer, and the smallest diode at the gate side. Changes nothing.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
     def GetStats(self, request, context):
         """Counters of the engine and the server.
         """
@@ -258,6 +272,11 @@ def add_AntennaServiceServicer_to_server(servicer, server):
                     servicer.CheckAll,
                     request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.CheckAllRequest.FromString,
                     response_serializer=etchguard_dot_v1_dot_etchguard__pb2.NetReport.SerializeToString,
+            ),
+            'Advise': grpc.unary_unary_rpc_method_handler(
+                    servicer.Advise,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.AdviseRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.AdviseReply.SerializeToString,
             ),
             'GetStats': grpc.unary_unary_rpc_method_handler(
                     servicer.GetStats,
@@ -568,6 +587,33 @@ class AntennaService:
             '/etchguard.v1.AntennaService/CheckAll',
             etchguard_dot_v1_dot_etchguard__pb2.CheckAllRequest.SerializeToString,
             etchguard_dot_v1_dot_etchguard__pb2.NetReport.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def Advise(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/Advise',
+            etchguard_dot_v1_dot_etchguard__pb2.AdviseRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.AdviseReply.FromString,
             options,
             channel_credentials,
             insecure,
