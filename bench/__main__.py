@@ -49,11 +49,15 @@ def main(argv: Sequence[str] | None = None) -> int:
             continue  # a helper module (net generator, baseline), not a bench
         print(f"== bench.{name}", flush=True)
         start = time.perf_counter()
+        saved_argv = sys.argv
+        sys.argv = [f"bench.{name}"]  # a bench parsing sys.argv must not see the runner's selection
         try:
             code = entry()
         except Exception:
             traceback.print_exc()
             code = 1
+        finally:
+            sys.argv = saved_argv
         print(f"== bench.{name}: {'ok' if not code else f'failed ({code})'} "
               f"in {time.perf_counter() - start:.0f} s", flush=True)
         ran.append(name)
