@@ -100,6 +100,7 @@ class Assessment:
     def __init__(self, state: NetState) -> None:
         model = state.model
         self.version = state.version
+        self.join_plans: dict[tuple[int, int], object] = {}  # what-if constants (see _whatif)
         self.pins_ox = [dict(p.gate_area) for p in state.pins]
         n = model.steps
         cars: CarTable = {}

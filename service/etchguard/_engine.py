@@ -26,7 +26,7 @@ from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._ratios import StepModel, conductor_headroom
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck
-from ._whatif import CostModel, score
+from ._whatif import CostModel, score, score_joining
 # columnar batch scores of single-rectangle candidates (numpy): see score_columns below
 import numpy as np
 from ._batch import BatchScores, score_columns as _score_columns
@@ -319,7 +319,12 @@ class Engine:
         net = self._net(name)
         with net.lock:
             state = self._state(net)
-            result = score(state, self._assessment(net, state), list(candidate), self.costs, detail)
+            assessment = self._assessment(net, state)
+            result = None
+            if not detail and len(candidate) == 1:
+                result = score_joining(state, assessment, candidate[0], self.costs)
+            if result is None:
+                result = score(state, assessment, list(candidate), self.costs, detail)
         self.counters["scores"] += 1
         return result
 

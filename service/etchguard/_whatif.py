@@ -21,7 +21,7 @@ from ._assess import Assessment, Entry, comp_entries, utilization_only
 from ._geometry import Rect, edge_touch, overlap, union_measures
 from ._netstate import Comp, NetState
 from ._nets import Shape
-from ._ratios import conductor_headroom, is_legal
+from ._ratios import conductor_headroom, is_legal, utilization
 from ._reports import RatioChange, Score
 
 
@@ -248,3 +248,122 @@ def _change(state: NetState, e: Entry, before: list[Entry], one_predecessor: boo
         worst_prior.ratio if worst_prior else None,
         worst_prior.utilization if worst_prior else None,
         e.ratio, e.limit, e.utilization, room, length)
+
+
+class _JoinPlan:
+    """What stays fixed while candidates extend one component C at step L.
+
+    For a single rectangle on layer L that joins exactly C at L and nothing else at
+    any later step, everything about the what-if but two integers (the area and
+    perimeter it adds) is a constant of (C, L): the partial checks at L get the new
+    conductor, each (measure, oxide) group's term at L changes by the same amount for
+    every gate of C, and a cumulative check at a later step s of L's lane takes
+    max(best CAR of C's gates + change, best CAR of the other gates of C_s). The plan
+    holds those constants, built with the same calls as the general path, so the
+    floats come out bit for bit the same (float addition is monotone, so the best
+    CAR plus a change is the best of the sums).
+    """
+
+    __slots__ = ("comp", "partial", "groups", "old_terms", "steps", "floor")
+
+    def __init__(self, state: NetState, assessment: Assessment, comp: Comp, layer: int) -> None:
+        model = state.model
+        self.comp = comp
+        oxides = comp.gate_ox
+        self.partial = [(key.rule, key.measure, key.rule.partial_limit(comp.diff))
+                        for key in model.partial_checks[layer] if key.oxide in oxides]
+        # groups whose term changes for some gate of C, and their old term at L
+        self.groups = [gi for gi, (_m, ox) in enumerate(model.groups)
+                       if any(ox in assessment.pins_ox[p] for p in comp.gates)]
+        self.old_terms = {gi: model.term(layer, gi, comp.area, comp.cell, comp.perim, comp.gate,
+                                         comp.diff) for gi in self.groups}
+        in_comp = set(comp.gates)
+        anchor = state.anchor_of_pin[comp.gates[0]]
+        lane = model.lane[layer]
+        floor = assessment.worst_below[layer]
+        # per step: (cumulative checks [(group, limit, best CAR in C, best CAR outside)],
+        #            fixed worst when nothing changes there, fixed worst around the checks)
+        self.steps: list[tuple[int, list[tuple[int, float, float, float]], float, float]] = []
+        for s in range(layer, model.steps):
+            c_s = state.comp_at[s][anchor]
+            floor = max(floor, assessment.worst_untouched(s, {c_s}))
+            checks = []
+            for key in model.cumulative_checks[s]:
+                if key.oxide not in c_s.gate_ox:
+                    continue
+                gi = model.group_index[(key.measure, key.oxide)]
+                best_in = best_out = -1.0
+                for p in c_s.gates:
+                    if key.oxide in assessment.pins_ox[p]:
+                        value = assessment.cars[(p, gi)][s]
+                        if p in in_comp:
+                            best_in = max(best_in, value)
+                        else:
+                            best_out = max(best_out, value)
+                checks.append((gi, key.rule.cumulative_limit(c_s.diff), best_in, best_out))
+            unchanged = max(assessment.partial_worst[s].get(c_s, 0.0),
+                            _unchanged_worst(assessment, s, c_s))
+            # at L the component changes: its old partial figures are not in the answer
+            around = 0.0 if s == layer else assessment.partial_worst[s].get(c_s, 0.0)
+            if s == layer or model.lane[s] == lane:
+                self.steps.append((s, checks, unchanged, around))
+            else:
+                floor = max(floor, unchanged)
+        self.floor = floor
+
+
+def _joins_one(state: NetState, touches: list[tuple[int, int]], layer: int) -> Comp | None:
+    """The one component a rectangle on ``layer`` joins at every step, if it is so."""
+    if not touches:
+        return None
+    comp_at = state.comp_at
+    first = touches[0][0]
+    if any(joined == layer and comp_at[layer][e] is not comp_at[layer][first] for e, joined in touches):
+        return None
+    if any(joined != layer for _e, joined in touches):
+        if layer + 1 >= state.model.steps or any(
+                comp_at[layer + 1][e] is not comp_at[layer + 1][first] for e, _j in touches):
+            return None
+    if all(joined != layer for _e, joined in touches):
+        return None  # floating at its own step: the general path says what it does
+    return comp_at[layer][first]
+
+
+def score_joining(state: NetState, assessment: Assessment, cand: Shape, costs: CostModel) -> Score | None:
+    """The what-if of one rectangle that joins one gate-connected component, or None
+    when the general path is needed. Equal to ``score(..., detail=False)``."""
+    layer, rect = cand.layer, cand.rect
+    touches = state.touching(layer, rect)
+    comp = _joins_one(state, touches, layer)
+    if comp is None or comp.gate <= 0:
+        return None
+    plans = assessment.join_plans
+    plan = plans.get((id(comp), layer))
+    if plan is None or plan.comp is not comp:
+        plan = plans[(id(comp), layer)] = _JoinPlan(state, assessment, comp, layer)
+    model = state.model
+    area, perim = _local_change(state, [rect], [touches], layer)
+    new_area, new_perim = comp.area + area, comp.perim + perim
+    worst_change = 0.0
+    for rule, measure, limit in plan.partial:
+        conductor = model.conductor(layer, measure, new_area, comp.cell, new_perim)
+        u = utilization(rule.ratio(conductor, comp.gate, comp.diff), limit)
+        if u > worst_change:
+            worst_change = u
+    change = {gi: model.term(layer, gi, new_area, comp.cell, new_perim, comp.gate, comp.diff)
+              - plan.old_terms[gi] for gi in plan.groups}
+    moved = any(change.values())
+    worst_net = plan.floor
+    for s, checks, unchanged, around in plan.steps:
+        if s != layer and not moved:
+            worst_net = max(worst_net, unchanged)
+            continue
+        worst_net = max(worst_net, around)
+        for gi, limit, best_in, best_out in checks:
+            value = best_in + change[gi] if gi in change and best_in >= 0 else best_in
+            u = utilization(max(value, best_out), limit)
+            if u > worst_change:
+                worst_change = u
+    worst_net = max(worst_net, worst_change)
+    return Score({model.deck.layers[layer].name: area * model.scale_area}, (), worst_change, worst_net,
+                 is_legal(worst_net), not is_legal(worst_change), costs.cost(worst_change))
