@@ -5,9 +5,10 @@ runs; `make cpp-example` uses the same tree), runs ``etchguard_example`` against
 real ``etchguard serve`` on loopback, and replays the same net and the same
 candidates through the Python client (``etchguard.client``): every printed figure
 must agree (floats within 1e-9 relative, the contract's tolerance; ids, flags and
-fields exactly). Two figures are also worked by hand from the contract's definitions
-(union area; side wall = perimeter x thickness), so the pair cannot agree on a wrong
-answer there.
+fields exactly). That includes the repair advice (Advise, unary and as a session op)
+for a wide M2 riser that breaks M2's partial area limit. A few figures are also worked
+by hand from the contract's definitions (union area; side wall = perimeter x
+thickness; the deck's diode table), so the pair cannot agree on a wrong answer there.
 
 The build needs cmake, a C++ compiler and Debian's gRPC/protobuf development
 packages (.ci/install-cpp-deps.sh installs them). Without them the test fails saying
@@ -42,6 +43,9 @@ RUN_TIMEOUT_S = 60
 PINS = [pin("u1.a", "M1", [(0, 0, 200, 200)], gate_area={"thin": 0.05}, cell_area={"M1": 0.02}),
         pin("u0.y", "M1", [(20000, 0, 20200, 200)], diff_area=0.3)]
 SHORT, LONG = 9000, 200000
+# The advised run: (layer, x1, y1, x2, y2) and width of example.cpp's WideRiser().
+WIDE_RISER = ("M2", 4900, 100, 4900, 60100)
+WIDE_RISER_WIDTH = 400
 BATCH_LENGTHS = (2000, 20000, 60000, 140000, 300000)
 
 
@@ -122,6 +126,42 @@ def _score_figures(prefix: str, s) -> dict[str, object]:
     return out
 
 
+def _advice_figures(prefix: str, a) -> dict[str, object]:
+    """The figures example.cpp's PrintAdvice prints, read from a Python AdviseReply."""
+    out: dict[str, object] = {
+        f"{prefix}.legal_as_is": a.legal_as_is,
+        f"{prefix}.found": a.found,
+        f"{prefix}.width": a.width,
+        f"{prefix}.score.worst_utilization": a.score.worst_utilization,
+        f"{prefix}.options": len(a.options),
+    }
+    for i, o in enumerate(a.options):
+        out[f"{prefix}.option.{i}.layer"] = o.layer
+        out[f"{prefix}.option.{i}.status"] = o.status
+        out[f"{prefix}.option.{i}.cuts"] = o.cuts
+        out[f"{prefix}.option.{i}.worst_utilization"] = o.score.worst_utilization
+    out[f"{prefix}.best_option.layer"] = a.options[a.best_option].layer if a.HasField("best_option") else "none"
+    out[f"{prefix}.jumper.present"] = a.HasField("jumper")
+    if a.HasField("jumper"):
+        j = a.jumper
+        out[f"{prefix}.jumper.applicable"] = j.applicable
+        out[f"{prefix}.jumper.kept_length_dbu"] = j.kept_length_dbu if j.HasField("kept_length_dbu") else "none"
+        out[f"{prefix}.jumper.hop_layer"] = j.hop_layer
+        out[f"{prefix}.jumper.hop_point"] = (j.hop_point.x, j.hop_point.y) if j.HasField("hop_point") else "none"
+        out[f"{prefix}.jumper.limited_by"] = j.limited_by
+        out[f"{prefix}.jumper.legal"] = j.legal
+    out[f"{prefix}.diode.present"] = a.HasField("diode")
+    if a.HasField("diode"):
+        d = a.diode
+        out[f"{prefix}.diode.found"] = d.found
+        out[f"{prefix}.diode.gate"] = d.gate
+        out[f"{prefix}.diode.diff_area_um2"] = d.diff_area_um2 if d.HasField("diff_area_um2") else "none"
+    out[f"{prefix}.exact_scores"] = a.exact_scores
+    out[f"{prefix}.explanations"] = len(a.explanation)
+    out[f"{prefix}.explanation.0"] = a.explanation[0] if a.explanation else "none"
+    return out
+
+
 def python_figures(c: Client, net: str) -> dict[str, object]:
     """The example's sequence through the Python client, figures under the same keys."""
     deck = c.deck
@@ -137,7 +177,10 @@ def python_figures(c: Client, net: str) -> dict[str, object]:
         f["stream.check.worst_utilization"] = report.worst_utilization
         f["stream.check.legal"] = report.legal
         f["stream.remove.removed"] = s.remove(net, ids)
+        f.update(_advice_figures("stream.advise", s.advise(net, *WIDE_RISER, width=WIDE_RISER_WIDTH,
+                                                           want=("jumper", "diode"))))
     f.update(_score_figures("unary.score.long", c.score(net, riser(LONG))))
+    f.update(_advice_figures("unary.advise", c.advise(net, *WIDE_RISER, width=WIDE_RISER_WIDTH)))
     lengths = np.array(BATCH_LENGTHS, dtype=np.int64)
     singles = runs_to_rects(4900, 100, 4900, 100 + lengths, 140)
     pair = np.vstack([runs_to_rects(4900, 100, 4900, 8100, 140), runs_to_rects(5000, 100, 9000, 100, 140)])
@@ -212,3 +255,20 @@ def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
     # 3 = INVALID_ARGUMENT in google.rpc.Code.
     assert cpp["refusal.code"] == "3"
     assert cpp["refusal.field"] == "candidate[0].layer"
+    # Advice on the wide riser, run [4700, -100, 5100, 60300] (400 wide, 200 past each
+    # end), which covers the whole pad: 400 x 60,400 DBU^2 = 24.16 um^2 of M2 over the
+    # 0.05 um^2 gate, a partial area ratio of 483.2 against 400 (its side wall,
+    # 121.6 um x 0.14 um / 0.05 = 340.5 of 450, does not bind): 1.208.
+    for prefix in ("stream.advise", "unary.advise"):
+        assert cpp[f"{prefix}.legal_as_is"] == "false"
+        assert math.isclose(float(cpp[f"{prefix}.score.worst_utilization"]), 24.16 / 0.05 / 400.0,
+                            rel_tol=REL_TOL)
+        # The deck's M2 diode table runs linearly from (0, 400) to (0.2 um^2, 1200), its
+        # gate factor and area credit are 0: a limit of 483.2 needs (483.2 - 400) / 4000
+        # = 0.0208 um^2 of diffusion.
+        assert cpp[f"{prefix}.diode.found"] == "true"
+        assert math.isclose(float(cpp[f"{prefix}.diode.diff_area_um2"]), (483.2 - 400.0) / 4000.0,
+                            rel_tol=REL_TOL)
+    # The session asked for the jumper and the diode only: no hops were proposed.
+    assert cpp["stream.advise.options"] == "0"
+    assert int(cpp["unary.advise.options"]) > 0

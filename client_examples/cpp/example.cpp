@@ -4,8 +4,9 @@
 //
 // Opens one net (a gate on M1 routed to a via up to M2, with its driver not yet
 // joined), streams commits and scores over one Session, scores the same candidate
-// by a unary call, scores a columnar batch, shows a refusal naming its field, and
-// closes the net. It prints every figure as one `key value` line (doubles with 17
+// by a unary call, scores a columnar batch, asks for repair advice on a run that
+// breaks a limit (in the session and by a unary call), shows a refusal naming its
+// field, and closes the net. It prints every figure as one `key value` line (doubles with 17
 // significant digits, so they read back exactly), for people and scripts alike.
 // Exit status: 0 done, 1 a call failed, 2 bad arguments.
 #include <cstdio>
@@ -13,6 +14,7 @@
 #include <string>
 #include <vector>
 
+#include "etchguard/advice.hpp"
 #include "etchguard/client.hpp"
 
 namespace eg = etchguard::client;
@@ -27,6 +29,9 @@ void Print(const std::string& key, const std::string& value) {
 }
 void PrintCount(const std::string& key, std::uint64_t value) {
   std::printf("%s %llu\n", key.c_str(), static_cast<unsigned long long>(value));
+}
+void PrintInt(const std::string& key, std::int64_t value) {
+  std::printf("%s %lld\n", key.c_str(), static_cast<long long>(value));
 }
 void PrintIds(const std::string& key, const std::vector<std::uint64_t>& ids) {
   std::printf("%s", key.c_str());
@@ -43,6 +48,59 @@ void PrintScore(const std::string& prefix, const pb::ScoreReply& s) {
   Print(prefix + ".cost", s.cost());
   for (const pb::LayerArea& a : s.added_area()) Print(prefix + ".added_area." + a.layer(), a.area_um2());
   PrintCount(prefix + ".changes", static_cast<std::uint64_t>(s.changes_size()));
+}
+
+// The advice figures under `prefix`: the verdict, the layer hops in the server's
+// order, the jumper and the diode (each only when asked for), the cost in exact
+// scores and the first sentence of the explanation. An absent optional is "none".
+void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
+  Print(prefix + ".legal_as_is", a.legal_as_is());
+  Print(prefix + ".found", a.found());
+  PrintInt(prefix + ".width", a.width());
+  Print(prefix + ".score.worst_utilization", a.score().worst_utilization());
+  PrintCount(prefix + ".options", static_cast<std::uint64_t>(a.options_size()));
+  for (int i = 0; i < a.options_size(); ++i) {
+    const pb::LayerOption& o = a.options(i);
+    const std::string p = prefix + ".option." + std::to_string(i);
+    Print(p + ".layer", o.layer());
+    Print(p + ".status", o.status());
+    PrintCount(p + ".cuts", o.cuts());
+    Print(p + ".worst_utilization", o.score().worst_utilization());
+  }
+  const pb::LayerOption* best = eg::BestOption(a);
+  Print(prefix + ".best_option.layer", best != nullptr ? best->layer() : std::string("none"));
+  Print(prefix + ".jumper.present", a.has_jumper());
+  if (a.has_jumper()) {
+    const pb::JumperAdvice& j = a.jumper();
+    Print(prefix + ".jumper.applicable", j.applicable());
+    if (j.has_kept_length_dbu()) {
+      PrintInt(prefix + ".jumper.kept_length_dbu", j.kept_length_dbu());
+    } else {
+      Print(prefix + ".jumper.kept_length_dbu", std::string("none"));
+    }
+    Print(prefix + ".jumper.hop_layer", j.hop_layer());
+    if (j.has_hop_point()) {
+      Print(prefix + ".jumper.hop_point", std::to_string(j.hop_point().x()) + " " + std::to_string(j.hop_point().y()));
+    } else {
+      Print(prefix + ".jumper.hop_point", std::string("none"));
+    }
+    Print(prefix + ".jumper.limited_by", j.limited_by());
+    Print(prefix + ".jumper.legal", j.legal());
+  }
+  Print(prefix + ".diode.present", a.has_diode());
+  if (a.has_diode()) {
+    const pb::DiodeAdvice& d = a.diode();
+    Print(prefix + ".diode.found", d.found());
+    Print(prefix + ".diode.gate", d.gate());
+    if (d.has_diff_area_um2()) {
+      Print(prefix + ".diode.diff_area_um2", d.diff_area_um2());
+    } else {
+      Print(prefix + ".diode.diff_area_um2", std::string("none"));
+    }
+  }
+  PrintCount(prefix + ".exact_scores", a.exact_scores());
+  PrintCount(prefix + ".explanations", static_cast<std::uint64_t>(a.explanation_size()));
+  Print(prefix + ".explanation.0", a.explanation_size() > 0 ? a.explanation(0) : std::string("none"));
 }
 
 // The demo net: gate u1.a on M1 at the origin, driver u0.y 20 um away on M1, not yet
@@ -62,6 +120,20 @@ std::vector<pb::Shape> Trunk(const pb::DeckInfo& deck) {
 // A vertical M2 run up from the via, `length` DBU long, the deck's default width.
 std::vector<pb::Shape> Riser(std::int64_t length) {
   return {eg::RunShape("M2", 4900, 100, 4900, 100 + length)};
+}
+
+// The run to advise on: a wide (400 DBU) M2 riser 60 um up from the via. At that
+// width the partial area ratio on M2 binds before the side wall does, so both a
+// jumper (hop part of it up) and a diode at the gate can repair it.
+eg::AdviceRun WideRiser() {
+  eg::AdviceRun run;
+  run.layer = "M2";
+  run.x1 = 4900;
+  run.y1 = 100;
+  run.x2 = 4900;
+  run.y2 = 60100;
+  run.width = 400;
+  return run;
 }
 
 // The batch: M2 risers of growing length (140 DBU wide, as rectangles), then one
@@ -99,10 +171,15 @@ int Run(const std::string& address, const std::string& net) {
     Print("stream.check.worst_utilization", report.worst_utilization());
     Print("stream.check.legal", report.legal());
     PrintCount("stream.remove.removed", session.Remove(net, riser_ids));
+    // Only the jumper and the diode: the server skips scoring hops nobody asked for.
+    eg::AdviceRun run = WideRiser();
+    run.want = {"jumper", "diode"};
+    PrintAdvice("stream.advise", eg::Advise(session, net, run));
     session.Finish();
   }
 
   PrintScore("unary.score.long", client.Score(net, Riser(200000)));
+  PrintAdvice("unary.advise", eg::Advise(client, net, WideRiser()));
 
   const eg::CandidateBatch batch = DemoBatch();
   const pb::ScoreBatchReply scores = client.ScoreBatch(net, batch);

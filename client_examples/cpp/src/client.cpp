@@ -6,15 +6,6 @@
 namespace etchguard::client {
 namespace {
 
-ServiceError FromStatus(const grpc::Status& status) {
-  return ServiceError(status.error_code(), status.error_message(),
-                      FieldOfStatusDetails(status.error_details()));
-}
-
-void ThrowIfRefused(const grpc::Status& status) {
-  if (!status.ok()) throw FromStatus(status);
-}
-
 std::vector<std::uint64_t> Ids(const pb::ShapeIds& reply) {
   return {reply.shape_ids().begin(), reply.shape_ids().end()};
 }
@@ -67,6 +58,13 @@ pb::ScoreBatchRequest ScoreBatchRequest(const std::string& net, const CandidateB
 }
 
 }  // namespace
+
+void ThrowIfRefused(const grpc::Status& status) {
+  if (!status.ok()) {
+    throw ServiceError(status.error_code(), status.error_message(),
+                       FieldOfStatusDetails(status.error_details()));
+  }
+}
 
 // -- Client -------------------------------------------------------------------------------
 

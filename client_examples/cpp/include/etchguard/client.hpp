@@ -50,6 +50,9 @@ class ServiceError : public std::runtime_error {
 // details (BadRequest first, else ErrorInfo metadata "field"); empty when none.
 std::string FieldOfStatusDetails(const std::string& serialized_status);
 
+// Throws ServiceError (code, message, field) for a status that is not OK.
+void ThrowIfRefused(const grpc::Status& status);
+
 // -- building requests ----------------------------------------------------------------
 
 struct Box {
@@ -133,10 +136,11 @@ class Session {
   // Half-closes the stream and waits for the server's status (throws if not OK).
   void Finish();
 
- private:
-  // Sends one request, waits for its reply, throws ServiceError when refused.
+  // Sends one request built by the caller, waits for its reply, throws ServiceError
+  // when refused. Public so ops with helpers in their own files (advice.hpp) use it.
   pb::SessionReply Ask(pb::SessionRequest request);
 
+ private:
   std::unique_ptr<grpc::ClientContext> context_;
   std::unique_ptr<grpc::ClientReaderWriter<pb::SessionRequest, pb::SessionReply>> stream_;
   std::uint64_t next_seq_ = 1;
@@ -182,9 +186,11 @@ class Client {
   Session OpenSession() { return Session(*stub_); }
   pb::AntennaService::Stub& stub() { return *stub_; }
 
- private:
+  // Sets this client's per-call deadline on a fresh context (for calls made on
+  // stub() by helpers outside this class, e.g. advice.hpp).
   void Prepare(grpc::ClientContext& context) const;
 
+ private:
   std::shared_ptr<grpc::Channel> channel_;
   std::unique_ptr<pb::AntennaService::Stub> stub_;
   std::chrono::milliseconds timeout_;
