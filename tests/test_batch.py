@@ -130,6 +130,8 @@ def bench_batch(deck: eg.Deck, net, seed: int, count: int) -> list[eg.Shape]:
         else:
             shapes.append(eg.Shape(layer, (x - w // 2, min(ys) - w, x - w // 2 + w, max(ys) + w)))
         shapes.append(eg.Shape(layer, (max(xs) + 10 * w, y, max(xs) + 30 * w, y + w)))  # floating
+    far = 1 << 40  # beyond the column path's +-2^30: always handed to the scalar score
+    shapes.append(eg.Shape(net.runs[0].layer, (far, far, far + 1000, far + 200)))
     vias = [s for s in net.shapes if deck.layers[s.layer].kind == "cut"]
     for s in rng.sample(vias, min(len(vias), count // 8)):  # over a via, on the metal above/below
         x, y = (s.rect[0] + s.rect[2]) // 2, (s.rect[1] + s.rect[3]) // 2

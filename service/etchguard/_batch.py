@@ -62,6 +62,7 @@ from __future__ import annotations
 
 import threading
 import weakref
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -69,9 +70,9 @@ import numpy as np
 from ._assess import Assessment
 from ._netstate import Comp, NetState
 from ._nets import Shape
-from ._ratios import TOLERANCE, CheckKey, StepModel
+from ._ratios import TOLERANCE, CheckKey, StepModel, utilization
 from ._rules import Rule
-from ._whatif import CostModel, score
+from ._whatif import CostModel, _unchanged_worst, score
 
 SAFE_COORD = 1 << 30  # candidate coordinates within +-2^30: areas are exact int64s
 SAFE_AGGREGATE = 1 << 61  # component area/perimeter (DBU) that may take a candidate's change
@@ -198,6 +199,7 @@ class _Tables:
         self.layers: dict[int, _LayerTables] = {}
         self.groups: dict[int, _GroupStack] = {}
         self.comp_lists: dict[int, tuple[list[Comp], dict[int, int]]] = {}
+        self.programs: dict[int, dict[tuple, "_Program | None"]] = {}  # merges, per layer
 
     def comps(self, state: NetState, step: int) -> tuple[list[Comp], dict[int, int]]:
         got = self.comp_lists.get(step)
@@ -443,6 +445,302 @@ def _add_union_change(many: np.ndarray, rows: np.ndarray, k_local: np.ndarray, l
     d_perim[many] = p[len(many):] - p[:len(many)]
 
 
+# -- merges: the scalar walk replayed once per signature, as a program over columns ------
+
+class _Node:
+    """A per-candidate column inside a traced program (its slot in the value list)."""
+
+    __slots__ = ("slot",)
+
+    def __init__(self, slot: int) -> None:
+        self.slot = slot
+
+
+Value = float | int | bool | _Node  # a constant of the signature, or a column
+
+
+def _arg_key(a: object) -> tuple:
+    if isinstance(a, _Node):
+        return ("n", a.slot)
+    if isinstance(a, float):
+        return ("f", a.hex())  # bit-exact: 0.0 and -0.0 stay apart
+    if isinstance(a, (bool, int)):
+        return (type(a).__name__, a)
+    return ("o", id(a))
+
+
+class _Tape:
+    """A straight-line program recorded while the scalar walk is replayed.
+
+    Every operation whose operands are all constants is done at once, in Python, by
+    the same expression the scalar path evaluates; only operations that involve a
+    per-candidate column are recorded. Equal operations are recorded once (so gates
+    whose sums change alike share one column)."""
+
+    def __init__(self, inputs: int) -> None:
+        self.inputs = [_Node(i) for i in range(inputs)]
+        self.size = inputs
+        self.ops: list[tuple[int, Callable[..., np.ndarray], tuple[tuple[bool, object], ...]]] = []
+        self.memo: dict[tuple, _Node] = {}
+
+    def op(self, fn: Callable[..., np.ndarray], *args: object) -> _Node:
+        key = (fn, tuple(_arg_key(a) for a in args))
+        got = self.memo.get(key)
+        if got is None:
+            got = self.memo[key] = _Node(self.size)
+            self.size += 1
+            self.ops.append((got.slot, fn, tuple((isinstance(a, _Node), a.slot if isinstance(a, _Node) else a)
+                                                 for a in args)))
+        return got
+
+    def run(self, inputs: list[np.ndarray]) -> list:
+        values: list = list(inputs) + [None] * (self.size - len(inputs))
+        for slot, fn, args in self.ops:
+            values[slot] = fn(*[values[a] if is_node else a for is_node, a in args])
+        return values
+
+
+def _is_col(*values: object) -> bool:
+    return any(isinstance(v, _Node) for v in values)
+
+
+def _t_add(t: _Tape, a: Value, b: Value) -> Value:
+    return t.op(np.add, a, b) if _is_col(a, b) else a + b  # type: ignore[operator]
+
+
+def _t_sub(t: _Tape, a: Value, b: Value) -> Value:
+    return t.op(np.subtract, a, b) if _is_col(a, b) else a - b  # type: ignore[operator]
+
+
+def _t_max(t: _Tape, a: Value, b: Value) -> Value:
+    return t.op(np.maximum, a, b) if _is_col(a, b) else max(a, b)  # type: ignore[type-var]
+
+
+def _t_where(t: _Tape, cond: Value, a: Value, b: Value) -> Value:
+    if isinstance(cond, _Node):
+        return t.op(np.where, cond, a, b)
+    return a if cond else b
+
+
+def _t_or(t: _Tape, a: Value, b: Value) -> Value:
+    if a is True or b is True:
+        return True
+    if a is False:
+        return b
+    if b is False:
+        return a
+    return t.op(np.logical_or, a, b)
+
+
+def _t_nonzero(t: _Tape, a: Value) -> Value:
+    """The scalar's truth test of a sum change (``if d[lane]``)."""
+    return t.op(np.not_equal, a, 0.0) if isinstance(a, _Node) else bool(a)
+
+
+def _scaled_area(area: np.ndarray, scale: float, cell: float) -> np.ndarray:
+    return area * scale + cell  # int64 * float: converted once, then two roundings
+
+
+def _scaled_side(perim: np.ndarray, scale: float, thickness: float) -> np.ndarray:
+    return perim * scale * thickness
+
+
+def _t_conductor(t: _Tape, model: StepModel, step: int, measure: str, area: Value, cell: float,
+                 perim: Value) -> Value:
+    """StepModel.conductor."""
+    if measure == "area":
+        if isinstance(area, _Node):
+            return t.op(_scaled_area, area, model.scale_area, cell)
+        return model.conductor(step, measure, area, cell, 0)  # type: ignore[arg-type]
+    if model.is_cut[step]:
+        return 0.0
+    if isinstance(perim, _Node):
+        return t.op(_scaled_side, perim, model.scale_length, model.thickness[step])
+    return model.conductor(step, measure, 0, cell, perim)  # type: ignore[arg-type]
+
+
+def _ratio_column(conductor: np.ndarray, factor: float, credit: float, g_eff: float) -> np.ndarray:
+    a = factor * conductor - credit
+    return np.where(a > 0.0, a, 0.0) / g_eff  # Python's max(0.0, a): a only when a > 0
+
+
+def _t_ratio(t: _Tape, rule: Rule, conductor: Value, gate: float, diff: float) -> Value:
+    """Rule.ratio with the component's G and D constant: the factor, the credit and
+    the effective gate are the scalar's own subexpressions."""
+    if not isinstance(conductor, _Node):
+        return rule.ratio(conductor, gate, diff)  # type: ignore[arg-type]
+    factor = rule.area_factor
+    if rule.factor_with_diode_only and diff <= 0:
+        factor = 1.0
+    return t.op(_ratio_column, conductor, factor, rule.diode_area_credit * diff,
+                gate + rule.diode_gate_factor * diff)
+
+
+def _t_term(t: _Tape, model: StepModel, step: int, gi: int, area: Value, cell: float, perim: Value,
+            gate: float, diff: float) -> Value:
+    """StepModel.term."""
+    conductor = _t_conductor(t, model, step, model.groups[gi][0], area, cell, perim)
+    rule = model.term_rule[step][gi]
+    if rule is None:
+        return t.op(np.divide, conductor, gate) if isinstance(conductor, _Node) else conductor / gate  # type: ignore[operator]
+    return _t_ratio(t, rule, conductor, gate, diff)
+
+
+def _nonpositive_limit(ratio: np.ndarray) -> np.ndarray:
+    return np.where(ratio > 0, np.inf, 0.0)
+
+
+def _t_utilization(t: _Tape, ratio: Value, limit: float) -> Value:
+    """_ratios.utilization."""
+    if not isinstance(ratio, _Node):
+        return utilization(ratio, limit)  # type: ignore[arg-type]
+    return t.op(np.divide, ratio, limit) if limit > 0 else t.op(_nonpositive_limit, ratio)
+
+
+_NO_CHANGE: tuple[Value, Value] = (0.0, 0.0)
+
+
+def _t_entries(t: _Tape, model: StepModel, step: int, comp: Comp, area: Value, perim: Value,
+               cars: dict, deltas: dict[tuple[int, int], list[Value]], pins_ox: list[dict[str, float]],
+               partial: bool) -> list[Value]:
+    """The utilizations ``_assess.comp_entries`` gives (``utilization_only``).
+
+    A cumulative check takes the best of ``cars + delta`` over the gates; gates whose
+    change is one column are taken together as ``max(cars) + column``, which equals
+    the best of the per-gate sums because rounding to nearest is monotone."""
+    out: list[Value] = []
+    if partial:
+        for key in model.partial_checks[step]:
+            if key.oxide not in comp.gate_ox:
+                continue
+            conductor = _t_conductor(t, model, step, key.measure, area, comp.cell, perim)
+            ratio = _t_ratio(t, key.rule, conductor, comp.gate, comp.diff)
+            out.append(_t_utilization(t, ratio, key.rule.partial_limit(comp.diff)))
+    lane = model.lane[step]
+    for key in model.cumulative_checks[step]:
+        if key.oxide not in comp.gate_ox:
+            continue
+        gi = model.group_index[(key.measure, key.oxide)]
+        best: Value = -1.0  # comp_entries starts from -1.0 as well
+        by_column: dict[int, tuple[float, _Node]] = {}
+        for p in comp.gates:
+            if key.oxide in pins_ox[p]:
+                car = cars[(p, gi)][step]
+                d = deltas.get((p, gi), _NO_CHANGE)[lane]
+                if isinstance(d, _Node):
+                    prior = by_column.get(d.slot)
+                    if prior is None or car > prior[0]:
+                        by_column[d.slot] = (car, d)
+                else:
+                    best = max(best, car + d)  # type: ignore[operator]
+        for car, d in by_column.values():
+            best = _t_max(t, best, _t_add(t, car, d))
+        out.append(_t_utilization(t, best, key.rule.cumulative_limit(comp.diff)))
+    return out
+
+
+@dataclass(frozen=True)
+class _Program:
+    """A signature's scores as a function of the per-candidate columns."""
+
+    tape: _Tape
+    worst_change: Value
+    worst_net: Value
+
+    def run(self, inputs: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        n = len(inputs[0])
+        values = self.tape.run(inputs) if self.tape.ops else inputs
+
+        def out(v: Value) -> np.ndarray:
+            got = values[v.slot] if isinstance(v, _Node) else v
+            return np.broadcast_to(np.asarray(got, dtype=_F8), (n,))
+
+        return out(self.worst_change), out(self.worst_net)
+
+
+StepGroups = list[list[tuple[list[Comp], int | None]]]  # per step from the first: (comps, local)
+
+
+def _trace(state: NetState, assessment: Assessment, first: int, steps: StepGroups,
+           locals_count: int) -> _Program | None:
+    """Replay ``_whatif.score`` (detail=False) for every candidate of one signature.
+
+    ``steps[s - first]`` lists the candidate groups at step s: the existing components
+    each joins, and which local change (dA, dP inputs 2j, 2j+1) it adds on layer s.
+    Everything else is a constant of the signature and is folded while tracing; None
+    when the scalar path should decide (a check without a gate to carry it, or
+    aggregates too large for exact int64 columns)."""
+    model = state.model
+    pins_ox = assessment.pins_ox
+    cars = assessment.cars
+    anchor = state.anchor_of_pin
+    t = _Tape(2 * locals_count)
+    deltas: dict[tuple[int, int], list[Value]] = {}
+    worst_change: Value = 0.0
+    worst_net: Value = assessment.worst_below[first]
+    for s in range(first, model.steps):
+        at_s = state.comp_at[s]
+        lane = model.lane[s]
+        touched: set[Comp] = set()
+        for comps, local in steps[s - first]:
+            touched.update(comps)
+            merged = len(comps) != 1 or local is not None
+            if merged:
+                group = Comp()
+                for c in comps:
+                    group.absorb(c)
+            else:
+                (group,) = comps
+            area: Value = group.area
+            perim: Value = group.perim
+            if local is not None:
+                if not (abs(group.area) < SAFE_AGGREGATE and abs(group.perim) < SAFE_AGGREGATE):
+                    return None
+                area = _t_add(t, area, t.inputs[2 * local])
+                perim = _t_add(t, perim, t.inputs[2 * local + 1])
+            if group.gate <= 0:
+                continue
+            if not _consistent(group, pins_ox):
+                return None
+            if merged:  # this step's term changes for every gate in the group
+                new_terms: dict[int, Value] = {}
+                for p in group.gates:
+                    old = at_s[anchor[p]]
+                    for gi, (_measure, oxide) in enumerate(model.groups):
+                        if oxide not in pins_ox[p]:
+                            continue
+                        if gi not in new_terms:
+                            new_terms[gi] = _t_term(t, model, s, gi, area, group.cell, perim,
+                                                    group.gate, group.diff)
+                        d = deltas.get((p, gi))
+                        if d is None:
+                            d = deltas[(p, gi)] = [0.0, 0.0]
+                        change = _t_sub(t, new_terms[gi], model.term(s, gi, old.area, old.cell, old.perim,
+                                                                     old.gate, old.diff))
+                        d[lane] = _t_add(t, d[lane], change)
+                for u in _t_entries(t, model, s, group, area, perim, cars, deltas, pins_ox, True):
+                    worst_change = _t_max(t, worst_change, u)
+                continue
+            gates = set(group.gates)
+            moved: Value = False
+            for (p, _gi), d in deltas.items():
+                if p in gates:
+                    moved = _t_or(t, moved, _t_nonzero(t, d[lane]))
+            worst_net = _t_max(t, worst_net, assessment.partial_worst[s].get(group, 0.0))
+            if moved is not True:  # unchanged: its own worst entries count as they are
+                still = _unchanged_worst(assessment, s, group)
+                worst_net = _t_max(t, worst_net, _t_where(t, moved, 0.0, still))
+            if moved is False:
+                continue
+            for u in _t_entries(t, model, s, group, area, perim, cars, deltas, pins_ox, False):
+                worst_change = _t_max(t, worst_change, _t_where(t, moved, u, 0.0))
+        worst_net = _t_max(t, worst_net, assessment.worst_untouched(s, touched))
+    # The scalar raises its net worst to the change worst after every change; all
+    # utilizations here are >= 0, so doing it once at the end gives the same maximum.
+    worst_net = _t_max(t, worst_net, worst_change)
+    return _Program(t, worst_change, worst_net)
+
+
 # -- one layer's candidates ---------------------------------------------------------------
 
 def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: int,
@@ -474,7 +772,9 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
         c_next = np.full(n, _NONE, dtype=np.int64)
     local = edge & lt.routed[None, :]
     n_local = local.sum(axis=1)
-    ok &= (n_local <= MAX_LOCAL) & ((r > -SAFE_COORD) & (r < SAFE_COORD)).all(axis=1)
+    fits = (n_local <= MAX_LOCAL) & ((r > -SAFE_COORD) & (r < SAFE_COORD)).all(axis=1)
+    merge_rows = np.nonzero(fits & ~ok)[0]  # several components at L or at L+1
+    ok &= fits
 
     # Group the candidates by the pair of components they join.
     span = len(lt.comps_next or ()) + 1
@@ -497,13 +797,21 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
     if (inverse < 0).any():
         keep = inverse >= 0
         rows, inverse = rows[keep], inverse[keep]
+    merge_rows, programs, program_of = _merge_programs(
+        tab, state, assessment, layer, lt, touch_l, touch_next if lt.comp_next is not None else None,
+        merge_rows)
     done = np.zeros(n, dtype=bool)
     done[rows] = True
+    done[merge_rows] = True
     zeros = np.zeros(n, dtype=_F8)
+    out_change, out_net, out_added = zeros.copy(), zeros.copy(), zeros.copy()
+    singles = len(rows)
+    rows = np.concatenate([rows, merge_rows])
     if len(rows) == 0:
         return done, zeros, zeros, zeros
 
-    # Area and perimeter each candidate adds to C_L on layer L (NetState.local_delta).
+    # Area and perimeter each candidate adds on layer L (NetState.local_delta); the
+    # single-component rows first, then the merges.
     rr = r[rows]
     w, h = rr[:, 2] - rr[:, 0], rr[:, 3] - rr[:, 1]
     d_area = w * h
@@ -521,6 +829,15 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
             _add_union_change(many, rows, k_local, local, s, rr, d_area, d_perim)
     if not model.side_needed[layer]:
         d_perim[:] = 0
+    out_added[rows] = d_area.astype(_F8) * model.scale_area
+    for j, program in enumerate(programs):
+        at = singles + np.nonzero(program_of == j)[0]
+        wc, wn = program.run([d_area[at], d_perim[at]])
+        out_change[rows[at]] = wc
+        out_net[rows[at]] = wn
+    if singles == 0:
+        return done, out_change, out_net, out_added
+    rows, d_area, d_perim = rows[:singles], d_area[:singles], d_perim[:singles]
 
     # The pair's constants, one row per candidate.
     def column(name: str, dtype: type = _F8) -> np.ndarray:
@@ -572,11 +889,65 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
                 worst_change = np.maximum(worst_change, np.where(active[:, i], u, 0.0))
     worst_net = np.maximum(np.maximum(column("base"), np.where(moved, column("if_moved"),
                                                                   column("if_still"))), worst_change)
-    out_change, out_net, out_added = zeros.copy(), zeros.copy(), zeros.copy()
     out_change[rows] = worst_change
     out_net[rows] = worst_net
-    out_added[rows] = d_area.astype(_F8) * model.scale_area
     return done, out_change, out_net, out_added
+
+
+def _touched_sets(touch: np.ndarray, comp: np.ndarray) -> list[tuple[int, ...]]:
+    """Per row of ``touch``, the sorted indices of the components its elements lie in."""
+    hit_row, hit_col = np.nonzero(touch)
+    span = int(comp.max()) + 1 if len(comp) else 1
+    pairs = np.unique(hit_row * span + comp[hit_col])
+    bounds = np.searchsorted(pairs // span, np.arange(touch.shape[0] + 1)).tolist()
+    comps = (pairs % span).tolist()
+    return [tuple(comps[bounds[i]:bounds[i + 1]]) for i in range(touch.shape[0])]
+
+
+def _merge_programs(tab: _Tables, state: NetState, assessment: Assessment, layer: int,
+                    lt: _LayerTables, touch_l: np.ndarray, touch_next: np.ndarray | None,
+                    rows: np.ndarray) -> tuple[np.ndarray, list[_Program], np.ndarray]:
+    """The merge rows a traced program answers, the programs, and each row's program.
+
+    A one-rectangle candidate's signature is the set of components it touches at L
+    and the set at L+1 (the sets at later steps follow: components only grow)."""
+    if len(rows) == 0:
+        return rows, [], rows
+    sets_l = _touched_sets(touch_l[rows], lt.comp_l)
+    sets_next = (_touched_sets(touch_next[rows], lt.comp_next) if touch_next is not None
+                 and lt.comp_next is not None else [()] * len(rows))
+    cache = tab.programs.setdefault(layer, {})
+    index: dict[tuple, int] = {}
+    programs: list[_Program] = []
+    program_of = np.empty(len(rows), dtype=np.int64)
+    for i, key in enumerate(zip(sets_l, sets_next)):
+        j = index.get(key)
+        if j is None:
+            if key not in cache:
+                cache[key] = _trace_one_rect(state, assessment, layer, lt, *key)
+            program = cache[key]
+            j = index[key] = len(programs) if program is not None else -1
+            if program is not None:
+                programs.append(program)
+        program_of[i] = j
+    keep = program_of >= 0
+    return rows[keep], programs, program_of[keep]
+
+
+def _trace_one_rect(state: NetState, assessment: Assessment, layer: int, lt: _LayerTables,
+                    set_l: tuple[int, ...], set_next: tuple[int, ...]) -> _Program | None:
+    """The program of a one-rectangle candidate on ``layer`` touching the components
+    ``set_l`` at L and ``set_next`` at L+1 (indices into the layer tables' lists)."""
+    comps_l = [lt.comps_l[i] for i in set_l]
+    steps: StepGroups = [[(comps_l, 0)]]
+    if lt.comps_next is not None:
+        comps_next = [lt.comps_next[i] for i in set_next]
+        steps.append([(comps_next, None)])
+        reps = [next(iter(c.members)) for c in comps_next]
+        for s in range(layer + 2, state.model.steps):
+            at_s = state.comp_at[s]
+            steps.append([(list({id(at_s[e]): at_s[e] for e in reps}.values()), None)])
+    return _trace(state, assessment, layer, steps, 1)
 
 
 def _costs(costs: CostModel, u: np.ndarray) -> np.ndarray:
