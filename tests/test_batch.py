@@ -30,7 +30,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 from bench.batch_bench import frontier_candidates  # noqa: E402
-from bench.netgen import bench_deck, generate_net  # noqa: E402
+from bench.netgen import bench_deck, extension_candidates, generate_net, via_run_candidates  # noqa: E402
 
 REL = 1e-12
 SETTINGS = settings(max_examples=60, deadline=None,
@@ -151,6 +151,103 @@ def test_columns_equal_scalar_on_bench_nets(size: int, seed: int) -> None:
           f"candidates on the column path")
     assert got.vectorized.any()  # the fast path is exercised
     assert not got.vectorized.all() or size < 50  # and so is the hand-over on bigger nets
+
+
+def joined_components(engine: eg.Engine, name: str, shape: eg.Shape) -> tuple[int, int]:
+    """How many existing components the shape touches at its own step and at the next
+    (read from the net state the scalar path walks; a diagnostic, not a reference)."""
+    net = engine._net(name)
+    with net.lock:
+        state = engine._state(net)
+        touches = state.touching(shape.layer, shape.rect)
+        counts = []
+        for step in (shape.layer, shape.layer + 1):
+            if step >= state.model.steps:
+                counts.append(0)
+                continue
+            at = state.comp_at[step]
+            counts.append(len({id(at[e]) for e, joined in touches if joined <= step}))
+        return counts[0], counts[1]
+
+
+@pytest.mark.parametrize("size,seed", [(50, 2), (100, 3), (100, 7)])
+def test_merges_take_the_column_path(size: int, seed: int) -> None:
+    """Candidates joining two or three components at their step or the next are
+    answered by the columns, and equal the scalar score."""
+    deck = bench_deck()
+    net = generate_net(deck, size, seed=seed)
+    engine = eg.Engine(deck)
+    engine.open_net(net.name, net.pins, None, net.shapes)
+    shapes = bench_batch(deck, net, seed, 240)
+    got = assert_agrees(engine, net.name, shapes, "bench")
+    merges = [i for i, shape in enumerate(shapes) if max(joined_components(engine, net.name, shape)) >= 2]
+    print(f"\n{len(merges)} merges of {len(shapes)}, {int(got.vectorized[merges].sum())} on the column path")
+    assert merges  # the batch has merges
+    assert got.vectorized[merges].all()  # none falls back (all lie within +-2^30, few neighbours)
+
+
+def test_a_run_joining_two_wires_and_a_cut_joining_at_the_next_step() -> None:
+    """Hand-made: two M1 wires with a gate each, separate at M1 and V1; an M2 wire over
+    both ends stands on a V1 cut of the upper wire only. A run across both M1 wires
+    merges them at M1; a cut on the lower wire under the M2 wire merges the two at M2
+    (the step after its own). Both are answered by the columns and equal the scalar."""
+    deck = bench_deck()
+    at = {l.name: l.index for l in deck.layers}
+    pins = [eg.Pin("g1", at["M1"], ((0, 0, 200, 200),), {"thin": 0.02}, 0.0, {}),
+            eg.Pin("g2", at["M1"], ((0, 3000, 200, 3200),), {"thin": 0.03}, 0.0, {})]
+    shapes = [eg.Shape(at["M1"], (0, 0, 4000, 200)), eg.Shape(at["M1"], (0, 3000, 4000, 3200)),
+              eg.Shape(at["M2"], (3800, 0, 4000, 3200)), eg.Shape(at["V1"], (3850, 3050, 3950, 3150))]
+    engine = eg.Engine(deck)
+    engine.open_net("h", pins, None, shapes)
+    bridge = eg.Shape(at["M1"], (1000, 0, 1200, 3200))
+    cut = eg.Shape(at["V1"], (3850, 50, 3950, 150))
+    assert joined_components(engine, "h", bridge) == (2, 2)
+    assert joined_components(engine, "h", cut) == (1, 2)
+    got = assert_agrees(engine, "h", [bridge, cut], "bench")
+    assert got.vectorized.all()
+
+
+def test_multi_shape_candidates_equal_scalar() -> None:
+    """score_columns with shape_count: runs, run + via stacks (4 shapes) and the
+    bench batch's one-rectangle cases, mixed; each equals Engine.score of its shapes."""
+    deck = bench_deck()
+    for size, seed in ((10, 0), (50, 2), (100, 3)):
+        net = generate_net(deck, size, seed=seed)
+        engine = eg.Engine(deck)
+        engine.open_net(net.name, net.pins, None, net.shapes)
+        cands = (extension_candidates(deck, net, 40, seed=seed) + via_run_candidates(deck, net, 40, seed=seed)
+                 + [[s] for s in bench_batch(deck, net, seed, 40)])
+        random.Random(seed).shuffle(cands)
+        flat = [s for c in cands for s in c]
+        got = engine.score_columns(net.name, np.array([s.layer for s in flat], dtype=np.int64),
+                                   np.array([s.rect for s in flat], dtype=np.int64),
+                                   np.array([len(c) for c in cands], dtype=np.int64))
+        assert len(got) == len(cands)
+        for i, c in enumerate(cands):
+            want = engine.score(net.name, c, detail=False)
+            where = (size, i, c)
+            assert same(got.worst_change_utilization[i], want.worst_change_utilization), where
+            assert same(got.worst_utilization[i], want.worst_utilization), where
+            assert bool(got.legal[i]) == want.legal and bool(got.breaks_limit[i]) == want.breaks_limit, where
+            assert same(got.cost[i], want.cost), where
+            assert same(got.added_area_um2[i], sum(want.added_area_um2.values())), where
+        singles = np.array([len(c) == 1 for c in cands])
+        assert got.vectorized[singles].any() and not got.vectorized[~singles].any()
+
+
+def test_shape_count_refusals(small_engine: eg.Engine) -> None:
+    rects = np.array([[0, 0, 100, 100]] * 4, dtype=np.int64)
+    layers = np.zeros(4, dtype=np.int64)
+    for counts, field in (([2, 1], "shape_count"), ([2, 0, 2], "shape_count[1]"),
+                          ([1.0, 3.0], "shape_count"), ([[2, 2]], "shape_count")):
+        with pytest.raises(eg.InputError) as err:
+            small_engine.score_columns("v", layers, rects, np.array(counts))
+        assert err.value.field == field, counts
+    with pytest.raises(eg.LimitExceededError) as err:
+        small_engine.score_columns("v", np.zeros(9, dtype=np.int64), np.repeat(rects[:1], 9, axis=0),
+                                   np.ones(9, dtype=np.int64))
+    assert err.value.field == "shape_count"
+    assert len(small_engine.score_columns("v", layers, rects, np.array([3, 1]))) == 2
 
 
 def test_columns_follow_commits_and_removals() -> None:

@@ -1,4 +1,4 @@
-"""Batch what-if scores of single-rectangle candidates, vectorized with numpy.
+"""Batch what-if scores, the one-rectangle candidates vectorized with numpy.
 
 ``score_columns`` answers, for N candidates (one rectangle each, on any layers) against
 one net state, what ``_whatif.score(state, assessment, [Shape(layer, rect)], costs,
@@ -54,8 +54,28 @@ area dA and perimeter dP it adds to C_L on layer L:
   under L. These are constants per (C_L, C_{L+1}) and are computed once per pair with
   the scalar path's own calls, then cached with the net's assessment.
 
-Candidates that join several components at one step (a merge), meet too many routed
-rectangles, or lie far out go to the scalar path, which is exact by construction.
+Merges, by a traced replay of the scalar walk
+---------------------------------------------
+A candidate that touches several components at L or at L+1 (a merge) is keyed by its
+signature: the set S_L of components it touches at L and the set S_{L+1} at L+1 (the
+set at a later step s is that of S_{L+1}'s members at s, components only growing).
+For one signature the scalar walk computes the same thing for every candidate except
+dA and dP, which enter only as ``area + dA`` and ``perim + dP`` of the group at L. So
+``_trace`` runs the scalar walk once per signature (the same loop, the same group
+built by ``Comp.absorb`` from the same components, the same term changes per gate and
+step, added in step order, the same checks): every operation on constants is done
+there, in Python, exactly as the scalar does it; every operation that involves dA or
+dP is recorded instead, and the record is replayed over the signature's candidates
+with the numpy twin of the same IEEE operation (each rounds once, as Python's does).
+Two rewrites keep the record short, both exact: gates whose change is the same
+recorded column enter a cumulative check as ``max(cars) + change`` (rounding is
+monotone); and a per-candidate branch of the scalar (a later component "moved" only
+when a change is non-zero) is a select between the two outcomes, with 0.0 for the one
+not taken, which cannot raise a maximum that starts at 0.0.
+
+Candidates of several shapes, those that meet too many routed rectangles or lie far
+out, and signatures the trace declines (a check without a gate of its oxide) go to
+the scalar path, which is exact by construction.
 """
 
 from __future__ import annotations
@@ -92,7 +112,7 @@ class BatchScores:
     legal: np.ndarray  # bool
     breaks_limit: np.ndarray  # bool
     cost: np.ndarray  # float64
-    added_area_um2: np.ndarray  # float64, union area added on the candidate's layer
+    added_area_um2: np.ndarray  # float64, union area the candidate adds, over its layers
     vectorized: np.ndarray  # bool: answered by the column path (else by the scalar score)
 
     def __len__(self) -> int:
@@ -744,7 +764,7 @@ def _trace(state: NetState, assessment: Assessment, first: int, steps: StepGroup
 # -- one layer's candidates ---------------------------------------------------------------
 
 def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: int,
-                 r: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+                 r: np.ndarray, merges: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Column scores of the candidates on one layer: (done, worst change, worst net,
     added area); rows not done are left to the scalar path."""
     model = state.model
@@ -773,7 +793,7 @@ def _score_layer(tab: _Tables, state: NetState, assessment: Assessment, layer: i
     local = edge & lt.routed[None, :]
     n_local = local.sum(axis=1)
     fits = (n_local <= MAX_LOCAL) & ((r > -SAFE_COORD) & (r < SAFE_COORD)).all(axis=1)
-    merge_rows = np.nonzero(fits & ~ok)[0]  # several components at L or at L+1
+    merge_rows = np.nonzero(fits & ~ok)[0] if merges else np.zeros(0, dtype=np.int64)  # several components at L or L+1
     ok &= fits
 
     # Group the candidates by the pair of components they join.
@@ -967,13 +987,10 @@ def _costs(costs: CostModel, u: np.ndarray) -> np.ndarray:
     return out
 
 
-def score_columns(state: NetState, assessment: Assessment, layers: np.ndarray, rects: np.ndarray,
-                  costs: CostModel) -> BatchScores:
-    """Score N single-rectangle candidates (``layers[i]``, ``rects[i]``) against the net;
-    entry i equals ``score(state, assessment, [Shape(layers[i], rects[i])], costs,
-    detail=False)``. Inputs are trusted (the engine validates them)."""
-    layers = np.asarray(layers, dtype=np.int64).reshape(-1)
-    rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
+def _score_one_rect(state: NetState, assessment: Assessment, layers: np.ndarray, rects: np.ndarray,
+                    costs: CostModel, merges: bool
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(worst change, worst net, cost, added area, vectorized) of one-rectangle candidates."""
     n = len(layers)
     worst_change = np.zeros(n, dtype=_F8)
     worst_net = np.zeros(n, dtype=_F8)
@@ -984,7 +1001,7 @@ def score_columns(state: NetState, assessment: Assessment, layers: np.ndarray, r
         tab = _tables(state, assessment)
         for layer in np.unique(layers).tolist():
             idx = np.nonzero(layers == layer)[0]
-            done, wc, wn, aa = _score_layer(tab, state, assessment, layer, rects[idx])
+            done, wc, wn, aa = _score_layer(tab, state, assessment, layer, rects[idx], merges)
             hit = idx[done]
             vectorized[hit] = True
             worst_change[hit], worst_net[hit], added[hit] = wc[done], wn[done], aa[done]
@@ -996,6 +1013,41 @@ def score_columns(state: NetState, assessment: Assessment, layers: np.ndarray, r
             s = score(state, assessment, [Shape(layer, rect)], costs, detail=False)  # type: ignore[arg-type]
             worst_change[i], worst_net[i], cost[i] = s.worst_change_utilization, s.worst_utilization, s.cost
             added[i] = s.added_area_um2.get(names[layer], 0.0)
+    return worst_change, worst_net, cost, added, vectorized
+
+
+def score_columns(state: NetState, assessment: Assessment, layers: np.ndarray, rects: np.ndarray,
+                  costs: CostModel, shape_count: np.ndarray | None = None,
+                  merges: bool = True) -> BatchScores:
+    """Score candidates against the net: candidate i is the ``shape_count[i]`` rows of
+    (``layers``, ``rects``) after those of the candidates before it (one row each when
+    ``shape_count`` is None); entry i equals ``score(state, assessment, its shapes,
+    costs, detail=False)``, its added area summed over its layers. One-rectangle
+    candidates take the column path; the others are scored one by one, from Shape
+    objects built directly (the engine validated the columns as a whole).
+    ``merges=False`` hands merges to the scalar path as well (a baseline for the bench).
+    Inputs are trusted."""
+    layers = np.asarray(layers, dtype=np.int64).reshape(-1)
+    rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
+    if shape_count is None:
+        wc, wn, cost, added, vectorized = _score_one_rect(state, assessment, layers, rects, costs, merges)
+    else:
+        counts = np.asarray(shape_count, dtype=np.int64).reshape(-1)
+        first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
+        single = np.nonzero(counts == 1)[0]
+        n = len(counts)
+        wc, wn = np.zeros(n, dtype=_F8), np.zeros(n, dtype=_F8)
+        cost, added = np.zeros(n, dtype=_F8), np.zeros(n, dtype=_F8)
+        vectorized = np.zeros(n, dtype=bool)
+        rows = first[single]
+        (wc[single], wn[single], cost[single], added[single],
+         vectorized[single]) = _score_one_rect(state, assessment, layers[rows], rects[rows], costs, merges)
+        layer_list, rect_list = layers.tolist(), rects.tolist()
+        for i in np.nonzero(counts != 1)[0].tolist():
+            start, stop = int(first[i]), int(first[i] + counts[i])
+            shapes = [Shape(layer_list[k], tuple(rect_list[k])) for k in range(start, stop)]  # type: ignore[arg-type]
+            s = score(state, assessment, shapes, costs, detail=False)
+            wc[i], wn[i], cost[i] = s.worst_change_utilization, s.worst_utilization, s.cost
+            added[i] = sum(s.added_area_um2.values())  # as the servicer's batch_into sums it
     limit = 1.0 + TOLERANCE  # _ratios.is_legal
-    return BatchScores(worst_change, worst_net, worst_net <= limit, ~(worst_change <= limit), cost,
-                       added, vectorized)
+    return BatchScores(wc, wn, wn <= limit, ~(wc <= limit), cost, added, vectorized)

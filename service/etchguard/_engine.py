@@ -349,19 +349,41 @@ class Engine:
     # -- columnar batch scores (one rectangle per candidate; see _batch) -----------------
 
     def score_columns(self, name: str, layers: Sequence[int] | np.ndarray,
-                      rects: np.ndarray) -> BatchScores:
-        """Score N one-rectangle candidates (``layers[i]``, ``rects[i]`` = xlo, ylo, xhi,
-        yhi in DBU) against the same net state; entry i equals
-        ``score(name, [Shape(layers[i], rects[i])], detail=False)``. Validated as a whole
-        before anything is computed; the first bad row is named (``rects[i]``)."""
+                      rects: np.ndarray, shape_count: Sequence[int] | np.ndarray | None = None
+                      ) -> BatchScores:
+        """Score candidates given as shape rows (``layers[k]``, ``rects[k]`` = xlo, ylo,
+        xhi, yhi in DBU) against the same net state: candidate i is the next
+        ``shape_count[i]`` rows (default: one row each); entry i equals
+        ``score(name, its shapes, detail=False)``. Validated as a whole before anything
+        is computed; the first bad row is named (``rects[k]``, ``shape_count[i]``)."""
         deck = self.deck
         rect_arr = np.asarray(rects)
         if rect_arr.ndim != 2 or rect_arr.shape[1] != 4:
             raise InputError(f"rects must be an (N, 4) array, got shape {rect_arr.shape}", "rects")
         count = rect_arr.shape[0]
-        if count > self.limits.max_candidates:
-            raise LimitExceededError(f"{count} candidates exceed the limit of "
-                                     f"{self.limits.max_candidates} per batch", "rects")
+        counts = None
+        if shape_count is not None:
+            counts = np.asarray(shape_count)
+            if counts.ndim != 1 or (len(counts) and counts.dtype.kind not in "iu"):
+                raise InputError(f"shape_count must list integer counts, got shape {counts.shape}",
+                                 "shape_count")
+            counts = counts.astype(np.int64, copy=False)
+            low = np.nonzero(counts < 1)[0]
+            if len(low):
+                raise InputError("a candidate needs at least one shape", f"shape_count[{int(low[0])}]")
+            if int(counts.sum()) != count:
+                raise InputError(f"shape counts add up to {int(counts.sum())}, but there are {count} "
+                                 "rectangles", "shape_count")
+            big = np.nonzero(counts > self.limits.max_shapes_per_net)[0]
+            if len(big):
+                raise LimitExceededError(f"{int(counts[big[0]])} shapes would exceed the limit of "
+                                         f"{self.limits.max_shapes_per_net} per net",
+                                         f"shape_count[{int(big[0])}]")
+        candidates = count if counts is None else len(counts)
+        if candidates > self.limits.max_candidates:
+            raise LimitExceededError(f"{candidates} candidates exceed the limit of "
+                                     f"{self.limits.max_candidates} per batch",
+                                     "rects" if counts is None else "shape_count")
         if rect_arr.dtype.kind not in "iu":
             raise InputError(f"coordinates are integer DBU (int64), got {rect_arr.dtype}", "rects")
         layer_arr = np.asarray(layers)
@@ -392,8 +414,8 @@ class Engine:
         with net.lock:
             state = self._state(net)
             result = _score_columns(state, self._assessment(net, state),
-                                    layer_arr.astype(np.int64, copy=False), rect_arr, self.costs)
-        self.counters["scores"] += count
+                                    layer_arr.astype(np.int64, copy=False), rect_arr, self.costs, counts)
+        self.counters["scores"] += candidates
         return result
 
     def check(self, name: str) -> NetReport:

@@ -91,28 +91,24 @@ def _checked_columns(deck, cols, path: str) -> tuple[np.ndarray, np.ndarray]:
     return counts, table[index] if n else index
 
 
-def one_rect_candidates(cols) -> bool:
-    """Whether every candidate of the columns is a single rectangle."""
-    return all(c == 1 for c in cols.shape_count)
-
-
-def candidate_arrays(deck, cols, path: str = "candidates") -> tuple[np.ndarray, np.ndarray]:
-    """One-rectangle candidates as (deck step per candidate, (N, 4) int64 DBU rects),
+def candidate_arrays(deck, cols, path: str = "candidates") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Candidates as (shapes per candidate, deck step per shape, (N, 4) int64 DBU rects),
     the engine's columnar form (Engine.score_columns validates the rectangles)."""
-    _counts, steps = _checked_columns(deck, cols, path)
+    counts, steps = _checked_columns(deck, cols, path)
     rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
                              for name in ("xlo", "ylo", "xhi", "yhi")]).reshape(-1, 4)
-    return steps, rects
+    return counts, steps, rects
 
 
 def columns_error(exc: EtchguardError, path: str = "candidates") -> EtchguardError:
     """An error of Engine.score_columns (fields ``rects[i]``, ``layers[i]``, ``rects``)
     renamed to the CandidateColumns field paths."""
     field = exc.field or ""
-    m = re.fullmatch(r"(rects|layers)\[(\d+)\]", field)
+    m = re.fullmatch(r"(rects|layers|shape_count)\[(\d+)\]", field)
     if m:
-        field = f"{path}[{m[2]}].rect" if m[1] == "rects" else f"{path}.layer[{m[2]}]"
-    elif field in ("rects", "layers"):
+        field = (f"{path}[{m[2]}].rect" if m[1] == "rects" else
+                 f"{path}.layer[{m[2]}]" if m[1] == "layers" else f"{path}.shape_count[{m[2]}]")
+    elif field in ("rects", "layers", "shape_count"):
         field = path
     else:
         return exc  # about the request, not the columns ("net", "deck")

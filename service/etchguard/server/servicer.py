@@ -67,10 +67,10 @@ def _score(self, req, out):
 
 def _score_batch(self, req, out):
     deck = self.engine.deck
-    if not req.details and convert.one_rect_candidates(req.candidates):  # the columnar path
-        steps, rects = convert.candidate_arrays(deck, req.candidates)
+    if not req.details:  # the columnar path
+        counts, steps, rects = convert.candidate_arrays(deck, req.candidates)
         try:
-            scores = self.engine.score_columns(req.net, steps, rects)
+            scores = self.engine.score_columns(req.net, steps, rects, counts)
         except EtchguardError as exc:
             raise convert.columns_error(exc) from None
         convert.columns_into(out, scores)
