@@ -38,3 +38,9 @@ clean:
 cpp-example: venv
 	bash .ci/install-cpp-deps.sh
 	bash client_examples/cpp/run_example.sh
+
+# Route the invented block blk_r twice, antenna-blind then antenna-aware, against an
+# etchguard server on the demo deck that the demo starts and stops; prints the comparison.
+.PHONY: demo
+demo: venv
+	$(BIN)/python client_examples/router/demo.py

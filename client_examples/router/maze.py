@@ -19,6 +19,7 @@ path's cost so far, to the A* cost.
 from __future__ import annotations
 
 import heapq
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
@@ -29,7 +30,8 @@ from grid import Node, Occupancy, TrackGrid
 # A path element: ("run", layer k, x1, y1, x2, y2) on a routing layer, or
 # ("via", cut c, x, y) between routing layers c and c + 1 (both DBU).
 Item = tuple
-Scorer = Callable[[Sequence[tuple[Item, ...]]], np.ndarray]  # candidates -> router cost
+# candidates -> (router cost, worst utilization among the ratios they change), per candidate
+Scorer = Callable[[Sequence[tuple[Item, ...]]], tuple[np.ndarray, np.ndarray]]
 
 
 @dataclass(frozen=True)
@@ -39,12 +41,20 @@ class Costs:
     history: float = 1.0  # um per unit of rip-up history on a node
     other_net: float = 40.0  # um per node shared with another net (soft search)
     antenna: float = 4.0  # um per unit of the service's router cost
-    wave: int = 24  # nodes popped per expansion wave (one score message)
+    wave: int = 48  # nodes popped per expansion wave (one score message)
+    # Weighted A*: the heuristic times this (> 1 trades a little path cost for far
+    # fewer expansions; a found path costs at most this factor more than the cheapest).
+    greed: float = 1.4
     sample: int = 12  # gate-side runs are scored every `sample` base steps of length
     # Gate-side paths with less metal than this are not scored (a saving of calls: so
     # little conductor is far below any knee of the demo deck; the complete path is
     # checked before it is committed whatever the search did).
     min_scored_um: float = 6.0
+    # Along one gate-side run every ratio the run changes is affine in its length with
+    # a non-negative intercept (pads, in-cell area, earlier steps' terms), so after a
+    # sample with utilization u at length l no length l' >= l exceeds u * l' / l. The
+    # next sample is taken where that bound reaches `quiet` (below the cost knee).
+    quiet: float = 0.5
 
 
 @dataclass
@@ -66,6 +76,7 @@ class _Labels:
         self.gate_side: dict[Node, bool] = {}
         self.antenna: dict[Node, float] = {}
         self.metal: dict[Node, float] = {}  # um of run in the partial path
+        self.next_sample: dict[Node, int] = {}  # run length (base steps) of the next score
 
 
 def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], targets: set[Node],
@@ -88,7 +99,7 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
         i, j = rest // ny, rest % ny
         dx = bi0 - i if i < bi0 else (i - bi1 if i > bi1 else 0)
         dy = bj0 - j if j < bj0 else (j - bj1 if j > bj1 else 0)
-        return (dx + dy) * min_step + (costs.via if dx and dy else 0.0)
+        return costs.greed * ((dx + dy) * min_step + (costs.via if dx and dy else 0.0))
 
     def blocked(table, fixed, n: Node) -> float | None:
         """None: not usable; else the extra cost of using node n."""
@@ -107,6 +118,7 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
     for s in sources:
         L.g[s], L.run_start[s], L.before[s], L.gate_side[s], L.antenna[s] = 0.0, s, (), True, 0.0
         L.metal[s] = 0.0
+        L.next_sample[s] = costs.sample
         heapq.heappush(heap, (h(s), 0.0, s))
     parent: dict[Node, Node] = {}
     expanded = scored = 0
@@ -161,6 +173,8 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                         moves.append((u, v, costs.via + a + b + costs.history * history.get(v, 0.0), True))
         # the wave's antenna candidates, one message
         antenna = [0.0] * len(moves)
+        sampled: dict[int, int] = {}  # candidate -> its run length, for gate-side samples
+        sampled_next: dict[int, int] = {}  # move -> the next sample length on its run
         if scorer is not None:
             asks: list[int] = []
             cands: list[tuple[Item, ...]] = []
@@ -178,17 +192,22 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                             continue
                         along = ny if layers[u // plane].horizontal else 1  # node-id stride of a step
                         length = abs(v - L.run_start[u]) // along
-                        if length % costs.sample or L.metal[u] + pitch_um < costs.min_scored_um:
+                        if length < L.next_sample[u] or L.metal[u] + pitch_um < costs.min_scored_um:
                             continue
+                        sampled[len(cands)] = length
                     cand = L.before[u] + run_item(L.run_start[u], v)
                 if cand:
                     asks.append(m)
                     cands.append(cand)
             if cands:
-                values = scorer(cands)
+                values, utils = scorer(cands)
                 scored += len(cands)
-                for m, c in zip(asks, values):
+                for q, (m, c) in enumerate(zip(asks, values)):
                     antenna[m] = float(c)
+                    if q in sampled:
+                        length, u = sampled[q], float(utils[q])
+                        bound = math.ceil(length * costs.quiet / u) if u > 0 else 1 << 30
+                        sampled_next[m] = max(length + costs.sample, bound)
         for m, (u, v, c, is_via) in enumerate(moves):
             a_u = L.antenna[u]
             a_v = max(a_u, antenna[m])
@@ -205,9 +224,11 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                                    + (("via", min(ku, kv), *grid.xy(iu, ju)),))
                     L.run_start[v] = v
                     L.gate_side[v] = L.gate_side[u] and kv > ku
+                    L.next_sample[v] = costs.sample
                 else:
                     L.before[v] = L.before[u]
                     L.run_start[v] = L.run_start[u]
                     L.gate_side[v] = L.gate_side[u]
+                    L.next_sample[v] = sampled_next.get(m, L.next_sample[u])
                 heapq.heappush(heap, (g + h(v), -g, v))
     return None

@@ -235,7 +235,7 @@ class Router:
     def scorer_for(self, net: str):
         service_net = self.service_name(net)
 
-        def score(cands: Sequence[tuple[Item, ...]]) -> np.ndarray:
+        def score(cands: Sequence[tuple[Item, ...]]) -> tuple[np.ndarray, np.ndarray]:
             rects: list[Rect] = []
             layers: list[str] = []
             counts: list[int] = []
@@ -251,7 +251,8 @@ class Router:
                 np.array(rects, dtype=np.int64), np.array(layers), counts))
             reply = self.session.ask("score_batch", request)
             self.stats.scored += len(cands)
-            return np.asarray(reply.cost, dtype=np.float64)
+            return (np.asarray(reply.cost, dtype=np.float64),
+                    np.asarray(reply.worst_change_utilization, dtype=np.float64))
 
         return score
 

@@ -1,0 +1,108 @@
+"""The router demo (client_examples/router) in both modes on the small bundled block,
+against a real ``etchguard serve`` on loopback.
+
+What is checked, and against what outside the router's own bookkeeping:
+* every net is connected in both modes: all pins in one component at the top step, by
+  the engine's net state built here from the router's final shapes (verify.py);
+* the shapes the router believes it committed are the shapes the server holds: the
+  server's report of each net equals an in-process engine's report of the router's
+  shapes (same figures, so the table's counts are about what the service checked);
+* antenna-blind routing leaves violations, antenna-aware routing leaves none;
+* the comparison figures are measured: wirelength and vias recounted here from the
+  shapes, and the two modes' runs differ where the modes differ.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import pytest
+
+from etchguard import Engine, load_deck, make_pin, make_shape
+from grpc_fixtures import DEMO_DECK, start_server
+
+ROUTER = Path(__file__).resolve().parents[1] / "client_examples" / "router"
+sys.path.insert(0, str(ROUTER))
+
+from route import Router, load_block  # noqa: E402
+from verify import connected_nets  # noqa: E402
+
+SMALL = ROUTER / "data" / "blk_r_small.json"
+
+
+@pytest.fixture(scope="module")
+def runs():
+    server = start_server(metrics=False)
+    out = {}
+    try:
+        block = load_block(SMALL)
+        for aware in (False, True):
+            with server.client(timeout=120.0) as client:
+                router = Router(client, block, aware)
+                router.route_all()
+                stats = router.finish(DEMO_DECK)
+                reports = {rep.net: rep for rep in client.check_all()}
+                out[aware] = (router, stats, reports)
+    finally:
+        server.stop()
+    return out
+
+
+def _engine_reports(router: Router) -> dict:
+    deck = load_deck(DEMO_DECK)
+    engine = Engine(deck)
+    out = {}
+    for route in router.nets.values():
+        name = router.service_name(route.data.name)
+        pins = [make_pin(deck, p.name, p.layer, p.rects, p.gate_area, p.diff_area, p.cell_area)
+                for p in route.pins]
+        engine.open_net(name, pins, shapes=[make_shape(deck, s.layer, s.rect) for s in route.shapes])
+        out[name] = engine.check(name)
+    return out
+
+
+@pytest.mark.parametrize("aware", [False, True])
+def test_every_net_connected(runs, aware):
+    router, stats, _ = runs[aware]
+    names = {n.name for n in router.block.nets}
+    assert connected_nets(DEMO_DECK, router.nets.values()) == names
+    assert stats.routed == len(names) == stats.nets
+
+
+@pytest.mark.parametrize("aware", [False, True])
+def test_server_holds_what_the_router_committed(runs, aware):
+    router, _, served = runs[aware]
+    local = _engine_reports(router)
+    mine = {k: v for k, v in served.items() if k in local}
+    assert set(mine) == set(local)
+    for name, rep in local.items():
+        assert mine[name].legal == rep.legal, name
+        assert mine[name].worst_utilization == pytest.approx(rep.worst_utilization, rel=1e-12), name
+
+
+def test_blind_leaves_violations_aware_none(runs):
+    _, blind, blind_reports = runs[False]
+    _, aware, aware_reports = runs[True]
+    blind_bad = [n for n, r in blind_reports.items() if n.startswith("blind:") and not r.legal]
+    aware_bad = [n for n, r in aware_reports.items() if n.startswith("aware:") and not r.legal]
+    assert blind.violations == len(blind_bad) > 0
+    assert aware.violations == len(aware_bad) == 0
+    assert aware.scored > 0 and blind.scored == 0  # only the aware mode asked the service
+    # every blind violation is either priced by a diode answer or counted as needing more
+    assert (blind.fix_diode_um2 > 0) + blind.fix_no_diode >= 1
+
+
+@pytest.mark.parametrize("aware", [False, True])
+def test_figures_are_recounted_from_shapes(runs, aware):
+    router, stats, _ = runs[aware]
+    cuts = {"V1", "V2", "V3", "V4", "V5"}
+    vias = sum(1 for r in router.nets.values() for s in r.shapes if s.layer in cuts)
+    assert stats.vias == vias > 0
+    # centre-line length of every run: the long side less the short side (a run is
+    # extended half its width past each end), in um
+    length = sum(max(s.rect[2] - s.rect[0], s.rect[3] - s.rect[1])
+                 - min(s.rect[2] - s.rect[0], s.rect[3] - s.rect[1])
+                 for r in router.nets.values() for s in r.shapes if s.run_um > 0) / 1000.0
+    assert stats.wirelength_um == pytest.approx(length)
+    assert stats.seconds > 0
