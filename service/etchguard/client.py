@@ -60,7 +60,10 @@ class ServiceError(Exception):
         code = exc.code() if hasattr(exc, "code") else grpc.StatusCode.UNKNOWN
         message = exc.details() if hasattr(exc, "details") else str(exc)
         field_name = ""
-        status = rpc_status.from_call(exc) if hasattr(exc, "trailing_metadata") else None
+        try:
+            status = rpc_status.from_call(exc) if hasattr(exc, "trailing_metadata") else None
+        except ValueError:  # details disagreeing with the code (a transport-level failure)
+            status = None
         if status is not None:
             for detail in status.details:
                 if detail.Is(error_details_pb2.BadRequest.DESCRIPTOR):

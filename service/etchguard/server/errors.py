@@ -19,6 +19,7 @@ from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, Limit
 from .._changelog import ChangeLogError
 
 DOMAIN = "etchguard.v1"
+MAX_MESSAGE_CHARS = 1000  # sent twice (message and BadRequest detail): well under 8 KiB
 
 CODES: dict[type, grpc.StatusCode] = {
     InputError: grpc.StatusCode.INVALID_ARGUMENT,
@@ -51,6 +52,9 @@ def describe(exc: EtchguardError, prefix: str = "") -> tuple[grpc.StatusCode, st
     """(status code, message naming the field, field path) of an engine error."""
     field = field_path(exc, prefix)
     message = f"{field}: {exc.message}" if field else exc.message
+    if len(message) > MAX_MESSAGE_CHARS:  # messages quote request values (a 5,000-character
+        # net name...): cut, so status + details stay inside the peer's 8 KiB metadata limit
+        message = message[:MAX_MESSAGE_CHARS - 20] + " ... (message cut)"
     return code_of(exc), message, field
 
 
