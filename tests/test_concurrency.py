@@ -175,3 +175,28 @@ def test_eight_clients_five_thousand_mixed_operations_each(tmp_path):
         held_equals(server, engine)
     finally:
         server.stop()
+
+
+def test_a_client_gone_mid_stream_leaves_whole_commits_only():
+    """Pipeline 300 commits of three shapes and drop the stream after a few replies: the
+    server applies each commit whole or not at all. Ids come in threes from 1, so the
+    id a probe commit gets says how many commits landed, and removing every id below
+    it in one all-or-nothing call proves they are all held."""
+    server = start_server(metrics=False)
+    try:
+        with server.client() as c:
+            c.open_net("gone/n", [GATE, DRIVER])
+            s = c.session()
+            rng = random.Random(5)
+            for _ in range(300):
+                s.send("commit", pb.CommitRequest(net="gone/n", shapes=[random_shape(rng) for _ in range(3)]))
+            acked = [s.receive() for _ in range(5)]
+            s.close()  # the client goes away with most of the stream unanswered
+            assert all(not r.HasField("error") for r in acked)
+            time.sleep(1.0)  # let the server finish what it had read
+            first = c.commit("gone/n", [rect("M1", 0, 30, 400, 170)])[0]
+            landed = first - 1
+            assert landed % 3 == 0 and 15 <= landed <= 900, f"{landed} shapes: a commit was split"
+            assert c.remove("gone/n", list(range(1, first + 1))) == first
+    finally:
+        server.stop()
