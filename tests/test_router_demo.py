@@ -37,13 +37,16 @@ def runs():
     out = {}
     try:
         block = load_block(SMALL)
-        for aware in (False, True):
+        # "repair": aware, but the search scores nothing: only the advice repairs
+        for mode, aware, scores in ((False, False, False), (True, True, True),
+                                    ("repair", True, False)):
             with server.client(timeout=120.0) as client:
-                router = Router(client, block, aware)
+                router = Router(client, block, aware, search_scores=scores)
                 router.route_all()
                 stats = router.finish(DEMO_DECK)
                 reports = {rep.net: rep for rep in client.check_all()}
-                out[aware] = (router, stats, reports)
+                out[mode] = (router, stats, reports)
+                router.close()  # the next mode's advice must not see these nets as obstacles
     finally:
         server.stop()
     return out
@@ -62,7 +65,7 @@ def _engine_reports(router: Router) -> dict:
     return out
 
 
-@pytest.mark.parametrize("aware", [False, True])
+@pytest.mark.parametrize("aware", [False, True, "repair"])
 def test_every_net_connected(runs, aware):
     router, stats, _ = runs[aware]
     names = {n.name for n in router.block.nets}
@@ -70,7 +73,7 @@ def test_every_net_connected(runs, aware):
     assert stats.routed == len(names) == stats.nets
 
 
-@pytest.mark.parametrize("aware", [False, True])
+@pytest.mark.parametrize("aware", [False, True, "repair"])
 def test_server_holds_what_the_router_committed(runs, aware):
     router, _, served = runs[aware]
     local = _engine_reports(router)
@@ -93,7 +96,7 @@ def test_blind_leaves_violations_aware_none(runs):
     assert (blind.fix_diode_um2 > 0) + blind.fix_no_diode >= 1
 
 
-@pytest.mark.parametrize("aware", [False, True])
+@pytest.mark.parametrize("aware", [False, True, "repair"])
 def test_figures_are_recounted_from_shapes(runs, aware):
     router, stats, _ = runs[aware]
     cuts = {"V1", "V2", "V3", "V4", "V5"}
@@ -106,3 +109,16 @@ def test_figures_are_recounted_from_shapes(runs, aware):
                  for r in router.nets.values() for s in r.shapes if s.run_um > 0) / 1000.0
     assert stats.wirelength_um == pytest.approx(length)
     assert stats.seconds > 0
+
+
+def test_advice_repairs_what_the_search_did_not_avoid(runs):
+    """Without scores in the search the paths are the blind ones; every path that would
+    break a limit is repaired from the service's advice before it is committed."""
+    _, blind, _ = runs[False]
+    _, repair, reports = runs["repair"]
+    used = repair.hops + repair.jumpers + repair.diodes
+    assert repair.scored == 0
+    assert used >= 1
+    assert repair.violations < blind.violations
+    assert repair.violations == sum(1 for n, r in reports.items()
+                                    if n.startswith("repair:") and not r.legal)

@@ -41,6 +41,10 @@ class Costs:
     history: float = 1.0  # um per unit of rip-up history on a node
     other_net: float = 40.0  # um per node shared with another net (soft search)
     antenna: float = 4.0  # um per unit of the service's router cost
+    # The most a path pays for antenna cost (um): over a limit the service's cost is
+    # >= 1e6, which would make the search flood the whole block before it accepts a
+    # path it cannot avoid; such a path is repaired from advice before it is committed.
+    antenna_cap: float = 400.0
     wave: int = 48  # nodes popped per expansion wave (one score message)
     # Weighted A*: the heuristic times this (> 1 trades a little path cost for far
     # fewer expansions; a found path costs at most this factor more than the cheapest).
@@ -211,7 +215,7 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
         for m, (u, v, c, is_via) in enumerate(moves):
             a_u = L.antenna[u]
             a_v = max(a_u, antenna[m])
-            g = L.g[u] + c + costs.antenna * (a_v - a_u)
+            g = L.g[u] + c + min(costs.antenna * a_v, costs.antenna_cap) - min(costs.antenna * a_u, costs.antenna_cap)
             if g < L.g.get(v, float("inf")) - 1e-9:
                 L.g[v] = g
                 L.antenna[v] = a_v

@@ -129,8 +129,11 @@ class Stats:
 
 class Router:
     def __init__(self, client: Client, block: Block, aware: bool, costs: Costs = Costs(),
-                 max_ripups: int = 4, log=None) -> None:
+                 max_ripups: int = 4, log=None, search_scores: bool = True) -> None:
         self.client = client
+        # aware mode without scores in the search: only the advice repairs (tests use it
+        # to see the repairs at work on their own)
+        self.search_scores = search_scores
         self.deck = client.deck
         self.block = block
         self.aware = aware
@@ -140,7 +143,8 @@ class Router:
         self.grid = TrackGrid(self.deck, block.size, *block.layer_range)
         self.occ = Occupancy(self.grid)
         self.session: Session = client.session()
-        self.prefix = f"{'aware' if aware else 'blind'}:"  # both modes may share a server
+        mode = ("aware" if search_scores else "repair") if aware else "blind"
+        self.prefix = f"{mode}:"  # the modes may share a server
         self.nets = {n.name: NetRoute(n) for n in block.nets}
         self.stats = Stats("antenna-aware" if aware else "antenna-blind", len(block.nets))
         self._rects: dict[Item, list[tuple[str, Rect]]] = {}
@@ -310,7 +314,7 @@ class Router:
             for r in p.rects:
                 route.tree.update(g.nodes_inside(g.layer_of_name[p.layer], r))
         sinks = sorted(data.sinks, key=lambda p: _distance(p, data.driver))
-        scorer = self.scorer_for(data.name) if self.aware else None
+        scorer = self.scorer_for(data.name) if self.aware and self.search_scores else None
         for sink in sinks:
             k = g.layer_of_name[sink.layer]
             sources = {n for r in sink.rects for n in g.nodes_inside(k, r)}
