@@ -136,9 +136,18 @@ def held_matches_a_replay(client, routers: list[Router]) -> None:
                 if want_ids == got_ids and report(engine, net) == got:
                     matches.append(engine)
             assert matches, f"{net}: held state is no replay of the acknowledged operations"
-            held = sorted(matches[0].shapes(net))
+            # A removal in flight may have landed without changing any figure (shapes
+            # fully covered by others): then both variants match, and only the ids tell
+            # them apart. A refused removal changes nothing, so try each in turn.
+            for engine in matches:
+                held = sorted(engine.shapes(net))
+                try:
+                    assert client.remove(net, held) == len(held)
+                    break
+                except ServiceError as exc:
+                    if exc.code.name != "NOT_FOUND" or engine is matches[-1]:
+                        raise
             gone = sorted(set(range(1, max(held) + 1)) - set(held))
-            assert client.remove(net, held) == len(held)
             for sid in random.Random(net).sample(gone, min(len(gone), 10)):
                 with pytest.raises(ServiceError) as info:
                     client.remove(net, [sid])

@@ -15,31 +15,28 @@ from __future__ import annotations
 
 import threading
 from collections import OrderedDict
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
-
-from ._assess import Assessment
-from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
-from ._geometry import Rect
-from ._netstate import NetState
-from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
-from ._ratios import StepModel, conductor_headroom
-from ._reports import Headroom, NetReport, Score
-from ._rules import Deck
-from ._whatif import CostModel, score, score_joining
-# columnar batch scores of single-rectangle candidates (numpy): see score_columns below
-import numpy as np
-from ._batch import BatchScores, score_columns as _score_columns
-# advice and the design-wide obstacle index (issue 4): see the "advice" section below
-from ._advice import Advice, advise as _advise, check_request as _check_advice_request
-from ._geometry import checked_rect as _checked_rect
-from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items
-# durability (issue 5): the change-log hook and whole-state images; see the "durability" section
-from collections.abc import Callable
 from typing import TypeVar
+
+import numpy as np
+
+from ._advice import Advice, advise as _advise, check_request as _check_advice_request
+from ._assess import Assessment
+from ._batch import BatchScores, checked_columns, score_columns as _score_columns
 from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
                          NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
-from ._rules import loads_deck as _loads_deck
+from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
+from ._geometry import Rect, checked_rect as _checked_rect
+from ._netstate import NetState
+from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
+from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items
+from ._headroom import layer_headroom
+from ._ratios import StepModel
+from ._reports import Headroom, NetReport, Score
+from ._rules import Deck, loads_deck as _loads_deck
+from ._whatif import CostModel, score, score_joining
+
 _Mark = TypeVar("_Mark")
 
 
@@ -356,65 +353,15 @@ class Engine:
         ``shape_count[i]`` rows (default: one row each); entry i equals
         ``score(name, its shapes, detail=False)``. Validated as a whole before anything
         is computed; the first bad row is named (``rects[k]``, ``shape_count[i]``)."""
-        deck = self.deck
-        rect_arr = np.asarray(rects)
-        if rect_arr.ndim != 2 or rect_arr.shape[1] != 4:
-            raise InputError(f"rects must be an (N, 4) array, got shape {rect_arr.shape}", "rects")
-        count = rect_arr.shape[0]
-        counts = None
-        if shape_count is not None:
-            counts = np.asarray(shape_count)
-            if counts.ndim != 1 or (len(counts) and counts.dtype.kind not in "iu"):
-                raise InputError(f"shape_count must list integer counts, got shape {counts.shape}",
-                                 "shape_count")
-            counts = counts.astype(np.int64, copy=False)
-            low = np.nonzero(counts < 1)[0]
-            if len(low):
-                raise InputError("a candidate needs at least one shape", f"shape_count[{int(low[0])}]")
-            if int(counts.sum()) != count:
-                raise InputError(f"shape counts add up to {int(counts.sum())}, but there are {count} "
-                                 "rectangles", "shape_count")
-            big = np.nonzero(counts > self.limits.max_shapes_per_net)[0]
-            if len(big):
-                raise LimitExceededError(f"{int(counts[big[0]])} shapes would exceed the limit of "
-                                         f"{self.limits.max_shapes_per_net} per net",
-                                         f"shape_count[{int(big[0])}]")
-        candidates = count if counts is None else len(counts)
-        if candidates > self.limits.max_candidates:
-            raise LimitExceededError(f"{candidates} candidates exceed the limit of "
-                                     f"{self.limits.max_candidates} per batch",
-                                     "rects" if counts is None else "shape_count")
-        if rect_arr.dtype.kind not in "iu":
-            raise InputError(f"coordinates are integer DBU (int64), got {rect_arr.dtype}", "rects")
-        layer_arr = np.asarray(layers)
-        if layer_arr.ndim != 1 or layer_arr.shape[0] != count:
-            raise InputError(f"layers must list one layer per rectangle ({count}), got shape "
-                             f"{layer_arr.shape}", "layers")
-        if count and layer_arr.dtype.kind not in "iu":
-            raise InputError(f"layers are integer step indices, got {layer_arr.dtype}", "layers")
-        bad = np.nonzero((layer_arr < 0) | (layer_arr >= len(deck.layers)))[0]
-        if len(bad):
-            raise InputError(f"unknown layer {int(layer_arr[bad[0]])} (deck has "
-                             f"{len(deck.layers)})", f"layers[{int(bad[0])}]")
-        limit = 1 << 62  # _geometry.COORD_LIMIT
-        if rect_arr.dtype.kind == "u":
-            far = np.nonzero((rect_arr >= limit).any(axis=1))[0]
-            if len(far):
-                raise InputError("a coordinate is outside +-2^62 DBU", f"rects[{int(far[0])}]")
-        rect_arr = rect_arr.astype(np.int64, copy=False)
-        far = (rect_arr <= -limit) | (rect_arr >= limit)
-        empty = (rect_arr[:, 0] >= rect_arr[:, 2]) | (rect_arr[:, 1] >= rect_arr[:, 3])
-        bad = np.nonzero(far.any(axis=1) | empty)[0]
-        if len(bad):
-            i = int(bad[0])
-            why = ("a coordinate is outside +-2^62 DBU" if far[i].any() else
-                   f"rectangle {rect_arr[i].tolist()} is empty or inverted (need xlo < xhi, ylo < yhi)")
-            raise InputError(why, f"rects[{i}]")
+        layer_arr, rect_arr, counts = checked_columns(len(self.deck.layers), layers, rects, shape_count,
+                                                      self.limits.max_candidates,
+                                                      self.limits.max_shapes_per_net)
+        candidates = rect_arr.shape[0] if counts is None else len(counts)
         net = self._net(name)
         with net.lock:
             state = self._state(net)
             result = _score_columns(state, self._assessment(net, state),
-                                    layer_arr.astype(np.int64, copy=False), rect_arr, self.costs, counts)
+                                    layer_arr, rect_arr, self.costs, counts)
         self.counters["scores"] += candidates
         return result
 
@@ -459,7 +406,7 @@ class Engine:
                 **self.counters}
 
 
-    # -- advice (issue 4): blockages and repair advice ---------------------------------
+    # -- advice: blockages and repair advice ----------------------------------------
 
     def declare_blockage(self, layer: int, rect: Sequence[int]) -> int:
         """Declare an area of a layer no new shape may use; returns its id."""
@@ -492,7 +439,7 @@ class Engine:
         self.counters["scores"] += 1
         return result
 
-    # -- durability (issue 5): change-log hook and whole-state images --------------------
+    # -- durability: change-log hook and whole-state images ----------------------------
 
     def _record(self, change) -> None:
         """Hand a change that has been applied to the change log, if there is one
@@ -539,57 +486,3 @@ class Engine:
                                                        _net_items(n.name, n.pins, n.shapes)],
                                     dict(image.blockages))
             self._obstacles._next_blockage = image.next_blockage_id  # ids continue, never reused
-
-
-def layer_headroom(state: NetState, assessment: Assessment, layer: int, element: int) -> Headroom:
-    """Remaining conductor on ``layer`` for the component holding ``element``.
-
-    Added conductor on layer L raises the partial ratio at L and, by the same term,
-    every cumulative ratio of the component's gates at the steps >= L of L's lane;
-    the headroom is the least that any of those checks allows.
-    """
-    model = state.model
-    deck = model.deck
-    comp = state.comp_at[layer][element]
-    info = deck.layers[layer]
-    best = {"area": float("inf"), "side": float("inf")}
-    binding = {"area": "", "side": ""}
-    if comp.gate > 0:
-        for e in assessment.entries[layer].get(comp, ()):
-            if e.kind != "partial":
-                continue
-            room = conductor_headroom(deck.rule(layer, e.measure, e.oxide), e.limit, e.gate_um2,
-                                      e.diff_um2, 0.0, e.conductor)
-            if room < best[e.measure]:
-                best[e.measure], binding[e.measure] = room, f"{info.name} partial {e.measure} {e.oxide}"
-        lane = model.lane[layer]
-        for s in range(layer, model.steps):
-            if model.lane[s] != lane:
-                continue
-            for key in model.cumulative_checks[s]:
-                gi = model.group_index[(key.measure, key.oxide)]
-                term_rule = model.term_rule[layer][gi]
-                conductor = model.conductor(layer, key.measure, comp.area, comp.cell, comp.perim)
-                term = (conductor / comp.gate if term_rule is None
-                        else term_rule.ratio(conductor, comp.gate, comp.diff))
-                for p in comp.gates:
-                    if key.oxide not in state.pins[p].gate_area:
-                        continue
-                    later = state.comp_of_pin(p, s)
-                    limit = key.rule.cumulative_limit(later.diff)
-                    spent = assessment.cars[(p, gi)][s] - term
-                    room = conductor_headroom(term_rule, limit, comp.gate, comp.diff, spent, conductor)
-                    if room < best[key.measure]:
-                        best[key.measure] = room
-                        binding[key.measure] = (f"{deck.layers[s].name} cumulative {key.measure} "
-                                                f"{key.oxide} of {state.pins[p].name}")
-    # Run length at the default width: a um of run adds width um^2 of area and two
-    # side walls of thickness um^2 each (the ends are already counted in the run).
-    length, which = float("inf"), ""
-    if info.is_routing and info.wire_width and best["area"] < float("inf"):
-        length, which = best["area"] / (info.wire_width / deck.dbu_per_micron), binding["area"]
-    if info.is_routing and info.thickness_um and best["side"] < float("inf"):
-        side_length = best["side"] / (2.0 * info.thickness_um)
-        if side_length < length:
-            length, which = side_length, binding["side"]
-    return Headroom(info.name, True, best["area"], best["side"], length, which)
