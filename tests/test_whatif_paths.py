@@ -1,21 +1,28 @@
-"""The what-if's shortcut for one rectangle that extends one component
-(_whatif.score_joining) against the general path (_whatif.score, detail=False): the
-same figures to the bit, on random nets and decks and on bench-like nets. The general
-path itself is held to the independent shapely/networkx reference in
-test_reference_agreement.py, so this closes the loop for the shortcut."""
+"""The what-if's shortcuts (_whatif.score_joining: one rectangle that extends one
+component, and several shapes - a via stack, a run with a via stack at one end - that
+extend one component's chain) against the general path (_whatif.score, detail=False):
+the same figures to the bit, on random nets and decks and on bench-like nets. The
+general path itself is held to the independent shapely/networkx reference in
+test_reference_agreement.py, so this closes the loop for the shortcuts."""
 
 from __future__ import annotations
 
+import random
+
 from hypothesis import given
+from hypothesis import strategies as st
 
 import etchguard as eg
 from etchguard._whatif import score, score_joining
 from test_batch import batch_cases, bench_batch
-from test_reference_agreement import SETTINGS, engine_with
+from test_reference_agreement import GRID, SETTINGS, engine_with
 
-from bench.netgen import bench_deck, generate_net
+from bench.netgen import bench_deck, extension_candidates, generate_net, via_run_candidates
 
 TAKEN = {"random": [0, 0], "bench": [0, 0]}  # [shortcut answers, candidates]
+# multi-shape candidates: [shortcut answers, candidates, answers where gates join the
+# component's chain above the candidate's lowest step (a second join batch)]
+MULTI = {"random": [0, 0, 0], "bench": [0, 0, 0], "via_run": [0, 0, 0]}
 
 
 def _held(engine: eg.Engine, name: str):
@@ -56,3 +63,126 @@ def test_shortcut_equals_general_path_on_bench_nets() -> None:
     print(f"\nshortcut answered {taken} of {total} bench candidates")
     assert taken > total // 3  # the shortcut is really exercised on realistic candidates
     assert taken < total  # and so is the general path
+
+
+# -- multi-shape candidates ------------------------------------------------------------------
+
+def _joins_later(state, shapes: list[eg.Shape]) -> bool:
+    """Whether the component the candidate joins at its lowest step gains gates later
+    (so the shortcut's per-batch sums, not one sum for all, are what is compared)."""
+    first = min(s.layer for s in shapes)
+    low = [s for s in shapes if s.layer == first]
+    near = [e for s in low for e, joined in state.touching(s.layer, s.rect) if joined == first]
+    if not near:
+        return False
+    anchor = near[0]
+    gates_low = state.comp_at[first][anchor].gates
+    return len(state.comp_at[state.model.steps - 1][anchor].gates) > len(gates_low)
+
+
+def assert_same_multi(engine: eg.Engine, name: str, candidates: list[list[eg.Shape]], tally: str) -> None:
+    state, assessment = _held(engine, name)
+    for shapes in candidates:
+        quick = score_joining(state, assessment, shapes, engine.costs)
+        full = score(state, assessment, list(shapes), engine.costs, detail=False)
+        MULTI[tally][1] += 1
+        if quick is None:
+            continue
+        MULTI[tally][0] += 1
+        MULTI[tally][2] += _joins_later(state, shapes)
+        assert quick == full, (shapes, quick, full)
+    # the engine's own entry point takes the same answer
+    for shapes in candidates[:8]:
+        assert engine.score(name, shapes, detail=False) == score(state, assessment, list(shapes),
+                                                                 engine.costs, detail=False)
+
+
+def via_stacks(deck: eg.Deck, shapes: list[eg.Shape], rng: random.Random, count: int) -> list[list[eg.Shape]]:
+    """Router-like multi-shape candidates at points of existing shapes: a via stack of
+    one or two vias up (or one down), alone or with a run at its top, and a run with a
+    via stack at its far end; plus the same stacks without their lowest pad."""
+    layers = deck.layers
+    routed = [s for s in shapes if layers[s.layer].is_routing]
+    out: list[list[eg.Shape]] = []
+    for _ in range(count if routed else 0):
+        base = rng.choice(routed)
+        x0, y0, x1, y1 = base.rect
+        x, y = (x0 + x1) // 2, (y0 + y1) // 2
+        m = base.layer
+        up = m + 1 < len(layers) and bool(layers[m + 1].cut_size)
+        down = m - 1 >= 0 and bool(layers[m - 1].cut_size)
+        kind = rng.choice(["stack", "stack2", "stack+run", "run+stack", "down"])
+        if kind == "down" and down:
+            out.append(eg.via_shapes(deck, m - 1, x, y))
+            continue
+        if not up:
+            continue
+        stack = eg.via_shapes(deck, m + 1, x, y)
+        top = m + 2
+        if kind == "stack2" and top + 1 < len(layers) and layers[top + 1].cut_size:
+            stack = stack + eg.via_shapes(deck, top + 1, x, y)
+            top += 2
+        if kind == "run+stack":  # a run on m from the point, the via up at its far end
+            length = rng.choice((-1, 1)) * rng.randint(2, 30) * (layers[m].wire_width or GRID)
+            horizontal = layers[m].direction == "horizontal"
+            end = (x + length, y) if horizontal else (x, y + length)
+            out.append(eg.run_shapes(deck, m, x, y, *end) + eg.via_shapes(deck, m + 1, *end))
+            continue
+        if kind == "stack+run" and layers[top].wire_width:
+            length = rng.choice((-1, 1)) * rng.randint(2, 30) * layers[top].wire_width
+            horizontal = layers[top].direction == "horizontal"
+            end = (x + length, y) if horizontal else (x, y + length)
+            stack = stack + eg.run_shapes(deck, top, x, y, *end)
+        out.append(stack)
+        out.append(stack[1:])  # no lower pad: the cut lands on the shape itself
+    return out
+
+
+@SETTINGS
+@given(batch_cases(), st.randoms(use_true_random=False))
+def test_multi_shape_shortcut_equals_general_path_on_random_nets(case, rng: random.Random) -> None:
+    deck, net, picks = case
+    engine = engine_with(deck, net)
+    picked = [eg.make_shape(engine.deck, p["layer"], p["rect"]) for p in picks]
+    existing = list(engine.shapes("n1").values())
+    candidates = via_stacks(engine.deck, existing + picked, rng, 12)
+    # arbitrary groups of picks: mostly not one group, sometimes one (and the shortcut)
+    for size in (2, 3):
+        candidates += [picked[i:i + size] for i in range(0, len(picked) - size + 1, size)]
+    # a pick with a via stack where it is: a run extended and a via on it
+    for p in rng.sample(picked, min(4, len(picked))):
+        candidates += [[p] + stack for stack in via_stacks(engine.deck, [p], rng, 1)]
+    assert_same_multi(engine, "n1", candidates, "random")
+
+
+def test_multi_shape_shortcut_equals_general_path_on_bench_nets() -> None:
+    deck = bench_deck()
+    for size, seed in ((10, 0), (50, 1), (100, 2), (50, 3)):
+        net = generate_net(deck, size, seed=seed)
+        engine = eg.Engine(deck)
+        engine.open_net(net.name, net.pins, None, net.shapes)
+        rng = random.Random(f"multi/{seed}")
+        assert_same_multi(engine, net.name, via_run_candidates(deck, net, 150, seed=seed), "via_run")
+        stacks = via_stacks(deck, list(net.shapes), rng, 60)
+        runs = [c + eg.via_shapes(deck, c[0].layer + 1, *_far_end(c[0]))
+                for c in extension_candidates(deck, net, 40, seed=seed)
+                if c[0].layer + 1 < len(deck.layers)]
+        assert_same_multi(engine, net.name, stacks + runs, "bench")
+    for tally in ("via_run", "bench", "random"):
+        if not MULTI[tally][1]:
+            continue  # the random cases run in their own test
+        taken, total, later = MULTI[tally]
+        print(f"\nmulti-shape shortcut ({tally}): answered {taken} of {total} "
+              f"({taken / total:.0%}), {later} with gates joining above the lowest step")
+    taken, total, later = MULTI["via_run"]
+    assert taken > total // 4  # the router's via+run candidates mostly take the shortcut
+    assert later > 0  # including chains that gain gates above the lowest step
+    assert MULTI["bench"][0] < MULTI["bench"][1]  # and the general path is still exercised
+
+
+def _far_end(run: eg.Shape) -> tuple[int, int]:
+    """A point inside the right (or upper) end of a run: its far end or the end at
+    the net, as the run's direction has it; either way a via at one end of the run."""
+    x0, y0, x1, y1 = run.rect
+    w, h = x1 - x0, y1 - y0
+    return ((x1 - h // 2, (y0 + y1) // 2) if w >= h else ((x0 + x1) // 2, y1 - w // 2))

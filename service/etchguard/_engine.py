@@ -318,8 +318,8 @@ class Engine:
             state = self._state(net)
             assessment = self._assessment(net, state)
             result = None
-            if not detail and len(candidate) == 1:
-                result = score_joining(state, assessment, candidate[0], self.costs)
+            if not detail:
+                result = score_joining(state, assessment, candidate, self.costs)
             if result is None:
                 result = score(state, assessment, list(candidate), self.costs, detail)
         self.counters["scores"] += 1

@@ -15,6 +15,7 @@ tests hold it to an independent shapely + networkx reference).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from ._assess import Assessment, Entry, comp_entries, utilization_only
@@ -23,6 +24,7 @@ from ._netstate import Comp, NetState
 from ._nets import Shape
 from ._ratios import conductor_headroom, is_legal, utilization
 from ._reports import RatioChange, Score
+from ._rules import Rule
 
 
 @dataclass(frozen=True)
@@ -329,9 +331,18 @@ def _joins_one(state: NetState, touches: list[tuple[int, int]], layer: int) -> C
     return comp_at[layer][first]
 
 
-def score_joining(state: NetState, assessment: Assessment, cand: Shape, costs: CostModel) -> Score | None:
-    """The what-if of one rectangle that joins one gate-connected component, or None
-    when the general path is needed. Equal to ``score(..., detail=False)``."""
+def score_joining(state: NetState, assessment: Assessment, cand: Shape | Sequence[Shape],
+                  costs: CostModel) -> Score | None:
+    """The what-if of a candidate that joins one gate-connected component, or None
+    when the general path is needed. Equal to ``score(..., detail=False)``.
+
+    One rectangle takes the join plan below; several shapes take the chain plan
+    (``_score_chain``) when they form one group that joins one component at every step.
+    """
+    if not isinstance(cand, Shape):
+        if len(cand) != 1:
+            return _score_chain(state, assessment, list(cand), costs)
+        cand = cand[0]
     layer, rect = cand.layer, cand.rect
     touches = state.touching(layer, rect)
     comp = _joins_one(state, touches, layer)
@@ -367,3 +378,215 @@ def score_joining(state: NetState, assessment: Assessment, cand: Shape, costs: C
     worst_net = max(worst_net, worst_change)
     return Score({model.deck.layers[layer].name: area * model.scale_area}, (), worst_change, worst_net,
                  is_legal(worst_net), not is_legal(worst_change), costs.cost(worst_change))
+
+
+# Chain plans sit beside the join plans in ``Assessment.join_plans``, under
+# (id(component), _CHAIN_KEY - lowest step): a negative second key never meets a layer.
+_CHAIN_KEY = -1
+
+
+class _ChainStep:
+    """The constants of one step s of a chain plan (see ``_ChainPlan``)."""
+
+    __slots__ = ("step", "comp", "lane", "joined", "old_terms", "partial", "cumulative",
+                 "unchanged", "around", "untouched")
+
+    def __init__(self, step: int, comp: Comp, lane: int, joined: int,
+                 old_terms: list[tuple[int, float]],
+                 partial: list[tuple[Rule, str, float]],
+                 cumulative: list[tuple[int, float, list[tuple[int, float]]]],
+                 unchanged: float, around: float, untouched: float) -> None:
+        self.step, self.comp, self.lane, self.joined = step, comp, lane, joined
+        self.old_terms = old_terms  # (group, C_s's term at s) for groups some gate of C_s has
+        self.partial = partial  # (rule, measure, limit) of the partial checks of C_s at s
+        # (group, limit, [(join batch, best CAR at s of its gates)]) per cumulative check
+        self.cumulative = cumulative
+        self.unchanged = unchanged  # worst of C_s at s when nothing about it changes
+        self.around = around  # C_s's old partial worst (kept when only its sums move)
+        self.untouched = untouched  # worst of the other components at s
+
+
+class _ChainPlan:
+    """What stays fixed while multi-shape candidates extend the chain of one component.
+
+    Let C = C_L be a gate-connected component at step L and C_s, for s >= L, the
+    component holding C's elements at step s (C_L is contained in C_{L+1} and so on:
+    connectivity only grows). A candidate whose shapes form one group that joins exactly
+    C_s at every step s >= L (L its lowest layer) changes, at step s, only C_s, and only
+    when it has shapes on layer s; everything but the union change (two integers per
+    such step) is a constant of (C, L):
+
+    * the old terms of C_s at s, per (measure, oxide) group, so a step's term change is
+      ``model.term(new) - old`` exactly as the general path computes it;
+    * the gates in join batches: the gates of C_L, then per step the gates of C_s that
+      were not in C_{s-1}. The general path adds the same term change to every gate of
+      C_s, so all gates of a batch carry the same change per lane, built by the same
+      additions in the same order (``d[lane] += x`` from 0.0);
+    * per cumulative check at s, the best CAR at s of each batch's gates: float
+      addition is monotone, so the best of (CAR + change) over a batch is its best CAR
+      plus the batch's change;
+    * the fixed worst figures the general path reads from the assessment.
+    """
+
+    __slots__ = ("comp", "batches", "steps")
+
+    def __init__(self, state: NetState, assessment: Assessment, comp: Comp, first: int) -> None:
+        model = state.model
+        pins_ox = assessment.pins_ox
+        self.comp = comp
+        anchor = next(iter(comp.members))
+        # per join batch: the groups whose change its gates carry (an entry (pin, group)
+        # exists in the general path exactly when the pin has the group's oxide)
+        self.batches: list[list[int]] = []
+        batch_gates: list[list[int]] = []
+        seen: set[int] = set()
+        self.steps: list[_ChainStep] = []
+        for s in range(first, model.steps):
+            c_s = state.comp_at[s][anchor]
+            fresh = [p for p in c_s.gates if p not in seen]
+            if fresh:
+                seen.update(fresh)
+                batch_gates.append(fresh)
+                self.batches.append([gi for gi, (_m, ox) in enumerate(model.groups)
+                                     if any(ox in pins_ox[p] for p in fresh)])
+            groups = sorted({gi for b in self.batches for gi in b})
+            old_terms = [(gi, model.term(s, gi, c_s.area, c_s.cell, c_s.perim, c_s.gate, c_s.diff))
+                         for gi in groups]
+            partial = [(key.rule, key.measure, key.rule.partial_limit(c_s.diff))
+                       for key in model.partial_checks[s] if key.oxide in c_s.gate_ox]
+            cumulative = []
+            for key in model.cumulative_checks[s]:
+                if key.oxide not in c_s.gate_ox:
+                    continue
+                gi = model.group_index[(key.measure, key.oxide)]
+                bests = []
+                for b, gates in enumerate(batch_gates):
+                    values = [assessment.cars[(p, gi)][s] for p in gates if key.oxide in pins_ox[p]]
+                    if values:
+                        bests.append((b, max(values)))
+                cumulative.append((gi, key.rule.cumulative_limit(c_s.diff), bests))
+            around = assessment.partial_worst[s].get(c_s, 0.0)
+            self.steps.append(_ChainStep(
+                s, c_s, model.lane[s], len(batch_gates), old_terms, partial, cumulative,
+                max(around, _unchanged_worst(assessment, s, c_s)), around,
+                assessment.worst_untouched(s, {c_s})))
+
+
+def _chain_component(state: NetState, cands: list[Shape],
+                     touches: list[list[tuple[int, int]]]) -> Comp | None:
+    """C_L when the candidates, at every step s from their lowest layer L up, form one
+    group by their own contacts (shapes on layers <= s) that touches exactly one
+    existing component, gate-connected at L; else None.
+
+    Contacts with existing elements start at most one step above the candidate's own
+    layer, so past the top layer + 1 the touched elements stay the same and, being in
+    one component there, stay in one component at every later step.
+    """
+    model = state.model
+    layers = [c.layer for c in cands]
+    first, top = min(layers), max(layers)
+    parent = list(range(len(cands)))
+    links_at: dict[int, list[tuple[int, int]]] = {}
+    for i, j, joined in _candidate_links(cands, model.is_cut):
+        links_at.setdefault(joined, []).append((i, j))
+    chain: Comp | None = None
+    for s in range(first, min(model.steps - 1, top + 1) + 1):
+        for i, j in links_at.get(s, ()):
+            ri, rj = _find(parent, i), _find(parent, j)
+            if ri != rj:
+                parent[ri] = rj
+        present = [i for i, layer in enumerate(layers) if layer <= s]
+        root = _find(parent, present[0])
+        if any(_find(parent, i) != root for i in present):
+            return None  # two groups at s (or joined only through the net): general path
+        at_s = state.comp_at[s]
+        comp: Comp | None = None
+        for i in present:
+            for e, joined in touches[i]:
+                if joined <= s:
+                    c = at_s[e]
+                    if comp is None:
+                        comp = c
+                    elif c is not comp:
+                        return None  # a merge of components
+        if comp is None:
+            return None  # floating at the lowest step
+        if chain is None:
+            if comp.gate <= 0:
+                return None
+            chain = comp
+    return chain
+
+
+def _score_chain(state: NetState, assessment: Assessment, cands: list[Shape],
+                 costs: CostModel) -> Score | None:
+    """The what-if of several shapes that extend one component's chain (``_ChainPlan``),
+    or None when the general path is needed. Equal to ``score(..., detail=False)``.
+
+    It walks the steps as the general path does for its single group: at a step with
+    candidate shapes the group is C_s plus their local union change (the same
+    ``_local_change`` call), the term change is added to every join batch that has
+    joined, and every check of C_s is evaluated; at a step without, C_s's cumulative
+    checks are re-evaluated only when some batch's change in the step's lane is
+    nonzero, else the assessment's figures stand; the other components' worst is read
+    from the assessment at every step.
+    """
+    if not cands:
+        return None
+    model = state.model
+    touches = [state.touching(c.layer, c.rect) for c in cands]
+    comp = _chain_component(state, cands, touches)
+    if comp is None:
+        return None
+    first = min(c.layer for c in cands)
+    plans = assessment.join_plans
+    key = (id(comp), _CHAIN_KEY - first)
+    plan = plans.get(key)
+    if not isinstance(plan, _ChainPlan) or plan.comp is not comp:
+        plan = plans[key] = _ChainPlan(state, assessment, comp, first)
+    on_layer: dict[int, tuple[list[Rect], list[list[tuple[int, int]]]]] = {}
+    for c, t in zip(cands, touches):  # candidate order, as the general path lists them
+        rects, their = on_layer.setdefault(c.layer, ([], []))
+        rects.append(c.rect)
+        their.append(t)
+    changes = [{gi: [0.0, 0.0] for gi in groups} for groups in plan.batches]
+    layer_names = model.deck.layers
+    added: dict[str, float] = {}
+    worst_change = 0.0
+    worst_net = assessment.worst_below[first]
+    for st in plan.steps:
+        s, c_s, lane, joined = st.step, st.comp, st.lane, st.joined
+        here = on_layer.get(s)
+        if here is not None:
+            area, perim = _local_change(state, here[0], here[1], s)
+            name = layer_names[s].name
+            added[name] = added.get(name, 0.0) + area * model.scale_area
+            new_area, new_perim = c_s.area + area, c_s.perim + perim
+            for gi, old in st.old_terms:
+                x = model.term(s, gi, new_area, c_s.cell, new_perim, c_s.gate, c_s.diff) - old
+                for b in range(joined):
+                    d = changes[b].get(gi)
+                    if d is not None:
+                        d[lane] += x
+            for rule, measure, limit in st.partial:
+                conductor = model.conductor(s, measure, new_area, c_s.cell, new_perim)
+                u = utilization(rule.ratio(conductor, c_s.gate, c_s.diff), limit)
+                if u > worst_change:
+                    worst_change = u
+        elif not any(d[lane] for b in range(joined) for d in changes[b].values()):
+            worst_net = max(worst_net, st.unchanged, st.untouched)
+            continue  # nothing about C_s changes at this step
+        else:
+            worst_net = max(worst_net, st.around)
+        for gi, limit, bests in st.cumulative:
+            best = -1.0  # as comp_entries starts its search
+            for b, value in bests:
+                value += changes[b][gi][lane]
+                if value > best:
+                    best = value
+            u = utilization(best, limit)
+            if u > worst_change:
+                worst_change = u
+        worst_net = max(worst_net, worst_change, st.untouched)
+    return Score(added, (), worst_change, worst_net, is_legal(worst_net),
+                 not is_legal(worst_change), costs.cost(worst_change))
