@@ -534,11 +534,18 @@ def _score_chain(state: NetState, assessment: Assessment, cands: list[Shape],
     if not cands:
         return None
     model = state.model
-    touches = [state.touching(c.layer, c.rect) for c in cands]
+    first = min(c.layer for c in cands)
+    # The lowest step decides most refusals (a driver-side start without a gate, a
+    # floating start): look there first, before the neighbours of the other shapes.
+    low = {i: state.touching(c.layer, c.rect) for i, c in enumerate(cands) if c.layer == first}
+    at_first = {id(state.comp_at[first][e]): state.comp_at[first][e]
+                for t in low.values() for e, joined in t if joined == first}
+    if len(at_first) != 1 or next(iter(at_first.values())).gate <= 0:
+        return None
+    touches = [low[i] if i in low else state.touching(c.layer, c.rect) for i, c in enumerate(cands)]
     comp = _chain_component(state, cands, touches)
     if comp is None:
         return None
-    first = min(c.layer for c in cands)
     plans = assessment.join_plans
     key = (id(comp), _CHAIN_KEY - first)
     plan = plans.get(key)
