@@ -186,3 +186,40 @@ def _far_end(run: eg.Shape) -> tuple[int, int]:
     x0, y0, x1, y1 = run.rect
     w, h = x1 - x0, y1 - y0
     return ((x1 - h // 2, (y0 + y1) // 2) if w >= h else ((x0 + x1) // 2, y1 - w // 2))
+
+
+def test_multi_shape_shortcut_keeps_late_gates_apart() -> None:
+    """A hand-built net where a gate joining the chain above the candidate's lowest step
+    holds the worst cumulative ratio, so adding the candidate's M1 change to it (a
+    gate that was not yet connected at M1) would show in the figures.
+
+    Gate A (1 um^2) sits on a short M1 stub with a via up to an M2 wire; gate B
+    (0.01 um^2) sits on a 10 um M1 run whose via lands on the far end of that M2 wire,
+    so B meets A only from step M2 on. B's cumulative M1+M2 sum is then about
+    0.14 * 10 / 0.01 = 140 against A's 0.28 (area / gate, the contract's ratio). The
+    candidate is a via from A's stub with an M2 run: its M1 pad changes A's M1 term,
+    which B's sum must not carry.
+    """
+    deck = bench_deck()
+    m1, v1, m2 = (deck.layer_index[n] for n in ("M1", "V1", "M2"))
+    pins = (eg.Pin("A", m1, ((0, 0, 140, 140),), {"thin": 1.0}),
+            eg.Pin("B", m1, ((1830, 5000, 1970, 5140),), {"thin": 0.01}))
+    shapes = (eg.run_shapes(deck, m1, 70, 70, 2000, 70)  # A's stub
+              + eg.via_shapes(deck, v1, 1900, 70)
+              + eg.run_shapes(deck, m2, 1900, 70, 1900, 5070)
+              + eg.via_shapes(deck, v1, 1900, 5070)
+              + eg.run_shapes(deck, m1, 1900, 5070, 11900, 5070))  # B's long run
+    engine = eg.Engine(deck)
+    engine.open_net("late", pins, None, shapes)
+    candidate = eg.via_shapes(deck, v1, 1000, 70) + eg.run_shapes(deck, m2, 1000, 70, 1000, -3000)
+    state, assessment = _held(engine, "late")
+    assert state.comp_of_pin(1, m1) is not state.comp_of_pin(0, m1)  # apart at M1
+    assert state.comp_of_pin(1, m2) is state.comp_of_pin(0, m2)  # together from M2
+    quick = score_joining(state, assessment, candidate, engine.costs)
+    full = score(state, assessment, candidate, engine.costs, detail=False)
+    assert quick is not None  # one group joining A's chain at every step
+    assert quick == full, (quick, full)
+    detailed = score(state, assessment, candidate, engine.costs, detail=True)
+    worst = max(detailed.changes, key=lambda c: c.utilization)
+    assert (worst.gate, worst.kind) == ("B", "cumulative")  # the case aims where it should
+    assert worst.utilization == quick.worst_change_utilization
