@@ -164,7 +164,7 @@ def test_multi_shape_shortcut_equals_general_path_on_bench_nets() -> None:
         rng = random.Random(f"multi/{seed}")
         assert_same_multi(engine, net.name, via_run_candidates(deck, net, 150, seed=seed), "via_run")
         stacks = via_stacks(deck, list(net.shapes), rng, 60)
-        runs = [c + eg.via_shapes(deck, c[0].layer + 1, *_far_end(c[0]))
+        runs = [c + eg.via_shapes(deck, c[0].layer + 1, *_end_point(c[0]))
                 for c in extension_candidates(deck, net, 40, seed=seed)
                 if c[0].layer + 1 < len(deck.layers)]
         assert_same_multi(engine, net.name, stacks + runs, "bench")
@@ -180,7 +180,7 @@ def test_multi_shape_shortcut_equals_general_path_on_bench_nets() -> None:
     assert MULTI["bench"][0] < MULTI["bench"][1]  # and the general path is still exercised
 
 
-def _far_end(run: eg.Shape) -> tuple[int, int]:
+def _end_point(run: eg.Shape) -> tuple[int, int]:
     """A point inside the right (or upper) end of a run: its far end or the end at
     the net, as the run's direction has it; either way a via at one end of the run."""
     x0, y0, x1, y1 = run.rect
