@@ -25,6 +25,7 @@ from grpc_fixtures import DEMO_DECK, start_server
 ROUTER = Path(__file__).resolve().parents[1] / "client_examples" / "router"
 sys.path.insert(0, str(ROUTER))
 
+from maze import Costs  # noqa: E402
 from route import Router, load_block  # noqa: E402
 from verify import connected_nets  # noqa: E402
 
@@ -38,10 +39,13 @@ def runs():
     try:
         block = load_block(SMALL)
         # "repair": aware, but the search scores nothing: only the advice repairs
-        for mode, aware, scores in ((False, False, False), (True, True, True),
-                                    ("repair", True, False)):
+        # "tight": aware with a scored-search budget too small for most sinks, so the
+        # fallback (searched again without scores, then the advice repair) is at work
+        tight = Costs(scored_per_node=0.0, scored_floor=3000)
+        for mode, aware, scores, costs in ((False, False, False, Costs()), (True, True, True, Costs()),
+                                           ("repair", True, False, Costs()), ("tight", True, True, tight)):
             with server.client(timeout=120.0) as client:
-                router = Router(client, block, aware, search_scores=scores)
+                router = Router(client, block, aware, costs=costs, search_scores=scores)
                 router.route_all()
                 stats = router.finish(DEMO_DECK)
                 reports = {rep.net: rep for rep in client.check_all()}
@@ -65,7 +69,7 @@ def _engine_reports(router: Router) -> dict:
     return out
 
 
-@pytest.mark.parametrize("aware", [False, True, "repair"])
+@pytest.mark.parametrize("aware", [False, True, "repair", "tight"])
 def test_every_net_connected(runs, aware):
     router, stats, _ = runs[aware]
     names = {n.name for n in router.block.nets}
@@ -73,7 +77,7 @@ def test_every_net_connected(runs, aware):
     assert stats.routed == len(names) == stats.nets
 
 
-@pytest.mark.parametrize("aware", [False, True, "repair"])
+@pytest.mark.parametrize("aware", [False, True, "repair", "tight"])
 def test_server_holds_what_the_router_committed(runs, aware):
     router, _, served = runs[aware]
     local = _engine_reports(router)
@@ -122,3 +126,15 @@ def test_advice_repairs_what_the_search_did_not_avoid(runs):
     assert repair.violations < blind.violations
     assert repair.violations == sum(1 for n, r in reports.items()
                                     if n.startswith("repair:") and not r.legal)
+
+
+def test_scored_search_out_of_budget_falls_back(runs):
+    """A sink whose scored search runs out of its budget is searched again without
+    scores and still routed (the net is connected: test_every_net_connected); the
+    count is the router's, and the violations left are the service's."""
+    _, normal, _ = runs[True]
+    router, tight, reports = runs["tight"]
+    assert tight.plain_searches > normal.plain_searches
+    assert tight.scored > 0
+    assert tight.violations == sum(1 for n, r in reports.items()
+                                   if n.startswith("aware:") and not r.legal)

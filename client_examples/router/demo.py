@@ -82,7 +82,7 @@ def run_mode(address: str, block_path: Path, aware: bool, deck: Path = DECK, ver
 COLUMNS = (("mode", "{}"), ("nets routed", "{}"), ("wirelength um", "{:.1f}"), ("vias", "{}"),
            ("antenna violations", "{}"), ("post-route diode um2", "{:.4f}"),
            ("no diode fixes", "{}"), ("hops", "{}"), ("jumpers", "{}"),
-           ("diodes placed um2", "{:.4f}"), ("rip-ups", "{}"), ("scored", "{}"), ("time s", "{:.1f}"))
+           ("diodes placed um2", "{:.4f}"), ("rip-ups", "{}"), ("unscored searches", "{}"), ("scored", "{}"), ("time s", "{:.1f}"))
 
 
 def table(rows: list[Stats]) -> str:
@@ -90,7 +90,7 @@ def table(rows: list[Stats]) -> str:
     for s in rows:
         values = (s.mode, f"{s.routed}/{s.nets}", s.wirelength_um, s.vias, s.violations,
                   s.fix_diode_um2, s.fix_no_diode, s.hops, s.jumpers, s.diode_um2, s.ripups,
-                  s.scored, s.seconds)
+                  s.plain_searches, s.scored, s.seconds)
         cells.append([fmt.format(v) for (_, fmt), v in zip(COLUMNS, values)])
     widths = [max(len(row[i]) for row in cells) for i in range(len(COLUMNS))]
     lines = ["  ".join(c.rjust(w) if i else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths)))

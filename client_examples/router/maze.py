@@ -59,14 +59,49 @@ class Costs:
     # sample with utilization u at length l no length l' >= l exceeds u * l' / l. The
     # next sample is taken where that bound reaches `quiet` (below the cost knee).
     quiet: float = 0.5
+    # Expansion budgets. A search whose every way to the tree breaks a limit pays the
+    # antenna cap on every path, so it expands every node within the cap of the
+    # cheapest path: for the cap above that is most of the block, and the search ran
+    # out of budget and left the net unrouted. The scored search's budget therefore
+    # follows the net's span (maze.expansion_budget); past it the path is searched
+    # again without scores (the blind search) and repaired from advice before commit.
+    max_expansions: int = 400_000  # any search
+    scored_margin_um: float = 10.0  # the box around sink and tree, widened by this
+    scored_per_node: float = 2.0  # budget per node of that box (all layers)
+    scored_floor: int = 40_000
 
 
 @dataclass
 class SearchResult:
-    items: tuple[Item, ...]  # from the sink to the tree
+    items: tuple[Item, ...] | None  # from the sink to the tree; None: no path found
     cost: float
     expanded: int
     scored: int  # candidates sent to the service
+    # No path: True when the expansion budget ran out (a path may exist), False when
+    # every reachable node was expanded (none exists at this occupancy).
+    out_of_budget: bool = False
+    # Out of budget: antenna cost (um) of the cheapest path to the tree the search had
+    # reached but not yet accepted, None if none. At the cap it means that path breaks
+    # a limit, so the search must first expand everything within the cap of it.
+    best_join_antenna: float | None = None
+
+    @property
+    def found(self) -> bool:
+        return self.items is not None
+
+
+def expansion_budget(grid: TrackGrid, sources: set[Node], targets: set[Node], margin_um: float,
+                     per_node: float, floor: int, ceiling: int) -> int:
+    """An expansion budget in proportion to the net's span: ``per_node`` times the
+    nodes (all layers) of the box around the sink and the tree, widened by
+    ``margin_um`` on each side, within [floor, ceiling]."""
+    plane, ny = grid.plane, grid.ny
+    cols = [(n % plane) // ny for n in (*sources, *targets)]
+    rows = [n % ny for n in (*sources, *targets)]
+    pad = int(margin_um * 1000 / grid.pitch)
+    width = min(max(cols) + pad, grid.nx - 1) - max(min(cols) - pad, 0) + 1
+    height = min(max(rows) + pad, ny - 1) - max(min(rows) - pad, 0) + 1
+    return max(floor, min(ceiling, int(per_node * width * height * len(grid.layers))))
 
 
 class _Labels:
@@ -85,7 +120,7 @@ class _Labels:
 
 def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], targets: set[Node],
            costs: Costs, scorer: Scorer | None = None, soft: bool = False,
-           max_expansions: int = 400_000) -> SearchResult | None:
+           max_expansions: int = 400_000) -> SearchResult:
     layers = grid.layers
     pitch_um = grid.pitch / 1000.0
     step_cost = [pitch_um * f for f in costs.layer_factor[:len(layers)]]
@@ -151,7 +186,10 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
             continue
         expanded += len(wave)
         if expanded > max_expansions:
-            return None
+            joins = [t for t in targets if t in L.g]
+            best = min(joins, key=L.g.__getitem__) if joins else None
+            paid = None if best is None else min(costs.antenna * L.antenna[best], costs.antenna_cap)
+            return SearchResult(None, math.inf, expanded, scored, True, paid)
         # moves: (u, v, base cost, via between u's and v's layer?)
         moves: list[tuple[Node, Node, float, bool]] = []
         for u in wave:
@@ -235,4 +273,4 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                     L.gate_side[v] = L.gate_side[u]
                     L.next_sample[v] = sampled_next.get(m, L.next_sample[u])
                 heapq.heappush(heap, (g + h(v), -g, v))
-    return None
+    return SearchResult(None, math.inf, expanded, scored)

@@ -32,7 +32,7 @@ from etchguard import run_rect
 from etchguard.client import Client, Session, candidate_columns, pb, pin, rect, via
 
 from grid import Node, Occupancy, Rect, TrackGrid
-from maze import Costs, Item, search
+from maze import Costs, Item, SearchResult, expansion_budget, search
 
 TOLERANCE = 1e-9  # the contract's relative tolerance on utilization
 
@@ -122,6 +122,9 @@ class Stats:
     diodes: int = 0
     diode_um2: float = 0.0  # diodes placed while routing (aware mode)
     ripups: int = 0
+    # aware mode: sink searches whose scored search ran out of budget and were searched
+    # again without scores (their paths then go through the advice repair)
+    plain_searches: int = 0
     scored: int = 0  # candidates scored through the service
     seconds: float = 0.0
     unrepaired: list[str] = field(default_factory=list)
@@ -318,8 +321,8 @@ class Router:
         for sink in sinks:
             k = g.layer_of_name[sink.layer]
             sources = {n for r in sink.rects for n in g.nodes_inside(k, r)}
-            found = search(g, self.occ, data.name, sources, route.tree, self.costs, scorer, soft)
-            if found is None:
+            found = self._search(route, sources, scorer, soft)
+            if not found.found:
                 self.rip_up(route)
                 return False
             if self.aware:
@@ -329,6 +332,24 @@ class Router:
             route.tree.update(sources)
         route.routed = True
         return True
+
+    def _search(self, route: NetRoute, sources: set[Node], scorer, soft: bool) -> SearchResult:
+        """One sink's search. Scored, within a budget that follows the net's span; if
+        that runs out, the same search without scores (the advice repairs the path)."""
+        g, c, name = self.grid, self.costs, route.data.name
+        if scorer is None:
+            return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
+        budget = expansion_budget(g, sources, route.tree, c.scored_margin_um, c.scored_per_node,
+                                  c.scored_floor, c.max_expansions)
+        found = search(g, self.occ, name, sources, route.tree, c, scorer, soft, budget)
+        if found.found or not found.out_of_budget:
+            return found
+        self.stats.plain_searches += 1
+        paid = ("no path to the tree reached" if found.best_join_antenna is None else
+                f"the cheapest path reached pays {found.best_join_antenna:.0f} um of antenna cost")
+        self.log(f"{name}: scored search out of budget ({found.expanded} of {budget} expansions, "
+                 f"{paid}); searched again without scores")
+        return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
 
     # -- antenna-aware commit: check the path, repair from advice --------------------------------
 
