@@ -887,16 +887,7 @@ class _DiodeModel:
 
         def evaluate(D: float) -> tuple[float, float, str]:
             """(h, worst utilization, which check is worst by h)."""
-            cars: dict[tuple[int, int], list[float]] = {}
-            for (q, gi), seq in terms.items():
-                row = [0.0] * steps
-                sums = [0.0, 0.0]
-                for t, c, has in seq:
-                    lane = model.lane[t]
-                    sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
-                                             c.diff + (D if has else 0.0))
-                    row[t] = sums[lane]
-                cars[(q, gi)] = row
+            cars = _cars_with_diode(model, terms, D)
             h, worst, which = -math.inf, fixed, ""
             for s, (kind, key, extra) in checks:  # type: ignore[misc]
                 c = site[s]
@@ -1011,17 +1002,7 @@ class _DiodeModel:
                    D: float) -> list[float]:
         """Every check's ratio with a diode of D at the site (evaluate's arithmetic)."""
         model = self.model
-        steps = model.steps
-        cars: dict[tuple[int, int], list[float]] = {}
-        for (q, gi), seq in terms.items():
-            row = [0.0] * steps
-            sums = [0.0, 0.0]
-            for t, c, has in seq:
-                lane = model.lane[t]
-                sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
-                                         c.diff + (D if has else 0.0))
-                row[t] = sums[lane]
-            cars[(q, gi)] = row
+        cars = _cars_with_diode(model, terms, D)
         out = []
         for s, (kind, key, extra) in checks:  # type: ignore[misc]
             if kind == "p":
@@ -1052,6 +1033,22 @@ class _DiodeModel:
                     total += model.term(t, gi, c.area, c.cell, c.perim, c.gate, c.diff)  # type: ignore[union-attr]
                 out[(q, gi)] = total
         return out
+
+
+def _cars_with_diode(model, terms: dict, D: float) -> dict[tuple[int, int], list[float]]:
+    """Cumulative sums per (gate, group) and step with a diode of D um^2 at the site:
+    ``terms`` lists, per (gate, group), the steps (t, component, diode-connected)."""
+    cars: dict[tuple[int, int], list[float]] = {}
+    for (q, gi), seq in terms.items():
+        row = [0.0] * model.steps
+        sums = [0.0, 0.0]
+        for t, c, has in seq:
+            lane = model.lane[t]
+            sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
+                                     c.diff + (D if has else 0.0))
+            row[t] = sums[lane]
+        cars[(q, gi)] = row
+    return cars
 
 
 def _bisect_left_edge(h: Callable[[float], float], lo: float, hi: float) -> float:
