@@ -118,10 +118,12 @@ def test_tiny_engine_bench_runs_and_agrees(deck):
     rows = {r["metric"]: r for r in result["rows"]}
     for metric in ("score, 1 run, net of 10 shapes", "score, 1 run, net of 50 shapes",
                    "commit, per shape, net of 50", "rip-up, per shape, net of 50",
-                   "speed-up of score over recompute, 20 shapes", "memory per held shape, 60 nets held"):
+                   "speed-up of score over recompute, 20 shapes", "  of which cold net (spec only)"):
         assert metric in rows, sorted(rows)
         assert rows[metric]["value"] > 0
-        assert rows[metric]["met"] in (True, False)
+        assert rows[metric]["met"] in (True, False) or metric.startswith("  of which")
+    # a few thousand shapes may fit in memory the process already holds: RSS can stay flat
+    assert rows["memory per held shape, 60 nets held"]["value"] >= 0
     for r in result["rows"]:
         if r["p99"] is not None:
             assert r["p99"] >= r["value"]

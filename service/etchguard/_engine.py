@@ -30,7 +30,7 @@ from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckE
 from ._geometry import Rect, checked_rect as _checked_rect
 from ._netstate import NetState
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
-from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items
+from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
 from ._headroom import layer_headroom
 from ._ratios import StepModel
 from ._reports import Headroom, NetReport, Score
@@ -253,7 +253,7 @@ class Engine:
             return ids
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
-        state = self._state(net) if shapes else net.state
+        state = net.state  # a net not held built gets its state on the next question
         ids = []
         for s in shapes:
             sid = net.next_id
@@ -262,7 +262,7 @@ class Engine:
             if state is not None:
                 state.add_shape(sid, s.layer, s.rect)
             ids.append(sid)
-        self._obstacles.add_net_items(net.name, [(s.layer, s.rect, ("shape", sid)) for s, sid in zip(shapes, ids)])
+        self._obstacles.add_net_items(net.name, [(s.layer, s.rect, _shape_key(sid)) for s, sid in zip(shapes, ids)])
         self.counters["commits"] += len(shapes)
         return ids
 
@@ -280,7 +280,7 @@ class Engine:
                 seen.add(sid)
             for sid in ids:
                 del net.shapes[sid]
-            self._obstacles.remove_net_items(name, [("shape", sid) for sid in ids])
+            self._obstacles.remove_net_items(name, [_shape_key(sid) for sid in ids])
             if net.state is not None:
                 if len(ids) * 2 > len(net.state.shape_ids):
                     net.state = None  # cheaper to rebuild from what stays

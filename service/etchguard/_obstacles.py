@@ -34,7 +34,7 @@ and a bulk rebuild drops them.
 from __future__ import annotations
 
 import threading
-from collections.abc import Iterable, Sequence
+from collections.abc import Hashable, Iterable, Sequence
 from dataclasses import dataclass
 
 from rtree import index as rtree_index
@@ -47,7 +47,18 @@ from ._rules import Deck
 # Below this many entries per call, single inserts are cheaper than a rebuild.
 BULK_MIN = 256
 
-OwnerKey = tuple[str, object]  # ("shape", sid) | ("pin", (pin_index, rect_index)) | ("blockage", bid)
+# What an entry is within its owner, kept small (an int per entry): a committed shape's
+# id, a pin rectangle as a negative number (see pin_key), a blockage's id (owner None).
+OwnerKey = Hashable
+LAYER_BITS = 6  # entry ids carry their layer in the low bits: eid = serial << 6 | layer
+
+
+def shape_key(sid: int) -> int:
+    return sid
+
+
+def pin_key(pin: int, rect: int) -> int:
+    return -((pin << 20) | rect) - 1
 
 
 @dataclass(frozen=True)
@@ -66,9 +77,8 @@ class Conflict:
 
 @dataclass(slots=True)
 class _Entry:
-    layer: int
     rect: Rect
-    net: str | None
+    net: str | None  # None: a blockage
     key: OwnerKey
 
 
@@ -90,14 +100,14 @@ def conflicts_with(a: Rect, b: Rect, spacing: int) -> bool:
 
 def pin_items(pins: Sequence[Pin]) -> list[tuple[int, Rect, OwnerKey]]:
     """A net's pin rectangles as index items (pins are that net's metal too)."""
-    return [(pin.layer, r, ("pin", (p, k))) for p, pin in enumerate(pins) for k, r in enumerate(pin.rects)]
+    return [(pin.layer, r, pin_key(p, k)) for p, pin in enumerate(pins) for k, r in enumerate(pin.rects)]
 
 
 def net_items(name: str, pins: Sequence[Pin], shapes: dict[int, tuple[int, ...]]
               ) -> list[tuple[int, Rect, str | None, OwnerKey]]:
     """Everything of one net for a rebuild: pins and committed shapes (id -> (layer, *rect))."""
     out: list[tuple[int, Rect, str | None, OwnerKey]] = [(l, r, name, k) for l, r, k in pin_items(pins)]
-    out.extend((v[0], tuple(v[1:]), name, ("shape", sid)) for sid, v in shapes.items())  # type: ignore[misc]
+    out.extend((v[0], tuple(v[1:]), name, shape_key(sid)) for sid, v in shapes.items())  # type: ignore[misc]
     return out
 
 
@@ -108,30 +118,36 @@ class ObstacleIndex:
         self._lock = threading.Lock()
         self._layers = layers
         self._trees: list[rtree_index.Index | None] = [None] * layers
-        self._entries: dict[int, _Entry] = {}
-        self._by_owner: dict[tuple[str | None, OwnerKey], int] = {}
-        self._by_net: dict[str | None, set[int]] = {}
-        self._live: list[set[int]] = [set() for _ in range(layers)]  # entry ids per layer
-        self._pending: list[set[int]] = [set() for _ in range(layers)]  # live, not in the tree
+        # per layer: entry id -> entry, in insertion order (ids only grow), so the
+        # entries not yet in the tree are the newest ones, above the layer's watermark
+        self._by_layer: list[dict[int, _Entry]] = [{} for _ in range(layers)]
+        self._by_net: dict[str | None, dict[OwnerKey, int]] = {}  # owner -> key -> entry id
+        self._watermark: list[int] = [0] * layers  # the largest entry id in the tree
         self._in_tree: list[int] = [0] * layers  # ids in the tree, tombstones included
         self._tombstones: list[int] = [0] * layers  # ids in the tree no longer live
-        self._next_entry = 1
+        self._next_serial = 1
         self._next_blockage = 1
         self.blockages: dict[int, tuple[int, Rect]] = {}
 
     # -- building ---------------------------------------------------------------------
 
     def _stream_rebuild(self, layer: int) -> None:
-        items = [(eid, _box(self._entries[eid].rect), None) for eid in self._live[layer]]
+        entries = self._by_layer[layer]
+        items = [(eid, _box(e.rect), None) for eid, e in entries.items()]
         # The stream constructor refuses an empty stream; an empty layer needs no tree.
         self._trees[layer] = rtree_index.Index(iter(items)) if items else None
         self._in_tree[layer] = len(items)
         self._tombstones[layer] = 0
-        self._pending[layer].clear()
+        self._watermark[layer] = next(reversed(entries), 0)
 
     def _catch_up(self, layer: int) -> rtree_index.Index | None:
         """Bring one layer's tree up to date before a query (caller holds the lock)."""
-        pending = self._pending[layer]
+        entries, mark = self._by_layer[layer], self._watermark[layer]
+        pending = []
+        for eid in reversed(entries):
+            if eid <= mark:
+                break
+            pending.append(eid)
         held = self._in_tree[layer]
         if self._tombstones[layer] * 4 > held or (len(pending) >= BULK_MIN and len(pending) >= held):
             self._stream_rebuild(layer)
@@ -140,53 +156,51 @@ class ObstacleIndex:
             if tree is None:
                 tree = self._trees[layer] = rtree_index.Index()
             for eid in pending:
-                tree.insert(eid, _box(self._entries[eid].rect))
+                tree.insert(eid, _box(entries[eid].rect))
             self._in_tree[layer] += len(pending)
-            pending.clear()
+            self._watermark[layer] = pending[0]
         return self._trees[layer]
 
     def _add_locked(self, items: Sequence[tuple[int, Rect, str | None, OwnerKey]]) -> None:
         for _layer, _rect, net, key in items:
-            if (net, key) in self._by_owner:
+            if key in self._by_net.get(net, ()):
                 raise InputError(f"obstacle {key} of {net or 'blockages'} is indexed already", "obstacles")
         for layer, rect, net, key in items:
-            eid = self._next_entry
-            self._next_entry += 1
-            self._entries[eid] = _Entry(layer, rect, net, key)
-            self._by_owner[(net, key)] = eid
-            self._by_net.setdefault(net, set()).add(eid)
-            self._live[layer].add(eid)
-            self._pending[layer].add(eid)
+            eid = (self._next_serial << LAYER_BITS) | layer
+            self._next_serial += 1
+            self._by_layer[layer][eid] = _Entry(rect, net, key)
+            self._by_net.setdefault(net, {})[key] = eid
 
-    def _drop_locked(self, eids: Iterable[int]) -> None:
-        for eid in eids:
-            e = self._entries.pop(eid)
-            del self._by_owner[(e.net, e.key)]
-            mine = self._by_net[e.net]
-            mine.discard(eid)
-            if not mine:
-                del self._by_net[e.net]
-            self._live[e.layer].discard(eid)
-            if eid in self._pending[e.layer]:
-                self._pending[e.layer].discard(eid)
-            else:
-                self._tombstones[e.layer] += 1
+    def _drop_locked(self, net: str | None, keys: Iterable[OwnerKey]) -> None:
+        mine = self._by_net.get(net)
+        if not mine:
+            return
+        for key in keys:
+            eid = mine.pop(key, None)
+            if eid is None:
+                continue
+            layer = eid & ((1 << LAYER_BITS) - 1)
+            del self._by_layer[layer][eid]
+            if eid <= self._watermark[layer]:
+                self._tombstones[layer] += 1
+        if not mine:
+            del self._by_net[net]
 
     def rebuild(self, layers: int, items: Sequence[tuple[int, Rect, str | None, OwnerKey]],
                 blockages: dict[int, tuple[int, Rect]]) -> None:
         """Replace everything (a new deck); the trees are bulk-loaded on first query."""
+        if layers >= 1 << LAYER_BITS:
+            raise InputError(f"at most {(1 << LAYER_BITS) - 1} layers", "deck.layers")
         with self._lock:
             self._layers = layers
             self._trees = [None] * layers
-            self._live = [set() for _ in range(layers)]
-            self._pending = [set() for _ in range(layers)]
+            self._by_layer = [{} for _ in range(layers)]
+            self._watermark = [0] * layers
             self._in_tree = [0] * layers
             self._tombstones = [0] * layers
-            self._entries.clear()
-            self._by_owner.clear()
             self._by_net.clear()
             self.blockages = dict(blockages)
-            self._add_locked(list(items) + [(layer, rect, None, ("blockage", bid))
+            self._add_locked(list(items) + [(layer, rect, None, bid)
                                             for bid, (layer, rect) in blockages.items()])
 
     # -- nets ---------------------------------------------------------------------------
@@ -200,11 +214,11 @@ class ObstacleIndex:
 
     def remove_net_items(self, net: str, keys: Iterable[OwnerKey]) -> None:
         with self._lock:
-            self._drop_locked([self._by_owner[(net, k)] for k in keys if (net, k) in self._by_owner])
+            self._drop_locked(net, keys)
 
     def drop_net(self, net: str) -> None:
         with self._lock:
-            self._drop_locked(list(self._by_net.get(net, ())))
+            self._drop_locked(net, list(self._by_net.get(net, ())))
 
     # -- blockages ----------------------------------------------------------------------
 
@@ -214,7 +228,7 @@ class ObstacleIndex:
         with self._lock:
             bid = self._next_blockage
             self._next_blockage += 1
-            self._add_locked([(layer, rect, None, ("blockage", bid))])
+            self._add_locked([(layer, rect, None, bid)])
             self.blockages[bid] = (layer, rect)
             return bid
 
@@ -222,7 +236,7 @@ class ObstacleIndex:
         with self._lock:
             if bid not in self.blockages:
                 raise NotFoundError(f"no blockage {bid}", "blockage_id")
-            self._drop_locked([self._by_owner[(None, ("blockage", bid))]])
+            self._drop_locked(None, [bid])
             del self.blockages[bid]
 
     def moved_blockages(self, old: Deck, new: Deck) -> dict[int, tuple[int, Rect]]:
@@ -242,7 +256,7 @@ class ObstacleIndex:
 
     def __len__(self) -> int:
         with self._lock:
-            return len(self._entries)
+            return sum(len(entries) for entries in self._by_layer)
 
     def conflicts(self, net: str, layer: int, rect: Rect, spacing: int) -> list[Conflict]:
         """Entries of other owners on ``layer`` that ``rect`` (of ``net``) conflicts with."""
@@ -268,9 +282,9 @@ class ObstacleIndex:
             tree = self._catch_up(layer)
             if tree is None:
                 return [[] for _ in rects]
-            live = self._entries
+            live = self._by_layer[layer]
             entries = [live[h] for h in tree.intersection(_box(bound, margin)) if h in live]
-        entries = [e for e in entries if e.net != net and (e.net is not None or e.key[0] == "blockage")]
+        entries = [e for e in entries if e.net != net]
         result = []
         for rect in rects:
             out = []
@@ -278,8 +292,9 @@ class ObstacleIndex:
                 if conflicts_with(rect, e.rect, spacing):
                     d = squared_distance(rect, e.rect) ** 0.5
                     if e.net is None:
-                        out.append(Conflict(layer, rect, e.rect, f"blockage {e.key[1]}", None,
-                                            int(e.key[1]), d, spacing))  # type: ignore[arg-type]
+                        bid = e.key if isinstance(e.key, int) else None
+                        out.append(Conflict(layer, rect, e.rect, f"blockage {e.key}", None,
+                                            bid, d, spacing))
                     else:
                         out.append(Conflict(layer, rect, e.rect, f"net {e.net}", e.net, None, d, spacing))
             out.sort(key=lambda c: (c.distance, c.owner, c.rect))
