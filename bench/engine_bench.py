@@ -198,6 +198,8 @@ def commit_bench(deck: Deck, size: int, nets: int, reps: int, warmup: int, sanit
     """Per shape: commit one run, then rip it up; and the first score after a commit."""
     engine = Engine(deck)
     opened = open_nets(engine, deck, size, nets, seed)
+    for net in opened:  # a router asks before it commits: time commits on built state
+        engine.check(net.name)
     work = [(net, c) for net in opened for c in extension_candidates(deck, net, 20, seed=seed)]
     random.Random(f"{seed}/order").shuffle(work)
     commit, remove, score = engine.commit, engine.remove, engine.score
@@ -354,6 +356,8 @@ def _held_commit(deck: Deck, engine: Engine, rng: random.Random, nets: int = 20,
     """Commit then rip up one run on 50-shape nets of an engine that holds a whole
     design: shows whether a commit's cost depends on what the other nets hold."""
     opened = open_nets(engine, deck, 50, nets, seed="held")
+    for net in opened:  # built state, as in commit_bench
+        engine.check(net.name)
     work = [(net.name, c) for net in opened for c in extension_candidates(deck, net, 10, seed="held")]
     rng.shuffle(work)
     ns = time.perf_counter_ns
