@@ -90,6 +90,43 @@ def comp_entries(model: StepModel, step: int, comp: Comp, cars: CarTable,
     return out
 
 
+def _kind_and_util(step: int, measure: str, kind: str, oxide: str, ratio: float, limit: float,
+                   util: float, *_rest: object) -> tuple[bool, float]:
+    return kind == PARTIAL, util
+
+
+_NO_DELTAS: dict[tuple[int, int], list[float]] = {}
+
+
+class _StepEntries:
+    """One step's full entries per component, built on first request."""
+
+    __slots__ = ("model", "step", "cars", "pins_ox", "comps", "built")
+
+    def __init__(self, model: StepModel, step: int, cars: CarTable, pins_ox: list[dict[str, float]],
+                 comps: list[Comp]) -> None:
+        self.model, self.step, self.cars, self.pins_ox = model, step, cars, pins_ox
+        self.comps = comps  # the step's gate-connected components
+        self.built: dict[Comp, list[Entry]] = {}
+
+    def items(self):
+        for comp in self.comps:
+            yield comp, self.get(comp)
+
+    def values(self):
+        for comp in self.comps:
+            yield self.get(comp)
+
+    def get(self, comp: Comp, default: tuple = ()) -> list[Entry] | tuple:
+        if comp.gate <= 0:
+            return default
+        es = self.built.get(comp)
+        if es is None:
+            es = self.built[comp] = comp_entries(self.model, self.step, comp, self.cars, _NO_DELTAS,
+                                                 self.pins_ox)
+        return es
+
+
 def _severity(e: Entry) -> tuple[float, float, float, int]:
     """Order of 'worse' between entries; ties go to the tighter limit, then the first
     pin, so that a report does not depend on the order components were built in."""
@@ -120,22 +157,27 @@ class Assessment:
                     row[s] = sums[lane]
                 cars[(p, gi)] = row
         self.cars = cars
-        self.entries: list[dict[Comp, list[Entry]]] = []
+        # Per step and component, only the worst figures are computed here (cheap); the
+        # full entries are built when a report, a detailed what-if or advice asks.
+        self.entries = [_StepEntries(model, s, cars, self.pins_ox, [c for c in state.comps[s] if c.gate > 0])
+                        for s in range(n)]
+        self.comp_worst: list[dict[Comp, float]] = []
         self.partial_worst: list[dict[Comp, float]] = []
         self.ranked: list[list[tuple[float, Comp]]] = []
         for s in range(n):
-            per_comp = {}
+            comp_worst = {}
             partial_worst = {}
             ranked = []
             for c in state.comps[s]:
                 if c.gate > 0:
-                    es = comp_entries(model, s, c, cars, {}, self.pins_ox)
-                    per_comp[c] = es
-                    partial_worst[c] = max((e.utilization for e in es if e.kind == PARTIAL), default=0.0)
-                    if es:
-                        ranked.append((max(e.utilization for e in es), c))
+                    utils = comp_entries(model, s, c, cars, _NO_DELTAS, self.pins_ox, True, _kind_and_util)
+                    partial_worst[c] = max((u for partial, u in utils if partial), default=0.0)
+                    if utils:
+                        worst_here = max(u for _partial, u in utils)
+                        comp_worst[c] = worst_here
+                        ranked.append((worst_here, c))
             ranked.sort(key=lambda t: -t[0])
-            self.entries.append(per_comp)
+            self.comp_worst.append(comp_worst)
             self.partial_worst.append(partial_worst)
             self.ranked.append(ranked)
         worst = [r[0][0] if r else 0.0 for r in self.ranked]

@@ -370,7 +370,7 @@ def _build_group(state: NetState, assessment: Assessment, plan: _Plan, layer: in
         c = later_comps[s]
         if c is not None and c.gate > 0:
             pw = assessment.partial_worst[s].get(c, 0.0)
-            uw = max((e.utilization for e in assessment.entries[s].get(c, ())), default=0.0)
+            uw = assessment.comp_worst[s].get(c, 0.0)
             if has_deltas and model.lane[s] == lane:
                 if_moved = max(if_moved, pw)
                 if_still = max(if_still, pw, uw)

@@ -207,7 +207,7 @@ def score(state: NetState, assessment: Assessment, cands: list[Shape], costs: Co
 
 
 def _unchanged_worst(assessment: Assessment, step: int, comp: Comp) -> float:
-    return max((e.utilization for e in assessment.entries[step].get(comp, ())), default=0.0)
+    return assessment.comp_worst[step].get(comp, 0.0)
 
 
 def _local_change(state: NetState, rects: list[Rect], touches: list[list[tuple[int, int]]],
