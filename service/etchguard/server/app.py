@@ -27,7 +27,7 @@ import grpc
 from grpc_health.v1 import health, health_pb2, health_pb2_grpc
 from grpc_reflection.v1alpha import reflection
 
-from .. import Engine, EtchguardError, Limits, __version__, load_deck
+from .. import CostModel, Engine, EtchguardError, Limits, __version__, load_deck
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from .metrics import Metrics, NullMetrics
@@ -41,6 +41,7 @@ log = logging.getLogger("etchguard.server")
 
 SERVICE_NAME = pb.DESCRIPTOR.services_by_name["AntennaService"].full_name
 _DEFAULT_LIMITS = Limits()
+_DEFAULT_COSTS = CostModel()
 
 
 class ServeError(EtchguardError):
@@ -75,6 +76,21 @@ class ServerConfig:
     tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates
     token_file: Path | None = None  # file holding the bearer token every call must carry
 
+    # router cost of a candidate (etchguard.CostModel): 0 up to the knee, then steeply up
+    cost_knee: float = _DEFAULT_COSTS.knee  # utilization where the cost starts
+    cost_exponent: float = _DEFAULT_COSTS.exponent  # steepness below the limit
+    cost_scale: float = _DEFAULT_COSTS.scale  # cost at the limit
+    cost_violation: float = _DEFAULT_COSTS.violation  # added once over the limit
+
+    def costs(self) -> CostModel:
+        if not 0 <= self.cost_knee < 1:
+            raise ServeError("must be in [0, 1)", "cost_knee")
+        for name in ("cost_exponent", "cost_scale", "cost_violation"):
+            if not getattr(self, name) > 0:
+                raise ServeError("must be > 0", name)
+        return CostModel(knee=self.cost_knee, exponent=self.cost_exponent, scale=self.cost_scale,
+                         violation=self.cost_violation)
+
     def limits(self) -> Limits:
         names = {f.name for f in fields(Limits)}
         return Limits(**{k: getattr(self, k) for k in names})
@@ -82,7 +98,7 @@ class ServerConfig:
 
 def _engine(config: ServerConfig) -> Engine:
     deck = load_deck(config.rules) if config.rules is not None else None
-    return Engine(deck, config.limits())
+    return Engine(deck, config.limits(), config.costs())
 
 
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
@@ -93,7 +109,7 @@ def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
         raise ServeError("must be > 0 ms", "sync_interval_ms")
-    engine = Engine(None, config.limits())
+    engine = Engine(None, config.limits(), config.costs())
     journal = Journal.open(config.state_dir, engine, sync=config.sync,
                            interval_ms=config.sync_interval_ms,
                            snapshot_every=config.snapshot_every, version=__version__)

@@ -36,6 +36,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                                           "(default %(default)s)")
     parser.add_argument("--hot-nets", type=int, default=_DEFAULTS.hot_nets, metavar="N",
                         help="nets whose incremental state is kept built (default %(default)s)")
+    parser.add_argument("--cost-knee", type=float, default=_DEFAULTS.cost_knee, metavar="U",
+                        help="router cost: utilization below which a candidate costs 0 "
+                             "(default %(default)s)")
+    parser.add_argument("--cost-exponent", type=float, default=_DEFAULTS.cost_exponent, metavar="P",
+                        help="router cost: scale * ((u - knee) / (1 - knee)) ** P up to the limit "
+                             "(default %(default)s)")
+    parser.add_argument("--cost-scale", type=float, default=_DEFAULTS.cost_scale, metavar="C",
+                        help="router cost at the limit (default %(default)s)")
+    parser.add_argument("--cost-violation", type=float, default=_DEFAULTS.cost_violation, metavar="C",
+                        help="router cost added once a limit is broken (default %(default)s)")
     parser.add_argument("--workers", type=int, default=_DEFAULTS.workers, metavar="N",
                         help="concurrent calls, each open session stream holding one; calls "
                              "beyond are refused with RESOURCE_EXHAUSTED (default %(default)s)")
@@ -83,7 +93,9 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
         snapshot_every=args.snapshot_every, tls_cert=args.tls_cert, tls_key=args.tls_key,
-        tls_client_ca=args.tls_client_ca, token_file=args.token_file)
+        tls_client_ca=args.tls_client_ca, token_file=args.token_file,
+        cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
+        cost_violation=args.cost_violation)
 
 
 def run(args: argparse.Namespace) -> int:
