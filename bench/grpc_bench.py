@@ -270,7 +270,6 @@ def main(argv: list[str] | None = None) -> int:
     mixed_req = pb.ScoreBatchRequest(net=NET, candidates=_columns(deck, mixed))
     run_steps = np.array([c[0].layer for c in runs], dtype=np.int64)
     run_rects = np.array([c[0].rect for c in runs], dtype=np.int64)
-    n = len(singles)
     cases = [
         Case("stream_score", "stream score", "stream", score_reqs, "score",
              lambda i: engine.score(NET, singles[i], True)),

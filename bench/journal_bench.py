@@ -28,7 +28,7 @@ from pathlib import Path
 
 import numpy as np
 
-from etchguard.client import Client, pb, pin, rect
+from etchguard.client import Client, pin, rect
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]

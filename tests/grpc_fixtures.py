@@ -15,7 +15,6 @@ import socket
 import subprocess
 import sys
 import threading
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 

@@ -18,14 +18,13 @@ contract (tests/reference.py), on the net as plain JSON.
 
 from __future__ import annotations
 
-import json
 import sys
 import tomllib
 from pathlib import Path
 
 import pytest
 
-from etchguard import Engine, InputError, NotFoundError, Shape, loads_deck, make_pin, via_shapes
+from etchguard import Engine, InputError, NotFoundError, Shape, loads_deck, make_pin
 from etchguard._advice import via_stack
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))

@@ -22,7 +22,7 @@ from pathlib import Path
 import pytest
 
 from etchguard import Engine, load_deck
-from etchguard._journal import (FORMAT_VERSION, JOURNAL_MAGIC, Journal, JournalError, iter_records,
+from etchguard._journal import (FORMAT_VERSION, Journal, JournalError, iter_records,
                                 segments)
 from etchguard.client import ServiceError, pb, rect
 from etchguard.server import convert

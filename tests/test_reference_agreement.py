@@ -20,7 +20,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import etchguard as eg
-from reference import (RefAnalysis, added_union_area_um2, analyze, close, is_legal, ref_deck,
+from reference import (RefAnalysis, added_union_area_um2, analyze, close, ref_deck,
                        report_disagreements)
 
 DATA = Path(eg.__file__).parent / "data"

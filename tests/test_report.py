@@ -238,7 +238,7 @@ def test_page_summary_and_tables(page: str, records: list[NetRecord]) -> None:
     assert f'data-key="nets">{s.nets}<' in page
     assert f'data-key="legal">{s.legal}<' in page
     assert f'data-key="violating">{s.violating}<' in page
-    assert f'data-key="deck">lumen-6m<' in page
+    assert 'data-key="deck">lumen-6m<' in page
     assert f"{s.worst_utilization * 100:.1f}%" in page
     table = page[page.index('id="worst-table"'):page.index("</table>", page.index('id="worst-table"'))]
     assert table.count("<tr>") == 1 + 25  # header + rows

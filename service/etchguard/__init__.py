@@ -23,7 +23,7 @@ __version__ = "0.1.0"
 __all__ = [
     "Advice", "AdviceRequest", "Conflict", "DiodeAdvice", "JumperAdvice", "LayerOption",
     "PlacedShape",
-    "AlreadyExistsError", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
+    "AlreadyExistsError", "BatchScores", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
     "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",
     "Rule", "Score", "Shape", "load_deck", "load_net_file", "loads_deck", "make_pin",

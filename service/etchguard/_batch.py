@@ -1099,7 +1099,7 @@ def checked_columns(steps: int, layers: Sequence[int] | np.ndarray, rects: np.nd
     if len(bad):
         raise InputError(f"unknown layer {int(layer_arr[bad[0]])} (deck has "
                          f"{steps})", f"layers[{int(bad[0])}]")
-    limit = 1 << 62  # _geometry.COORD_LIMIT
+    limit = COORD_LIMIT
     if rect_arr.dtype.kind == "u":
         far = np.nonzero((rect_arr >= limit).any(axis=1))[0]
         if len(far):
