@@ -28,7 +28,6 @@ Prints one table and writes bench/out/cpp_bench.json.
 
 from __future__ import annotations
 
-import argparse
 import base64
 import json
 import os
@@ -49,6 +48,7 @@ import grpc
 
 from etchguard.client import Client, candidate_columns, pb
 
+from .rounds import round_arguments
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
 REPO = Path(__file__).resolve().parents[1]
@@ -266,16 +266,7 @@ def print_table(rows: list[Row], header: str) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m bench.cpp_bench", description=__doc__.split("\n")[0])
-    parser.add_argument("--quick", action="store_true", help="a few calls only (smoke test)")
-    parser.add_argument("--rounds", type=int, default=6, help="alternating rounds per case")
-    parser.add_argument("--calls", type=int, default=400, help="timed calls per round and server")
-    parser.add_argument("--batches", type=int, default=6, help="timed batches per round and server")
-    parser.add_argument("--shapes", type=int, default=50, help="routed shapes of the bench net")
-    parser.add_argument("--json", type=Path, default=OUT_DIR / "cpp_bench.json", help="where the rows go")
-    args = parser.parse_args([] if argv is None else argv)
-    if args.quick:
-        args.rounds, args.calls, args.batches = 1, 30, 1
+    args = round_arguments("python -m bench.cpp_bench", __doc__, 6, OUT_DIR / "cpp_bench.json", argv)
     missing = missing_prerequisites()
     if missing:
         print(f"cpp_bench: cannot build the C++ client: missing {', '.join(missing)}; "

@@ -30,7 +30,6 @@ about a minute (a time budget stops the rounds early, and says so).
 
 from __future__ import annotations
 
-import argparse
 import base64
 import json
 import os
@@ -53,6 +52,7 @@ from etchguard.client import Client, candidate_columns, pb
 from etchguard.server.metrics import Metrics
 from etchguard.server.servicer import AntennaServicer
 
+from .rounds import round_arguments
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
@@ -238,16 +238,7 @@ def _cpu_s(pid: int) -> float:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m bench.grpc_bench", description=__doc__.split("\n")[0])
-    parser.add_argument("--quick", action="store_true", help="a few calls only (smoke test)")
-    parser.add_argument("--rounds", type=int, default=5, help="alternating rounds per case")
-    parser.add_argument("--calls", type=int, default=400, help="timed calls per round and server")
-    parser.add_argument("--batches", type=int, default=6, help="timed batches per round and server")
-    parser.add_argument("--shapes", type=int, default=50, help="routed shapes of the bench net")
-    parser.add_argument("--json", type=Path, default=OUT_DIR / "grpc_bench.json", help="where the rows go")
-    args = parser.parse_args([] if argv is None else argv)
-    if args.quick:
-        args.rounds, args.calls, args.batches = 1, 30, 1
+    args = round_arguments("python -m bench.grpc_bench", __doc__, 5, OUT_DIR / "grpc_bench.json", argv)
     warmup = max(20, args.calls // 5)
     started = time.monotonic()
 
