@@ -73,10 +73,19 @@ def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_
     page = out_html.read_text(encoding="utf-8")
     layers = {c["layer"] for e in expected.values() for c in e["checks"]}
     assert page.count('<svg class="eg-fig eg-hist"') == len(layers)
-    assert '<svg class="eg-fig eg-net"' not in page
+    # the violating nets' pins and shapes come from GetNet, the rules from GetDeck's TOML:
+    # the page draws them, and their offending components equal an offline report's
     violating = sum(not e["legal"] for e in expected.values())
-    assert violating > 0 and page.count("No geometry for this net: not drawn.") == violating
+    assert violating > 0 and page.count('<svg class="eg-fig eg-net"') == violating
+    assert "No geometry for this net: not drawn." not in page
     assert f"server {address}" in page
+    net_file, offline_json = tmp_path / "nets.json", tmp_path / "o.json"
+    net_file.write_text(json.dumps({"nets": nets}), encoding="utf-8")
+    main(["report", "--rules", str(DEMO_DECK), str(net_file), "--json", str(offline_json),
+          "--progress", "never"])
+    offline = {n["name"]: n for n in json.loads(offline_json.read_text(encoding="utf-8"))["nets"]}
+    for name in (n for n, e in expected.items() if not e["legal"]):
+        assert got[name]["offenders"] and got[name]["offenders"] == offline[name]["offenders"]
 
 
 def test_server_unreachable_is_bad_input(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

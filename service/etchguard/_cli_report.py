@@ -4,8 +4,8 @@ Two sources of nets, one builder (``etchguard._report``):
 * a net file, checked offline against ``--rules`` (the same engine as ``check``);
   the page then draws each violating net with its offending components;
 * ``--server ADDRESS``: every net a running server holds, as its CheckAll reports
-  them, with the server's deck. The server hands out reports, not geometry, so this
-  page has no net drawings.
+  them, with the server's deck; the violating nets' pins and shapes come from GetNet
+  and the deck's rules from GetDeck's TOML, so the page draws them the same way.
 Exit status as for ``check``: 0 every net legal, 1 violations found (the outputs are
 written all the same), 2 bad input or an unreachable server.
 """
@@ -21,11 +21,11 @@ from collections.abc import Callable, Iterable
 from typing import Any
 
 from ._errors import InputError
-from ._nets import load_net_file
+from ._nets import NetSpec, load_net_file
 from ._progress import progress
 from ._report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
 from ._reports import CheckResult, NetReport
-from ._rules import Deck, load_deck
+from ._rules import Deck, load_deck, loads_deck
 
 HELP = "write a design report of a net file: an HTML page, and CSV or JSON for scripts"
 
@@ -58,8 +58,9 @@ def _write(path: str, text: str, what: str) -> None:
 
 def records_from_server(address: str, timeout: float,
                         bar: Callable[[Iterable[Any], int, str], Iterable[Any]]
-                        ) -> tuple[str, list[str], list[NetRecord]]:
-    """(deck name, layer order, records) of every net a running server holds."""
+                        ) -> tuple[str, list[str], list[NetRecord], Deck | None]:
+    """(deck name, layer order, records, deck) of every net a running server holds; the
+    violating nets come with their geometry when the server hands out its deck's text."""
     try:
         import grpc
 
@@ -74,16 +75,31 @@ def records_from_server(address: str, timeout: float,
             info = client.deck
             total = int(client.stats().nets)
             reports = []
+            deck = loads_deck(info.toml, f"deck of {address}") if info.toml else None
             for r in bar(client.check_all(), total, "fetching"):
                 checks = tuple(CheckResult(c.layer, c.step, measure[c.measure], kind[c.kind], c.oxide,
                                            c.ratio, c.limit, c.utilization, c.legal, c.gate)
                                for c in r.checks)
-                reports.append(NetRecord(NetReport(r.net, r.legal, r.worst_utilization, checks)))
+                spec = None
+                if deck is not None and not r.legal:  # the nets the page draws
+                    spec = _spec_of(deck, client.get_net(r.net))
+                reports.append(NetRecord(NetReport(r.net, r.legal, r.worst_utilization, checks), spec))
         except grpc.FutureTimeoutError as exc:
             raise InputError(f"no server answered at {address} within {timeout:g} s", "--server") from exc
         except ServiceError as exc:
             raise InputError(f"the server refused: {exc}", "--server") from exc
-    return info.name, [layer.name for layer in info.layers], reports
+    return info.name, [layer.name for layer in info.layers], reports, deck
+
+
+def _spec_of(deck: Deck, content: Any) -> NetSpec:
+    """A NetSpec from a server's NetContent, validated like any other input."""
+    from .server import convert
+
+    layer_range = None
+    if content.HasField("layer_range"):
+        layer_range = convert.layer_range(deck, content.layer_range)
+    return NetSpec(content.net, tuple(convert.pins(deck, content.pins)),
+                   tuple(convert.shapes(deck, [h.shape for h in content.shapes], "shapes")), layer_range)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -102,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
         if args.nets or args.rules:
             raise InputError("--server reports the server's own nets and deck; give no net "
                              "file and no --rules with it", "--server")
-        deck_name, layer_order, records = records_from_server(args.server, args.timeout, bar)
+        deck_name, layer_order, records, deck = records_from_server(args.server, args.timeout, bar)
         source = f"server {args.server}"
     else:
         if not args.nets or not args.rules:

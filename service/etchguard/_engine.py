@@ -95,6 +95,11 @@ class Engine:
             raise NoDeckError("no rule deck is loaded; load one first", "deck")
         return self._deck
 
+    @property
+    def deck_text(self) -> str | None:
+        """The loaded deck's TOML source, when it was loaded from text."""
+        return self._deck_text
+
     def load_deck(self, deck: Deck, text: str | None = None) -> None:
         """Load or replace the deck. Held nets are carried over by layer name; if one
         uses a layer the new deck lacks, the call is refused and nothing changes.
@@ -296,11 +301,16 @@ class Engine:
         with net.lock:
             return {sid: Shape(v[0], v[1:]) for sid, v in net.shapes.items()}  # type: ignore[arg-type]
 
-    def spec(self, name: str) -> NetSpec:
+    def spec_with_ids(self, name: str) -> tuple[NetSpec, list[int]]:
+        """The net's specification and its shapes' ids, in the same (commit) order."""
         net = self._net(name)
         with net.lock:
-            return NetSpec(net.name, net.pins, tuple(Shape(v[0], v[1:]) for v in net.shapes.values()),  # type: ignore[arg-type]
-                           net.layer_range)
+            ids = list(net.shapes)
+            shapes = tuple(Shape(v[0], v[1:]) for v in net.shapes.values())  # type: ignore[arg-type]
+            return NetSpec(net.name, net.pins, shapes, net.layer_range), ids
+
+    def spec(self, name: str) -> NetSpec:
+        return self.spec_with_ids(name)[0]
 
     # -- questions --------------------------------------------------------------------
 

@@ -341,6 +341,10 @@ class Client:
     def check(self, net: str) -> pb.NetReport:
         return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
 
+    def get_net(self, net: str) -> pb.NetContent:
+        """The net's pins and committed shapes with their ids (DBU)."""
+        return self._call(self.stub.GetNet, pb.GetNetRequest(net=net))
+
     def advise(self, net: str, layer: str, x1: int, y1: int, x2: int, y2: int, *, width: int = 0,
                allow_non_preferred: bool = False, want: Sequence[str] = ()) -> pb.AdviseReply:
         """Repair advice for a run (layer hop, jumper point, diode); ``want`` picks some."""

@@ -97,8 +97,12 @@ class ServerConfig:
 
 
 def _engine(config: ServerConfig) -> Engine:
-    deck = load_deck(config.rules) if config.rules is not None else None
-    return Engine(deck, config.limits(), config.costs())
+    engine = Engine(None, config.limits(), config.costs())
+    if config.rules is not None:
+        load_deck(config.rules)  # refuses an unreadable or invalid deck, naming the file
+        text = Path(config.rules).read_text(encoding="utf-8")
+        engine.load_deck(loads_deck(text, str(config.rules)), text)  # GetDeck hands out the text
+    return engine
 
 
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:

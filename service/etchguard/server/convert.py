@@ -146,6 +146,25 @@ def deck_into(out, deck) -> None:
     out.rule_count = len(deck.rules)
 
 
+def net_into(out, spec, shape_ids, deck) -> None:
+    """Fill a NetContent from an engine NetSpec (and its shapes' ids)."""
+    names = [l.name for l in deck.layers]
+    out.net = spec.name
+    for pin in spec.pins:
+        msg = out.pins.add(name=pin.name, layer=names[pin.layer], diff_area=pin.diff_area)
+        for r in pin.rects:
+            msg.rects.add(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3])
+        msg.gate_area.update(pin.gate_area)
+        msg.cell_area.update({names[step]: area for step, area in pin.cell_area.items()})
+    for sid, shape in zip(shape_ids, spec.shapes):
+        held = out.shapes.add(id=sid)
+        held.shape.layer = names[shape.layer]
+        r = shape.rect
+        held.shape.rect.xlo, held.shape.rect.ylo, held.shape.rect.xhi, held.shape.rect.yhi = r
+    if spec.layer_range is not None:
+        out.layer_range.lowest, out.layer_range.highest = (names[i] for i in spec.layer_range)
+
+
 def ids_into(out, ids: Sequence[int]) -> None:
     out.shape_ids.extend(ids)
 

@@ -29,12 +29,14 @@ def _load_deck(self, req, out):
     deck = loads_deck(req.toml, "toml")
     self.engine.load_deck(deck, req.toml)  # the text: a journal replays it
     convert.deck_into(out, deck)
+    out.toml = req.toml
     log.info("deck loaded", extra={"fields": {"deck": deck.name, "layers": len(deck.layers),
                                               "rules": len(deck.rules)}})
 
 
 def _get_deck(self, req, out):
     convert.deck_into(out, self.engine.deck)
+    out.toml = self.engine.deck_text or ""
 
 
 def _open_net(self, req, out):
@@ -83,6 +85,11 @@ def _headroom(self, req, out):
     deck = self.engine.deck
     layer = resolve_layer(deck, req.layer, "layer")
     convert.headroom_into(out, self.engine.headroom(req.net, layer, req.x, req.y))
+
+
+def _get_net(self, req, out):
+    spec, ids = self.engine.spec_with_ids(req.net)
+    convert.net_into(out, spec, ids, self.engine.deck)
 
 
 def _check(self, req, out):
@@ -139,7 +146,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
     METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
-               "ScoreBatch", "Headroom", "CheckNet", "CheckAll", "Advise", "GetStats",
+               "ScoreBatch", "Headroom", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
     def __init__(self, engine, metrics) -> None:
@@ -157,6 +164,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)
     CheckNet = _unary("CheckNet", _check, pb.NetReport)
+    GetNet = _unary("GetNet", _get_net, pb.NetContent)
     Advise = _unary("Advise", _advise, pb.AdviseReply)
     GetStats = _unary("GetStats", _stats, pb.Stats)
 

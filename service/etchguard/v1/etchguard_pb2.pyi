@@ -170,20 +170,22 @@ class LayerInfo(_message.Message):
     def __init__(self, name: _Optional[str] = ..., step: _Optional[int] = ..., kind: _Optional[_Union[LayerKind, str]] = ..., direction: _Optional[_Union[Direction, str]] = ..., thickness_um: _Optional[float] = ..., wire_width: _Optional[int] = ..., spacing: _Optional[int] = ..., cut_size: _Optional[int] = ..., enclosure: _Optional[int] = ...) -> None: ...
 
 class DeckInfo(_message.Message):
-    __slots__ = ("name", "dbu_per_micron", "cumulative_includes_cuts", "layers", "oxides", "rule_count")
+    __slots__ = ("name", "dbu_per_micron", "cumulative_includes_cuts", "layers", "oxides", "rule_count", "toml")
     NAME_FIELD_NUMBER: _ClassVar[int]
     DBU_PER_MICRON_FIELD_NUMBER: _ClassVar[int]
     CUMULATIVE_INCLUDES_CUTS_FIELD_NUMBER: _ClassVar[int]
     LAYERS_FIELD_NUMBER: _ClassVar[int]
     OXIDES_FIELD_NUMBER: _ClassVar[int]
     RULE_COUNT_FIELD_NUMBER: _ClassVar[int]
+    TOML_FIELD_NUMBER: _ClassVar[int]
     name: str
     dbu_per_micron: int
     cumulative_includes_cuts: bool
     layers: _containers.RepeatedCompositeFieldContainer[LayerInfo]
     oxides: _containers.RepeatedScalarFieldContainer[str]
     rule_count: int
-    def __init__(self, name: _Optional[str] = ..., dbu_per_micron: _Optional[int] = ..., cumulative_includes_cuts: _Optional[bool] = ..., layers: _Optional[_Iterable[_Union[LayerInfo, _Mapping]]] = ..., oxides: _Optional[_Iterable[str]] = ..., rule_count: _Optional[int] = ...) -> None: ...
+    toml: str
+    def __init__(self, name: _Optional[str] = ..., dbu_per_micron: _Optional[int] = ..., cumulative_includes_cuts: _Optional[bool] = ..., layers: _Optional[_Iterable[_Union[LayerInfo, _Mapping]]] = ..., oxides: _Optional[_Iterable[str]] = ..., rule_count: _Optional[int] = ..., toml: _Optional[str] = ...) -> None: ...
 
 class OpenNetRequest(_message.Message):
     __slots__ = ("net", "pins", "layer_range", "shapes")
@@ -362,6 +364,32 @@ class CheckNetRequest(_message.Message):
     NET_FIELD_NUMBER: _ClassVar[int]
     net: str
     def __init__(self, net: _Optional[str] = ...) -> None: ...
+
+class GetNetRequest(_message.Message):
+    __slots__ = ("net",)
+    NET_FIELD_NUMBER: _ClassVar[int]
+    net: str
+    def __init__(self, net: _Optional[str] = ...) -> None: ...
+
+class HeldShape(_message.Message):
+    __slots__ = ("id", "shape")
+    ID_FIELD_NUMBER: _ClassVar[int]
+    SHAPE_FIELD_NUMBER: _ClassVar[int]
+    id: int
+    shape: Shape
+    def __init__(self, id: _Optional[int] = ..., shape: _Optional[_Union[Shape, _Mapping]] = ...) -> None: ...
+
+class NetContent(_message.Message):
+    __slots__ = ("net", "pins", "shapes", "layer_range")
+    NET_FIELD_NUMBER: _ClassVar[int]
+    PINS_FIELD_NUMBER: _ClassVar[int]
+    SHAPES_FIELD_NUMBER: _ClassVar[int]
+    LAYER_RANGE_FIELD_NUMBER: _ClassVar[int]
+    net: str
+    pins: _containers.RepeatedCompositeFieldContainer[Pin]
+    shapes: _containers.RepeatedCompositeFieldContainer[HeldShape]
+    layer_range: LayerRange
+    def __init__(self, net: _Optional[str] = ..., pins: _Optional[_Iterable[_Union[Pin, _Mapping]]] = ..., shapes: _Optional[_Iterable[_Union[HeldShape, _Mapping]]] = ..., layer_range: _Optional[_Union[LayerRange, _Mapping]] = ...) -> None: ...
 
 class CheckAllRequest(_message.Message):
     __slots__ = ("violations_only",)

@@ -85,6 +85,11 @@ class AntennaServiceStub:
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CheckNetRequest.SerializeToString,
                 response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.NetReport.FromString,
                 _registered_method=True)
+        self.GetNet = channel.unary_unary(
+                '/etchguard.v1.AntennaService/GetNet',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.GetNetRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.NetContent.FromString,
+                _registered_method=True)
         self.CheckAll = channel.unary_stream(
                 '/etchguard.v1.AntennaService/CheckAll',
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CheckAllRequest.SerializeToString,
@@ -183,6 +188,13 @@ class AntennaServiceServicer:
         context.set_details('Method not implemented!')
         raise NotImplementedError('Method not implemented!')
 
+    def GetNet(self, request, context):
+        """What a net is made of: its pins and committed shapes with their ids (DBU).
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
     def CheckAll(self, request, context):
         """Full check of every open net, one report per net as it is computed.
         """
@@ -267,6 +279,11 @@ def add_AntennaServiceServicer_to_server(servicer, server):
                     servicer.CheckNet,
                     request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.CheckNetRequest.FromString,
                     response_serializer=etchguard_dot_v1_dot_etchguard__pb2.NetReport.SerializeToString,
+            ),
+            'GetNet': grpc.unary_unary_rpc_method_handler(
+                    servicer.GetNet,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.GetNetRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.NetContent.SerializeToString,
             ),
             'CheckAll': grpc.unary_stream_rpc_method_handler(
                     servicer.CheckAll,
@@ -560,6 +577,33 @@ class AntennaService:
             '/etchguard.v1.AntennaService/CheckNet',
             etchguard_dot_v1_dot_etchguard__pb2.CheckNetRequest.SerializeToString,
             etchguard_dot_v1_dot_etchguard__pb2.NetReport.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def GetNet(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/GetNet',
+            etchguard_dot_v1_dot_etchguard__pb2.GetNetRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.NetContent.FromString,
             options,
             channel_credentials,
             insecure,
