@@ -34,13 +34,10 @@ import os
 import platform
 import random
 import shutil
-import socket
 import subprocess
 import sys
 import tempfile
-import threading
 import time
-from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from pathlib import Path
 
@@ -48,7 +45,7 @@ import grpc
 
 from etchguard.client import Client, candidate_columns, pb
 
-from .rounds import round_arguments
+from .rounds import echo_ready, free_port, ours_ready, round_arguments, start_process, stop_process
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
 REPO = Path(__file__).resolve().parents[1]
@@ -101,67 +98,6 @@ def build() -> float:
         if done.returncode != 0:
             raise RuntimeError(f"{' '.join(cmd)} failed:\n{done.stdout[-3000:]}\n{done.stderr[-3000:]}")
     return time.monotonic() - t
-
-
-# -- servers -------------------------------------------------------------------------
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _start(cmd: list[str], ready: Callable[[str], str | None], on_stderr: bool) -> tuple[subprocess.Popen, str]:
-    """Starts a server process and returns it with the address its ready line names."""
-    proc = subprocess.Popen(cmd, cwd=REPO, stdin=subprocess.DEVNULL, text=True,
-                            stdout=subprocess.DEVNULL if on_stderr else subprocess.PIPE,
-                            stderr=subprocess.PIPE if on_stderr else subprocess.DEVNULL,
-                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
-    pipe = proc.stderr if on_stderr else proc.stdout
-    assert pipe is not None
-    found: list[str] = []
-    event = threading.Event()
-
-    def read() -> None:  # keeps draining, so the server never blocks on a full pipe
-        for line in pipe:
-            if not found:
-                address = ready(line)
-                if address:
-                    found.append(address)
-                    event.set()
-        event.set()
-
-    threading.Thread(target=read, daemon=True).start()
-    if not event.wait(30) or not found:
-        proc.kill()
-        raise RuntimeError(f"{' '.join(cmd[2:5])} did not start")
-    return proc, found[0]
-
-
-def _json_field(line: str, pick: Callable[[dict], str | None]) -> str | None:
-    try:
-        entry = json.loads(line)
-    except json.JSONDecodeError:
-        return None
-    return pick(entry) if isinstance(entry, dict) else None
-
-
-def _ours_ready(line: str) -> str | None:
-    return _json_field(line, lambda e: e["addresses"][0] if e.get("msg") == "listening" else None)
-
-
-def _echo_ready(line: str) -> str | None:
-    return _json_field(line, lambda e: e.get("listening"))
-
-
-def _stop(proc: subprocess.Popen | None) -> None:
-    if proc is not None and proc.poll() is None:
-        proc.terminate()
-        try:
-            proc.wait(15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
 
 
 # -- requests --------------------------------------------------------------------------
@@ -298,21 +234,21 @@ def main(argv: list[str] | None = None) -> int:
                         + [pb.SessionRequest(seq=len(scores) + 1 + i, score_batch=b)
                            for i, b in enumerate(batch_requests)])
         try:
-            ours, ours_address = _start([sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
-                                         "--listen", "127.0.0.1:0", "--metrics-port", str(_free_port())],
-                                        _ours_ready, on_stderr=True)
+            ours, ours_address = start_process([sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
+                                         "--listen", "127.0.0.1:0", "--metrics-port", str(free_port())],
+                                        ours_ready, on_stderr=True)
             with Client(ours_address, timeout=60) as setup:
                 setup.open_net(NET, _pb_pins(names, net.pins), _pb_shapes(names, net.shapes))
                 replies_file.write_text(json.dumps(capture(setup, scores, batch_requests)))
-            echo, echo_address = _start([sys.executable, "-m", "bench.echo_server", "--replies", str(replies_file),
-                                         "--listen", "127.0.0.1:0"], _echo_ready, on_stderr=False)
+            echo, echo_address = start_process([sys.executable, "-m", "bench.echo_server", "--replies", str(replies_file),
+                                         "--listen", "127.0.0.1:0"], echo_ready, on_stderr=False)
             cmd = [str(BINARY), "--ours", ours_address, "--floor", echo_address, "--requests", str(requests_file),
                    "--rounds", str(args.rounds), "--calls", str(args.calls), "--batches", str(args.batches),
                    "--warmup", str(max(10, args.calls // 8)), "--budget-s", str(MEASURE_BUDGET_S)]
             done = subprocess.run(cmd, capture_output=True, text=True, timeout=MEASURE_BUDGET_S + 45)
         finally:
-            _stop(echo)
-            _stop(ours)
+            stop_process(echo)
+            stop_process(ours)
     if done.returncode != 0:
         print(f"cpp_bench: the C++ client failed ({done.returncode}):\n{done.stderr}", file=sys.stderr)
         return 1

@@ -35,8 +35,6 @@ import json
 import os
 import platform
 import random
-import socket
-import subprocess
 import sys
 import tempfile
 import time
@@ -52,7 +50,7 @@ from etchguard.client import Client, candidate_columns, pb
 from etchguard.server.metrics import Metrics
 from etchguard.server.servicer import AntennaServicer
 
-from .rounds import round_arguments
+from .rounds import echo_ready, free_port, ours_ready, round_arguments, start_process, stop_process
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
@@ -84,48 +82,6 @@ class Row:
 def _pct(values: list[int], q: float) -> float:
     s = sorted(values)
     return s[min(len(s) - 1, int(q * len(s)))] / 1000.0  # ns -> us
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _start(cmd: list[str], ready: Callable[[str], str | None], stream: str) -> tuple[subprocess.Popen, str]:
-    proc = subprocess.Popen(cmd, cwd=REPO, stdin=subprocess.DEVNULL, text=True,
-                            stdout=subprocess.PIPE if stream == "stdout" else subprocess.DEVNULL,
-                            stderr=subprocess.PIPE if stream == "stderr" else subprocess.DEVNULL,
-                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
-    pipe = proc.stdout if stream == "stdout" else proc.stderr
-    assert pipe is not None
-    deadline = time.monotonic() + 30
-    for line in pipe:
-        address = ready(line)
-        if address:
-            # keep draining in the background so the server never blocks on its pipe
-            import threading
-            threading.Thread(target=lambda: [None for _ in pipe], daemon=True).start()
-            return proc, address
-        if time.monotonic() > deadline:
-            break
-    proc.kill()
-    raise RuntimeError(f"{cmd[2:4]} did not start")
-
-
-def _ours_ready(line: str) -> str | None:
-    try:
-        entry = json.loads(line)
-    except json.JSONDecodeError:
-        return None
-    return entry["addresses"][0] if entry.get("msg") == "listening" else None
-
-
-def _echo_ready(line: str) -> str | None:
-    try:
-        return json.loads(line).get("listening")
-    except json.JSONDecodeError:
-        return None
 
 
 def _pb_shapes(deck, shapes) -> list[pb.Shape]:
@@ -277,8 +233,8 @@ def main(argv: list[str] | None = None) -> int:
     ]
 
     ours_cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
-                "--listen", "127.0.0.1:0", "--metrics-port", str(_free_port())]
-    ours, ours_addr = _start(ours_cmd, _ours_ready, "stderr")
+                "--listen", "127.0.0.1:0", "--metrics-port", str(free_port())]
+    ours, ours_addr = start_process(ours_cmd, ours_ready, on_stderr=True)
     echo = None
     try:
         with Client(ours_addr, timeout=60) as setup:
@@ -287,8 +243,8 @@ def main(argv: list[str] | None = None) -> int:
         with tempfile.NamedTemporaryFile("w", suffix=".json", delete=False) as f:
             json.dump(canned, f)
             replies_file = f.name
-        echo, echo_addr = _start([sys.executable, "-m", "bench.echo_server", "--replies", replies_file,
-                                  "--listen", "127.0.0.1:0"], _echo_ready, "stdout")
+        echo, echo_addr = start_process([sys.executable, "-m", "bench.echo_server", "--replies", replies_file,
+                                  "--listen", "127.0.0.1:0"], echo_ready, on_stderr=False)
         os.unlink(replies_file)
         rows = []
         with Client(ours_addr, timeout=60) as mine, Client(echo_addr, timeout=60) as floor:
@@ -317,12 +273,7 @@ def main(argv: list[str] | None = None) -> int:
                                  {k: v / rounds_done * 1e6 for k, v in cpu.items()}))
     finally:
         for proc in (ours, echo):
-            if proc is not None and proc.poll() is None:
-                proc.terminate()
-                try:
-                    proc.wait(15)
-                except subprocess.TimeoutExpired:
-                    proc.kill()
+            stop_process(proc)
 
     _print(rows, args, time.monotonic() - started)
     args.json.parent.mkdir(parents=True, exist_ok=True)

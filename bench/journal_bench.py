@@ -30,6 +30,8 @@ import numpy as np
 
 from etchguard.client import Client, pin, rect
 
+from .rounds import ours_ready, start_process
+
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
 DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
@@ -40,14 +42,7 @@ GATE = pin("u1.a", "M1", [(0, 0, 200, 200)], gate_area={"thin": 0.05})
 def start(extra: list[str]) -> tuple[subprocess.Popen, str]:
     cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", "127.0.0.1:0",
            "--rules", str(DECK), *extra]
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, cwd=REPO)
-    assert proc.stderr is not None
-    for line in proc.stderr:
-        entry = json.loads(line) if line.startswith("{") else {}
-        if entry.get("msg") == "listening":
-            return proc, entry["addresses"][0]
-    raise RuntimeError(f"server did not start: {cmd}")
+    return start_process(cmd, ours_ready, on_stderr=True)
 
 
 def round_of_commits(session, net: str, commits: int, x0: int) -> list[float]:

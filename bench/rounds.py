@@ -1,9 +1,18 @@
-"""What the client benches share: the options of a run against ours and the echo floor."""
+"""What the client benches share: the options of a run against ours and the echo
+floor, and the starting and stopping of those server processes."""
 
 from __future__ import annotations
 
 import argparse
+import json
+import os
+import socket
+import subprocess
+import threading
+from collections.abc import Callable
 from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[1]
 
 
 def round_arguments(prog: str, doc: str | None, rounds: int, json_path: Path,
@@ -21,3 +30,65 @@ def round_arguments(prog: str, doc: str | None, rounds: int, json_path: Path,
     if args.quick:
         args.rounds, args.calls, args.batches = 1, 30, 1
     return args
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def start_process(cmd: list[str], ready: Callable[[str], str | None], on_stderr: bool,
+                  timeout_s: float = 30.0) -> tuple[subprocess.Popen, str]:
+    """Start a server process; return it with the address its ready line names."""
+    proc = subprocess.Popen(cmd, cwd=REPO, stdin=subprocess.DEVNULL, text=True,
+                            stdout=subprocess.DEVNULL if on_stderr else subprocess.PIPE,
+                            stderr=subprocess.PIPE if on_stderr else subprocess.DEVNULL,
+                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
+    pipe = proc.stderr if on_stderr else proc.stdout
+    assert pipe is not None
+    found: list[str] = []
+    event = threading.Event()
+
+    def read() -> None:  # keeps draining, so the server never blocks on a full pipe
+        for line in pipe:
+            if not found:
+                address = ready(line)
+                if address:
+                    found.append(address)
+                    event.set()
+        event.set()
+
+    threading.Thread(target=read, daemon=True).start()
+    if not event.wait(timeout_s) or not found:
+        proc.kill()
+        raise RuntimeError(f"{' '.join(cmd[2:5])} did not start")
+    return proc, found[0]
+
+
+def stop_process(proc: subprocess.Popen | None) -> None:
+    if proc is not None and proc.poll() is None:
+        proc.terminate()
+        try:
+            proc.wait(15)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait()
+
+
+def _json_field(line: str, pick: Callable[[dict], str | None]) -> str | None:
+    try:
+        entry = json.loads(line)
+    except json.JSONDecodeError:
+        return None
+    return pick(entry) if isinstance(entry, dict) else None
+
+
+def ours_ready(line: str) -> str | None:
+    """The address in `etchguard serve`'s JSON "listening" log line."""
+    return _json_field(line, lambda e: e["addresses"][0] if e.get("msg") == "listening" else None)
+
+
+def echo_ready(line: str) -> str | None:
+    """The address the bare echo server prints when it listens."""
+    return _json_field(line, lambda e: e.get("listening"))
