@@ -73,7 +73,6 @@ class StepModel:
         # term_rule[s][gi]: the rule giving step s's factors for group gi, or None (plain).
         self.term_rule: list[list[Rule | None]] = [
             [deck.rule(s, m, ox) for (m, ox) in self.groups] for s in range(n)]
-        self.any_side = any(r.measure == "side" for r in deck.rules)
         # Perimeters are kept wherever a side-wall figure can be asked for: at a step
         # with a side rule, and at every routing step once a cumulative side rule
         # exists (steps without a rule add their plain A / G to the sum).
