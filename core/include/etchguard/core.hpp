@@ -1,0 +1,232 @@
+// etchguard core: the process-antenna ratio model of antenna-model.md, in C++17.
+//
+// A library a C++ router can link on its own (no Python, no gRPC inside). Data flows
+// one way: a DeckSpec (plain values) is compiled into a Model; a Net holds one net's
+// pins and shapes, its components at every process step (kept incrementally on add
+// and remove) and answers checks, what-if scores, batches and headroom.
+//
+// Exactness: coordinates are int64 DBU; areas and perimeters are exact integers
+// (__int128 where a product or sum could pass int64); pin figures (gate, diffusion,
+// in-cell area) are summed exactly (Shewchuk partials, the method of Python's
+// math.fsum), so a figure never depends on the order shapes were added or removed.
+// A Net is not thread-safe; distinct Nets may be used from distinct threads.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <utility>
+#include <vector>
+
+namespace etchguard {
+
+using i64 = std::int64_t;
+using i128 = __int128;
+
+// Coordinates must lie strictly inside +-2^62 DBU (so a width fits int64).
+constexpr i64 kCoordLimit = i64(1) << 62;
+
+struct Rect {
+  i64 xlo, ylo, xhi, yhi;
+};
+
+enum class Measure : std::uint8_t { Area = 0, Side = 1 };
+enum class Kind : std::uint8_t { Partial = 0, Cumulative = 1 };
+
+// A piecewise-linear table of (x, y) points, x strictly increasing; held constant
+// beyond the first and last point. Empty means "not given".
+struct Table {
+  std::vector<std::pair<double, double>> points;
+  bool empty() const { return points.empty(); }
+  double at(double x) const;
+};
+
+struct RuleSpec {
+  int step = 0;
+  Measure measure = Measure::Area;
+  int oxide = 0;  // index into DeckSpec::oxides
+  bool has_partial_max = false;
+  double partial_max = 0.0;
+  bool has_cumulative_max = false;
+  double cumulative_max = 0.0;
+  double area_factor = 1.0;
+  bool factor_with_diode_only = false;
+  Table diode_partial_max, diode_cumulative_max, diode_area_reduction;
+  double diode_gate_factor = 0.0;   // k_gate
+  double diode_area_credit = 0.0;   // k_credit
+
+  bool has_partial() const { return has_partial_max || !diode_partial_max.empty(); }
+  bool has_cumulative() const { return has_cumulative_max || !diode_cumulative_max.empty(); }
+  double partial_limit(double diff_um2) const;
+  double cumulative_limit(double diff_um2) const;
+  // max(0, f * r(D) * A - k_credit * D) / (G + k_gate * D)
+  double ratio(double conductor, double gate_um2, double diff_um2) const;
+  // The conductor A' at which spent + ratio(A') reaches limit, minus `conductor`.
+  double headroom(double limit, double gate_um2, double diff_um2, double spent,
+                  double conductor) const;
+};
+
+struct LayerSpec {
+  bool cut = false;
+  double thickness_um = 0.0;  // 0: not given
+  i64 wire_width = 0;         // 0: not given
+  bool cumulative_plus_cut = false;
+};
+
+struct DeckSpec {
+  i64 dbu_per_micron = 1000;
+  bool cumulative_includes_cuts = false;
+  std::vector<LayerSpec> layers;    // process order, bottom-up
+  std::vector<std::string> oxides;  // oxide class names; rules and pins index them
+  std::vector<RuleSpec> rules;      // at most one per (step, measure, oxide)
+};
+
+struct CostModel {
+  double knee = 0.7, exponent = 3.0, scale = 10.0, violation = 1.0e6, over_slope = 1.0e3;
+  double cost(double utilization) const;
+};
+
+constexpr double kTolerance = 1e-9;
+inline bool is_legal(double utilization) { return utilization <= 1.0 + kTolerance; }
+double utilization(double ratio, double limit);
+
+class Model;  // a compiled deck (opaque; see model.hpp inside the library)
+
+// Compile a deck. Throws std::invalid_argument naming the field on a deck the core
+// cannot use (the Python face validates decks fully before this).
+std::shared_ptr<const Model> compile(const DeckSpec& deck);
+int model_steps(const Model& model);
+int model_groups(const Model& model);  // (measure, oxide) groups of cumulative rules
+
+struct PinSpec {
+  int layer = 0;
+  std::vector<Rect> rects;               // at least one
+  std::vector<double> gate_by_oxide;     // per DeckSpec oxide (missing: 0)
+  double diff_um2 = 0.0;
+  std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2)
+};
+
+struct Shape {
+  int layer;
+  Rect rect;
+};
+
+// One check on one component (a report line, or a what-if's figure after).
+struct Check {
+  int step;
+  Measure measure;
+  Kind kind;
+  int oxide;
+  double ratio, limit, utilization;
+  int gate;  // pin index of the gate with this (worst) ratio
+};
+
+struct RatioChange {
+  Check after;
+  bool has_before;
+  double before_ratio, before_utilization;
+  double headroom_um2;
+  bool has_length;
+  double headroom_length_um;
+};
+
+struct Score {
+  std::vector<double> added_area_um2;  // per step (0 where nothing is added)
+  double worst_change_utilization = 0.0;
+  double worst_utilization = 0.0;
+  bool legal = true;
+  bool breaks_limit = false;
+  double cost = 0.0;
+  std::vector<RatioChange> changes;  // only with detail
+};
+
+// The worst case per (step, measure, kind, oxide) over the net's components.
+struct Report {
+  double worst_utilization = 0.0;
+  bool legal = true;
+  std::vector<Check> checks;  // sorted by (step, measure, kind, oxide)
+};
+
+// Every failing check of every component, with the component's members.
+struct Offence {
+  Check check;
+  std::vector<i64> shape_ids;  // sorted
+  std::vector<int> pins;       // sorted
+};
+
+struct Headroom {
+  bool found = false;
+  double area_um2, side_um2, length_um;
+  // what binds: step, kind, measure, oxide and gate pin (-1 for partial)
+  int bind_step = -1;
+  Kind bind_kind = Kind::Partial;
+  Measure bind_measure = Measure::Area;
+  int bind_oxide = -1;
+  int bind_gate = -1;
+};
+
+// Result codes of calls that can refuse (the Net is unchanged on refusal).
+enum class Status : std::uint8_t { Ok = 0, BadLayer, BadRect, DuplicateId, UnknownId };
+
+struct Toucher {
+  int element;  // element id (see Net::element_shape_id)
+  int step;     // the step from which the contact exists
+};
+
+class Net {
+ public:
+  Net(std::shared_ptr<const Model> model, std::vector<PinSpec> pins);
+  ~Net();
+  Net(Net&&) noexcept;
+  Net& operator=(Net&&) noexcept;
+  Net(const Net&) = delete;
+  Net& operator=(const Net&) = delete;
+
+  // Mutations validate first and change nothing on refusal.
+  Status add(i64 id, int layer, const Rect& r);
+  Status add_many(const i64* ids, const int* layers, const Rect* rects, std::size_t n);
+  Status remove(const i64* ids, std::size_t n);  // all or none
+
+  std::size_t shape_count() const;
+  // Held shapes in the order they were added (ids, layers, rects).
+  void shapes(std::vector<i64>& ids, std::vector<int>& layers, std::vector<Rect>& rects) const;
+
+  Report check() const;
+  std::vector<Offence> offences() const;
+  double worst_at(int step) const;  // the net's worst utilization at a step, as held
+
+  // What committing `cands` (and pins `extra`) would do; changes nothing. Throws
+  // std::invalid_argument on a bad layer or rectangle.
+  Score score(const Shape* cands, std::size_t n, bool detail, const CostModel& costs,
+              const PinSpec* extra = nullptr, std::size_t n_extra = 0) const;
+  // Candidates of counts[i] consecutive shapes each (counts null: one shape each);
+  // out arrays of n_candidates entries.
+  void score_batch(const Shape* shapes, std::size_t n_shapes, const i64* counts,
+                   std::size_t n_candidates, const CostModel& costs, double* worst_change,
+                   double* worst, std::uint8_t* legal, std::uint8_t* breaks, double* cost,
+                   double* added_um2) const;
+
+  Headroom headroom(int layer, i64 x, i64 y) const;
+
+  // Queries for repair advice: elements that connect to a rectangle on a layer; whether
+  // the component holding an element at a step has gate area; the net's own rectangles
+  // on a layer that meet a closed rectangle.
+  std::vector<Toucher> touching(int layer, const Rect& r) const;
+  bool reaches_gate(int element, int step) const;
+  std::vector<Rect> near(int layer, const Rect& r) const;
+  // The shape id of an element, or -1 - pin index for a pin rectangle.
+  i64 element_shape_id(int element) const;
+
+  std::size_t memory_bytes() const;  // approximate heap use of this net
+
+ private:
+  struct State;
+  std::unique_ptr<State> s_;
+};
+
+}  // namespace etchguard
+
+namespace etchguard {
+// The library's version, for the binding and the C++ example to report.
+const char* core_version();
+}  // namespace etchguard
