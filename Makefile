@@ -5,12 +5,33 @@ BIN     = $(VENV)/bin
 DECK   ?= service/etchguard/data/lumen-6m.toml
 NETS   ?= service/etchguard/data/lumen-demo-nets.json
 
-.PHONY: venv proto serve test check bench clean
+CMAKE  ?= cmake
 
-$(BIN)/etchguard: pyproject.toml
-	$(PYTHON) -m venv $(VENV)
+.PHONY: venv proto serve test check bench clean core-test
+
+# The compiled core (etchguard._core, built by scikit-build-core from CMakeLists.txt and
+# core/) is rebuilt when any of these change, so `make test` after a C++ edit runs the
+# new code. The build requirements (pyproject.toml's build-system.requires) live in the
+# venv and the CMake tree is kept in build/<wheel tag>, so a rebuild compiles only what
+# changed (with pip's default build isolation nanobind would be recompiled every time).
+CORE_INPUTS := CMakeLists.txt core/CMakeLists.txt \
+	$(wildcard core/include/etchguard/*.hpp core/src/*.cpp core/src/*.hpp core/src/*.h \
+	           core/python/*.cpp core/python/*.hpp core/python/*.h)
+# cmake and ninja come from PyPI only where the machine lacks them (scikit-build-core
+# says which it needs).
+STATIC_REQUIRES = $(BIN)/python -c 'import tomllib; \
+	print(*tomllib.load(open("pyproject.toml", "rb"))["build-system"]["requires"], sep="\n")'
+DYNAMIC_REQUIRES = $(BIN)/python -c 'from scikit_build_core.build import \
+	get_requires_for_build_editable as g; print(*g(), sep="\n")'
+
+$(BIN)/etchguard: pyproject.toml $(CORE_INPUTS)
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install --quiet --upgrade pip
-	$(BIN)/pip install --quiet -e '.[test,report]'
+	$(STATIC_REQUIRES) > $(VENV)/build-requires.txt
+	$(BIN)/pip install --quiet -r $(VENV)/build-requires.txt
+	$(DYNAMIC_REQUIRES) > $(VENV)/build-requires-more.txt
+	$(BIN)/pip install --quiet -r $(VENV)/build-requires-more.txt
+	$(BIN)/pip install --quiet --no-build-isolation -e '.[test,report]'
 	touch $@
 
 venv: $(BIN)/etchguard
@@ -34,6 +55,14 @@ bench: venv
 
 clean:
 	rm -rf $(VENV) build *.egg-info service/*.egg-info .pytest_cache
+
+# The core's own tests (core/tests), built with AddressSanitizer and UBSan on their own
+# (plain CMake, no Python) in build/sanitize, and run. `make test` runs them too
+# (tests/test_core_native.py).
+core-test:
+	$(CMAKE) -S core -B build/sanitize -DETCHGUARD_SANITIZE=ON -DETCHGUARD_CORE_TESTS=ON
+	$(CMAKE) --build build/sanitize --parallel 2
+	UBSAN_OPTIONS=print_stacktrace=1 build/sanitize/etchguard_core_tests
 
 # Build the C++ client example (client_examples/cpp) and run it against a server it starts.
 .PHONY: cpp-example
