@@ -5,7 +5,9 @@ BIN     = $(VENV)/bin
 DECK   ?= service/etchguard/data/lumen-6m.toml
 NETS   ?= service/etchguard/data/lumen-demo-nets.json
 
-CMAKE  ?= cmake
+# The machine's cmake, else the one make venv put in the venv from PyPI (where the
+# machine had none).
+CMAKE  ?= $(shell command -v cmake || echo $(BIN)/cmake)
 
 .PHONY: venv proto serve test check bench clean core-test
 
