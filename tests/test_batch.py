@@ -22,8 +22,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import etchguard as eg
-from etchguard._batch import _union_measures
-from etchguard._geometry import union_measures
+
 from test_reference_agreement import GRID, SPAN, decks, engine_with, pins_for, shapes_on
 
 REPO = Path(__file__).resolve().parents[1]
@@ -35,7 +34,6 @@ from bench.netgen import bench_deck, extension_candidates, generate_net, via_run
 REL = 1e-12
 SETTINGS = settings(max_examples=60, deadline=None,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-TALLY = {"random": [0, 0], "bench": [0, 0]}  # [vectorized, total]
 
 
 def same(a: float, b: float) -> bool:
@@ -52,7 +50,7 @@ def assert_agrees(engine: eg.Engine, name: str, shapes: list[eg.Shape], tally: s
     names = [l.name for l in engine.deck.layers]
     for i, shape in enumerate(shapes):
         want = engine.score(name, [shape], detail=False)
-        where = f"candidate {i} {shape} (vectorized={bool(got.vectorized[i])})"
+        where = f"candidate {i} {shape}"
         assert same(got.worst_change_utilization[i], want.worst_change_utilization), \
             (where, got.worst_change_utilization[i], want.worst_change_utilization)
         assert same(got.worst_utilization[i], want.worst_utilization), \
@@ -62,8 +60,6 @@ def assert_agrees(engine: eg.Engine, name: str, shapes: list[eg.Shape], tally: s
         assert same(got.cost[i], want.cost), (where, got.cost[i], want.cost)
         assert same(got.added_area_um2[i], want.added_area_um2.get(names[shape.layer], 0.0)), \
             (where, got.added_area_um2[i], want.added_area_um2)
-    TALLY[tally][0] += int(got.vectorized.sum())
-    TALLY[tally][1] += len(shapes)
     return got
 
 
@@ -146,51 +142,14 @@ def test_columns_equal_scalar_on_bench_nets(size: int, seed: int) -> None:
     net = generate_net(deck, size, seed=seed)
     engine = eg.Engine(deck)
     engine.open_net(net.name, net.pins, None, net.shapes)
-    got = assert_agrees(engine, net.name, bench_batch(deck, net, seed, 160), "bench")
-    print(f"\nbench net of {size} shapes: {got.vectorized_fraction:.3f} of {len(got)} "
-          f"candidates on the column path")
-    assert got.vectorized.any()  # the fast path is exercised
-    assert not got.vectorized.all() or size < 50  # and so is the hand-over on bigger nets
-
-
-def joined_components(engine: eg.Engine, name: str, shape: eg.Shape) -> tuple[int, int]:
-    """How many existing components the shape touches at its own step and at the next
-    (read from the net state the scalar path walks; a diagnostic, not a reference)."""
-    net = engine._net(name)
-    with net.lock:
-        state = engine._state(net)
-        touches = state.touching(shape.layer, shape.rect)
-        counts = []
-        for step in (shape.layer, shape.layer + 1):
-            if step >= state.model.steps:
-                counts.append(0)
-                continue
-            at = state.comp_at[step]
-            counts.append(len({id(at[e]) for e, joined in touches if joined <= step}))
-        return counts[0], counts[1]
-
-
-@pytest.mark.parametrize("size,seed", [(50, 2), (100, 3), (100, 7)])
-def test_merges_take_the_column_path(size: int, seed: int) -> None:
-    """Candidates joining two or three components at their step or the next are
-    answered by the columns, and equal the scalar score."""
-    deck = bench_deck()
-    net = generate_net(deck, size, seed=seed)
-    engine = eg.Engine(deck)
-    engine.open_net(net.name, net.pins, None, net.shapes)
-    shapes = bench_batch(deck, net, seed, 240)
-    got = assert_agrees(engine, net.name, shapes, "bench")
-    merges = [i for i, shape in enumerate(shapes) if max(joined_components(engine, net.name, shape)) >= 2]
-    print(f"\n{len(merges)} merges of {len(shapes)}, {int(got.vectorized[merges].sum())} on the column path")
-    assert merges  # the batch has merges
-    assert got.vectorized[merges].all()  # none falls back (all lie within +-2^30, few neighbours)
+    assert_agrees(engine, net.name, bench_batch(deck, net, seed, 160), "bench")
 
 
 def test_a_run_joining_two_wires_and_a_cut_joining_at_the_next_step() -> None:
     """Hand-made: two M1 wires with a gate each, separate at M1 and V1; an M2 wire over
     both ends stands on a V1 cut of the upper wire only. A run across both M1 wires
     merges them at M1; a cut on the lower wire under the M2 wire merges the two at M2
-    (the step after its own). Both are answered by the columns and equal the scalar."""
+    (the step after its own). Both equal the scalar score and a check after the commit."""
     deck = bench_deck()
     at = {l.name: l.index for l in deck.layers}
     pins = [eg.Pin("g1", at["M1"], ((0, 0, 200, 200),), {"thin": 0.02}, 0.0, {}),
@@ -201,10 +160,12 @@ def test_a_run_joining_two_wires_and_a_cut_joining_at_the_next_step() -> None:
     engine.open_net("h", pins, None, shapes)
     bridge = eg.Shape(at["M1"], (1000, 0, 1200, 3200))
     cut = eg.Shape(at["V1"], (3850, 50, 3950, 150))
-    assert joined_components(engine, "h", bridge) == (2, 2)
-    assert joined_components(engine, "h", cut) == (1, 2)
     got = assert_agrees(engine, "h", [bridge, cut], "bench")
-    assert got.vectorized.all()
+    for i, shape in enumerate((bridge, cut)):
+        ids = engine.commit("h", [shape])
+        after = engine.check("h")
+        engine.remove("h", ids)
+        assert got.worst_utilization[i] == after.worst_utilization, (shape, after)
 
 
 def test_multi_shape_candidates_equal_scalar() -> None:
@@ -231,8 +192,6 @@ def test_multi_shape_candidates_equal_scalar() -> None:
             assert bool(got.legal[i]) == want.legal and bool(got.breaks_limit[i]) == want.breaks_limit, where
             assert same(got.cost[i], want.cost), where
             assert same(got.added_area_um2[i], sum(want.added_area_um2.values())), where
-        singles = np.array([len(c) == 1 for c in cands])
-        assert got.vectorized[singles].any() and not got.vectorized[~singles].any()
 
 
 def test_shape_count_refusals(small_engine: eg.Engine) -> None:
@@ -262,30 +221,6 @@ def test_columns_follow_commits_and_removals() -> None:
     assert_agrees(engine, net.name, cands, "bench")
     engine.remove(net.name, ids[:2])
     assert_agrees(engine, net.name, cands, "bench")
-
-
-def test_report_fraction() -> None:
-    for what, (fast, total) in TALLY.items():
-        if total:
-            print(f"\n{what}: {fast}/{total} = {fast / total:.3f} on the column path")
-
-
-# -- the grid union measure ----------------------------------------------------------------
-
-@settings(max_examples=200, deadline=None)
-@given(st.lists(st.lists(st.tuples(st.integers(0, 8), st.integers(0, 8), st.integers(1, 4),
-                                   st.integers(1, 4)), min_size=1, max_size=6),
-                min_size=1, max_size=8))
-def test_union_measures_equal_the_sweep(rows) -> None:
-    k = max(len(r) for r in rows)
-    batch = []
-    for r in rows:
-        rects = [(x, y, x + w, y + h) for x, y, w, h in r]
-        batch.append(rects + [rects[0]] * (k - len(rects)))  # padded as the column path pads
-    area, perim = _union_measures(np.array(batch, dtype=np.int64))
-    for i, r in enumerate(rows):
-        want = union_measures([(x, y, x + w, y + h) for x, y, w, h in r])
-        assert (int(area[i]), int(perim[i])) == want, (r, area[i], perim[i], want)
 
 
 # -- validation ------------------------------------------------------------------------------
@@ -333,4 +268,4 @@ def test_refusals_name_the_first_bad_row(small_engine: eg.Engine) -> None:
 
 def test_empty_batch(small_engine: eg.Engine) -> None:
     got = small_engine.score_columns("v", np.zeros(0, dtype=np.int64), np.zeros((0, 4), dtype=np.int64))
-    assert len(got) == 0 and got.vectorized_fraction == 0.0
+    assert len(got) == 0

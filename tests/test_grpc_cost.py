@@ -23,8 +23,11 @@ def test_cost_options_reach_the_reply():
         server.stop()
     u = reply.worst_change_utilization
     assert 0 < u < 1  # below the limit: the curved part of the cost
+    # the documented formula (etchguard.CostModel's docstring), written out here:
+    # scale * ((u - knee) / (1 - knee)) ** exponent below the limit
+    assert reply.cost == 7.0 * ((u - 0.0) / (1.0 - 0.0)) ** 2.0
     assert reply.cost == eg.CostModel(knee=0.0, exponent=2.0, scale=7.0).cost(u)
-    assert reply.cost != eg.CostModel().cost(u)  # the default would say otherwise
+    assert reply.cost != 10.0 * ((u - 0.7) / 0.3) ** 3.0 if u > 0.7 else reply.cost != 0.0  # not the default
 
 
 def test_a_bad_cost_setting_refuses_to_start():

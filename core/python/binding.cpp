@@ -1,14 +1,246 @@
-// PLACEHOLDER binding, replaced by the lead's: the module etchguard._core exposing the
-// core to the Python package. Built by the top-level CMakeLists.txt (nanobind, through
-// scikit-build-core at `pip install`), linked against the static library etchguard_core.
+// The thin Python binding of the core (nanobind): plain values and numpy arrays in,
+// one core call (with the GIL released), plain values out. No model logic here.
 #include <nanobind/nanobind.h>
+#include <nanobind/ndarray.h>
+#include <nanobind/stl/optional.h>
+#include <nanobind/stl/pair.h>
+#include <nanobind/stl/string.h>
+#include <nanobind/stl/tuple.h>
+#include <nanobind/stl/vector.h>
+
+#include <stdexcept>
 
 #include "etchguard/core.hpp"
 
 namespace nb = nanobind;
+using namespace etchguard;
+
+namespace {
+
+using I64Rows = nb::ndarray<const i64, nb::shape<-1, 4>, nb::c_contig, nb::device::cpu>;
+using I64Col = nb::ndarray<const i64, nb::shape<-1>, nb::c_contig, nb::device::cpu>;
+
+// The compiled deck, held for the nets built on it (Model itself is opaque here).
+struct DeckHandle {
+  std::shared_ptr<const Model> model;
+};
+
+Table table(const std::vector<std::pair<double, double>>& points) { return Table{points}; }
+
+// (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)])
+using PinTuple = std::tuple<int, std::vector<std::tuple<i64, i64, i64, i64>>, std::vector<double>, double, double,
+                            std::vector<std::pair<int, double>>>;
+
+std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
+  std::vector<PinSpec> out;
+  out.reserve(pins.size());
+  for (const auto& t : pins) {
+    PinSpec p;
+    p.layer = std::get<0>(t);
+    for (const auto& r : std::get<1>(t))
+      p.rects.push_back({std::get<0>(r), std::get<1>(r), std::get<2>(r), std::get<3>(r)});
+    p.gate_by_oxide = std::get<2>(t);
+    p.gate_total_um2 = std::get<3>(t);
+    p.diff_um2 = std::get<4>(t);
+    p.cell_um2 = std::get<5>(t);
+    out.push_back(std::move(p));
+  }
+  return out;
+}
+
+std::vector<Shape> shape_rows(const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
+                              const I64Rows& rects) {
+  if (layers.shape(0) != rects.shape(0)) throw std::invalid_argument("layers: one layer per rectangle");
+  std::vector<Shape> shapes(rects.shape(0));
+  const i64* r = rects.data();
+  for (std::size_t i = 0; i < shapes.size(); ++i)
+    shapes[i] = {layers.data()[i], {r[4 * i], r[4 * i + 1], r[4 * i + 2], r[4 * i + 3]}};
+  return shapes;
+}
+
+void check_status(Status s) {
+  switch (s) {
+    case Status::Ok: return;
+    case Status::BadLayer: throw std::invalid_argument("layer: unknown layer");
+    case Status::BadRect: throw std::invalid_argument("rect: empty, inverted or outside +-2^62 DBU");
+    case Status::DuplicateId: throw std::invalid_argument("shape_ids: an id is held already or listed twice");
+    case Status::UnknownId: throw std::invalid_argument("shape_ids: no such shape");
+  }
+}
+
+using Changes = std::vector<std::tuple<int, int, int, int, double, double, double, int, bool, double, double, double,
+                                       bool, double>>;
+
+nb::tuple score_tuple(const Score& sc) {
+  std::vector<std::pair<int, double>> added;
+  for (std::size_t s = 0; s < sc.adds_on.size(); ++s)
+    if (sc.adds_on[s]) added.push_back({int(s), sc.added_area_um2[s]});
+  Changes changes;
+  for (const RatioChange& c : sc.changes)
+    changes.push_back({c.after.step, int(c.after.measure), int(c.after.kind), c.after.oxide, c.after.ratio,
+                       c.after.limit, c.after.utilization, c.after.gate, c.has_before, c.before_ratio,
+                       c.before_utilization, c.headroom_um2, c.has_length, c.headroom_length_um});
+  return nb::make_tuple(added, sc.worst_change_utilization, sc.worst_utilization, sc.legal, sc.breaks_limit,
+                        sc.cost, changes);
+}
+
+}  // namespace
 
 NB_MODULE(_core, m) {
-  m.doc() = "etchguard's C++ ratio core";
-  m.def("core_version", [] { return etchguard::core_version(); },
-        "The core library's version.");
+  m.doc() = "etchguard's compiled ratio core (see core/include/etchguard/core.hpp)";
+  m.def("core_version", &core_version);
+  m.def("cost", [](std::tuple<double, double, double, double, double> c, double u) {
+    return CostModel{std::get<0>(c), std::get<1>(c), std::get<2>(c), std::get<3>(c), std::get<4>(c)}.cost(u);
+  });
+
+  nb::class_<DeckHandle>(m, "Model");
+  // layers: [(cut, thickness_um, wire_width, cumulative_plus_cut)]; rules: see RuleSpec.
+  m.def("compile", [](i64 dbu, bool includes_cuts, const std::vector<std::tuple<bool, double, i64, bool>>& layers,
+                      const std::vector<std::string>& oxides,
+                      const std::vector<std::tuple<int, int, int, bool, double, bool, double, double, bool,
+                                                   std::vector<std::pair<double, double>>,
+                                                   std::vector<std::pair<double, double>>,
+                                                   std::vector<std::pair<double, double>>, double, double>>& rules) {
+    DeckSpec d;
+    d.dbu_per_micron = dbu;
+    d.cumulative_includes_cuts = includes_cuts;
+    for (const auto& l : layers) d.layers.push_back({std::get<0>(l), std::get<1>(l), std::get<2>(l), std::get<3>(l)});
+    d.oxides = oxides;
+    for (const auto& t : rules) {
+      RuleSpec r;
+      r.step = std::get<0>(t);
+      r.measure = Measure(std::get<1>(t));
+      r.oxide = std::get<2>(t);
+      r.has_partial_max = std::get<3>(t);
+      r.partial_max = std::get<4>(t);
+      r.has_cumulative_max = std::get<5>(t);
+      r.cumulative_max = std::get<6>(t);
+      r.area_factor = std::get<7>(t);
+      r.factor_with_diode_only = std::get<8>(t);
+      r.diode_partial_max = table(std::get<9>(t));
+      r.diode_cumulative_max = table(std::get<10>(t));
+      r.diode_area_reduction = table(std::get<11>(t));
+      r.diode_gate_factor = std::get<12>(t);
+      r.diode_area_credit = std::get<13>(t);
+      d.rules.push_back(std::move(r));
+    }
+    return DeckHandle{compile(d)};
+  });
+
+  nb::class_<Net>(m, "Net")
+      .def("__init__", [](Net* self, const DeckHandle& deck, const std::vector<PinTuple>& pins) {
+        new (self) Net(deck.model, pin_specs(pins));
+      })
+      .def("add_shapes", [](Net& net, const std::vector<std::tuple<i64, int, i64, i64, i64, i64>>& rows) {
+        std::vector<i64> ids(rows.size());
+        std::vector<int> layers(rows.size());
+        std::vector<Rect> rects(rows.size());
+        for (std::size_t i = 0; i < rows.size(); ++i) {
+          const auto& t = rows[i];
+          ids[i] = std::get<0>(t);
+          layers[i] = std::get<1>(t);
+          rects[i] = {std::get<2>(t), std::get<3>(t), std::get<4>(t), std::get<5>(t)};
+        }
+        Status st;
+        {
+          nb::gil_scoped_release unlocked;
+          st = net.add_many(ids.data(), layers.data(), rects.data(), rows.size());
+        }
+        check_status(st);
+      })
+      .def("remove", [](Net& net, const std::vector<i64>& ids) {
+        Status st;
+        {
+          nb::gil_scoped_release unlocked;
+          st = net.remove(ids.data(), ids.size());
+        }
+        check_status(st);
+      })
+      .def_prop_ro("shape_count", &Net::shape_count)
+      .def("has_shape", &Net::has_shape)
+      .def("memory_bytes", &Net::memory_bytes)
+      .def("shapes", [](const Net& net) {
+        std::vector<i64> ids;
+        std::vector<int> layers;
+        std::vector<Rect> rects;
+        net.shapes(ids, layers, rects);
+        std::vector<std::tuple<i64, int, i64, i64, i64, i64>> out;
+        out.reserve(ids.size());
+        for (std::size_t i = 0; i < ids.size(); ++i)
+          out.push_back({ids[i], layers[i], rects[i].xlo, rects[i].ylo, rects[i].xhi, rects[i].yhi});
+        return out;
+      })
+      .def("score", [](const Net& net, const std::vector<std::tuple<int, i64, i64, i64, i64>>& cands, bool detail,
+                       std::tuple<double, double, double, double, double> costs, const std::vector<PinTuple>& extra) {
+        std::vector<Shape> shapes;
+        shapes.reserve(cands.size());
+        for (const auto& c : cands)
+          shapes.push_back({std::get<0>(c), {std::get<1>(c), std::get<2>(c), std::get<3>(c), std::get<4>(c)}});
+        std::vector<PinSpec> pins = pin_specs(extra);
+        CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
+        Score sc;
+        {
+          nb::gil_scoped_release unlocked;
+          sc = net.score(shapes.data(), shapes.size(), detail, cm, pins.data(), pins.size());
+        }
+        return score_tuple(sc);
+      })
+      .def("score_batch", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
+                             const I64Rows& rects, std::optional<I64Col> counts,
+                             std::tuple<double, double, double, double, double> costs,
+                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst_change,
+                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst,
+                             nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> legal,
+                             nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> breaks,
+                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> cost,
+                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> added) {
+        std::vector<Shape> shapes = shape_rows(layers, rects);
+        std::size_t n = counts ? counts->shape(0) : shapes.size();
+        if (worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n || breaks.shape(0) != n ||
+            cost.shape(0) != n || added.shape(0) != n)
+          throw std::invalid_argument("out: one entry per candidate");
+        const i64* cs = counts ? counts->data() : nullptr;
+        CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
+        nb::gil_scoped_release unlocked;
+        net.score_batch(shapes.data(), shapes.size(), cs, n, cm, worst_change.data(), worst.data(), legal.data(),
+                        breaks.data(), cost.data(), added.data());
+      })
+      .def("check", [](const Net& net) {
+        Report r;
+        {
+          nb::gil_scoped_release unlocked;
+          r = net.check();
+        }
+        std::vector<std::tuple<int, int, int, int, double, double, double, int>> checks;
+        for (const Check& c : r.checks)
+          checks.push_back({c.step, int(c.measure), int(c.kind), c.oxide, c.ratio, c.limit, c.utilization, c.gate});
+        return nb::make_tuple(r.worst_utilization, r.legal, checks);
+      })
+      .def("offences", [](const Net& net) {
+        std::vector<std::tuple<int, int, int, int, double, double, double, int, std::vector<i64>, std::vector<int>>> out;
+        for (const Offence& o : net.offences())
+          out.push_back({o.check.step, int(o.check.measure), int(o.check.kind), o.check.oxide, o.check.ratio,
+                         o.check.limit, o.check.utilization, o.check.gate, o.shape_ids, o.pins});
+        return out;
+      })
+      .def("worst_at", &Net::worst_at)
+      .def("headroom", [](const Net& net, int layer, i64 x, i64 y) {
+        Headroom h = net.headroom(layer, x, y);
+        return nb::make_tuple(h.found, h.area_um2, h.side_um2, h.length_um, h.bind_step, int(h.bind_kind),
+                              int(h.bind_measure), h.bind_oxide, h.bind_gate);
+      })
+      .def("touching", [](const Net& net, int layer, std::tuple<i64, i64, i64, i64> r) {
+        std::vector<std::pair<int, int>> out;
+        for (const Toucher& t : net.touching(layer, {std::get<0>(r), std::get<1>(r), std::get<2>(r), std::get<3>(r)}))
+          out.push_back({t.element, t.step});
+        return out;
+      })
+      .def("reaches_gate", &Net::reaches_gate)
+      .def("near", [](const Net& net, int layer, std::tuple<i64, i64, i64, i64> r) {
+        std::vector<std::tuple<i64, i64, i64, i64>> out;
+        for (const Rect& q : net.near(layer, {std::get<0>(r), std::get<1>(r), std::get<2>(r), std::get<3>(r)}))
+          out.push_back({q.xlo, q.ylo, q.xhi, q.yhi});
+        return out;
+      })
+      .def("element_shape_id", &Net::element_shape_id);
 }

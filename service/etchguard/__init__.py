@@ -6,7 +6,7 @@ concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 
 from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption,
                       PlacedShape)
-from ._batch import BatchScores  # columnar batch scores (Engine.score_columns)
+from ._columns import BatchScores  # columnar batch scores (Engine.score_columns)
 from ._engine import Engine, Limits
 from ._obstacles import Conflict
 from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
@@ -16,7 +16,7 @@ from ._nets import (NetSpec, Pin, Shape, load_net_file, make_pin, make_shape, pa
                     resolve_layer, run_shapes, via_shapes)
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck, Layer, Rule, load_deck, loads_deck, parse_deck
-from ._whatif import CostModel
+from ._costs import CostModel
 
 __version__ = "0.1.0"
 

@@ -1,11 +1,10 @@
 """The engine: every net's state behind one thread-safe face.
 
 Each net has its own lock, so router threads working on different nets never wait
-on each other; the registry lock is held only to find, add or drop a net. A net is
-kept in two forms: its specification (pins and committed shapes, compact, always
-held) and its incremental state (built on first use, kept for the most recently
-used nets up to ``Limits.hot_nets``), so that a design of 100,000 nets fits in
-memory while the nets a router is working on answer in microseconds.
+on each other; the registry lock is held only to find, add or drop a net. Every
+net's state lives in the compiled core (``_corenet``), which owns its shapes and keeps
+its components and ratios incrementally, so every net answers at full speed and the
+core releases the GIL while it works.
 
 Every mutating call validates its whole input before it changes anything, so a
 refused call leaves the engine exactly as it was.
@@ -14,7 +13,6 @@ refused call leaves the engine exactly as it was.
 from __future__ import annotations
 
 import threading
-from collections import OrderedDict
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TypeVar
@@ -23,7 +21,9 @@ import numpy as np
 
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
 from ._assess import Assessment
-from ._batch import BatchScores, checked_columns, score_columns as _score_columns
+from ._columns import BatchScores, checked_columns
+from ._corenet import CompiledDeck, CoreNet, compile_deck
+from ._costs import CostModel
 from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
                          NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
@@ -31,11 +31,9 @@ from ._geometry import Rect, checked_rect as _checked_rect
 from ._netstate import NetState
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
-from ._headroom import layer_headroom
 from ._ratios import StepModel
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck, loads_deck as _loads_deck
-from ._whatif import CostModel, score, score_joining
 
 _Mark = TypeVar("_Mark")
 
@@ -48,20 +46,21 @@ class Limits:
     max_shapes_per_net: int = 200_000
     max_pins_per_net: int = 10_000
     max_candidates: int = 65_536  # shapes in one what-if, candidates in one batch
-    hot_nets: int = 4096  # nets whose incremental state is kept built
 
 
-@dataclass
+@dataclass(eq=False)
 class _Net:
     name: str
     pins: tuple[Pin, ...]
     layer_range: tuple[int, int] | None
-    shapes: dict[int, tuple[int, int, int, int, int]] = field(default_factory=dict)  # id -> (layer, rect)
+    core: CoreNet
     next_id: int = 1
     lock: threading.Lock = field(default_factory=threading.Lock)
-    state: NetState | None = None
-    assessment: Assessment | None = None
     closed: bool = False  # set under the lock by close_net: a late commit must not land here
+
+    def shape_table(self) -> dict[int, tuple[int, int, int, int, int]]:
+        """id -> (layer, xlo, ylo, xhi, yhi) of the held shapes, in commit order."""
+        return {row[0]: row[1:] for row in self.core.shape_rows()}
 
 
 class Engine:
@@ -73,15 +72,10 @@ class Engine:
         self.costs = costs or CostModel()
         self.changelog = changelog  # records every change under the lock that ordered it
         self._deck_text: str | None = None  # the loaded deck's TOML, for snapshots
-        self._registry = threading.Lock()
-        # Lock order: registry -> net lock -> hot lock (a leaf). The hot list has a lock
-        # of its own because it is touched while a net lock is held; taking the registry
-        # there would deadlock against load_deck/close_net (registry, then net locks).
-        self._hot_lock = threading.Lock()
+        self._registry = threading.Lock()  # lock order: registry -> net lock
         self._nets: dict[str, _Net] = {}
-        self._hot: OrderedDict[str, None] = OrderedDict()
         self._deck: Deck | None = None
-        self._model: StepModel | None = None
+        self._compiled: CompiledDeck | None = None
         self.counters = {"scores": 0, "commits": 0, "removals": 0, "checks": 0, "violations_seen": 0}
         self._obstacles = ObstacleIndex()  # every net's metal + declared blockages (advice)
         if deck is not None:
@@ -100,6 +94,10 @@ class Engine:
         """The loaded deck's TOML source, when it was loaded from text."""
         return self._deck_text
 
+    @property
+    def _cost_tuple(self) -> tuple[float, float, float, float, float]:
+        return self.costs.as_tuple()
+
     def load_deck(self, deck: Deck, text: str | None = None) -> None:
         """Load or replace the deck. Held nets are carried over by layer name; if one
         uses a layer the new deck lacks, the call is refused and nothing changes.
@@ -112,14 +110,13 @@ class Engine:
             try:
                 moved = [self._moved(net, old, deck) for net in nets] if old is not None else []
                 blockages = self._obstacles.moved_blockages(old, deck) if old is not None else {}
-                self._deck, self._model = deck, StepModel(deck)
-                for net, (pins, shapes, layer_range) in zip(nets, moved):
-                    net.pins, net.shapes, net.layer_range = pins, shapes, layer_range
-                    net.state = net.assessment = None
-                with self._hot_lock:
-                    self._hot.clear()
+                compiled = compile_deck(deck)
+                cores = [_core_net(compiled, pins, shapes) for pins, shapes, _ in moved]
+                self._deck, self._compiled = deck, compiled
+                for net, (pins, shapes, layer_range), core in zip(nets, moved, cores):
+                    net.pins, net.layer_range, net.core = pins, layer_range, core
                 self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
-                    net.name, net.pins, net.shapes)], blockages)
+                    net.name, net.pins, net.shape_table())], blockages)
                 self._deck_text = text
                 self._record(DeckLoaded(deck, text))
             finally:
@@ -137,7 +134,7 @@ class Engine:
         pins = tuple(Pin(p.name, step(p.layer, f"pin {p.name}"), p.rects, p.gate_area, p.diff_area,
                          {step(s, f"cell_area of {p.name}"): a for s, a in p.cell_area.items()})
                      for p in net.pins)
-        shapes = {sid: (step(v[0], f"shape {sid}"),) + v[1:] for sid, v in net.shapes.items()}
+        shapes = {sid: (step(v[0], f"shape {sid}"),) + v[1:] for sid, v in net.shape_table().items()}
         layer_range = None
         if net.layer_range is not None:
             layer_range = (step(net.layer_range[0], "layer_range"), step(net.layer_range[1], "layer_range"))
@@ -167,7 +164,7 @@ class Engine:
                 raise AlreadyExistsError(f"net {name!r} is already open", "net")
             if len(self._nets) >= self.limits.max_nets:
                 raise LimitExceededError(f"{self.limits.max_nets} nets are held already", "net")
-            net = _Net(name, tuple(pins), layer_range)
+            net = _Net(name, tuple(pins), layer_range, CoreNet(self._compiled, pins))  # type: ignore[arg-type]
             net.lock.acquire()  # free (the net is new); held so no close or commit overtakes the open
             self._nets[name] = net
             self._obstacles.add_net_items(name, _pin_items(net.pins))
@@ -183,12 +180,9 @@ class Engine:
             if name not in self._nets:
                 raise NotFoundError(f"no open net {name!r}", "net")
             net = self._nets.pop(name)
-            with self._hot_lock:
-                self._hot.pop(name, None)
             self._obstacles.drop_net(name)
             with net.lock:  # registry -> net: no reopen of the name is logged before this close
                 net.closed = True
-                net.state = net.assessment = None
                 self._record(NetClosed(name))
 
     def net_names(self) -> list[str]:
@@ -201,38 +195,6 @@ class Engine:
         if net is None:
             raise NotFoundError(f"no open net {name!r}", "net")
         return net
-
-    def _state(self, net: _Net) -> NetState:
-        """The net's incremental state, built if it is not held (caller holds net.lock)."""
-        state = net.state
-        if state is None:
-            state = NetState(self._model, net.pins)  # type: ignore[arg-type]
-            for sid, (layer, *rect) in net.shapes.items():
-                state.add_shape(sid, layer, tuple(rect))  # type: ignore[arg-type]
-            net.state = state
-            net.assessment = None
-        self._touch(net.name)
-        return state
-
-    def _touch(self, name: str) -> None:
-        hot = self._hot
-        if hot and next(reversed(hot)) == name:
-            return  # already the most recent: the common case of a router on one net
-        with self._hot_lock:
-            hot[name] = None
-            hot.move_to_end(name)
-            while len(hot) > self.limits.hot_nets:
-                cold, _ = hot.popitem(last=False)
-                victim = self._nets.get(cold)
-                if victim is not None and victim.lock.acquire(blocking=False):
-                    victim.state = victim.assessment = None
-                    victim.lock.release()
-
-    def _assessment(self, net: _Net, state: NetState) -> Assessment:
-        a = net.assessment
-        if a is None or a.version != state.version:
-            a = net.assessment = Assessment(state)
-        return a
 
     # -- shapes -----------------------------------------------------------------------
 
@@ -251,22 +213,16 @@ class Engine:
         with net.lock:
             if net.closed:
                 raise NotFoundError(f"no open net {name!r}", "net")
-            self._check_shapes(shapes, len(net.shapes))
+            self._check_shapes(shapes, net.core.shape_count)
             ids = self._commit_locked(net, shapes)
             if ids:
                 self._record(ShapesCommitted(name, tuple(shapes), ids[0]))
             return ids
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
-        state = net.state  # a net not held built gets its state on the next question
-        ids = []
-        for s in shapes:
-            sid = net.next_id
-            net.next_id += 1
-            net.shapes[sid] = (s.layer,) + s.rect
-            if state is not None:
-                state.add_shape(sid, s.layer, s.rect)
-            ids.append(sid)
+        ids = list(range(net.next_id, net.next_id + len(shapes)))
+        net.core.add(ids, shapes)
+        net.next_id += len(shapes)
         self._obstacles.add_net_items(net.name, [(s.layer, s.rect, _shape_key(sid)) for s, sid in zip(shapes, ids)])
         self.counters["commits"] += len(shapes)
         return ids
@@ -279,19 +235,12 @@ class Engine:
                 raise NotFoundError(f"no open net {name!r}", "net")
             seen = set()
             for i, sid in enumerate(ids):
-                if sid not in net.shapes or sid in seen:
-                    raise NotFoundError(f"net {name!r} has no shape {sid}" if sid not in seen
-                                        else f"shape {sid} is listed twice", f"shape_ids[{i}]")
+                if type(sid) is not int or not net.core.has_shape(sid) or sid in seen:
+                    raise NotFoundError(f"shape {sid} is listed twice" if sid in seen
+                                        else f"net {name!r} has no shape {sid}", f"shape_ids[{i}]")
                 seen.add(sid)
-            for sid in ids:
-                del net.shapes[sid]
+            net.core.remove(ids)
             self._obstacles.remove_net_items(name, [_shape_key(sid) for sid in ids])
-            if net.state is not None:
-                if len(ids) * 2 > len(net.state.shape_ids):
-                    net.state = None  # cheaper to rebuild from what stays
-                else:
-                    for sid in ids:
-                        net.state.remove_shape(sid)
             self.counters["removals"] += len(ids)
             if ids:
                 self._record(ShapesRemoved(name, tuple(ids)))
@@ -299,15 +248,15 @@ class Engine:
     def shapes(self, name: str) -> dict[int, Shape]:
         net = self._net(name)
         with net.lock:
-            return {sid: Shape(v[0], v[1:]) for sid, v in net.shapes.items()}  # type: ignore[arg-type]
+            return {row[0]: Shape(row[1], row[2:]) for row in net.core.shape_rows()}
 
     def spec_with_ids(self, name: str) -> tuple[NetSpec, list[int]]:
         """The net's specification and its shapes' ids, in the same (commit) order."""
         net = self._net(name)
         with net.lock:
-            ids = list(net.shapes)
-            shapes = tuple(Shape(v[0], v[1:]) for v in net.shapes.values())  # type: ignore[arg-type]
-            return NetSpec(net.name, net.pins, shapes, net.layer_range), ids
+            rows = net.core.shape_rows()
+        shapes = tuple(Shape(row[1], row[2:]) for row in rows)
+        return NetSpec(net.name, net.pins, shapes, net.layer_range), [row[0] for row in rows]
 
     def spec(self, name: str) -> NetSpec:
         return self.spec_with_ids(name)[0]
@@ -325,13 +274,7 @@ class Engine:
                                      f"{self.limits.max_candidates}", "candidate")
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            assessment = self._assessment(net, state)
-            result = None
-            if not detail:
-                result = score_joining(state, assessment, candidate, self.costs)
-            if result is None:
-                result = score(state, assessment, list(candidate), self.costs, detail)
+            result = net.core.score(candidate, detail, (), self._cost_tuple)
         self.counters["scores"] += 1
         return result
 
@@ -347,9 +290,7 @@ class Engine:
             self._check_shapes(c, 0)
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            assessment = self._assessment(net, state)
-            out = [score(state, assessment, list(c), self.costs, detail) for c in candidates]
+            out = [net.core.score(c, detail, (), self._cost_tuple) for c in candidates]
         self.counters["scores"] += len(candidates)
         return out
 
@@ -369,17 +310,14 @@ class Engine:
         candidates = rect_arr.shape[0] if counts is None else len(counts)
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            result = _score_columns(state, self._assessment(net, state),
-                                    layer_arr, rect_arr, self.costs, counts)
+            result = net.core.score_columns(layer_arr, rect_arr, counts, self._cost_tuple)
         self.counters["scores"] += candidates
         return result
 
     def check(self, name: str) -> NetReport:
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            report = self._assessment(net, state).report(name, state)
+            report = net.core.check(name)
         self.counters["checks"] += 1
         if not report.legal:
             self.counters["violations_seen"] += 1
@@ -399,20 +337,13 @@ class Engine:
             raise InputError("unknown layer", "layer")
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            point: Rect = (x, y, x, y)
-            hit = next((e for e, r in state.index[layer].near(point)
-                        if r[0] <= x <= r[2] and r[1] <= y <= r[3]), None)
-            lname = deck.layers[layer].name
-            if hit is None:
-                return Headroom(lname, False, float("inf"), float("inf"), float("inf"))
-            return layer_headroom(state, self._assessment(net, state), layer, hit)
+            return net.core.headroom(layer, x, y)
 
     def stats(self) -> dict[str, int]:
         with self._registry:
             nets = list(self._nets.values())
-            hot = len(self._hot)
-        return {"nets": len(nets), "shapes": sum(len(n.shapes) for n in nets), "hot_nets": hot,
+        # every net's state is built in the core: "hot" nets are all of them
+        return {"nets": len(nets), "shapes": sum(n.core.shape_count for n in nets), "hot_nets": len(nets),
                 **self.counters}
 
 
@@ -443,8 +374,8 @@ class Engine:
                                         want)
         net = self._net(name)
         with net.lock:
-            state = self._state(net)
-            result = _advise(name, state, self._assessment(net, state), self.costs, self._obstacles,
+            state = _python_state(self.deck, net)
+            result = _advise(name, state, Assessment(state), self.costs, self._obstacles,
                              net.layer_range, request)
         self.counters["scores"] += 1
         return result
@@ -468,7 +399,7 @@ class Engine:
             for net in nets:
                 net.lock.acquire()
             try:
-                images = tuple(NetImage(n.name, n.pins, n.layer_range, dict(n.shapes), n.next_id)
+                images = tuple(NetImage(n.name, n.pins, n.layer_range, n.shape_table(), n.next_id)
                                for n in nets)
                 image = EngineImage(self._deck_text if self._deck is not None else None, images,
                                     dict(self._obstacles.blockages), self._obstacles._next_blockage)
@@ -490,9 +421,24 @@ class Engine:
         self.load_deck(deck, image.deck_text)
         with self._registry:
             for ni in image.nets:
-                self._nets[ni.name] = _Net(ni.name, tuple(ni.pins), ni.layer_range, dict(ni.shapes),
-                                           ni.next_id)
-            self._obstacles.rebuild(len(deck.layers), [item for n in self._nets.values() for item in
-                                                       _net_items(n.name, n.pins, n.shapes)],
+                core = _core_net(self._compiled, ni.pins, ni.shapes)  # type: ignore[arg-type]
+                self._nets[ni.name] = _Net(ni.name, tuple(ni.pins), ni.layer_range, core, ni.next_id)
+            self._obstacles.rebuild(len(deck.layers), [item for ni in image.nets for item in
+                                                       _net_items(ni.name, ni.pins, ni.shapes)],
                                     dict(image.blockages))
             self._obstacles._next_blockage = image.next_blockage_id  # ids continue, never reused
+
+
+def _core_net(compiled: CompiledDeck, pins: Sequence[Pin],
+              shapes: dict[int, tuple[int, int, int, int, int]]) -> CoreNet:
+    """A net's core state with its shapes under their ids, in the given order."""
+    core = CoreNet(compiled, pins)
+    core.add(list(shapes), [Shape(v[0], v[1:]) for v in shapes.values()])  # type: ignore[arg-type]
+    return core
+
+
+def _python_state(deck: Deck, net: _Net) -> NetState:
+    state = NetState(StepModel(deck), net.pins)
+    for sid, layer, *rect in net.core.shape_rows():
+        state.add_shape(sid, layer, tuple(rect))  # type: ignore[arg-type]
+    return state

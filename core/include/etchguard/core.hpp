@@ -102,6 +102,7 @@ struct PinSpec {
   int layer = 0;
   std::vector<Rect> rects;               // at least one
   std::vector<double> gate_by_oxide;     // per DeckSpec oxide (missing: 0)
+  double gate_total_um2 = -1.0;          // G of the pin; < 0: the sum of gate_by_oxide
   double diff_um2 = 0.0;
   std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2)
 };
@@ -132,6 +133,7 @@ struct RatioChange {
 
 struct Score {
   std::vector<double> added_area_um2;  // per step (0 where nothing is added)
+  std::vector<std::uint8_t> adds_on;   // per step: the candidate has shapes on that layer
   double worst_change_utilization = 0.0;
   double worst_utilization = 0.0;
   bool legal = true;
@@ -188,6 +190,7 @@ class Net {
   Status remove(const i64* ids, std::size_t n);  // all or none
 
   std::size_t shape_count() const;
+  bool has_shape(i64 id) const;
   // Held shapes in the order they were added (ids, layers, rects).
   void shapes(std::vector<i64>& ids, std::vector<int>& layers, std::vector<Rect>& rects) const;
 
@@ -219,8 +222,9 @@ class Net {
 
   std::size_t memory_bytes() const;  // approximate heap use of this net
 
+  struct State;  // defined inside the library only
+
  private:
-  struct State;
   std::unique_ptr<State> s_;
 };
 

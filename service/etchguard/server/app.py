@@ -61,7 +61,6 @@ class ServerConfig:
     max_shapes_per_net: int = _DEFAULT_LIMITS.max_shapes_per_net
     max_pins_per_net: int = _DEFAULT_LIMITS.max_pins_per_net
     max_candidates: int = _DEFAULT_LIMITS.max_candidates
-    hot_nets: int = _DEFAULT_LIMITS.hot_nets
     workers: int = 64  # concurrent calls; each open Session stream holds one
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"

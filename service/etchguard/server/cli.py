@@ -34,8 +34,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--max-candidates", type=int, default=_DEFAULTS.max_candidates,
                         metavar="N", help="shapes in one candidate, candidates in one batch "
                                           "(default %(default)s)")
-    parser.add_argument("--hot-nets", type=int, default=_DEFAULTS.hot_nets, metavar="N",
-                        help="nets whose incremental state is kept built (default %(default)s)")
     parser.add_argument("--cost-knee", type=float, default=_DEFAULTS.cost_knee, metavar="U",
                         help="router cost: utilization below which a candidate costs 0 "
                              "(default %(default)s)")
@@ -89,7 +87,7 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         metrics_port=args.metrics_port, metrics_address=args.metrics_address,
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
-        max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
+        max_candidates=args.max_candidates, workers=args.workers,
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
         snapshot_every=args.snapshot_every, tls_cert=args.tls_cert, tls_key=args.tls_key,

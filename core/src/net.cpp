@@ -1,0 +1,421 @@
+// Net state: elements, per-layer lookup, components at every step, add and remove.
+#include <algorithm>
+#include <stdexcept>
+
+#include "state.hpp"
+
+namespace etchguard {
+
+// -- components ----------------------------------------------------------------------
+
+void Comp::absorb(const Comp& o) {
+  members.insert(members.end(), o.members.begin(), o.members.end());
+  area += o.area;
+  perim += o.perim;
+  if (!o.pins.empty()) {
+    gates.insert(gates.end(), o.gates.begin(), o.gates.end());
+    pins.insert(pins.end(), o.pins.begin(), o.pins.end());
+    gate.add(o.gate);
+    diff.add(o.diff);
+    cell.add(o.cell);
+    oxides |= o.oxides;
+    refresh();
+  }
+}
+
+void Comp::reset() {
+  members.clear();
+  gates.clear();
+  pins.clear();
+  gate.clear();
+  diff.clear();
+  cell.clear();
+  G = D = cell_um2 = 0.0;
+  area = perim = 0;
+  oxides = 0;
+  alive = false;
+}
+
+// -- per-layer index -----------------------------------------------------------------
+
+void LayerIndex::file(int e, const Rect& r) {
+  if (cells(r) > kWideCells) {
+    wide_.push_back(e);
+    return;
+  }
+  for (i64 cx = r.xlo >> kShift; cx <= (r.xhi >> kShift); ++cx)
+    for (i64 cy = r.ylo >> kShift; cy <= (r.yhi >> kShift); ++cy) grid_[key(cx, cy)].push_back(e);
+}
+
+void LayerIndex::add(int e, const std::vector<Element>& elems) {
+  items_.push_back(e);
+  if (gridded_) {
+    file(e, elems[std::size_t(e)].r);
+  } else if (items_.size() > kScan) {
+    gridded_ = true;
+    for (int x : items_) file(x, elems[std::size_t(x)].r);
+  }
+}
+
+static void drop(std::vector<int>& v, int e) {
+  auto it = std::find(v.begin(), v.end(), e);
+  if (it != v.end()) {
+    *it = v.back();
+    v.pop_back();
+  }
+}
+
+void LayerIndex::remove(int e, const std::vector<Element>& elems) {
+  drop(items_, e);
+  if (!gridded_) return;
+  const Rect& r = elems[std::size_t(e)].r;
+  if (cells(r) > kWideCells) {
+    drop(wide_, e);
+    return;
+  }
+  for (i64 cx = r.xlo >> kShift; cx <= (r.xhi >> kShift); ++cx) {
+    for (i64 cy = r.ylo >> kShift; cy <= (r.yhi >> kShift); ++cy) {
+      auto it = grid_.find(key(cx, cy));
+      if (it == grid_.end()) continue;
+      drop(it->second, e);
+      if (it->second.empty()) grid_.erase(it);
+    }
+  }
+}
+
+std::size_t LayerIndex::memory() const {
+  std::size_t bytes = items_.capacity() * sizeof(int) + wide_.capacity() * sizeof(int);
+  for (const auto& kv : grid_) bytes += 48 + kv.second.capacity() * sizeof(int);
+  return bytes;
+}
+
+// -- state -----------------------------------------------------------------------------
+
+Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
+    : holder(std::move(model)), m(*holder), pins(std::move(p)) {
+  const std::size_t n = std::size_t(m.steps);
+  index.resize(n);
+  comp_of.resize(n);
+  comps.resize(n);
+  free_comps.resize(n);
+  for (std::size_t i = 0; i < pins.size(); ++i) {
+    const PinSpec& pin = pins[i];
+    if (pin.layer < 0 || pin.layer >= m.steps) throw std::invalid_argument("pins.layer: unknown layer");
+    if (pin.rects.empty()) throw std::invalid_argument("pins.rects: a pin needs a rectangle");
+    double total = 0.0;
+    std::uint64_t ox = 0;
+    for (std::size_t o = 0; o < pin.gate_by_oxide.size() && o < m.deck.oxides.size(); ++o) {
+      total += pin.gate_by_oxide[o];
+      if (pin.gate_by_oxide[o] > 0 && o < 64) ox |= std::uint64_t(1) << o;
+    }
+    pin_gate.push_back(pin.gate_total_um2 >= 0 ? pin.gate_total_um2 : total);
+    pin_oxides.push_back(ox);
+    for (const Rect& r : pin.rects)
+      if (!valid_rect(r)) throw std::invalid_argument("pins.rects: an empty, inverted or far rectangle");
+  }
+  for (std::size_t i = 0; i < pins.size(); ++i) {
+    int first = -1;
+    for (const Rect& r : pins[i].rects) {
+      int e = new_element(r, pins[i].layer, -1 - i64(i), int(i), first < 0);
+      if (first < 0) {
+        first = e;
+        anchor_of_pin.push_back(e);
+        insert(e, {});
+      } else {
+        insert(e, {{first, pins[i].layer}});
+      }
+    }
+  }
+}
+
+double Net::State::pin_cell(int p, int step) const {
+  double v = 0.0;
+  for (const auto& sc : pins[std::size_t(p)].cell_um2)
+    if (sc.first == step) v = sc.second;
+  return v;
+}
+
+int Net::State::new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor) {
+  int e;
+  if (!free_elems.empty()) {
+    e = free_elems.back();
+    free_elems.pop_back();
+  } else {
+    e = int(elems.size());
+    elems.push_back({});
+    adj.emplace_back();
+    stamp.push_back(0);
+    for (auto& v : comp_of) v.push_back(-1);
+  }
+  elems[std::size_t(e)] = {r, sid, next_seq++, layer, pin, anchor, true};
+  return e;
+}
+
+std::uint32_t Net::State::tick() const {
+  if (++clock == 0) {
+    std::fill(stamp.begin(), stamp.end(), 0u);
+    clock = 1;
+  }
+  return clock;
+}
+
+void Net::State::touching(int layer, const Rect& r, std::vector<std::pair<int, int>>& out) const {
+  out.clear();
+  index[std::size_t(layer)].near(r, elems, stamp, clock, [&](int e) {
+    if (edge_touch(r, elems[std::size_t(e)].r)) out.push_back({e, layer});
+  });
+  for (int other : {layer - 1, layer + 1}) {
+    if (other < 0 || other >= m.steps || m.is_cut[std::size_t(other)] == m.is_cut[std::size_t(layer)]) continue;
+    int step = std::max(layer, other);
+    index[std::size_t(other)].near(r, elems, stamp, clock, [&](int e) {
+      if (overlap(r, elems[std::size_t(e)].r)) out.push_back({e, step});
+    });
+  }
+}
+
+void Net::State::routed_on(int layer, const std::vector<std::pair<int, int>>& near,
+                           std::vector<Rect>& out) const {
+  out.clear();
+  for (const auto& n : near) {
+    const Element& el = elems[std::size_t(n.first)];
+    if (el.layer == layer && el.pin < 0) out.push_back(el.r);
+  }
+}
+
+Measures Net::State::local_delta(const Rect& r, const std::vector<Rect>& local, int step) const {
+  Measures d;
+  std::vector<Rect> clipped;
+  Rect c;
+  for (const Rect& q : local)
+    if (intersection(r, q, c)) clipped.push_back(c);
+  if (clipped.empty()) d.area = rect_area(r);
+  else if (clipped.size() == 1) d.area = rect_area(r) - rect_area(clipped[0]);
+  else d.area = rect_area(r) - union_measures(clipped).area;
+  if (!m.side_needed[std::size_t(step)]) return d;
+  i128 own = 2 * (i128(r.xhi - r.xlo) + i128(r.yhi - r.ylo));
+  if (local.empty()) {
+    d.perimeter = own;
+  } else if (local.size() == 1) {
+    d.perimeter = own - shared_perimeter(r, local[0]);
+  } else {
+    std::vector<Rect> with(local);
+    with.push_back(r);
+    d.perimeter = union_measures(with).perimeter - union_measures(local).perimeter;
+  }
+  return d;
+}
+
+void Net::State::own_terms(Comp& c, int e, int step) const {
+  const Element& el = elems[std::size_t(e)];
+  if (el.pin < 0 || !el.anchor) return;
+  const PinSpec& pin = pins[std::size_t(el.pin)];
+  c.gate.add(pin_gate[std::size_t(el.pin)]);
+  c.diff.add(pin.diff_um2);
+  c.cell.add(pin_cell(el.pin, step));
+  c.pins.push_back(el.pin);
+  if (pin_gate[std::size_t(el.pin)] > 0) c.gates.push_back(el.pin);
+  c.oxides |= pin_oxides[std::size_t(el.pin)];
+}
+
+int Net::State::new_comp(int step) {
+  auto& pool = comps[std::size_t(step)];
+  auto& free = free_comps[std::size_t(step)];
+  int c;
+  if (!free.empty()) {
+    c = free.back();
+    free.pop_back();
+  } else {
+    c = int(pool.size());
+    pool.emplace_back();
+  }
+  pool[std::size_t(c)].reset();
+  pool[std::size_t(c)].alive = true;
+  return c;
+}
+
+void Net::State::insert(int e, const std::vector<std::pair<int, int>>& extra) {
+  Element& el = elems[std::size_t(e)];
+  std::vector<std::pair<int, int>> neighbours;
+  touching(el.layer, el.r, neighbours);
+  neighbours.insert(neighbours.end(), extra.begin(), extra.end());
+  index[std::size_t(el.layer)].add(e, elems);
+  adj[std::size_t(e)] = neighbours;
+  for (const auto& n : neighbours) adj[std::size_t(n.first)].push_back({e, n.second});
+  const bool routed = el.pin < 0;
+  std::vector<Rect> local;
+  std::vector<int> merged;
+  for (int s = el.layer; s < m.steps; ++s) {
+    auto& cof = comp_of[std::size_t(s)];
+    auto& pool = comps[std::size_t(s)];
+    merged.clear();
+    for (const auto& n : neighbours) {
+      if (n.second > s) continue;
+      int c = cof[std::size_t(n.first)];
+      if (std::find(merged.begin(), merged.end(), c) == merged.end()) merged.push_back(c);
+    }
+    Comp own;
+    own.members.push_back(e);
+    own_terms(own, e, s);
+    own.refresh();
+    if (s == el.layer && routed) {
+      routed_on(el.layer, neighbours, local);
+      Measures d = local_delta(el.r, local, s);
+      own.area = d.area;
+      own.perim = d.perimeter;
+    }
+    int base;
+    if (!merged.empty()) {
+      base = merged[0];
+      for (int c : merged)
+        if (pool[std::size_t(c)].members.size() > pool[std::size_t(base)].members.size()) base = c;
+      for (int c : merged) {
+        if (c == base) continue;
+        for (int x : pool[std::size_t(c)].members) cof[std::size_t(x)] = base;
+        pool[std::size_t(base)].absorb(pool[std::size_t(c)]);
+        pool[std::size_t(c)].reset();
+        free_comps[std::size_t(s)].push_back(c);
+      }
+      pool[std::size_t(base)].absorb(own);
+    } else {
+      base = new_comp(s);
+      pool[std::size_t(base)] = std::move(own);
+      pool[std::size_t(base)].alive = true;
+    }
+    cof[std::size_t(e)] = base;
+  }
+  ++version;
+}
+
+void Net::State::rebuild(Comp& c, const std::vector<int>& members, int step) const {
+  c.reset();
+  c.alive = true;
+  c.members = members;
+  std::vector<Rect> routed;
+  for (int x : members) {
+    own_terms(c, x, step);
+    const Element& el = elems[std::size_t(x)];
+    if (el.layer == step && el.pin < 0) routed.push_back(el.r);
+  }
+  c.refresh();
+  Measures u = union_measures(routed);
+  c.area = u.area;
+  c.perim = m.side_needed[std::size_t(step)] ? u.perimeter : 0;
+}
+
+// Connected parts of c's members at step s after an element left, or false when they
+// stay one. `near` are the element's former neighbours joined at or below s.
+bool Net::State::split(int s, Comp& c, const std::vector<int>& near, std::vector<std::vector<int>>& parts) {
+  // Cheap sufficient test: the neighbours hold each other together by their own links.
+  std::uint32_t mark = tick();
+  for (int x : near) stamp[std::size_t(x)] = mark;
+  std::uint32_t linked = tick();
+  std::vector<int> frontier{near[0]};
+  stamp[std::size_t(near[0])] = linked;
+  std::size_t reached = 1;
+  while (!frontier.empty()) {
+    int x = frontier.back();
+    frontier.pop_back();
+    for (const auto& n : adj[std::size_t(x)]) {
+      if (n.second <= s && stamp[std::size_t(n.first)] == mark) {
+        stamp[std::size_t(n.first)] = linked;
+        ++reached;
+        frontier.push_back(n.first);
+      }
+    }
+  }
+  if (reached == near.size()) return false;
+  // A search of the component from each neighbour.
+  std::uint32_t member = tick();
+  for (int x : c.members) stamp[std::size_t(x)] = member;
+  std::uint32_t seen = tick();
+  std::size_t unseen = c.members.size();
+  parts.clear();
+  for (int start : near) {
+    if (stamp[std::size_t(start)] != member) continue;
+    parts.emplace_back();
+    auto& part = parts.back();
+    stamp[std::size_t(start)] = seen;
+    --unseen;
+    part.push_back(start);
+    frontier.assign(1, start);
+    while (!frontier.empty()) {
+      int x = frontier.back();
+      frontier.pop_back();
+      for (const auto& n : adj[std::size_t(x)]) {
+        if (n.second <= s && stamp[std::size_t(n.first)] == member) {
+          stamp[std::size_t(n.first)] = seen;
+          --unseen;
+          part.push_back(n.first);
+          frontier.push_back(n.first);
+        }
+      }
+    }
+    if (unseen == 0) break;
+  }
+  return !(parts.size() == 1 && unseen == 0);
+}
+
+void Net::State::erase(int e) {
+  Element& el = elems[std::size_t(e)];
+  const int layer = el.layer;
+  std::vector<std::pair<int, int>> links = std::move(adj[std::size_t(e)]);
+  adj[std::size_t(e)].clear();
+  for (const auto& n : links) {
+    auto& back = adj[std::size_t(n.first)];
+    for (std::size_t i = 0; i < back.size(); ++i) {
+      if (back[i].first == e) {
+        back[i] = back.back();
+        back.pop_back();
+        break;
+      }
+    }
+  }
+  index[std::size_t(layer)].remove(e, elems);
+  std::vector<int> near;
+  std::vector<std::vector<int>> parts;
+  std::vector<Rect> local;
+  std::vector<std::pair<int, int>> near_links;
+  for (int s = layer; s < m.steps; ++s) {
+    auto& cof = comp_of[std::size_t(s)];
+    auto& pool = comps[std::size_t(s)];
+    int ci = cof[std::size_t(e)];
+    cof[std::size_t(e)] = -1;
+    Comp& c = pool[std::size_t(ci)];
+    drop(c.members, e);
+    if (c.members.empty()) {
+      c.reset();
+      free_comps[std::size_t(s)].push_back(ci);
+      continue;
+    }
+    near.clear();
+    near_links.clear();
+    for (const auto& n : links) {
+      if (n.second <= s) {
+        near.push_back(n.first);
+        near_links.push_back(n);
+      }
+    }
+    if (near.size() <= 1 || !split(s, c, near, parts)) {
+      if (s == layer) {  // still one piece: take away what the shape contributed
+        routed_on(layer, near_links, local);
+        Measures d = local_delta(el.r, local, s);
+        c.area -= d.area;
+        c.perim -= d.perimeter;
+      }
+      continue;
+    }
+    c.reset();
+    free_comps[std::size_t(s)].push_back(ci);
+    for (const auto& part : parts) {
+      int ni = new_comp(s);
+      rebuild(comps[std::size_t(s)][std::size_t(ni)], part, s);
+      for (int x : part) cof[std::size_t(x)] = ni;
+    }
+  }
+  el.alive = false;
+  by_sid.erase(el.sid);
+  free_elems.push_back(e);
+  ++version;
+}
+
+}  // namespace etchguard

@@ -1,0 +1,169 @@
+// One net's state: its elements and their components at every process step.
+//
+// Elements are pin rectangles and routed shapes. Connectivity only grows with the
+// steps (a layer, once etched, stays), so the components at step s are unions of those
+// at step s-1 and the elements of layer s. For every step the state keeps the map from
+// element to component and each component's aggregates (gate, diffusion, in-cell area,
+// union area and perimeter on the step's layer). An add merges components step by
+// step; a removal splits them where it must (a neighbour test first, a search of the
+// one component only when needed). Union area and perimeter change only inside the
+// rectangle, so both are updated from its touching neighbours alone.
+#pragma once
+
+#include <algorithm>
+#include <cstdint>
+#include <unordered_map>
+#include <vector>
+
+#include "etchguard/core.hpp"
+#include "exact_sum.hpp"
+#include "geometry.hpp"
+#include "model.hpp"
+
+namespace etchguard {
+
+struct Element {
+  Rect r;
+  i64 sid;   // shape id; for a pin rectangle -1 - pin index
+  i64 seq;   // insertion order (shapes are handed back in it)
+  int layer;
+  int pin;   // pin index, -1 for a routed shape
+  bool anchor;  // the pin's first rectangle: it carries the pin's figures
+  bool alive;
+};
+
+struct Comp {
+  std::vector<int> members;  // elements
+  std::vector<int> gates;    // pin indices with gate area
+  std::vector<int> pins;     // every pin index (anchors) in the component
+  ExactSum gate, diff, cell;
+  double G = 0.0, D = 0.0, cell_um2 = 0.0;
+  i128 area = 0, perim = 0;
+  std::uint64_t oxides = 0;  // oxide classes with gate area here
+  bool alive = false;
+  void refresh() { G = gate.value(); D = diff.value(); cell_um2 = cell.value(); }
+  void absorb(const Comp& o);
+  void reset();
+};
+
+// Per-layer lookup of one net's rectangles: a scan while small, a bucket grid beyond.
+class LayerIndex {
+ public:
+  void add(int e, const std::vector<Element>& elems);
+  void remove(int e, const std::vector<Element>& elems);
+  // Calls f(e) for entries whose closed rectangle may meet r (each once).
+  template <class F>
+  void near(const Rect& r, const std::vector<Element>& elems, std::vector<std::uint32_t>& stamp,
+            std::uint32_t& clock, F f) const;
+  std::size_t size() const { return items_.size(); }
+  std::size_t memory() const;
+
+ private:
+  static constexpr int kShift = 12;  // 4096 DBU buckets
+  static constexpr std::size_t kScan = 24;
+  static constexpr i64 kWideCells = 64;
+  static std::uint64_t key(i64 cx, i64 cy) {
+    return (std::uint64_t(cx) * 0x9E3779B97F4A7C15ull) ^ std::uint64_t(cy);
+  }
+  static i64 cells(const Rect& r) {
+    return ((r.xhi >> kShift) - (r.xlo >> kShift) + 1) * ((r.yhi >> kShift) - (r.ylo >> kShift) + 1);
+  }
+  void file(int e, const Rect& r);
+  std::vector<int> items_;
+  std::unordered_map<std::uint64_t, std::vector<int>> grid_;
+  std::vector<int> wide_;
+  bool gridded_ = false;
+};
+
+// One check on one component, with what a what-if or a report needs beside it.
+struct Entry {
+  int step;
+  Measure measure;
+  Kind kind;
+  int oxide;
+  double ratio, limit, utilization;
+  int gate;
+  double conductor, spent, gate_um2, diff_um2;
+};
+
+// An evaluated state (cumulative sums per gate, worst figures per component); built
+// once per net version and reused by every question until the net changes.
+struct Assessment {
+  std::int64_t version = -1;
+  int groups = 0, steps = 0;
+  std::vector<int> slot_of_pin;        // pin -> row block, or -1 (no gate area)
+  std::vector<double> term, car;       // [(slot * groups + g) * steps + s]
+  std::vector<char> has;               // [slot * groups + g]: the pin has g's oxide
+  std::vector<std::vector<double>> comp_worst, partial_worst;  // [s][comp]
+  std::vector<std::vector<std::pair<double, int>>> ranked;     // [s]: (worst, comp), worst first
+  std::vector<double> step_worst, worst_below;                 // worst_below[s]: over steps < s
+  std::size_t row(int slot, int g) const { return (std::size_t(slot) * std::size_t(groups) + std::size_t(g)) * std::size_t(steps); }
+  double worst_untouched(int s, const std::vector<int>& touched) const;
+};
+
+struct Net::State {
+  State(std::shared_ptr<const Model> model, std::vector<PinSpec> pins);
+
+  std::shared_ptr<const Model> holder;
+  const Model& m;
+  std::vector<PinSpec> pins;
+  std::vector<double> pin_gate;           // G per pin
+  std::vector<std::uint64_t> pin_oxides;  // oxide classes with gate area, per pin
+  std::vector<int> anchor_of_pin;
+  std::vector<Element> elems;
+  std::vector<int> free_elems;
+  std::unordered_map<i64, int> by_sid;
+  std::vector<std::vector<std::pair<int, int>>> adj;  // element -> (neighbour, step joined)
+  std::vector<LayerIndex> index;                      // per layer
+  std::vector<std::vector<int>> comp_of;              // [s][element] -> comp, -1 absent
+  std::vector<std::vector<Comp>> comps;               // [s] pool
+  std::vector<std::vector<int>> free_comps;           // [s]
+  std::int64_t version = 0, next_seq = 0;
+  std::size_t shapes = 0;
+  mutable Assessment assessment;
+  mutable std::vector<std::uint32_t> stamp;  // per element, for searches
+  mutable std::uint32_t clock = 0;
+
+  double pin_cell(int p, int step) const;
+  int new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor);
+  void touching(int layer, const Rect& r, std::vector<std::pair<int, int>>& out) const;
+  // (area, perimeter) that r adds to a union whose rects touching r are `local`.
+  Measures local_delta(const Rect& r, const std::vector<Rect>& local, int step) const;
+  void routed_on(int layer, const std::vector<std::pair<int, int>>& near, std::vector<Rect>& out) const;
+  void own_terms(Comp& c, int e, int step) const;
+  int new_comp(int step);
+  void insert(int e, const std::vector<std::pair<int, int>>& extra);
+  void erase(int e);
+  bool split(int s, Comp& c, const std::vector<int>& near, std::vector<std::vector<int>>& parts);
+  void rebuild(Comp& c, const std::vector<int>& members, int step) const;
+  const Assessment& assess() const;
+  void entries(int s, const Comp& c, bool partial, const double* const* cars_by_pin,
+               const std::uint64_t* gate_oxides, std::vector<Entry>& out) const;
+  std::uint32_t tick() const;
+};
+
+template <class F>
+void LayerIndex::near(const Rect& r, const std::vector<Element>& elems, std::vector<std::uint32_t>& stamp,
+                      std::uint32_t& clock, F f) const {
+  (void)elems;
+  if (!gridded_ || cells(r) > std::max<i64>(kWideCells, i64(items_.size()))) {
+    for (int e : items_) f(e);
+    return;
+  }
+  if (++clock == 0) {  // wrapped: old stamps could match again
+    std::fill(stamp.begin(), stamp.end(), 0u);
+    clock = 1;
+  }
+  for (int e : wide_) { stamp[std::size_t(e)] = clock; f(e); }
+  for (i64 cx = r.xlo >> kShift; cx <= (r.xhi >> kShift); ++cx) {
+    for (i64 cy = r.ylo >> kShift; cy <= (r.yhi >> kShift); ++cy) {
+      auto it = grid_.find(key(cx, cy));
+      if (it == grid_.end()) continue;
+      for (int e : it->second) {
+        if (stamp[std::size_t(e)] != clock) { stamp[std::size_t(e)] = clock; f(e); }
+      }
+    }
+  }
+}
+
+}  // namespace etchguard

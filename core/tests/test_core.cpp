@@ -1,0 +1,248 @@
+// The core's own checks, run under AddressSanitizer and UndefinedBehaviorSanitizer by
+// `make test` (tests/test_core_native.py). The Python suite holds the core to the
+// independent shapely + networkx reference; these hold its own invariants: hand-worked
+// union measures, order-independent sums, add + remove restoring every figure, and a
+// what-if equal to the check after the commit, on random nets.
+#include <cstdint>
+#include <random>
+#include <stdexcept>
+#include <vector>
+
+#include "check.hpp"
+#include "etchguard/core.hpp"
+#include "../src/exact_sum.hpp"
+#include "../src/geometry.hpp"
+
+using namespace etchguard;
+
+namespace {
+
+// A small demo deck: M1 V1 M2 V2 M3, area rules on every layer, a side rule on M2,
+// a diode table on M1 (invented values, demo only).
+DeckSpec demo_deck(bool plus_cut_on_m2 = false) {
+  DeckSpec d;
+  d.dbu_per_micron = 1000;
+  for (int i = 0; i < 5; ++i) d.layers.push_back({i % 2 == 1, 0.3, i % 2 == 0 ? 200 : 0, false});
+  d.layers[2].cumulative_plus_cut = plus_cut_on_m2;
+  d.oxides = {"thin"};
+  for (int s = 0; s < 5; ++s) {
+    RuleSpec r;
+    r.step = s;
+    r.has_partial_max = true;
+    r.partial_max = s % 2 ? 20.0 : 400.0;
+    r.has_cumulative_max = true;
+    r.cumulative_max = s % 2 ? 60.0 : 1200.0;
+    if (s == 0) r.diode_partial_max.points = {{0.0, 400.0}, {0.5, 4000.0}};
+    d.rules.push_back(r);
+  }
+  RuleSpec side;
+  side.step = 2;
+  side.measure = Measure::Side;
+  side.has_partial_max = true;
+  side.partial_max = 500.0;
+  side.has_cumulative_max = true;
+  side.cumulative_max = 900.0;
+  d.rules.push_back(side);
+  return d;
+}
+
+PinSpec gate_pin(int layer, Rect r, double gate) {
+  PinSpec p;
+  p.layer = layer;
+  p.rects = {r};
+  p.gate_by_oxide = {gate};
+  return p;
+}
+
+bool same_report(const Report& a, const Report& b) {
+  if (a.worst_utilization != b.worst_utilization || a.legal != b.legal || a.checks.size() != b.checks.size())
+    return false;
+  for (std::size_t i = 0; i < a.checks.size(); ++i) {
+    const Check &x = a.checks[i], &y = b.checks[i];
+    if (x.step != y.step || x.measure != y.measure || x.kind != y.kind || x.ratio != y.ratio ||
+        x.limit != y.limit || x.gate != y.gate)
+      return false;
+  }
+  return true;
+}
+
+Rect random_rect(std::mt19937_64& rng, int grid) {
+  std::uniform_int_distribution<int> cell(0, 8), len(1, 4);
+  i64 x = cell(rng) * grid, y = cell(rng) * grid;
+  return {x, y, x + len(rng) * grid, y + len(rng) * grid};
+}
+
+}  // namespace
+
+// -- geometry: hand-worked unions --------------------------------------------------------
+
+ETCHGUARD_TEST(union_of_two_overlapping_squares) {
+  // [0,2]^2 and [1,3]^2: 4 + 4 - 1 = 7; the outline is an L-shaped octagon of 12.
+  Measures m = union_measures({{0, 0, 2, 2}, {1, 1, 3, 3}});
+  CHECK_EQ(m.area, i128(7));
+  CHECK_EQ(m.perimeter, i128(12));
+}
+
+ETCHGUARD_TEST(union_of_a_ring_counts_the_hole) {
+  // A 3x3 ring of four bars around a 1x1 hole: area 8, outer 12 + hole 4.
+  Measures m = union_measures({{0, 0, 3, 1}, {0, 2, 3, 3}, {0, 1, 1, 2}, {2, 1, 3, 2}});
+  CHECK_EQ(m.area, i128(8));
+  CHECK_EQ(m.perimeter, i128(16));
+}
+
+ETCHGUARD_TEST(abutting_rects_share_no_boundary) {
+  Measures m = union_measures({{0, 0, 2, 1}, {2, 0, 4, 1}});
+  CHECK_EQ(m.area, i128(4));
+  CHECK_EQ(m.perimeter, i128(10));
+}
+
+ETCHGUARD_TEST(far_coordinates_do_not_overflow) {
+  const i64 far = kCoordLimit - 1;
+  Measures m = union_measures({{-far, -far, far, far}, {0, 0, 1, 1}});
+  CHECK_EQ(m.area, i128(2 * far) * i128(2 * far));
+  CHECK_EQ(m.perimeter, i128(8) * i128(far));
+}
+
+ETCHGUARD_TEST(contact_rules) {
+  CHECK(edge_touch({0, 0, 1, 1}, {1, 0, 2, 1}));   // a shared edge connects
+  CHECK(!edge_touch({0, 0, 1, 1}, {1, 1, 2, 2}));  // a corner point does not
+  CHECK(!overlap({0, 0, 1, 1}, {1, 0, 2, 1}));     // a cut needs area
+}
+
+// -- exact sums ------------------------------------------------------------------------------
+
+ETCHGUARD_TEST(exact_sum_is_order_independent) {
+  // 1e16 + 1 + (-1e16) loses the 1 in plain float addition; the exact sum keeps it.
+  ExactSum a, b;
+  for (double x : {1e16, 1.0, -1e16}) a.add(x);
+  for (double x : {-1e16, 1e16, 1.0}) b.add(x);
+  CHECK_EQ(a.value(), 1.0);
+  CHECK_EQ(b.value(), 1.0);
+  ExactSum c;
+  for (double x : {0.1, 0.2, 0.3}) c.add(x);
+  CHECK_EQ(c.value(), 0.6);  // math.fsum([0.1, 0.2, 0.3]) == 0.6; 0.1 + 0.2 + 0.3 is not
+}
+
+// -- tables and limits ---------------------------------------------------------------------
+
+ETCHGUARD_TEST(table_is_linear_between_points_and_held_beyond) {
+  Table t{{{0.0, 400.0}, {0.5, 4000.0}}};
+  CHECK_EQ(t.at(-1.0), 400.0);
+  CHECK_EQ(t.at(0.25), 2200.0);
+  CHECK_EQ(t.at(9.0), 4000.0);
+}
+
+ETCHGUARD_TEST(feeding_chain_with_plus_cut) {
+  // With cumulative_plus_cut on M2, CAR_M2 = PAR_M2 + CAR_V1 and CAR_V1 = PAR_V1 (no
+  // cut below it): M1's term leaves M2's sum. Check through a net: gate on M1, metal
+  // on M1 and M2 only through a via.
+  for (bool plus : {false, true}) {
+    auto model = compile(demo_deck(plus));
+    Net net(model, {gate_pin(0, {0, 0, 200, 200}, 1.0)});
+    Rect m1{0, 0, 10000, 200}, v1{0, 0, 200, 200}, m2{0, 0, 200, 5000};
+    REQUIRE(net.add(1, 0, m1) == Status::Ok);
+    REQUIRE(net.add(2, 1, v1) == Status::Ok);
+    REQUIRE(net.add(3, 2, m2) == Status::Ok);
+    Report r = net.check();
+    double car_m2 = -1;
+    for (const Check& c : r.checks)
+      if (c.step == 2 && c.kind == Kind::Cumulative && c.measure == Measure::Area) car_m2 = c.ratio;
+    // PAR_M1 = 10000*200 / 1e6 / 1 = 2.0; PAR_V1 = 0.04; PAR_M2 = 200*5000/1e6 = 1.0
+    CHECK_EQ(car_m2, plus ? 1.0 + 0.04 : 1.0 + 2.0);
+  }
+}
+
+// -- net state: add, remove, what-if --------------------------------------------------------
+
+ETCHGUARD_TEST(add_then_remove_restores_every_figure) {
+  std::mt19937_64 rng(7);
+  for (int round = 0; round < 40; ++round) {
+    auto model = compile(demo_deck(round % 2 == 1));
+    std::vector<PinSpec> pins{gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.02)};
+    PinSpec driver;
+    driver.layer = 0;
+    driver.rects = {{800, 0, 900, 100}};
+    driver.gate_by_oxide = {0.0};
+    driver.diff_um2 = 0.1;
+    pins.push_back(driver);
+    Net net(model, pins);
+    std::uniform_int_distribution<int> layer(0, 4);
+    for (i64 id = 1; id <= 12; ++id) REQUIRE(net.add(id, layer(rng), random_rect(rng, 100)) == Status::Ok);
+    Report before = net.check();
+    std::vector<i64> added;
+    for (i64 id = 100; id < 106; ++id) {
+      REQUIRE(net.add(id, layer(rng), random_rect(rng, 100)) == Status::Ok);
+      added.push_back(id);
+    }
+    std::shuffle(added.begin(), added.end(), rng);
+    for (i64 id : added) REQUIRE(net.remove(&id, 1) == Status::Ok);
+    CHECK(same_report(before, net.check()));
+  }
+}
+
+ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
+  std::mt19937_64 rng(11);
+  CostModel costs;
+  for (int round = 0; round < 60; ++round) {
+    auto model = compile(demo_deck(round % 3 == 0));
+    Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.01)});
+    std::uniform_int_distribution<int> layer(0, 4), count(1, 4);
+    for (i64 id = 1; id <= 10; ++id) REQUIRE(net.add(id, layer(rng), random_rect(rng, 100)) == Status::Ok);
+    for (int c = 0; c < 10; ++c) {
+      std::vector<Shape> cand;
+      for (int k = count(rng); k > 0; --k) cand.push_back({layer(rng), random_rect(rng, 100)});
+      Score lean = net.score(cand.data(), cand.size(), false, costs);
+      Score full = net.score(cand.data(), cand.size(), true, costs);
+      CHECK_EQ(lean.worst_utilization, full.worst_utilization);
+      CHECK_EQ(lean.worst_change_utilization, full.worst_change_utilization);
+      std::vector<i64> ids;
+      for (std::size_t k = 0; k < cand.size(); ++k) {
+        ids.push_back(1000 + i64(k));
+        REQUIRE(net.add(ids.back(), cand[k].layer, cand[k].rect) == Status::Ok);
+      }
+      Report after = net.check();
+      CHECK_EQ(lean.worst_utilization, after.worst_utilization);
+      CHECK_EQ(lean.legal, after.legal);
+      REQUIRE(net.remove(ids.data(), ids.size()) == Status::Ok);
+    }
+  }
+}
+
+ETCHGUARD_TEST(refusals_change_nothing) {
+  auto model = compile(demo_deck());
+  Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05)});
+  REQUIRE(net.add(1, 0, {0, 0, 5000, 100}) == Status::Ok);
+  Report before = net.check();
+  i64 ids[2] = {2, 2};
+  int layers[2] = {0, 0};
+  Rect rects[2] = {{0, 0, 10, 10}, {0, 0, 10, 10}};
+  CHECK(net.add_many(ids, layers, rects, 2) == Status::DuplicateId);
+  CHECK(net.add(3, 9, {0, 0, 1, 1}) == Status::BadLayer);
+  CHECK(net.add(3, 0, {5, 0, 1, 1}) == Status::BadRect);
+  CHECK(net.add(3, 0, {0, 0, kCoordLimit, 1}) == Status::BadRect);
+  i64 gone[2] = {1, 77};
+  CHECK(net.remove(gone, 2) == Status::UnknownId);
+  CHECK_EQ(net.shape_count(), std::size_t(1));
+  CHECK(same_report(before, net.check()));
+  Shape bad{0, {3, 3, 1, 1}};
+  CostModel costs;
+  CHECK_THROWS(net.score(&bad, 1, false, costs), std::invalid_argument);
+  Shape far_layer{42, {0, 0, 1, 1}};
+  CHECK_THROWS(net.score(&far_layer, 1, false, costs), std::invalid_argument);
+}
+
+ETCHGUARD_TEST(large_net_split_and_merge) {
+  // A comb of 400 M1 teeth on a spine: removing the spine splits it into 400 parts;
+  // adding it back restores the figures.
+  auto model = compile(demo_deck());
+  Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.5)});
+  REQUIRE(net.add(1, 0, {0, 0, 400 * 300, 100}) == Status::Ok);
+  for (i64 t = 0; t < 400; ++t) REQUIRE(net.add(10 + t, 0, {t * 300, 100, t * 300 + 100, 2000}) == Status::Ok);
+  Report before = net.check();
+  i64 spine = 1;
+  REQUIRE(net.remove(&spine, 1) == Status::Ok);
+  Report split = net.check();
+  CHECK(split.worst_utilization < before.worst_utilization);
+  REQUIRE(net.add(1, 0, {0, 0, 400 * 300, 100}) == Status::Ok);
+  CHECK(same_report(before, net.check()));
+}

@@ -1,0 +1,184 @@
+"""The engine face over the compiled core: a deck compiled once, one net's state.
+
+The model itself (components per step, union areas, ratios, cumulative chains,
+what-if, batches, headroom) lives in the C++ core (``core/``, bound as
+``etchguard._core``); this module only turns the package's types into the core's plain
+values and back. Callers hold the net's lock: a core net is not thread-safe, but the
+core releases the GIL inside its calls, so threads on different nets use different
+cores.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _core
+from ._columns import BatchScores
+from ._geometry import Rect
+from ._nets import Pin, Shape
+from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
+from ._rules import Deck
+
+MEASURES = ("area", "side")  # the core's Measure values, in order
+KINDS = ("partial", "cumulative")  # the core's Kind values, in order
+
+
+@dataclass(frozen=True)
+class CompiledDeck:
+    """A deck turned into the core's model, with the oxide classes it indexes."""
+
+    deck: Deck
+    model: object  # _core.Model
+    oxides: tuple[str, ...]
+    oxide_index: dict[str, int]
+
+
+def compile_deck(deck: Deck) -> CompiledDeck:
+    oxides = deck.oxides or ("thin",)
+    index = {ox: i for i, ox in enumerate(oxides)}
+    layers = [(not l.is_routing, l.thickness_um or 0.0, l.wire_width or 0,
+               bool(getattr(l, "cumulative_plus_cut", False))) for l in deck.layers]
+    rules = [(r.step, MEASURES.index(r.measure), index[r.oxide],
+              r.partial_max is not None, r.partial_max or 0.0,
+              r.cumulative_max is not None, r.cumulative_max or 0.0,
+              r.area_factor, r.factor_with_diode_only,
+              list(r.diode_partial_max), list(r.diode_cumulative_max),
+              list(getattr(r, "diode_area_reduction", ())),
+              r.diode_gate_factor, r.diode_area_credit) for r in deck.rules]
+    model = _core.compile(deck.dbu_per_micron, deck.cumulative_includes_cuts, layers, list(oxides), rules)
+    return CompiledDeck(deck, model, tuple(oxides), index)
+
+
+def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
+    gates = [0.0] * len(compiled.oxides)
+    for ox, value in pin.gate_area.items():
+        i = compiled.oxide_index.get(ox)
+        if i is not None:
+            gates[i] = value
+    return (pin.layer, list(pin.rects), gates, pin.total_gate_area, pin.diff_area,
+            sorted(pin.cell_area.items()))
+
+
+class CoreNet:
+    """One net's state in the core, answering in the package's types."""
+
+    __slots__ = ("compiled", "deck", "pins", "net", "_costs")
+
+    def __init__(self, compiled: CompiledDeck, pins: Sequence[Pin]) -> None:
+        self.compiled = compiled
+        self.deck = compiled.deck
+        self.pins = tuple(pins)
+        self.net = _core.Net(compiled.model, [_pin_tuple(compiled, p) for p in self.pins])
+        self._costs: tuple[float, ...] = ()
+
+    # -- changes --------------------------------------------------------------------
+
+    def add(self, ids: Sequence[int], shapes: Sequence[Shape]) -> None:
+        self.net.add_shapes([(sid, s.layer) + s.rect for sid, s in zip(ids, shapes)])
+
+    def remove(self, ids: Sequence[int]) -> None:
+        self.net.remove(list(ids))
+
+    def has_shape(self, sid: int) -> bool:
+        return 0 <= sid < 1 << 63 and self.net.has_shape(sid)
+
+    @property
+    def shape_count(self) -> int:
+        return self.net.shape_count
+
+    def shape_rows(self) -> list[tuple[int, int, int, int, int, int]]:
+        """(id, layer, xlo, ylo, xhi, yhi) of every held shape, in commit order."""
+        return self.net.shapes()
+
+    # -- questions ------------------------------------------------------------------
+
+    def score(self, shapes: Sequence[Shape], detail: bool = True, extra_pins: Sequence[Pin] = (),
+              costs: tuple[float, ...] | None = None) -> Score:
+        """What committing ``shapes`` (and adding ``extra_pins``) would do."""
+        cands = [(s.layer,) + s.rect for s in shapes]
+        extra = [_pin_tuple(self.compiled, p) for p in extra_pins]
+        raw = self.net.score(cands, detail, costs or self._costs or _DEFAULT_COSTS, extra)
+        return self._score(raw, extra_pins)
+
+    def _score(self, raw: tuple, extra_pins: Sequence[Pin]) -> Score:
+        added, worst_change, worst, legal, breaks, cost, changes = raw
+        layers = self.deck.layers
+        return Score({layers[s].name: a for s, a in added},
+                     tuple(self._change(c, extra_pins) for c in changes),
+                     worst_change, worst, legal, breaks, cost)
+
+    def _pin_name(self, p: int, extra_pins: Sequence[Pin] = ()) -> str:
+        return self.pins[p].name if p < len(self.pins) else extra_pins[p - len(self.pins)].name
+
+    def _change(self, c: tuple, extra_pins: Sequence[Pin]) -> RatioChange:
+        (step, measure, kind, oxide, ratio, limit, util, gate, has_before, before_ratio,
+         before_util, room, has_length, length) = c
+        return RatioChange(self.deck.layers[step].name, step, MEASURES[measure], KINDS[kind],
+                           self.compiled.oxides[oxide], self._pin_name(gate, extra_pins),
+                           before_ratio if has_before else None, before_util if has_before else None,
+                           ratio, limit, util, room, length if has_length else None)
+
+    def score_columns(self, layers: np.ndarray, rects: np.ndarray, counts: np.ndarray | None,
+                      costs: tuple[float, ...]) -> BatchScores:
+        n = rects.shape[0] if counts is None else len(counts)
+        out = BatchScores(np.empty(n), np.empty(n), np.empty(n, dtype=bool), np.empty(n, dtype=bool),
+                          np.empty(n), np.empty(n))
+        self.net.score_batch(np.ascontiguousarray(layers, dtype=np.int32),
+                             np.ascontiguousarray(rects, dtype=np.int64),
+                             None if counts is None else np.ascontiguousarray(counts, dtype=np.int64),
+                             costs, out.worst_change_utilization, out.worst_utilization,
+                             out.legal.view(np.uint8), out.breaks_limit.view(np.uint8), out.cost,
+                             out.added_area_um2)
+        return out
+
+    def check(self, name: str) -> NetReport:
+        worst, legal, checks = self.net.check()
+        layers = self.deck.layers
+        return NetReport(name, legal, worst, tuple(
+            CheckResult(layers[s].name, s, MEASURES[m], KINDS[k], self.compiled.oxides[o], ratio, limit, util,
+                        util <= 1.0 + 1e-9, self.pins[g].name)
+            for s, m, k, o, ratio, limit, util, g in checks))
+
+    def offences(self) -> list[tuple[CheckResult, tuple[int, ...], tuple[int, ...]]]:
+        """Every failing check of every component: (check, member shape ids, member pins),
+        by step, worst first."""
+        layers = self.deck.layers
+        return [(CheckResult(layers[s].name, s, MEASURES[m], KINDS[k], self.compiled.oxides[o], ratio, limit,
+                             util, False, self.pins[g].name), tuple(shape_ids), tuple(pins))
+                for s, m, k, o, ratio, limit, util, g, shape_ids, pins in self.net.offences()]
+
+    def headroom(self, layer: int, x: int, y: int) -> Headroom:
+        found, area, side, length, step, kind, measure, oxide, gate = self.net.headroom(layer, x, y)
+        name = self.deck.layers[layer].name
+        if not found:
+            return Headroom(name, False, math.inf, math.inf, math.inf)
+        binding = ""
+        if step >= 0:
+            what = f"{MEASURES[measure]} {self.compiled.oxides[oxide]}"
+            binding = (f"{name} partial {what}" if KINDS[kind] == "partial"
+                       else f"{self.deck.layers[step].name} cumulative {what} of {self.pins[gate].name}")
+        return Headroom(name, True, area, side, length, binding)
+
+    # -- what repair advice asks (see _advice) ----------------------------------------
+
+    def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
+        return self.net.touching(layer, rect)
+
+    def reaches_gate(self, element: int, step: int) -> bool:
+        return self.net.reaches_gate(element, step)
+
+    def near(self, layer: int, rect: Rect) -> list[Rect]:
+        return self.net.near(layer, rect)
+
+    def worst_at(self, step: int) -> float:
+        return self.net.worst_at(step)
+
+    def memory_bytes(self) -> int:
+        return self.net.memory_bytes()
+
+
+_DEFAULT_COSTS = (0.7, 3.0, 10.0, 1.0e6, 1.0e3)  # CostModel() as a tuple
