@@ -5,20 +5,33 @@ engine can be held to something outside itself. It is deliberately slow and plai
 every process step is rebuilt from scratch.
 
 Sources:
-* formulas (G, D, A, A_eff, G_eff, PAR, CAR, limits, utilization, the offline check
-  output): the contract, antenna-model.md;
+* formulas (G, D, A, A_eff with the reduction r(D), G_eff, PAR, the CAR chain through
+  the feeding step, limits, utilization, the offline check output): the contract,
+  antenna-model.md;
 * connectivity: networkx (graph per step, ``networkx.connected_components``);
 * contact tests, union areas and perimeters: shapely (``box``, ``intersection``,
   ``shapely.ops.unary_union``; ``.area``; ``.length``, which includes the boundaries
   of holes);
-* piecewise-linear diode tables: ``numpy.interp`` (linear between points, held
-  constant beyond the first and the last point, as the contract states).
+* piecewise-linear diode tables, the area reduction table included: ``numpy.interp``
+  (linear between points, held constant beyond the first and the last point, as the
+  contract states).
 
 Interpretation points (the project's documented reading of the contract):
 * a pin's ``cell_area`` on layer s counts at step s if the pin exists at s;
-* measure "side" has no ``cell_area`` contribution, and a cut step adds 0 to a side
-  sum (a cut layer has no side-wall thickness); a routing layer without
-  ``thickness_um`` adds 0 as well;
+* measure "side" has no ``cell_area`` contribution; a routing layer without
+  ``thickness_um`` adds 0 to a side sum;
+* the cumulative ratio is the contract's chain, CAR_s = PAR_s + CAR_p with p the step
+  that feeds s: for measure "side" the nearest lower routing step (so a cut step never
+  enters a side sum, whatever the flags); for "area" the step directly below when
+  layer s sets ``cumulative_plus_cut`` or the process sets
+  ``cumulative_includes_cuts``, else the nearest lower step of s's own kind. The chain
+  follows the flag of each step it passes, not only that of the checked step: with
+  the flag on M2 alone, CAR_M2 = PAR_M2 + CAR_V1 and CAR_V1 = PAR_V1 (no lower cut),
+  so M1's term is not in CAR_M2;
+* a step below g's pin layer adds 0 but the chain runs on through it (all steps below
+  it are below the pin too, so they add 0 as well);
+* r(D) is read from the table at every D, D = 0 included (the contract gives no
+  D = 0 exception for it as it does for the limits), and is 1 without a table;
 * a step without a rule for (measure, oxide) adds the plain A / G to a cumulative sum;
 * a component's cumulative check uses the worst CAR among its gate pins of that oxide
   and the limit from D of that component; G sums all oxides;
@@ -64,6 +77,7 @@ class RefRule:
     diode_cumulative_max: tuple[tuple[float, float], ...]
     diode_gate_factor: float
     diode_area_credit: float
+    diode_area_reduction: tuple[tuple[float, float], ...]
 
     @property
     def has_partial(self) -> bool:
@@ -74,12 +88,14 @@ class RefRule:
         return self.cumulative_max is not None or bool(self.diode_cumulative_max)
 
     def effective_ratio(self, conductor: float, gate: float, diff: float) -> float:
-        # The contract: A_eff = max(0, f*A - k_credit*D), f only when D > 0 if
-        # factor_with_diode_only; G_eff = G + k_gate*D; PAR = A_eff / G_eff.
+        # The contract: A_eff = max(0, f*r(D)*A - k_credit*D), f only when D > 0 if
+        # factor_with_diode_only, r(D) the reduction table at D (1 without one);
+        # G_eff = G + k_gate*D; PAR = A_eff / G_eff.
         f = self.area_factor
         if self.factor_with_diode_only and not diff > 0:
             f = 1.0
-        a_eff = max(0.0, f * conductor - self.diode_area_credit * diff)
+        r = _table_at(self.diode_area_reduction, diff) if self.diode_area_reduction else 1.0
+        a_eff = max(0.0, f * r * conductor - self.diode_area_credit * diff)
         g_eff = gate + self.diode_gate_factor * diff
         return a_eff / g_eff
 
@@ -104,6 +120,7 @@ class RefLayer:
     name: str
     kind: str
     thickness_um: float
+    plus_cut: bool  # the layer's cumulative_plus_cut
 
 
 @dataclass
@@ -117,14 +134,22 @@ class RefDeck:
     def index(self) -> dict[str, int]:
         return {l.name: i for i, l in enumerate(self.layers)}
 
-    def same_kind(self, a: int, b: int) -> bool:
-        return self.cumulative_includes_cuts or self.layers[a].kind == self.layers[b].kind
+    def feeding_step(self, s: int, measure: str) -> int | None:
+        """The step p of the contract's CAR_s = PAR_s + CAR_p; None below the first step."""
+        if measure == "side":
+            lower = [t for t in range(s) if self.layers[t].kind == "routing"]
+        elif self.cumulative_includes_cuts or self.layers[s].plus_cut:
+            lower = [s - 1] if s > 0 else []
+        else:
+            lower = [t for t in range(s) if self.layers[t].kind == self.layers[s].kind]
+        return max(lower) if lower else None
 
 
 def ref_deck(data: dict[str, Any]) -> RefDeck:
     """Read the contract's deck mapping (already parsed TOML) with its defaults."""
     process = data["process"]
-    layers = [RefLayer(l["name"], l["kind"], float(l.get("thickness_um", 0.0) or 0.0))
+    layers = [RefLayer(l["name"], l["kind"], float(l.get("thickness_um", 0.0) or 0.0),
+                       bool(l.get("cumulative_plus_cut", False)))
               for l in data["layers"]]
     rules: dict[tuple[str, str, str], RefRule] = {}
     for r in data.get("rules", []):
@@ -136,7 +161,8 @@ def ref_deck(data: dict[str, Any]) -> RefDeck:
             diode_partial_max=tuple(tuple(p) for p in r.get("diode_partial_max", ())),
             diode_cumulative_max=tuple(tuple(p) for p in r.get("diode_cumulative_max", ())),
             diode_gate_factor=float(r.get("diode_gate_factor", 0.0)),
-            diode_area_credit=float(r.get("diode_area_credit", 0.0)))
+            diode_area_credit=float(r.get("diode_area_credit", 0.0)),
+            diode_area_reduction=tuple(tuple(p) for p in r.get("diode_area_reduction", ())))
         rules[(rule.layer, rule.measure, rule.oxide)] = rule
     return RefDeck(int(process["dbu_per_micron"]), bool(process.get("cumulative_includes_cuts", False)),
                    layers, rules)
@@ -296,21 +322,19 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
             return conductor / c.gate  # the contract: plain A / G without a rule
         return rule.effective_ratio(conductor, c.gate, c.diff)
 
+    def car(p: int, s: int | None, measure: str, oxide: str) -> float:
+        """The contract's chain, walked down from s: CAR_s = PAR_s + CAR_p, 0 below."""
+        if s is None:
+            return 0.0
+        own = 0.0 if s < pins[p].layer else term(comp_of_pin(p, s), s, measure, oxide)  # type: ignore[arg-type]
+        return own + car(p, deck.feeding_step(s, measure), measure, oxide)
+
     groups = {(r.measure, r.oxide) for r in deck.rules.values()}
     cars: dict[tuple[int, str, str], list[float]] = {}
     for p, pin in enumerate(pins):
         for measure, oxide in groups:
-            if oxide not in pin.gate:
-                continue
-            row = []
-            for s in range(steps):
-                total = 0.0
-                for t in range(s + 1):
-                    if t < pin.layer or not deck.same_kind(s, t):
-                        continue  # before the pin exists, or the other kind of step
-                    total += term(comp_of_pin(p, t), t, measure, oxide)  # type: ignore[arg-type]
-                row.append(total)
-            cars[(p, measure, oxide)] = row
+            if oxide in pin.gate:
+                cars[(p, measure, oxide)] = [car(p, s, measure, oxide) for s in range(steps)]
 
     entries: list[RefEntry] = []
     for s in range(steps):

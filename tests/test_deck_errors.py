@@ -232,3 +232,54 @@ def test_unreadable_file(tmp_path: Path) -> None:
     with pytest.raises(eg.DeckError) as info:
         eg.load_deck(path)
     assert info.value.field == str(path)
+
+
+# -- the chain flag and the area reduction table -----------------------------------------
+
+@pytest.mark.parametrize(("text", "where"), [
+    # cumulative_plus_cut is a boolean, on routing and cut layers alike.
+    (HEAD + M1 + V1 + M2.replace('kind = "routing"', 'kind = "routing"\ncumulative_plus_cut = "yes"')
+     + GOOD_RULE, "layers[2].cumulative_plus_cut"),
+    (HEAD + M1 + V1.replace('kind = "cut"', 'kind = "cut"\ncumulative_plus_cut = 1') + M2 + GOOD_RULE,
+     "layers[1].cumulative_plus_cut"),
+])
+def test_plus_cut_must_be_a_boolean(tmp_path: Path, text: str, where: str) -> None:
+    err = assert_names(tmp_path, text, where)
+    assert "true or false" in err.message
+
+
+def test_plus_cut_is_read_on_routing_and_cut_layers(tmp_path: Path) -> None:
+    # The refusals above are variations of this deck; here the flag is a proper boolean
+    # on a cut layer (V1) and on a routing layer (M2), and both are kept.
+    text = (HEAD + M1 + V1.replace('kind = "cut"', 'kind = "cut"\ncumulative_plus_cut = true')
+            + M2.replace('kind = "routing"', 'kind = "routing"\ncumulative_plus_cut = true') + GOOD_RULE)
+    path = tmp_path / "good.toml"
+    path.write_text(text, encoding="utf-8")
+    deck = eg.load_deck(path)
+    assert [l.cumulative_plus_cut for l in deck.layers] == [False, True, True]
+
+
+@pytest.mark.parametrize(("entry", "where", "words"), [
+    ("diode_area_reduction = [[0.0, 1.0], [0.0, 0.5]]", "rules[0].diode_area_reduction[1]", "increasing"),
+    ("diode_area_reduction = [[0.5, 1.0], [0.2, 0.5]]", "rules[0].diode_area_reduction[1]", "increasing"),
+    ("diode_area_reduction = [[0.0, -0.5]]", "rules[0].diode_area_reduction[0]", "non-negative"),
+    ("diode_area_reduction = [[-0.1, 0.5]]", "rules[0].diode_area_reduction[0]", "non-negative"),
+    ("diode_area_reduction = [[0.0, nan]]", "rules[0].diode_area_reduction[0]", "finite"),
+    ("diode_area_reduction = [[0.0, inf]]", "rules[0].diode_area_reduction[0]", "finite"),
+    ('diode_area_reduction = [[0.0, "half"]]', "rules[0].diode_area_reduction[0]", "finite"),
+    ("diode_area_reduction = [[0.0, 1.0, 2.0]]", "rules[0].diode_area_reduction[0]", "pair"),
+    ("diode_area_reduction = []", "rules[0].diode_area_reduction", "reduction factor"),
+    ("diode_area_reduction = 0.5", "rules[0].diode_area_reduction", "reduction factor"),
+])
+def test_bad_area_reduction_table(tmp_path: Path, entry: str, where: str, words: str) -> None:
+    err = assert_names(tmp_path, GOOD + entry + "\n", where)
+    assert words in err.message, err.message
+
+
+def test_area_reduction_table_is_kept(tmp_path: Path) -> None:
+    # A factor of 0 is allowed (>= 0): it removes the layer's conductor entirely.
+    path = tmp_path / "good.toml"
+    path.write_text(GOOD + "diode_area_reduction = [[0, 1], [0.2, 0.0]]\n", encoding="utf-8")
+    rule = eg.load_deck(path).rules[0]
+    assert rule.diode_area_reduction == ((0.0, 1.0), (0.2, 0.0))
+    assert rule.ratio(1.0, 0.1, 0.2) == 0.0  # max(0, 1 * r(0.2) = 0 * 1.0 - 0) / 0.1

@@ -29,6 +29,11 @@ GRID = 100  # DBU; coarse, so that rectangles touch, abut and overlap often
 SPAN = 8  # grid cells per side of the playing field
 OXIDES = ("thin", "thick")
 
+# The contract's newer deck keys: a layer's cumulative_plus_cut (the cumulative chain
+# through the step directly below) and a rule's diode_area_reduction. With False the
+# random decks draw exactly as before these keys existed.
+NEW_CONTRACT_KEYS = True
+
 # ETCHGUARD_EXAMPLES raises the number of examples for a deeper, slower search.
 SETTINGS = settings(max_examples=int(os.environ.get("ETCHGUARD_EXAMPLES", "120")), deadline=None,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
@@ -37,11 +42,23 @@ SETTINGS = settings(max_examples=int(os.environ.get("ETCHGUARD_EXAMPLES", "120")
 # -- strategies ------------------------------------------------------------------------
 
 @st.composite
+def diffusion_points(draw: st.DrawFn) -> list[float]:
+    """One to three strictly increasing D values (um^2) of a diffusion table."""
+    n = draw(st.integers(1, 3))
+    return sorted(draw(st.sets(st.sampled_from([0.0, 0.05, 0.1, 0.2, 0.5, 1.0]), min_size=n, max_size=n)))
+
+
+@st.composite
 def tables(draw: st.DrawFn) -> list[list[float]]:
     """A diode table: strictly increasing D (um^2), positive limits."""
-    n = draw(st.integers(1, 3))
-    xs = sorted(draw(st.sets(st.sampled_from([0.0, 0.05, 0.1, 0.2, 0.5, 1.0]), min_size=n, max_size=n)))
-    return [[x, draw(st.floats(5.0, 5000.0))] for x in xs]
+    return [[x, draw(st.floats(5.0, 5000.0))] for x in draw(diffusion_points())]
+
+
+@st.composite
+def reduction_tables(draw: st.DrawFn) -> list[list[float]]:
+    """An area reduction table: strictly increasing D (um^2), factors >= 0 (0 and a
+    factor above 1 included: the contract asks only for finite values >= 0)."""
+    return [[x, draw(st.sampled_from([0.0, 0.1, 0.35, 0.5, 0.8, 1.0, 1.25]))] for x in draw(diffusion_points())]
 
 
 @st.composite
@@ -55,6 +72,10 @@ def random_decks(draw: st.DrawFn) -> dict[str, Any]:
                        "wire_width": GRID})
         if m < metals:
             layers.append({"name": f"V{m}", "kind": "cut", "cut_size": GRID, "enclosure": 0})
+    if NEW_CONTRACT_KEYS:
+        for layer in layers:
+            if draw(st.booleans()):  # given (true or false) or left out
+                layer["cumulative_plus_cut"] = draw(st.booleans())
     oxides = draw(st.sampled_from([("thin",), ("thick",), OXIDES]))
     rules = []
     for layer in layers:
@@ -81,6 +102,8 @@ def random_decks(draw: st.DrawFn) -> dict[str, Any]:
                     rule["diode_gate_factor"] = draw(st.sampled_from([0.0, 0.5, 2.0, 10.0]))
                 if draw(st.booleans()):
                     rule["diode_area_credit"] = draw(st.sampled_from([0.0, 1.0, 50.0, 400.0]))
+                if NEW_CONTRACT_KEYS and draw(st.integers(0, 2)) == 0:
+                    rule["diode_area_reduction"] = draw(reduction_tables())
                 rules.append(rule)
     if not rules:
         rules.append({"layer": "M1", "oxide": oxides[0], "partial_max": 100.0})
@@ -90,7 +113,7 @@ def random_decks(draw: st.DrawFn) -> dict[str, Any]:
 
 
 # Random decks twice as often as the bundled ones: they vary the factors, tables and
-# the cumulative lanes, where the contract has the most corners.
+# the cumulative chain, where the contract has the most corners.
 decks = st.one_of(st.sampled_from(list(BUNDLED.values())), random_decks(), random_decks())
 
 

@@ -3,8 +3,11 @@
 Loaded from the TOML format of the antenna model contract. Validation is strict:
 an unknown key, a layer out of order, a cut layer that is not between two routing
 layers, a rule on an unknown layer, a side-wall rule on a cut layer, non-increasing
-diode-table points and negative values are each refused with a ``DeckError`` naming
-the file, the entry and the field.
+diode-table points, negative values and a ``cumulative_plus_cut`` that is not a boolean
+are each refused with a ``DeckError`` naming the file, the entry and the field.
+
+The deck also answers which step feeds a step's cumulative ratio
+(``Deck.feeding_step``), the chain of the contract's "Ratios and limits".
 """
 
 from __future__ import annotations
@@ -24,19 +27,23 @@ DEFAULT_OXIDE = "thin"
 
 _PROCESS_KEYS = {"name", "dbu_per_micron", "cumulative_includes_cuts"}
 _LAYER_KEYS = {"name", "kind", "direction", "thickness_um", "wire_width", "spacing",
-               "cut_size", "enclosure"}
+               "cut_size", "enclosure", "cumulative_plus_cut"}
 _ROUTING_ONLY = {"direction", "thickness_um", "wire_width", "spacing"}
 _CUT_ONLY = {"cut_size", "enclosure"}
 _RULE_KEYS = {"layer", "oxide", "measure", "partial_max", "cumulative_max", "area_factor",
               "factor_with_diode_only", "diode_partial_max", "diode_cumulative_max",
-              "diode_gate_factor", "diode_area_credit"}
+              "diode_gate_factor", "diode_area_credit", "diode_area_reduction"}
 
 Table = tuple[tuple[float, float], ...]
 
 
 @dataclass(frozen=True)
 class Layer:
-    """One process layer; ``index`` is its process step (0 = bottom)."""
+    """One process layer; ``index`` is its process step (0 = bottom).
+
+    ``cumulative_plus_cut`` is the layer's own flag as the deck gives it; the process-wide
+    ``cumulative_includes_cuts`` is applied on top of it by ``Deck.feeding_step``.
+    """
 
     name: str
     index: int
@@ -47,6 +54,7 @@ class Layer:
     spacing: int | None = None
     cut_size: int | None = None
     enclosure: int | None = None
+    cumulative_plus_cut: bool = False
 
     @property
     def is_routing(self) -> bool:
@@ -79,6 +87,7 @@ class Rule:
     diode_cumulative_max: Table = ()
     diode_gate_factor: float = 0.0
     diode_area_credit: float = 0.0
+    diode_area_reduction: Table = ()  # (D um^2, factor r); empty: r = 1
 
     @property
     def has_partial(self) -> bool:
@@ -101,12 +110,19 @@ class Rule:
     def cumulative_limit(self, diff_um2: float) -> float:
         return self._limit(self.cumulative_max, self.diode_cumulative_max, diff_um2)
 
+    def area_reduction(self, diff_um2: float) -> float:
+        """r(D): the reduction table at D (read at every D, 0 included), 1 without one."""
+        if not self.diode_area_reduction:
+            return 1.0
+        return table_value(self.diode_area_reduction, diff_um2)
+
     def ratio(self, conductor: float, gate_um2: float, diff_um2: float) -> float:
-        """Effective ratio: max(0, f*A - k_credit*D) / (G + k_gate*D)."""
+        """Effective ratio: max(0, f*r(D)*A - k_credit*D) / (G + k_gate*D)."""
         factor = self.area_factor
         if self.factor_with_diode_only and diff_um2 <= 0:
             factor = 1.0
-        a_eff = max(0.0, factor * conductor - self.diode_area_credit * diff_um2)
+        reduced = factor * self.area_reduction(diff_um2) * conductor
+        a_eff = max(0.0, reduced - self.diode_area_credit * diff_um2)
         return a_eff / (gate_um2 + self.diode_gate_factor * diff_um2)
 
 
@@ -139,8 +155,33 @@ class Deck:
         return tuple(m for m in MEASURES if any(r.measure == m for r in self.rules))
 
     def same_kind(self, a: int, b: int) -> bool:
-        """Whether steps a and b add into one cumulative ratio."""
+        """Whether steps a and b add into one cumulative ratio under the old lane reading
+        (routing with routing, cut with cut, all together with cumulative_includes_cuts).
+        Kept for code that still sums by lane; the contract's chain is ``feeding_step``."""
         return self.cumulative_includes_cuts or self.layers[a].kind == self.layers[b].kind
+
+    def plus_cut(self, step: int) -> bool:
+        """Whether the step directly below feeds ``step``'s area sum, whatever its kind."""
+        return self.cumulative_includes_cuts or self.layers[step].cumulative_plus_cut
+
+    def feeding_step(self, step: int, measure: str) -> int | None:
+        """The step p with CAR_step = PAR_step + CAR_p (the contract), None below the first.
+
+        Side measure: the nearest lower routing step. Area measure: the step directly
+        below when ``plus_cut(step)``, else the nearest lower step of the same kind.
+        """
+        if measure not in MEASURES:
+            raise ValueError(f"unknown measure {measure!r} (one of {', '.join(MEASURES)})")
+        if measure == "side":
+            wanted = ROUTING
+        elif self.plus_cut(step):
+            return step - 1 if step > 0 else None
+        else:
+            wanted = self.layers[step].kind
+        for lower in range(step - 1, -1, -1):
+            if self.layers[lower].kind == wanted:
+                return lower
+        return None
 
     def layer(self, name: str) -> Layer:
         return self.layers[self.layer_index[name]]
@@ -206,12 +247,12 @@ class _Reader:
             self.fail(key, f"must be true or false, got {value!r}")
         return value
 
-    def table_points(self, key: str) -> Table:
+    def table_points(self, key: str, value_name: str = "max ratio") -> Table:
         if key not in self.table:
             return ()
         raw = self.table[key]
         if not isinstance(raw, list) or not raw:
-            self.fail(key, "must be a non-empty list of [diffusion um^2, max ratio] points")
+            self.fail(key, f"must be a non-empty list of [diffusion um^2, {value_name}] points")
         points = []
         for i, point in enumerate(raw):
             if (not isinstance(point, list) or len(point) != 2
@@ -254,17 +295,20 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
         wrong = (_CUT_ONLY if kind == ROUTING else _ROUTING_ONLY) & set(raw)
         if wrong:
             r.fail(sorted(wrong)[0], f"does not apply to a {kind} layer")
+        plus_cut = r.flag("cumulative_plus_cut")
         if kind == ROUTING:
             layers.append(Layer(
                 layer_name, i, kind,
                 direction=r.text("direction", choices=("horizontal", "vertical")),
                 thickness_um=r.number("thickness_um", positive=True),
                 wire_width=r.integer("wire_width", positive=True),
-                spacing=r.integer("spacing")))
+                spacing=r.integer("spacing"),
+                cumulative_plus_cut=plus_cut))
         else:
             layers.append(Layer(layer_name, i, kind,
                                 cut_size=r.integer("cut_size", positive=True),
-                                enclosure=r.integer("enclosure", default=0)))
+                                enclosure=r.integer("enclosure", default=0),
+                                cumulative_plus_cut=plus_cut))
     for layer in layers:
         if layer.kind == CUT:
             below = layers[layer.index - 1] if layer.index > 0 else None
@@ -312,6 +356,7 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
             diode_cumulative_max=r.table_points("diode_cumulative_max"),
             diode_gate_factor=r.number("diode_gate_factor", default=0.0),  # type: ignore[arg-type]
             diode_area_credit=r.number("diode_area_credit", default=0.0),  # type: ignore[arg-type]
+            diode_area_reduction=r.table_points("diode_area_reduction", "reduction factor"),
         )
         if not rule.has_partial and not rule.has_cumulative:
             r.fail("partial_max", "a rule needs a partial or a cumulative limit")
