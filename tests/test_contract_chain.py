@@ -259,7 +259,9 @@ def test_m3_candidate_engine_score() -> None:
     assert score.worst_utilization == approx(35.1 / 36.0)
     assert score.legal
     change = next(c for c in score.changes if (c.layer, c.kind) == ("M3", "cumulative"))
-    assert change.ratio == approx(35.1) and change.before_ratio is None
+    # before: the gate's component at step M3 holds no M3 metal yet, so its CAR_M3 is
+    # 0 + CAR_M2 = 5.1 (a component exists there: the ratio is reported, not None)
+    assert change.ratio == approx(35.1) and change.before_ratio == approx(5.1)
     assert change.headroom_um2 == approx(0.09)
     assert change.headroom_length_um == approx(0.9)
     quick = engine.score("n", candidate, detail=False)

@@ -261,7 +261,8 @@ Headroom Net::headroom(int layer, i64 x, i64 y) const {
       which = 1;
     }
   }
-  if (which >= 0 && best[which].step >= 0) {
+  if (which < 0) which = best[0].step >= 0 ? 0 : 1;  // no run length (a cut): what binds the area
+  if (best[which].step >= 0) {
     h.bind_step = best[which].step;
     h.bind_kind = best[which].kind;
     h.bind_measure = Measure(which);
