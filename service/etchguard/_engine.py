@@ -32,6 +32,7 @@ from ._netstate import NetState
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
 from ._headroom import layer_headroom
+from ._pyview import PyNetView
 from ._ratios import StepModel
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck, loads_deck as _loads_deck
@@ -444,8 +445,8 @@ class Engine:
         net = self._net(name)
         with net.lock:
             state = self._state(net)
-            result = _advise(name, state, self._assessment(net, state), self.costs, self._obstacles,
-                             net.layer_range, request)
+            view = PyNetView(name, state, self._assessment(net, state), self.costs)
+            result = _advise(name, view, self._obstacles, net.layer_range, request)
         self.counters["scores"] += 1
         return result
 
