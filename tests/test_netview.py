@@ -171,3 +171,15 @@ def test_worst_at_and_check_agree_with_the_reference():
     report = view.check()
     assert report.legal == analysis.report["legal"]
     assert report == engine.check("n")
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_a_kept_build_with_another_diffusion_equals_a_fresh_one(seed):
+    """The Python view keeps its last build and patches the trial pin's diffusion; each
+    score must equal, bit for bit, the score of a view that never saw another D."""
+    _toml, deck, engine, view, run, diode = case(seed)
+    rng = random.Random(seed)
+    for area in [rng.choice([1e-12, 0.001, 0.02, 0.3, 5.0, 1e6]) for _ in range(6)]:
+        trial = Pin(diode.name, diode.layer, diode.rects, {}, area, {})
+        fresh = spec_views(deck)(engine.spec("n"))
+        assert view.score(run, True, [trial]) == fresh.score(run, True, [trial])

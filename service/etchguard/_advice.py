@@ -39,9 +39,8 @@ Search methods, and what they rest on:
   shape edge of the jumper either stays or moves with l at unit speed. Between two
   "events" (values of l at which a moving edge passes a coordinate of one of the net's
   own rectangles near the run, ``NetView.near``, +-1 for the strict/closed contact
-  tests) nothing changes
-  in connectivity and every union area and perimeter is affine in l (the slab swept
-  per DBU is fixed). Gate and diffusion sums are then constant, so each partial ratio
+  tests) nothing changes in connectivity and every union area and perimeter is affine
+  in l (the slab swept per DBU is fixed). Gate and diffusion sums are then constant, so each partial ratio
   ``max(0, f*A - k*D) / G_eff`` is a convex function of l, each cumulative ratio a sum
   of such, and each limit is constant: u, a maximum of convex functions divided by
   positive constants, is convex on every event interval. Its legal set there is an
@@ -81,9 +80,9 @@ Search methods, and what they rest on:
   after a test that the tangents at the ends can reach 0 at all. Beyond the last
   breakpoint the limits are constant and h is non-increasing: h at ``MAX_DIODE_UM2``
   decides whether any D there is legal, then a doubling search and the same root
-  finder find the least. D = 0+ (``TINY_DIODE_UM2``)
-  is a point of its own: with D > 0 the tables replace the plain maxima and
-  ``factor_with_diode_only`` switches the area factor on. No diode suffices when a
+  finder find the least. D = 0+ (``TINY_DIODE_UM2``) is a point of its own: with
+  D > 0 the tables replace the plain maxima and ``factor_with_diode_only`` switches
+  the area factor on. No diode suffices when a
   failing check lies in a component g never joins (every changed ratio holds, the net
   does not), or when, at the largest D considered, a changed ratio still exceeds its
   limit (a table that flattens below a ratio the diode cannot lower when k_gate =

@@ -4,9 +4,12 @@ The one module that reads ``NetState`` and ``Assessment`` on behalf of advice an
 report. Questions about the net as held are answered from the incremental state.
 A what-if with extra pins, and a pin's diffusion after candidate shapes, are
 answered by building a fresh state with everything added and comparing it with the
-held one, component by component: slow (a build per question) but exact, because a
-fresh build gives the same figures as an incremental one (integer areas, exactly
-rounded pin sums).
+held one, component by component: slow but exact, because a fresh build gives the
+same figures as an incremental one (integer areas, exactly rounded pin sums). The
+diode search asks for the same shapes and pin with one diffusion after another, so
+the last build is kept and only the pin's diffusion term is replaced in the
+components holding it (a pin sum is the exactly rounded sum of the multiset of pin
+terms, so the figures equal a fresh build's).
 """
 
 from __future__ import annotations
@@ -33,6 +36,7 @@ class PyNetView:
         self.state, self.assessment, self.costs = state, assessment, costs
         self.deck: Deck = state.model.deck
         self.pins: tuple[Pin, ...] = tuple(state.pins)
+        self._last: tuple[object, list[Pin], NetState, set[int]] | None = None  # see _built_with_pins
 
     # -- what-if --------------------------------------------------------------------
 
@@ -58,9 +62,33 @@ class PyNetView:
         new.update(e for e, p in after.pin_of.items() if p >= len(held.pins))
         return after, new
 
+    def _built_with_pins(self, shapes: list[Shape], extra_pins: list[Pin]) -> tuple[NetState, set[int]]:
+        """``_built_with``, reusing the last build when only the extra pins' diffusion
+        differs (see the module docstring)."""
+        key = (tuple(shapes), tuple((p.name, p.layer, p.rects, tuple(sorted(p.gate_area.items())),
+                                     tuple(sorted(p.cell_area.items()))) for p in extra_pins))
+        if self._last is None or self._last[0] != key:
+            after, new = self._built_with(shapes, extra_pins)
+            self._last = (key, list(extra_pins), after, new)
+            return after, new
+        _key, built_pins, after, new = self._last
+        first = len(self.state.pins)
+        for k, (old, pin) in enumerate(zip(built_pins, extra_pins)):
+            if old.diff_area == pin.diff_area:
+                continue
+            anchor = after.anchor_of_pin[first + k]
+            for s in range(pin.layer, after.model.steps):
+                comp = after.comp_at[s][anchor]
+                held_term = (old.total_gate_area, old.diff_area, old.cell_area.get(s, 0.0), old.gate_area)
+                comp.terms[comp.terms.index(held_term)] = (pin.total_gate_area, pin.diff_area,
+                                                           pin.cell_area.get(s, 0.0), pin.gate_area)
+                comp._sum_terms()
+            after.pins[first + k] = built_pins[k] = pin
+        return after, new
+
     def _score_with_pins(self, shapes: list[Shape], detail: bool, extra_pins: list[Pin]) -> Score:
         held, model = self.state, self.state.model
-        after, new = self._built_with(shapes, extra_pins)
+        after, new = self._built_with_pins(shapes, extra_pins)
         judged = Assessment(after)
         new_pins = {e for e in new if e in after.pin_of}
         changes: list[RatioChange] = []
