@@ -41,7 +41,8 @@ class Offence:
 
 
 class NetView(Protocol):
-    """One net as advice and the report see it (see the module docstring)."""
+    """One net as advice and the report see it (see the module docstring). A view is
+    made with the engine's cost model; ``Score.cost`` comes from it."""
 
     deck: Deck  # the loaded deck
     pins: tuple[Pin, ...]  # the net's pins; a pin's index here is its index everywhere
@@ -53,7 +54,8 @@ class NetView(Protocol):
         Equal to a full check after doing so: ``worst_utilization`` and ``legal`` cover
         every check of the net. A pin in ``extra_pins`` is given as the net would hold
         it (a trial diode at gate pin g: g's layer and rectangles, diff_area D, no gate
-        area, no in-cell area). ``shapes`` may be empty when ``extra_pins`` is not.
+        area, no in-cell area). ``shapes`` may be empty when ``extra_pins`` is not (both
+        empty: ``InputError`` on field "shapes").
         With ``detail``, ``changes`` lists every ratio of a component that holds a new
         shape or pin (or merges components) whose value or limit differs from the net
         as held, or whose component is a merge of several; ``before_*`` are the worst
