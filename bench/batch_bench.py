@@ -7,13 +7,10 @@ layer above, some cuts at the ends), it measures in one run:
 
 * candidates per second of ``Engine.score_columns`` (one call per batch) and of
   ``Engine.score_many`` (the scalar path, one score per candidate), and their ratio;
-* the fraction of candidates the column path answered itself;
 * that both give the same answers (a sanity count; the tests hold this properly);
-* the same columns with merges handed to the scalar path (``merges=False``, the column
-  path before it answered merges), as the baseline "before" of the same run;
 * a mixed row per net: half one-run extensions, half run + via stack candidates of 4
   shapes (bench/netgen.py), through ``score_columns`` with ``shape_count`` against
-  ``score_many`` (which the service used for such batches before), and the scalar cost
+  ``score_many`` (one score call per candidate), and the scalar cost
   of a 4-shape candidate relative to a 1-shape one.
 
 Times are the best of a few repeats (the machine is shared); only ratios measured
@@ -38,7 +35,6 @@ if str(REPO) not in sys.path:
 from bench.netgen import (RUN_LENGTH, GeneratedNet, bench_deck, extension_candidates,  # noqa: E402
                           generate_net, via_run_candidates)
 from etchguard import Deck, Engine, Shape, run_shapes  # noqa: E402
-from etchguard import _batch  # noqa: E402
 from etchguard._geometry import square  # noqa: E402
 
 SIZES = (10, 50, 100)
@@ -111,35 +107,23 @@ def measure(size: int, seed: int) -> dict[str, float]:
                 if s.worst_utilization == first.worst_utilization[i]
                 and s.worst_change_utilization == first.worst_change_utilization[i]
                 and s.legal == first.legal[i] and s.breaks_limit == first.breaks_limit[i])
-    held = engine._net(net.name)
-    with held.lock:
-        state = engine._state(held)
-        assessment = engine._assessment(held, state)
-
-        def before() -> _batch.BatchScores:
-            return _batch.score_columns(state, assessment, layers, rects, engine.costs, merges=False)
-
-        before_fraction = before().vectorized_fraction
-        t_before = _best(before, REPEATS)
     mixed = extension_candidates(deck, net, BATCH // 2, seed=seed) + via_run_candidates(deck, net, BATCH // 2, seed=seed)
     random.Random(seed).shuffle(mixed)
     flat = [s for c in mixed for s in c]
     m_layers, m_rects = _columns(flat)
     m_counts = np.array([len(c) for c in mixed], dtype=np.int64)
-    got = engine.score_columns(net.name, m_layers, m_rects, m_counts)
+    engine.score_columns(net.name, m_layers, m_rects, m_counts)  # warm
     t_mixed = _best(lambda: engine.score_columns(net.name, m_layers, m_rects, m_counts), 2)
     t_many = _best(lambda: engine.score_many(net.name, mixed), 1)
     ones = [c for c in mixed if len(c) == 1][:SCALAR_SAMPLE // 2]
     fours = [c for c in mixed if len(c) == 4][:SCALAR_SAMPLE // 2]
     t_one = _best(lambda: engine.score_many(net.name, ones), 2) / max(len(ones), 1)
     t_four = _best(lambda: engine.score_many(net.name, fours), 2) / max(len(fours), 1)
-    return {"size": size, "seed": seed, "fast_fraction": first.vectorized_fraction,
+    return {"size": size, "seed": seed,
             "columns_per_s": BATCH / t_cols, "scalar_per_s": 1.0 / t_scalar,
             "speedup": (BATCH / t_cols) * t_scalar, "warm_call_ms": t_first * 1e3,
             "agree": agree / len(sample),
-            "before_fast_fraction": before_fraction, "before_columns_per_s": BATCH / t_before,
-            "gain": t_before / t_cols,
-            "mixed_fast_fraction": got.vectorized_fraction, "mixed_columns_per_s": BATCH / t_mixed,
+            "mixed_columns_per_s": BATCH / t_mixed,
             "mixed_many_per_s": BATCH / t_many, "mixed_gain": t_many / t_mixed,
             "scalar_four_vs_one": t_four / t_one}
 
@@ -147,18 +131,16 @@ def measure(size: int, seed: int) -> dict[str, float]:
 def main(argv: list[str] | None = None) -> int:
     start = time.perf_counter()
     rows = [measure(size, seed) for size in SIZES for seed in range(NETS_PER_SIZE)]
-    print("one-rectangle frontier batches (before: merges handed to the scalar path)")
-    print(f"{'shapes':>6} {'seed':>4} {'fast':>6} {'columns/s':>11} {'before':>6} {'before/s':>9} "
-          f"{'gain':>5} {'scalar/s':>9} {'ratio':>6} {'agree':>6}")
+    print("one-rectangle frontier batches: score_columns vs one score call per candidate")
+    print(f"{'shapes':>6} {'seed':>4} {'columns/s':>11} {'scalar/s':>9} {'ratio':>6} {'agree':>6}")
     for r in rows:
-        print(f"{r['size']:>6} {r['seed']:>4} {r['fast_fraction']:>6.3f} {r['columns_per_s']:>11,.0f} "
-              f"{r['before_fast_fraction']:>6.3f} {r['before_columns_per_s']:>9,.0f} {r['gain']:>5.1f} "
+        print(f"{r['size']:>6} {r['seed']:>4} {r['columns_per_s']:>11,.0f} "
               f"{r['scalar_per_s']:>9,.0f} {r['speedup']:>6.1f} {r['agree']:>6.3f}")
     print("mixed batches: 1-shape runs and 4-shape run + via stacks (shape_count) vs score_many")
-    print(f"{'shapes':>6} {'seed':>4} {'fast':>6} {'columns/s':>11} {'many/s':>9} {'gain':>5} "
+    print(f"{'shapes':>6} {'seed':>4} {'columns/s':>11} {'many/s':>9} {'gain':>5} "
           f"{'4-shape/1-shape scalar':>23}")
     for r in rows:
-        print(f"{r['size']:>6} {r['seed']:>4} {r['mixed_fast_fraction']:>6.3f} {r['mixed_columns_per_s']:>11,.0f} "
+        print(f"{r['size']:>6} {r['seed']:>4} {r['mixed_columns_per_s']:>11,.0f} "
               f"{r['mixed_many_per_s']:>9,.0f} {r['mixed_gain']:>5.2f} {r['scalar_four_vs_one']:>23.2f}")
     out = REPO / "bench" / "out" / "batch.json"
     out.parent.mkdir(parents=True, exist_ok=True)

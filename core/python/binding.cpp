@@ -236,11 +236,16 @@ NB_MODULE(_core, m) {
         return out;
       })
       .def("reaches_gate", &Net::reaches_gate)
+      .def("pin_diffusion", &Net::pin_diffusion)
       .def("near", [](const Net& net, int layer, std::tuple<i64, i64, i64, i64> r) {
         std::vector<std::tuple<i64, i64, i64, i64>> out;
         for (const Rect& q : net.near(layer, {std::get<0>(r), std::get<1>(r), std::get<2>(r), std::get<3>(r)}))
           out.push_back({q.xlo, q.ylo, q.xhi, q.yhi});
         return out;
       })
-      .def("element_shape_id", &Net::element_shape_id);
+      .def("element", [](const Net& net, int e) {
+        Net::ElementInfo info = net.element(e);
+        return nb::make_tuple(info.layer, nb::make_tuple(info.rect.xlo, info.rect.ylo, info.rect.xhi, info.rect.yhi),
+                              info.shape_id);
+      });
 }

@@ -89,9 +89,10 @@ const Assessment& Net::State::assess() const {
       }
     }
   }
-  std::vector<const double*> rows(pins.size(), nullptr);
+  a.rows.assign(pins.size(), nullptr);
   for (std::size_t p = 0; p < pins.size(); ++p)
-    if (a.slot_of_pin[p] >= 0) rows[p] = &a.car[a.row(a.slot_of_pin[p], 0)];
+    if (a.slot_of_pin[p] >= 0) a.rows[p] = &a.car[a.row(a.slot_of_pin[p], 0)];
+  const auto& rows = a.rows;
   a.comp_worst.resize(std::size_t(n));
   a.partial_worst.resize(std::size_t(n));
   a.ranked.resize(std::size_t(n));

@@ -290,6 +290,16 @@ bool Net::reaches_gate(int element, int step) const {
   return c >= 0 && st.comps[std::size_t(step)][std::size_t(c)].G > 0;
 }
 
+std::vector<double> Net::pin_diffusion(int pin) const {
+  const State& st = *s_;
+  if (pin < 0 || std::size_t(pin) >= st.pins.size()) throw std::invalid_argument("pin: unknown pin");
+  std::vector<double> out(std::size_t(st.m.steps), std::numeric_limits<double>::quiet_NaN());
+  const int anchor = st.anchor_of_pin[std::size_t(pin)];
+  for (int s = st.pins[std::size_t(pin)].layer; s < st.m.steps; ++s)
+    out[std::size_t(s)] = st.comps[std::size_t(s)][std::size_t(st.comp_of[std::size_t(s)][std::size_t(anchor)])].D;
+  return out;
+}
+
 std::vector<Rect> Net::near(int layer, const Rect& r) const {
   const State& st = *s_;
   if (layer < 0 || layer >= st.m.steps) throw std::invalid_argument("layer: unknown layer");
@@ -300,10 +310,12 @@ std::vector<Rect> Net::near(int layer, const Rect& r) const {
   return out;
 }
 
-i64 Net::element_shape_id(int element) const {
+Net::ElementInfo Net::element(int e) const {
   const State& st = *s_;
-  if (element < 0 || std::size_t(element) >= st.elems.size()) return 0;
-  return st.elems[std::size_t(element)].sid;
+  if (e < 0 || std::size_t(e) >= st.elems.size() || !st.elems[std::size_t(e)].alive)
+    throw std::invalid_argument("element: not held");
+  const Element& el = st.elems[std::size_t(e)];
+  return {el.layer, el.r, el.sid};
 }
 
 std::size_t Net::memory_bytes() const {

@@ -96,9 +96,38 @@ struct Assessment {
   std::vector<char> has;               // [slot * groups + g]: the pin has g's oxide
   std::vector<std::vector<double>> comp_worst, partial_worst;  // [s][comp]
   std::vector<std::vector<std::pair<double, int>>> ranked;     // [s]: (worst, comp), worst first
+  std::vector<const double*> rows;                             // per pin: its CAR rows, or null
   std::vector<double> step_worst, worst_below;                 // worst_below[s]: over steps < s
   std::size_t row(int slot, int g) const { return (std::size_t(slot) * std::size_t(groups) + std::size_t(g)) * std::size_t(steps); }
   double worst_untouched(int s, const std::vector<int>& touched) const;
+};
+
+// Buffers a what-if reuses from call to call (a Net answers one question at a time).
+struct Scratch {
+  struct Cand {
+    int layer;
+    Rect r;
+    int pin;  // extra pin index, -1 for a shape
+    bool anchor;
+  };
+  struct Link {
+    int i, j, step;
+  };
+  std::vector<Cand> cands;
+  std::vector<std::vector<std::pair<int, int>>> touches;
+  std::vector<Link> links;
+  std::vector<std::uint64_t> oxides;
+  std::vector<double> extra_gate;
+  std::vector<const double*> car_view;  // per pin: its CAR rows as the what-if has them
+  std::vector<int> fresh_of;            // per pin: its row block in `fresh`, or -1
+  std::vector<int> fresh_pins;          // pins with a fresh row block (to reset fresh_of)
+  std::vector<std::vector<double>> fresh;
+  std::vector<i128> added;
+  std::vector<int> parent, touched, roots, members, group_comps;
+  std::vector<std::pair<int, int>> first_toucher, seen;
+  std::vector<Rect> local, rects_here, with;
+  std::vector<Entry> es, before;
+  Comp built;
 };
 
 struct Net::State {
@@ -121,6 +150,7 @@ struct Net::State {
   std::int64_t version = 0, next_seq = 0;
   std::size_t shapes = 0;
   mutable Assessment assessment;
+  mutable Scratch scratch;
   mutable std::vector<std::uint32_t> stamp;  // per element, for searches
   mutable std::uint32_t clock = 0;
 
@@ -140,6 +170,10 @@ struct Net::State {
   void entries(int s, const Comp& c, bool partial, const double* const* cars_by_pin,
                const std::uint64_t* gate_oxides, std::vector<Entry>& out) const;
   std::uint32_t tick() const;
+  // The what-if (whatif.cpp): figures into `out`; changes only with detail.
+  void what_if(const Shape* shapes, std::size_t n, const PinSpec* extra, std::size_t n_extra, bool detail,
+               Score& out) const;
+  void record_change(const Entry& e, const std::vector<Entry>& before, bool one_predecessor, Score& out) const;
 };
 
 template <class F>

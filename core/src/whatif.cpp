@@ -20,13 +20,6 @@ namespace etchguard {
 
 namespace {
 
-struct Cand {
-  int layer;
-  Rect r;
-  int pin;  // extra pin index, -1 for a shape
-  bool anchor;
-};
-
 int find(std::vector<int>& parent, int i) {
   while (parent[std::size_t(i)] != i) {
     parent[std::size_t(i)] = parent[std::size_t(parent[std::size_t(i)])];
@@ -45,110 +38,123 @@ bool contains(const std::vector<T>& v, const T& x) {
   return std::find(v.begin(), v.end(), x) != v.end();
 }
 
+std::uint64_t oxide_mask(const PinSpec& pin, std::size_t oxides, double& total) {
+  std::uint64_t ox = 0;
+  total = 0.0;
+  for (std::size_t o = 0; o < pin.gate_by_oxide.size() && o < oxides; ++o) {
+    total += pin.gate_by_oxide[o];
+    if (pin.gate_by_oxide[o] > 0 && o < 64) ox |= std::uint64_t(1) << o;
+  }
+  if (pin.gate_total_um2 >= 0) total = pin.gate_total_um2;
+  return ox;
+}
+
 }  // namespace
 
-Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostModel& costs,
-                 const PinSpec* extra, std::size_t n_extra) const {
-  const State& st = *s_;
-  const Model& m = st.m;
+void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extra, std::size_t n_extra,
+                         bool detail, Score& out) const {
   const int steps = m.steps, ng = m.groups_count();
+  Scratch& sc = scratch;
   if (n + n_extra == 0) throw std::invalid_argument("candidate: needs at least one shape");
-  std::vector<Cand> cands;
-  cands.reserve(n);
+  auto& cands = sc.cands;
+  cands.clear();
   for (std::size_t i = 0; i < n; ++i) {
     if (shapes[i].layer < 0 || shapes[i].layer >= steps) throw std::invalid_argument("candidate.layer: unknown layer");
     if (!valid_rect(shapes[i].rect)) throw std::invalid_argument("candidate.rect: empty, inverted or too far");
     cands.push_back({shapes[i].layer, shapes[i].rect, -1, false});
   }
-  const std::size_t npins = st.pins.size(), all_pins = npins + n_extra;
-  std::vector<std::uint64_t> oxides(st.pin_oxides);
-  std::vector<double> extra_gate;
-  for (std::size_t j = 0; j < n_extra; ++j) {
-    const PinSpec& pin = extra[j];
-    if (pin.layer < 0 || pin.layer >= steps) throw std::invalid_argument("extra_pins.layer: unknown layer");
-    if (pin.rects.empty()) throw std::invalid_argument("extra_pins.rects: a pin needs a rectangle");
-    double total = 0.0;
-    std::uint64_t ox = 0;
-    for (std::size_t o = 0; o < pin.gate_by_oxide.size() && o < m.deck.oxides.size(); ++o) {
-      total += pin.gate_by_oxide[o];
-      if (pin.gate_by_oxide[o] > 0 && o < 64) ox |= std::uint64_t(1) << o;
+  const std::size_t npins = pins.size(), all_pins = npins + n_extra;
+  sc.extra_gate.clear();
+  const std::uint64_t* oxides = pin_oxides.data();
+  if (n_extra > 0) {
+    sc.oxides.assign(pin_oxides.begin(), pin_oxides.end());
+    for (std::size_t j = 0; j < n_extra; ++j) {
+      const PinSpec& pin = extra[j];
+      if (pin.layer < 0 || pin.layer >= steps) throw std::invalid_argument("extra_pins.layer: unknown layer");
+      if (pin.rects.empty()) throw std::invalid_argument("extra_pins.rects: a pin needs a rectangle");
+      double total = 0.0;
+      sc.oxides.push_back(oxide_mask(pin, m.deck.oxides.size(), total));
+      sc.extra_gate.push_back(total);
+      bool first = true;
+      for (const Rect& r : pin.rects) {
+        if (!valid_rect(r)) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
+        cands.push_back({pin.layer, r, int(j), first});
+        first = false;
+      }
     }
-    extra_gate.push_back(pin.gate_total_um2 >= 0 ? pin.gate_total_um2 : total);
-    oxides.push_back(ox);
-    bool first = true;
-    for (const Rect& r : pin.rects) {
-      if (!valid_rect(r)) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
-      cands.push_back({pin.layer, r, int(j), first});
-      first = false;
-    }
+    oxides = sc.oxides.data();
   }
-  const Assessment& a = st.assess();
+  const Assessment& a = assess();
   const std::size_t k = cands.size();
 
   // Contacts: with the net's elements, and among the candidates themselves.
-  std::vector<std::vector<std::pair<int, int>>> touches(k);
-  for (std::size_t i = 0; i < k; ++i) st.touching(cands[i].layer, cands[i].r, touches[i]);
-  struct Link { int i, j, step; };
-  std::vector<Link> links;
+  if (sc.touches.size() < k) sc.touches.resize(k);
+  for (std::size_t i = 0; i < k; ++i) touching(cands[i].layer, cands[i].r, sc.touches[i]);
+  auto& links = sc.links;
+  links.clear();
   int first = steps;
   for (std::size_t i = 0; i < k; ++i) {
     first = std::min(first, cands[i].layer);
     for (std::size_t j = i + 1; j < k; ++j) {
-      const Cand &ci = cands[i], &cj = cands[j];
+      const auto &ci = cands[i], &cj = cands[j];
       if (ci.layer == cj.layer) {
-        if (edge_touch(ci.r, cj.r) || (ci.pin >= 0 && ci.pin == cj.pin))
-          links.push_back({int(i), int(j), ci.layer});
-      } else if (std::abs(ci.layer - cj.layer) == 1 && m.is_cut[std::size_t(ci.layer)] != m.is_cut[std::size_t(cj.layer)]) {
+        if (edge_touch(ci.r, cj.r) || (ci.pin >= 0 && ci.pin == cj.pin)) links.push_back({int(i), int(j), ci.layer});
+      } else if (std::abs(ci.layer - cj.layer) == 1 &&
+                 m.is_cut[std::size_t(ci.layer)] != m.is_cut[std::size_t(cj.layer)]) {
         if (overlap(ci.r, cj.r)) links.push_back({int(i), int(j), std::max(ci.layer, cj.layer)});
       }
     }
   }
 
-  // CAR rows: the held ones, and fresh rows for gates a group touches.
+  // CAR rows: the held ones, and fresh rows for the gates a group touches.
   const std::size_t row_len = std::size_t(ng) * std::size_t(steps);
-  std::vector<const double*> rows(all_pins, nullptr);
-  for (std::size_t p = 0; p < npins; ++p)
-    if (a.slot_of_pin[p] >= 0) rows[p] = &a.car[a.row(a.slot_of_pin[p], 0)];
-  std::vector<int> fresh_of(all_pins, -1);
-  std::vector<double> fresh;
-  fresh.reserve(row_len * 4);
+  auto& car_view = sc.car_view;
+  car_view.assign(a.rows.begin(), a.rows.end());
+  car_view.resize(all_pins, nullptr);
+  auto& fresh_of = sc.fresh_of;
+  if (fresh_of.size() < all_pins) fresh_of.resize(all_pins, -1);
+  sc.fresh_pins.clear();
   auto fresh_row = [&](int p) -> double* {
-    if (fresh_of[std::size_t(p)] < 0) {
-      fresh_of[std::size_t(p)] = int(fresh.size() / std::max<std::size_t>(row_len, 1));
-      if (std::size_t(p) < npins && rows[std::size_t(p)] != nullptr)
-        fresh.insert(fresh.end(), rows[std::size_t(p)], rows[std::size_t(p)] + row_len);
+    int& slot = fresh_of[std::size_t(p)];
+    if (slot < 0) {
+      slot = int(sc.fresh_pins.size());
+      sc.fresh_pins.push_back(p);
+      if (sc.fresh.size() <= std::size_t(slot)) sc.fresh.emplace_back();
+      auto& row = sc.fresh[std::size_t(slot)];
+      if (std::size_t(p) < npins && a.rows[std::size_t(p)] != nullptr)
+        row.assign(a.rows[std::size_t(p)], a.rows[std::size_t(p)] + row_len);
       else
-        fresh.insert(fresh.end(), row_len, 0.0);
+        row.assign(row_len, 0.0);
+      car_view[std::size_t(p)] = row.data();
     }
-    return fresh.data() + std::size_t(fresh_of[std::size_t(p)]) * row_len;
+    return sc.fresh[std::size_t(slot)].data();
   };
-  auto has_group = [&](int p, int g) {
-    return (oxides[std::size_t(p)] >> m.groups[std::size_t(g)].oxide) & 1u;
-  };
+  auto has_group = [&](int p, int g) { return (oxides[std::size_t(p)] >> m.groups[std::size_t(g)].oxide) & 1u; };
 
-  Score out;
   out.added_area_um2.assign(std::size_t(steps), 0.0);
   out.adds_on.assign(std::size_t(steps), 0);
-  std::vector<i128> added(std::size_t(steps), 0);
+  out.changes.clear();
+  auto& added = sc.added;
+  added.assign(std::size_t(steps), 0);
   double worst_change = 0.0;
   double worst_net = a.worst_below[std::size_t(first)];
-  std::vector<int> parent(k);
+  auto& parent = sc.parent;
+  parent.resize(k);
   for (std::size_t i = 0; i < k; ++i) parent[i] = int(i);
-  std::vector<int> touched, roots, members, group_comps;
-  std::vector<std::pair<int, int>> first_toucher, seen;
-  std::vector<Rect> local, rects_here;
-  std::vector<Entry> es, before;
-  std::vector<const double*> car_view(all_pins, nullptr);
+  auto &touched = sc.touched, &roots = sc.roots, &members = sc.members, &group_comps = sc.group_comps;
+  auto &first_toucher = sc.first_toucher, &seen = sc.seen;
+  auto &local = sc.local, &rects_here = sc.rects_here;
+  auto &es = sc.es, &before = sc.before;
   for (int s = first; s < steps; ++s) {
-    for (const Link& l : links)
+    for (const auto& l : links)
       if (l.step == s) join(parent, l.i, l.j);
-    const auto& cof = st.comp_of[std::size_t(s)];
-    const auto& pool = st.comps[std::size_t(s)];
+    const auto& cof = comp_of[std::size_t(s)];
+    const auto& pool = comps[std::size_t(s)];
     first_toucher.clear();
     roots.clear();
     for (std::size_t i = 0; i < k; ++i) {
       if (cands[i].layer > s) continue;
-      for (const auto& t : touches[i]) {
+      for (const auto& t : sc.touches[i]) {
         if (t.second > s) continue;
         int c = cof[std::size_t(t.first)];
         auto it = std::find_if(first_toucher.begin(), first_toucher.end(), [c](const auto& x) { return x.first == c; });
@@ -165,41 +171,42 @@ Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostMode
     for (int root : roots) {
       members.clear();
       group_comps.clear();
-      bool has_anchor = false;
       rects_here.clear();
+      bool has_anchor = false;
+      int only_shape = -1;
       for (std::size_t i = 0; i < k; ++i) {
         if (cands[i].layer > s || find(parent, int(i)) != root) continue;
         members.push_back(int(i));
-        for (const auto& t : touches[i]) {
+        for (const auto& t : sc.touches[i]) {
           if (t.second > s) continue;
           int c = cof[std::size_t(t.first)];
           if (!contains(group_comps, c)) group_comps.push_back(c);
         }
         if (cands[i].pin >= 0 && cands[i].anchor) has_anchor = true;
-        if (cands[i].layer == s && cands[i].pin < 0) rects_here.push_back(cands[i].r);
+        if (cands[i].layer == s && cands[i].pin < 0) {
+          rects_here.push_back(cands[i].r);
+          only_shape = int(i);
+        }
       }
       for (int c : group_comps) touched.push_back(c);
       Measures change;
       if (!rects_here.empty()) {
         if (rects_here.size() == 1) {
-          int i = -1;
-          for (int x : members)
-            if (cands[std::size_t(x)].layer == s && cands[std::size_t(x)].pin < 0) i = x;
-          st.routed_on(s, touches[std::size_t(i)], local);
-          change = st.local_delta(rects_here[0], local, s);
+          routed_on(s, sc.touches[std::size_t(only_shape)], local);
+          change = local_delta(rects_here[0], local, s);
         } else {
           seen.clear();
           for (int x : members) {
             if (cands[std::size_t(x)].layer != s || cands[std::size_t(x)].pin >= 0) continue;
-            for (const auto& t : touches[std::size_t(x)])
+            for (const auto& t : sc.touches[std::size_t(x)])
               if (std::find_if(seen.begin(), seen.end(), [&](const auto& y) { return y.first == t.first; }) == seen.end())
                 seen.push_back({t.first, 0});
           }
-          st.routed_on(s, seen, local);
+          routed_on(s, seen, local);
           Measures before_u = union_measures(local);
-          std::vector<Rect> with(local);
-          with.insert(with.end(), rects_here.begin(), rects_here.end());
-          Measures after_u = union_measures(with);
+          sc.with.assign(local.begin(), local.end());
+          sc.with.insert(sc.with.end(), rects_here.begin(), rects_here.end());
+          Measures after_u = union_measures(sc.with);
           change.area = after_u.area - before_u.area;
           change.perimeter = m.side_needed[std::size_t(s)] ? after_u.perimeter - before_u.perimeter : 0;
         }
@@ -207,25 +214,26 @@ Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostMode
         out.adds_on[std::size_t(s)] = 1;
       }
       const bool merged = group_comps.size() != 1 || !rects_here.empty() || has_anchor;
-      Comp built;
-      const Comp* group = nullptr;
+      const Comp* group;
       if (merged) {
+        Comp& built = sc.built;
+        built.reset();
         for (int c : group_comps) built.absorb(pool[std::size_t(c)]);
         built.area += change.area;
         built.perim += change.perimeter;
         for (int x : members) {
-          const Cand& cd = cands[std::size_t(x)];
+          const auto& cd = cands[std::size_t(x)];
           if (cd.pin < 0 || !cd.anchor) continue;
           const PinSpec& pin = extra[std::size_t(cd.pin)];
           const int p = int(npins) + cd.pin;
-          built.gate.add(extra_gate[std::size_t(cd.pin)]);
+          built.gate.add(sc.extra_gate[std::size_t(cd.pin)]);
           built.diff.add(pin.diff_um2);
           double cell = 0.0;
-          for (const auto& sc : pin.cell_um2)
-            if (sc.first == s) cell = sc.second;
+          for (const auto& step_cell : pin.cell_um2)
+            if (step_cell.first == s) cell = step_cell.second;
           built.cell.add(cell);
           built.pins.push_back(p);
-          if (extra_gate[std::size_t(cd.pin)] > 0) built.gates.push_back(p);
+          if (sc.extra_gate[std::size_t(cd.pin)] > 0) built.gates.push_back(p);
           built.oxides |= oxides[std::size_t(p)];
         }
         built.refresh();
@@ -240,16 +248,13 @@ Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostMode
         double* row = fresh_row(p);
         for (int g = 0; g < ng; ++g) {
           if (!has_group(p, g)) continue;
-          double t;
-          if (merged) {
-            t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
-          } else {
-            t = a.term[a.row(a.slot_of_pin[std::size_t(p)], g) + std::size_t(s)];
-          }
+          double t = merged ? m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D)
+                            : a.term[a.row(a.slot_of_pin[std::size_t(p)], g) + std::size_t(s)];
           int f = m.feeding(s, g);
-          double& cell = row[std::size_t(g) * std::size_t(steps) + std::size_t(s)];
-          cell = f >= 0 ? t + row[std::size_t(g) * std::size_t(steps) + std::size_t(f)] : t;
-          if (!merged && cell != rows[std::size_t(p)][std::size_t(g) * std::size_t(steps) + std::size_t(s)]) moved = true;
+          const std::size_t at = std::size_t(g) * std::size_t(steps);
+          double& cell = row[at + std::size_t(s)];
+          cell = f >= 0 ? t + row[at + std::size_t(f)] : t;
+          if (!merged && cell != a.rows[std::size_t(p)][at + std::size_t(s)]) moved = true;
         }
       }
       const int only = merged ? -1 : group_comps[0];
@@ -259,77 +264,90 @@ Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostMode
         continue;
       }
       if (!merged) worst_net = std::max(worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)]);
-      for (std::size_t p = 0; p < all_pins; ++p)
-        car_view[p] = fresh_of[p] >= 0 ? fresh.data() + std::size_t(fresh_of[p]) * row_len : rows[p];
       es.clear();
-      st.entries(s, *group, merged, car_view.data(), oxides.data(), es);
+      entries(s, *group, merged, car_view.data(), oxides, es);
       if (detail) {
         before.clear();
-        for (int c : group_comps) st.entries(s, pool[std::size_t(c)], true, rows.data(), oxides.data(), before);
+        for (int c : group_comps) entries(s, pool[std::size_t(c)], true, a.rows.data(), oxides, before);
       }
       for (const Entry& e : es) {
         if (e.utilization > worst_change) worst_change = e.utilization;
-        if (!detail) continue;
-        const Entry* prior = nullptr;
-        for (const Entry& b : before)
-          if (b.measure == e.measure && b.kind == e.kind && b.oxide == e.oxide &&
-              (prior == nullptr || b.utilization > prior->utilization))
-            prior = &b;
-        if (group_comps.size() == 1 && prior != nullptr && prior->ratio == e.ratio && prior->limit == e.limit)
-          continue;
-        RatioChange rc{};
-        rc.after = {e.step, e.measure, e.kind, e.oxide, e.ratio, e.limit, e.utilization, e.gate};
-        rc.has_before = prior != nullptr;
-        rc.before_ratio = prior ? prior->ratio : 0.0;
-        rc.before_utilization = prior ? prior->utilization : 0.0;
-        const RuleSpec* rule = m.rule(e.step, e.measure, e.oxide);
-        rc.headroom_um2 = rule->headroom(e.limit, e.gate_um2, e.diff_um2, e.spent, e.conductor);
-        const LayerSpec& layer = m.deck.layers[std::size_t(e.step)];
-        rc.has_length = false;
-        if (layer.cut) {
-        } else if (e.measure == Measure::Area) {
-          if (layer.wire_width > 0) {
-            rc.has_length = true;
-            rc.headroom_length_um = rc.headroom_um2 / (double(layer.wire_width) / double(m.deck.dbu_per_micron));
-          }
-        } else if (layer.thickness_um > 0) {
-          rc.has_length = true;
-          rc.headroom_length_um = rc.headroom_um2 / (2.0 * layer.thickness_um);
-        }
-        out.changes.push_back(rc);
+        if (detail) record_change(e, before, group_comps.size() == 1, out);
       }
       worst_net = std::max(worst_net, worst_change);
     }
     worst_net = std::max(worst_net, a.worst_untouched(s, touched));
   }
+  for (int p : sc.fresh_pins) fresh_of[std::size_t(p)] = -1;
   for (int s = 0; s < steps; ++s) out.added_area_um2[std::size_t(s)] = double(added[std::size_t(s)]) * m.scale_area;
   out.worst_change_utilization = worst_change;
   out.worst_utilization = worst_net;
   out.legal = is_legal(worst_net);
   out.breaks_limit = !is_legal(worst_change);
-  out.cost = costs.cost(worst_change);
+}
+
+// The change record of an after-entry, unless it is the same component's same figure as
+// before (a merge of several components always counts as a change).
+void Net::State::record_change(const Entry& e, const std::vector<Entry>& before, bool one_predecessor,
+                               Score& out) const {
+  const Entry* prior = nullptr;
+  for (const Entry& b : before)
+    if (b.measure == e.measure && b.kind == e.kind && b.oxide == e.oxide &&
+        (prior == nullptr || b.utilization > prior->utilization))
+      prior = &b;
+  if (one_predecessor && prior != nullptr && prior->ratio == e.ratio && prior->limit == e.limit) return;
+  RatioChange rc{};
+  rc.after = {e.step, e.measure, e.kind, e.oxide, e.ratio, e.limit, e.utilization, e.gate};
+  rc.has_before = prior != nullptr;
+  rc.before_ratio = prior ? prior->ratio : 0.0;
+  rc.before_utilization = prior ? prior->utilization : 0.0;
+  const RuleSpec* rule = m.rule(e.step, e.measure, e.oxide);
+  rc.headroom_um2 = rule->headroom(e.limit, e.gate_um2, e.diff_um2, e.spent, e.conductor);
+  const LayerSpec& layer = m.deck.layers[std::size_t(e.step)];
+  rc.has_length = false;
+  if (!layer.cut && e.measure == Measure::Area && layer.wire_width > 0) {
+    rc.has_length = true;
+    rc.headroom_length_um = rc.headroom_um2 / (double(layer.wire_width) / double(m.deck.dbu_per_micron));
+  } else if (!layer.cut && e.measure == Measure::Side && layer.thickness_um > 0) {
+    rc.has_length = true;
+    rc.headroom_length_um = rc.headroom_um2 / (2.0 * layer.thickness_um);
+  }
+  out.changes.push_back(rc);
+}
+
+Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostModel& costs,
+                 const PinSpec* extra, std::size_t n_extra) const {
+  Score out;
+  s_->what_if(shapes, n, extra, n_extra, detail, out);
+  out.cost = costs.cost(out.worst_change_utilization);
   return out;
 }
 
 void Net::score_batch(const Shape* shapes, std::size_t n_shapes, const i64* counts, std::size_t n_candidates,
                       const CostModel& costs, double* worst_change, double* worst, std::uint8_t* legal,
                       std::uint8_t* breaks, double* cost, double* added_um2) const {
+  std::size_t total = 0;
+  for (std::size_t i = 0; i < n_candidates; ++i) {
+    const i64 take = counts ? counts[i] : 1;
+    if (take <= 0) throw std::invalid_argument("shape_count: a candidate needs at least one shape");
+    total += std::size_t(take);
+  }
+  if (total != n_shapes) throw std::invalid_argument("shape_count: counts do not match the rows");
+  Score sc;
   std::size_t at = 0;
   for (std::size_t i = 0; i < n_candidates; ++i) {
-    std::size_t take = counts ? std::size_t(counts[i]) : 1;
-    if (take == 0 || at + take > n_shapes) throw std::invalid_argument("shape_count: counts do not match the rows");
-    Score sc = score(shapes + at, take, false, costs);
+    const std::size_t take = counts ? std::size_t(counts[i]) : 1;
+    s_->what_if(shapes + at, take, nullptr, 0, false, sc);
     at += take;
     worst_change[i] = sc.worst_change_utilization;
     worst[i] = sc.worst_utilization;
     legal[i] = sc.legal;
     breaks[i] = sc.breaks_limit;
-    cost[i] = sc.cost;
-    double total = 0.0;
-    for (double v : sc.added_area_um2) total += v;
-    added_um2[i] = total;
+    cost[i] = costs.cost(sc.worst_change_utilization);
+    double sum = 0.0;
+    for (double v : sc.added_area_um2) sum += v;
+    added_um2[i] = sum;
   }
-  if (at != n_shapes) throw std::invalid_argument("shape_count: counts do not match the rows");
 }
 
 }  // namespace etchguard

@@ -3,6 +3,8 @@
 Definitions (the project's reading of the contract, antenna-model.md, "Where can it go
 instead?"). A request is a straight run R on routing layer L: centre line P..F, width w,
 rectangle ``run_rect(P, F, w)`` (extended w//2 past each end). Everything is integer DBU.
+The net is read only through its ``NetView`` (``_netview``): exact what-if scores,
+contacts, nearby rectangles and its offences; no ratio is computed here.
 
 * Joining end. The end whose end square ``run_rect(E, E, w)`` connects to an element of
   the net (a committed shape or a pin, by the contract's contact rules, on L or through
@@ -18,7 +20,7 @@ rectangle ``run_rect(P, F, w)`` (extended w//2 past each end). Everything is int
   Candidates are the routing layers of L's preferred direction (any direction when the
   request allows non-preferred use) inside the net's layer range, L excluded, ranked
   by |L' - L|, upward first on a tie, then by fewest cuts. Each is scored exactly by the
-  what-if engine (every step) and checked against the design's obstacle index.
+  net's view (every step) and checked against the design's obstacle index.
 * Jumper with kept length l (0 <= l < |F - P|), hop point Q = P + l * dir and hop layer
   T: ``run_rect(P, Q, w) on L + S(Q, L, T) + run_rect(Q, F, w') on T + S(F, T, L)``;
   T is the best hop layer found (the first legal and free one, else the first free one;
@@ -36,9 +38,9 @@ Search methods, and what they rest on:
 * Jumper. Let u(l) be the net's worst utilization with the jumper of length l. Every
   shape edge of the jumper either stays or moves with l at unit speed. Between two
   "events" (values of l at which a moving edge passes a coordinate of one of the net's
-  own elements near the run, +-1 for the strict/closed contact tests) nothing changes
-  in connectivity and every union area and perimeter is affine in l (the slab swept
-  per DBU is fixed). Gate and diffusion sums are then constant, so each partial ratio
+  own rectangles near the run, ``NetView.near``, +-1 for the strict/closed contact
+  tests) nothing changes in connectivity and every union area and perimeter is affine
+  in l (the slab swept per DBU is fixed). Gate and diffusion sums are then constant, so each partial ratio
   ``max(0, f*A - k*D) / G_eff`` is a convex function of l, each cumulative ratio a sum
   of such, and each limit is constant: u, a maximum of convex functions divided by
   positive constants, is convex on every event interval. Its legal set there is an
@@ -48,8 +50,8 @@ Search methods, and what they rest on:
   overshoots the legal side), tangent steps (the tangent lies below, so it bounds the
   illegal side) and bisection finds the last legal DBU; with both ends illegal a
   ternary search for the minimum of the convex u decides whether any point is legal.
-  Every value comes from the engine's exact what-if score, so the answer is tight by
-  construction: l + 1 DBU is illegal (or l is ``hop_room``).
+  Every value comes from the view's exact what-if score (``NetView.score``), so the
+  answer is tight by construction: l + 1 DBU is illegal (or l is ``hop_room``).
   The first method tried on each interval is faster: within an interval every area is
   affine in l, so u is convex and piecewise linear. From the right end, the line
   through u at x - 1 and x bounds u from below left of x - 1 (convexity); past its
@@ -59,29 +61,32 @@ Search methods, and what they rest on:
   score of the next DBU; the bisection search above is the fallback whenever that
   confirmation fails, a utilization is not finite, or eight steps do not settle it
   (``_last_legal_by_tangents``).
-* Diode. Adding D only changes components that hold g. On them G_eff = G + k_gate*D
-  and A_eff = max(0, f*A - k_credit*D) make every partial ratio, and every cumulative
-  ratio (a sum of such terms), a convex non-increasing function of D > 0 (a
-  linear-fractional function (a - bD)/(c + dD) with a, b, c, d >= 0 is convex, and so is
-  its maximum with 0). The limits are piecewise linear in D (diode tables, shifted by
-  the diffusion the component already has) and may fall as well as rise; so legality
-  need not be monotone in D. Between the table breakpoints the limits are affine, so
-  ``h(D) = max_i (ratio_i(D) - limit_i(D))`` (no tolerance: the answer is legal outright) is convex per segment and its
-  legal set is an interval. Segments are scanned upward: a legal left end is the
-  answer; otherwise a legal right end brackets a bisection; otherwise a golden-section
-  search for the segment's minimum decides. Beyond the last breakpoint the limits are
-  constant and h is non-increasing: a doubling search up to ``MAX_DIODE_UM2`` and a
-  bisection finish it. D = 0+ is a point of its own: with D > 0 the tables replace
-  the plain maxima and ``factor_with_diode_only`` switches the area factor on. No
-  diode suffices when a violation lies in a component g never joins, or when, at the
-  largest D considered, a check still fails (a table that flattens below a ratio the
-  diode cannot lower when k_gate = k_credit = 0); the reason names the check.
-  Closed form, tried first: when no rule a check uses at the diode's components has
-  k_gate or k_credit, every ratio is the same for all D > 0 and only the limits move.
-  The least legal D is then tiny D or the first upward crossing of a check's ratio by
-  its (shifted) table, solved on that table segment, at which every check holds; none
-  holding means no D is legal. It is confirmed by the exact evaluation; otherwise the
-  search decides (``_DiodeModel._closed_form``).
+* Diode. Each trial D is scored exactly by the net's view (``NetView.score`` of the
+  run with a trial diode pin of D: nothing here computes a ratio). Adding D changes
+  only the components that hold g; on them, with a rule's factors, G_eff = G +
+  k_gate*D and A_eff = max(0, f*A - k_credit*D) make every partial ratio, and every
+  cumulative ratio (a sum of such terms), a convex non-increasing function of D > 0
+  (a linear-fractional function (a - bD)/(c + dD) with a, b, c, d >= 0 is convex, and
+  so is its maximum with 0); every other ratio is a constant. The limits are
+  piecewise linear in D (diode tables, shifted by the diffusion the component already
+  has, ``NetView.pin_diffusion``) and may fall as well as rise; so legality need not
+  be monotone in D. Between the table breakpoints the limits are affine, so
+  ``h(D) = max over changed ratios of (ratio - limit)`` (no tolerance: the answer is
+  legal outright) is convex per segment and its legal set is an interval. Segments
+  are scanned upward: a legal left end is the answer; otherwise a legal right end
+  brackets the crossing, found by regula falsi with the Illinois modification
+  (Dowell and Jarratt, BIT 11, 1971) safeguarded by bisection; otherwise a
+  golden-section search (Kiefer, Proc. AMS 4, 1953) for the segment's minimum decides,
+  after a test that the tangents at the ends can reach 0 at all. Beyond the last
+  breakpoint the limits are constant and h is non-increasing: h at ``MAX_DIODE_UM2``
+  decides whether any D there is legal, then a doubling search and the same root
+  finder find the least. D = 0+ (``TINY_DIODE_UM2``) is a point of its own: with
+  D > 0 the tables replace the plain maxima and ``factor_with_diode_only`` switches
+  the area factor on. No diode suffices when a
+  failing check lies in a component g never joins (every changed ratio holds, the net
+  does not), or when, at the largest D considered, a changed ratio still exceeds its
+  limit (a table that flattens below a ratio the diode cannot lower when k_gate =
+  k_credit = 0); the reason names the check.
 
 Answers asked for (``want``, a subset of ``ANSWERS``): without "hop" the layer options
 are not reported; when the jumper needs its hop layer they are scored nearest first
@@ -95,15 +100,13 @@ import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
-from ._assess import Assessment, comp_entries
 from ._errors import InputError
 from ._geometry import COORD_LIMIT, Rect, run_rect
-from ._netstate import Comp, NetState
-from ._nets import Shape, via_shapes
+from ._netview import NetView
+from ._nets import Pin, Shape, via_shapes
 from ._obstacles import Conflict, ObstacleIndex
-from ._ratios import TOLERANCE, is_legal, utilization
-from ._reports import Score
-from ._whatif import CostModel, score
+from ._ratios import TOLERANCE, is_legal
+from ._reports import RatioChange, Score
 
 MAX_DIODE_UM2 = 1.0e6  # a square millimetre: beyond any cell diode, the search stops there
 DIODE_REL_PRECISION = 1e-9  # relative width of the final bisection bracket
@@ -294,37 +297,36 @@ class _Run:
 # -- the advice -------------------------------------------------------------------------
 
 class _Advisor:
-    # False: the searches alone, without the closed forms (tests and the bench compare)
+    # False: the jumper's bisection search alone, without the secant steps (tests and
+    # the bench compare)
     tangent_search = True
-    diode_closed_form = True
 
-    def __init__(self, net: str, state: NetState, assessment: Assessment, costs: CostModel,
-                 obstacles: ObstacleIndex | None, layer_range: tuple[int, int] | None,
-                 req: AdviceRequest) -> None:
-        self.net, self.state, self.assessment, self.costs = net, state, assessment, costs
-        self.model = state.model
-        self.deck = state.model.deck
+    def __init__(self, net: str, view: NetView, obstacles: ObstacleIndex | None,
+                 layer_range: tuple[int, int] | None, req: AdviceRequest) -> None:
+        self.net, self.view = net, view
+        self.deck = view.deck
+        self.steps = len(view.deck.layers)
         self.obstacles = obstacles
         self.layer_range = layer_range
         self.req = req
         self.rect = run_rect(req.x1, req.y1, req.x2, req.y2, req.width)
         self.scores = 0
 
-    def score(self, shapes: list[Shape], detail: bool = True) -> Score:
+    def score(self, shapes: list[Shape], detail: bool = True, extra_pins: Sequence[Pin] = ()) -> Score:
         self.scores += 1
-        return score(self.state, self.assessment, shapes, self.costs, detail)
+        return self.view.score(shapes, detail, extra_pins)
 
     # joining end ----------------------------------------------------------------------
 
     def join_end(self) -> tuple[bool | None, bool]:
         """(True: (x1, y1) joins, False: (x2, y2) joins, None: neither), and whether the
         joining contact reaches a gate."""
-        req, state = self.req, self.state
-        top = self.model.steps - 1
+        req, view = self.req, self.view
+        top = self.steps - 1
         found = []
         for x, y in ((req.x1, req.y1), (req.x2, req.y2)):
-            touches = state.touching(req.layer, run_rect(x, y, x, y, req.width))
-            gate = any(state.comp_at[top][e].gate > 0 for e, _ in touches)
+            touches = view.touching(req.layer, run_rect(x, y, x, y, req.width))
+            gate = any(view.reaches_gate(e, top) for e, _ in touches)
             found.append((bool(touches), gate))
         if not found[0][0] and not found[1][0]:
             return None, False
@@ -427,7 +429,7 @@ class _Advisor:
         at0 = self.jumper_shapes(run, 0, target)
         at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
         end = self.jumper_shapes(run, room, target)
-        state = self.state
+        layers = self.deck.layers
         out = {0, room}
         for s0, s1, s2 in zip(at0, at1, end):
             moving = [s0.rect[k] for k in (ax, ax + 2) if s1.rect[k] != s0.rect[k]]
@@ -436,15 +438,11 @@ class _Advisor:
             swept = (min(s0.rect[0], s2.rect[0]) - 1, min(s0.rect[1], s2.rect[1]) - 1,
                      max(s0.rect[2], s2.rect[2]) + 1, max(s0.rect[3], s2.rect[3]) + 1)
             for layer in (s0.layer - 1, s0.layer, s0.layer + 1):
-                if not 0 <= layer < self.model.steps:
+                if not 0 <= layer < self.steps:
                     continue
-                if layer != s0.layer and self.model.is_cut[layer] == self.model.is_cut[s0.layer]:
+                if layer != s0.layer and layers[layer].is_routing == layers[s0.layer].is_routing:
                     continue
-                for _e, r in state.index[layer].near(swept):
-                    if r[cross] > swept[cross + 2] or swept[cross] > r[cross + 2]:
-                        continue
-                    if r[ax] > swept[ax + 2] or swept[ax] > r[ax + 2]:
-                        continue
+                for r in self.view.near(layer, swept):
                     for c in (r[ax], r[ax + 2]):
                         for e0 in moving:
                             base = run.dir * (c - e0)
@@ -484,13 +482,12 @@ class _Advisor:
                 detailed.add(kept)
             return cache[kept]
 
-        best = None
+        best: int | None = None
         points = self.events(run, target, room)
         for a, b in reversed(list(zip(points, points[1:])) or [(points[0], points[0])]):
-            best = (_last_legal_by_tangents(at, a, b, at_detail) if self.tangent_search
-                    else NEEDS_FALLBACK)
-            if best is NEEDS_FALLBACK:
-                best = _last_legal_in(at, a, b)
+            found = (_last_legal_by_tangents(at, a, b, at_detail) if self.tangent_search
+                     else NEEDS_FALLBACK)
+            best = _last_legal_in(at, a, b) if isinstance(found, _Fallback) else found
             if best is not None:
                 break
         if best is None:
@@ -509,27 +506,25 @@ class _Advisor:
     # diode ----------------------------------------------------------------------------
 
     def diode(self, as_is: Score) -> DiodeAdvice:
-        state = self.state
-        names = {p.name: i for i, p in enumerate(state.pins)}
+        pins = self.view.pins
+        names = {p.name: i for i, p in enumerate(pins)}
         order: list[int] = []
         for c in sorted(as_is.changes, key=lambda c: -c.utilization):
             if not is_legal(c.utilization) and c.gate in names and names[c.gate] not in order:
                 order.append(names[c.gate])
         if not order:  # the run breaks nothing itself: the violation was there before
-            for s in range(self.model.steps):
-                for util, comp in self.assessment.ranked[s]:
-                    if not is_legal(util):
-                        for p in comp.gates:
-                            if p not in order:
-                                order.append(p)
+            for o in sorted(self.view.offences(), key=lambda o: (o.step, -o.utilization)):
+                for p in o.pins:
+                    if pins[p].total_gate_area > 0 and p not in order:
+                        order.append(p)
         if not order:
             return DiodeAdvice(False, "no violated check has a gate to protect")
-        model = _DiodeModel(self.state, self.assessment, self.req.layer, self.rect)
+        run = [Shape(self.req.layer, self.rect)]
         best: DiodeAdvice | None = None
         reasons = []
         for p in order[:MAX_DIODE_PLACEMENTS]:
-            found = model.smallest(p, self.diode_closed_form)
-            pin = state.pins[p]
+            found = _DiodeSearch(self, run, p).smallest()
+            pin = pins[p]
             if isinstance(found, str):
                 reasons.append(f"at {pin.name}: {found}")
                 continue
@@ -604,7 +599,7 @@ class _Advisor:
             return (f"{lname} would reach {c.ratio:.4g} of {c.limit:.4g} ({c.kind} {c.measure}, "
                     f"{c.oxide} oxide) at step {c.layer} on the gate side of {c.gate}")
         return (f"the net is over a limit already, before this run "
-                f"(worst {_pct(max(self.assessment.step_worst, default=0.0))}); "
+                f"(worst {_pct(max((self.view.worst_at(s) for s in range(self.steps)), default=0.0))}); "
                 f"no layer choice for the run can fix that")
 
     @staticmethod
@@ -658,11 +653,10 @@ def _pt(p: Point) -> str:
     return f"({p[0]}, {p[1]})"
 
 
-def advise(net: str, state: NetState, assessment: Assessment, costs: CostModel,
-           obstacles: ObstacleIndex | None, layer_range: tuple[int, int] | None,
-           req: AdviceRequest) -> Advice:
-    """The advice for one run (the caller holds the net's lock)."""
-    return _Advisor(net, state, assessment, costs, obstacles, layer_range, req).advise()
+def advise(net: str, view: NetView, obstacles: ObstacleIndex | None,
+           layer_range: tuple[int, int] | None, req: AdviceRequest) -> Advice:
+    """The advice for one run (the caller holds the net's lock while the view is used)."""
+    return _Advisor(net, view, obstacles, layer_range, req).advise()
 
 
 # -- jumper search on one event interval ---------------------------------------------------
@@ -780,275 +774,99 @@ def _last_legal(at: Callable[[int], Score], lo: int, hi: int) -> int:
     return lo
 
 
-# -- diode: the run's components with a parametric diffusion -------------------------------
+# -- diode: exact scores of the net, the run and a trial diode --------------------------
 
-class _DiodeModel:
-    """Checks of the net plus the run as functions of a diode's diffusion D at one pin.
+TINY_DIODE_UM2 = 1e-12  # D = 0+, the smallest diode tried: any D > 0 switches the tables on
 
-    Built from the net's state without changing it: the run (one rectangle) merges, at
-    each step s >= its layer, the components it touches into one (as the what-if does);
-    components that hold neither the run nor the diode keep their assessed checks.
-    """
 
-    def __init__(self, state: NetState, assessment: Assessment, layer: int, rect: Rect) -> None:
-        self.state, self.assessment = state, assessment
-        model = self.model = state.model
-        steps = model.steps
-        touches = state.touching(layer, rect)
-        self.layer = layer
-        self.merged_from: list[set[Comp]] = [set() for _ in range(steps)]
-        self.merged: list[Comp | None] = [None] * steps
-        routed = state.routed_on(layer, touches)
-        local = state.local_delta(rect, routed, layer)
-        for s in range(layer, steps):
-            comps = {state.comp_at[s][e] for e, joined in touches if joined <= s}
-            group = Comp()
-            for c in comps:  # aggregates only: members are not needed
-                group.gate += c.gate
-                for ox, g in c.gate_ox.items():
-                    group.gate_ox[ox] = group.gate_ox.get(ox, 0.0) + g
-                group.diff += c.diff
-                group.area += c.area
-                group.perim += c.perim
-                group.cell += c.cell
-                group.gates.extend(c.gates)
-            if s == layer:
-                group.area += local[0]
-                group.perim += local[1]
-            self.merged_from[s] = comps
-            self.merged[s] = group
+class _DiodeSearch:
+    """The smallest diode at one gate pin, each trial D scored exactly by the view (the
+    net plus the run plus a diode pin of D um^2 on the gate's layer and rectangles);
+    the method is the module docstring's."""
 
-    def post(self, element: int, s: int) -> Comp | None:
-        c = self.state.comp_at[s].get(element)
-        if c is not None and s >= self.layer and c in self.merged_from[s]:
-            return self.merged[s]
-        return c
+    def __init__(self, advisor: _Advisor, run: list[Shape], pin: int) -> None:
+        self.advisor, self.run, self.pin = advisor, run, pin
+        self.seen: dict[float, tuple[float, Score]] = {}  # a D is scored once
 
-    def smallest(self, p: int, closed_form: bool = True) -> tuple[float, float] | str:
-        """(D, worst utilization) of the smallest diode at pin p, or why there is none.
-        ``closed_form=False`` skips the closed form (tests compare it with the search)."""
-        state, model, assessment = self.state, self.model, self.assessment
-        deck = model.deck
-        steps = model.steps
-        anchor = state.anchor_of_pin
-        pins_ox = assessment.pins_ox
-        lp = state.pins[p].layer
-        site: list[Comp | None] = [self.post(anchor[p], s) if s >= lp else None for s in range(steps)]
+    def evaluate(self, D: float) -> tuple[float, Score]:
+        """(h(D), the score): h is the most by which a changed ratio exceeds its limit.
+        No tolerance here: the answer satisfies ratio <= limit outright, so every reader
+        of the contract (whatever its rounding) finds it legal."""
+        got = self.seen.get(D)
+        if got is None:
+            gate = self.advisor.view.pins[self.pin]
+            diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.rects, {}, D, {})
+            result = self.advisor.score(self.run, True, [diode])
+            h = max((c.ratio - c.limit for c in result.changes), default=-math.inf)
+            got = self.seen[D] = (h, result)
+        return got
 
-        def car_terms(q: int, gi: int) -> list[tuple[int, Comp, bool]]:
-            out = []
-            for t in range(state.pins[q].layer, steps):
-                c = self.post(anchor[q], t)
-                out.append((t, c, c is site[t]))  # type: ignore[arg-type]
-            return out
+    def h(self, D: float) -> float:
+        return self.evaluate(D)[0]
 
-        # checks that do not depend on D
-        fixed = 0.0
-        fixed_where = ""
-        for s in range(steps):
-            excluded: set[Comp] = set(self.merged_from[s]) if s >= self.layer else set()
-            if s >= lp:
-                excluded.add(state.comp_at[s][anchor[p]])
-            w = assessment.worst_untouched(s, excluded)
-            group = self.merged[s] if s >= self.layer else None
-            if group is not None and group.gate > 0 and group is not site[s]:
-                for e in comp_entries(model, s, group, self._cars_at(group, s), pins_ox):
-                    w = max(w, e.utilization)
-            if w > fixed:
-                fixed, fixed_where = w, deck.layers[s].name
-        if not is_legal(fixed):
-            return (f"a check at step {fixed_where} ({_pct(fixed)}) lies in a component "
-                    f"the pin never joins")
+    def breakpoints(self) -> list[float]:
+        """Values of D > 0 at which a limit of the diode's components may bend: every
+        point of a diode table of a rule at a step the pin exists at, less the diffusion
+        its component already has there with the run (a superset does no harm: it only
+        splits a segment)."""
+        diffusion = self.advisor.view.pin_diffusion(self.pin, self.run)
+        cuts: set[float] = set()
+        for rule in self.advisor.deck.rules:
+            d = diffusion[rule.step]
+            if d is not None:
+                for table in (rule.diode_partial_max, rule.diode_cumulative_max):
+                    cuts.update(x - d for x, _y in table)
+        return sorted(c for c in cuts if c > TINY_DIODE_UM2)
 
-        # checks that do: the site's component at every step from the pin's layer on
-        terms = {}
-        checks: list[tuple[int, object]] = []
-        breakpoints: set[float] = set()
-        for s in range(lp, steps):
-            c = site[s]
-            if c is None or c.gate <= 0:
-                continue
-            for key in model.partial_checks[s]:
-                if key.oxide in c.gate_ox:
-                    checks.append((s, ("p", key, model.conductor(s, key.measure, c.area, c.cell, c.perim))))
-                    breakpoints.update(x - c.diff for x, _ in key.rule.diode_partial_max)
-            for key in model.cumulative_checks[s]:
-                if key.oxide not in c.gate_ox:
-                    continue
-                gi = model.group_index[(key.measure, key.oxide)]
-                for q in c.gates:
-                    if key.oxide in pins_ox[q]:
-                        if (q, gi) not in terms:
-                            terms[(q, gi)] = car_terms(q, gi)
-                        checks.append((s, ("c", key, (q, gi))))
-                breakpoints.update(x - c.diff for x, _ in key.rule.diode_cumulative_max)
-        if not checks:
-            return "the pin's component has no check a diode could change"
-
-        def evaluate(D: float) -> tuple[float, float, str]:
-            """(h, worst utilization, which check is worst by h)."""
-            cars = _cars_with_diode(model, terms, D)
-            h, worst, which = -math.inf, fixed, ""
-            for s, (kind, key, extra) in checks:  # type: ignore[misc]
-                c = site[s]
-                diff = c.diff + D  # type: ignore[union-attr]
-                if kind == "p":
-                    ratio = key.rule.ratio(extra, c.gate, diff)  # type: ignore[union-attr]
-                    limit = key.rule.partial_limit(diff)
-                else:
-                    ratio = cars[extra][s]
-                    limit = key.rule.cumulative_limit(diff)
-                # no tolerance here: the answer satisfies ratio <= limit outright, so every
-                # reader of the contract (whatever its rounding) finds it legal
-                g = ratio - limit
-                worst = max(worst, utilization(ratio, limit))
-                if g > h:
-                    h, which = g, (f"{key.kind} {key.measure} at step {deck.layers[s].name}: "
-                                   f"ratio {ratio:.4g} against a limit of {limit:.4g}")
-            return h, worst, which
-
-        tiny = 1e-12
-        if closed_form:
-            found = self._closed_form(checks, terms, site, evaluate, tiny)
-            if found is not None:
-                return found
-        cuts = sorted(b for b in breakpoints if b > tiny)
-        segments = list(zip([tiny] + cuts, cuts + [math.inf]))
-        for lo, hi in segments:
-            hlo = evaluate(lo)[0]
-            if hlo <= 0:
-                return lo, evaluate(lo)[1]
-            if math.isinf(hi):
+    def smallest(self) -> tuple[float, float] | str:
+        """(D, worst utilization) of the smallest legal diode, or why there is none."""
+        h = self.h
+        cuts = self.breakpoints()
+        for lo, hi in zip([TINY_DIODE_UM2] + cuts, cuts + [math.inf]):
+            if lo > MAX_DIODE_UM2:
+                break
+            if h(lo) <= 0:
+                return self._answer(lo)
+            if math.isinf(hi) or hi > MAX_DIODE_UM2:
+                # limits constant from here (or the search ends): h is non-increasing,
+                # so the largest D decides whether any is legal
+                if h(MAX_DIODE_UM2) > 0:
+                    return self._why_not()
                 probe = max(2.0 * lo, 1.0)
-                while evaluate(probe)[0] > 0:
-                    if probe >= MAX_DIODE_UM2:
-                        _, _, which = evaluate(MAX_DIODE_UM2)
-                        return self._why_not(which)
+                while h(probe) > 0:
                     probe = min(probe * 2.0, MAX_DIODE_UM2)
-                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, probe)
-                return d, evaluate(d)[1]
-            if evaluate(hi)[0] <= 0:
-                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, hi)
-                return d, evaluate(d)[1]
+                return self._answer(_bisect_left_edge(h, lo, probe))
+            if h(hi) <= 0:
+                return self._answer(_bisect_left_edge(h, lo, hi))
             # both ends illegal: the segment's convex minimum decides
-            if not _may_dip(lambda x: evaluate(x)[0], lo, hi):
+            if not _may_dip(h, lo, hi):
                 continue
-            m = _golden_min(lambda x: evaluate(x)[0], lo, hi)
-            if evaluate(m)[0] <= 0:
-                d = _bisect_left_edge(lambda x: evaluate(x)[0], lo, m)
-                return d, evaluate(d)[1]
-        return self._why_not(evaluate(MAX_DIODE_UM2)[2])
+            m = _golden_min(h, lo, hi)
+            if h(m) <= 0:
+                return self._answer(_bisect_left_edge(h, lo, m))
+        return self._why_not()
 
-    def _closed_form(self, checks: list[tuple[int, object]], terms: dict, site: list[Comp | None],
-                     evaluate: Callable[[float], tuple[float, float, str]], tiny: float
-                     ) -> tuple[float, float] | str | None:
-        """The smallest legal D without a search, when no check's ratio depends on D.
+    def _answer(self, D: float) -> tuple[float, float] | str:
+        result = self.evaluate(D)[1]
+        if not result.legal:  # every changed ratio holds: what fails lies elsewhere
+            return self._elsewhere(result)
+        return D, result.worst_utilization
 
-        With k_gate = k_credit = 0 in every rule a check's terms at the diode's
-        components use, a ratio is the same for every D > 0 (for D > 0 the area factor
-        is the rule's, whatever ``factor_with_diode_only`` says); only the limits move,
-        piecewise linearly. A check's legal set is then where its limit table, shifted
-        by the component's own diffusion, is >= its ratio: a union of intervals whose
-        left edges are tiny D or upward crossings of the ratio, each solved on its
-        table segment. The overall legal set is their intersection; its least point is
-        tiny D or one of those crossings, the first of them (ascending) at which every
-        check holds; when none holds every check, no D does (the reason is returned).
-        The point is confirmed by the exact evaluation (rounded up by a few ulps where
-        the crossing's rounding lands just short). None: a ratio moves with D, the
-        least point lies beyond ``MAX_DIODE_UM2``, or the confirmation fails; the search
-        then decides.
-        """
-        model = self.model
-        for s, (kind, key, extra) in checks:  # type: ignore[misc]
-            if kind == "p":
-                if key.rule.diode_area_credit or key.rule.diode_gate_factor:  # type: ignore[union-attr]
-                    return None
-            else:
-                q, gi = extra  # type: ignore[misc]
-                for t, _c, has in terms[(q, gi)]:
-                    rule = model.term_rule[t][gi]
-                    if has and rule is not None and (rule.diode_area_credit or rule.diode_gate_factor):
-                        return None
-        # the ratios at any D > 0: evaluate's own arithmetic at tiny D
-        ratios = self._ratios_at(checks, terms, site, tiny)
-        candidates = {tiny}
-        limits = []
-        for (s, (kind, key, _extra)), r in zip(checks, ratios):  # type: ignore[misc]
-            rule = key.rule  # type: ignore[union-attr]
-            table = rule.diode_partial_max if kind == "p" else rule.diode_cumulative_max
-            limit = rule.partial_limit if kind == "p" else rule.cumulative_limit
-            diff = site[s].diff  # type: ignore[union-attr]
-            limits.append((limit, diff, r))
-            for (x0, y0), (x1, y1) in zip(table, table[1:]):
-                if y0 < r <= y1 and x1 > x0:
-                    d = (x0 - diff) + (r - y0) * (x1 - x0) / (y1 - y0)
-                    if d > tiny:
-                        candidates.add(d)
-        for d in sorted(candidates):
-            if d > MAX_DIODE_UM2:
-                return None
-            if all(r - limit(diff + d) <= 1e-12 * max(1.0, abs(r)) for limit, diff, r in limits):
-                for k in range(6):  # the crossing may round a hair short of the limit
-                    x = d * (1.0 + 2.0e-16 * 4 ** k) if k else d
-                    h, worst, _ = evaluate(x)
-                    if h <= 0:
-                        return x, worst
-                return None
-        # no candidate holds every check, so no D > 0 does (the least legal point would
-        # be one of them): the reason is the search's, the worst check at the largest D
-        return self._why_not(evaluate(MAX_DIODE_UM2)[2])
+    def _why_not(self) -> str:
+        h, result = self.evaluate(MAX_DIODE_UM2)
+        if h <= 0:
+            return self._elsewhere(result)
+        worst: RatioChange = max(result.changes, key=lambda c: c.ratio - c.limit)
+        return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {worst.kind} {worst.measure} at "
+                f"step {worst.layer}: ratio {worst.ratio:.4g} against a limit of {worst.limit:.4g}; "
+                f"the diode tables and factors of that rule do not reach it")
 
-    def _ratios_at(self, checks: list[tuple[int, object]], terms: dict, site: list[Comp | None],
-                   D: float) -> list[float]:
-        """Every check's ratio with a diode of D at the site (evaluate's arithmetic)."""
-        model = self.model
-        cars = _cars_with_diode(model, terms, D)
-        out = []
-        for s, (kind, key, extra) in checks:  # type: ignore[misc]
-            if kind == "p":
-                out.append(key.rule.ratio(extra, site[s].gate, site[s].diff + D))  # type: ignore[union-attr]
-            else:
-                out.append(cars[extra][s])  # type: ignore[index]
-        return out
-
-    @staticmethod
-    def _why_not(which: str) -> str:
-        return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {which}; the diode tables "
-                f"and factors of that rule do not reach it")
-
-    def _cars_at(self, group: Comp, s: int) -> dict[tuple[int, int], float]:
-        """Cumulative ratios at step s of the gates of a merged component (no diode in it)."""
-        state, model = self.state, self.model
-        out = {}
-        for q in group.gates:
-            for gi, (_m, ox) in enumerate(model.groups):
-                if ox not in self.assessment.pins_ox[q]:
-                    continue
-                total = 0.0
-                lane = model.lane[s]
-                for t in range(state.pins[q].layer, s + 1):
-                    if model.lane[t] != lane:
-                        continue
-                    c = self.post(state.anchor_of_pin[q], t)
-                    total += model.term(t, gi, c.area, c.cell, c.perim, c.gate, c.diff)  # type: ignore[union-attr]
-                out[(q, gi)] = total
-        return out
-
-
-def _cars_with_diode(model, terms: dict, D: float) -> dict[tuple[int, int], list[float]]:
-    """Cumulative sums per (gate, group) and step with a diode of D um^2 at the site:
-    ``terms`` lists, per (gate, group), the steps (t, component, diode-connected)."""
-    cars: dict[tuple[int, int], list[float]] = {}
-    for (q, gi), seq in terms.items():
-        row = [0.0] * model.steps
-        sums = [0.0, 0.0]
-        for t, c, has in seq:
-            lane = model.lane[t]
-            sums[lane] += model.term(t, gi, c.area, c.cell, c.perim, c.gate,
-                                     c.diff + (D if has else 0.0))
-            row[t] = sums[lane]
-        cars[(q, gi)] = row
-    return cars
+    def _elsewhere(self, result: Score) -> str:
+        # a check no trial diode changes has the figures it has as held: find it there
+        where = next((f" at step {self.advisor.deck.layers[o.step].name}"
+                      for o in self.advisor.view.offences() if o.utilization == result.worst_utilization), "")
+        return (f"a check{where} ({_pct(result.worst_utilization)}) lies in a component "
+                f"the pin never joins")
 
 
 def _bisect_left_edge(h: Callable[[float], float], lo: float, hi: float) -> float:

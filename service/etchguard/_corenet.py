@@ -143,14 +143,6 @@ class CoreNet:
                         util <= 1.0 + 1e-9, self.pins[g].name)
             for s, m, k, o, ratio, limit, util, g in checks))
 
-    def offences(self) -> list[tuple[CheckResult, tuple[int, ...], tuple[int, ...]]]:
-        """Every failing check of every component: (check, member shape ids, member pins),
-        by step, worst first."""
-        layers = self.deck.layers
-        return [(CheckResult(layers[s].name, s, MEASURES[m], KINDS[k], self.compiled.oxides[o], ratio, limit,
-                             util, False, self.pins[g].name), tuple(shape_ids), tuple(pins))
-                for s, m, k, o, ratio, limit, util, g, shape_ids, pins in self.net.offences()]
-
     def headroom(self, layer: int, x: int, y: int) -> Headroom:
         found, area, side, length, step, kind, measure, oxide, gate = self.net.headroom(layer, x, y)
         name = self.deck.layers[layer].name

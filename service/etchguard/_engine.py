@@ -20,18 +20,16 @@ from typing import TypeVar
 import numpy as np
 
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
-from ._assess import Assessment
 from ._columns import BatchScores, checked_columns
 from ._corenet import CompiledDeck, CoreNet, compile_deck
+from ._coreview import CoreView
 from ._costs import CostModel
 from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
                          NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from ._geometry import Rect, checked_rect as _checked_rect
-from ._netstate import NetState
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
-from ._ratios import StepModel
 from ._reports import Headroom, NetReport, Score
 from ._rules import Deck, loads_deck as _loads_deck
 
@@ -374,9 +372,8 @@ class Engine:
                                         want)
         net = self._net(name)
         with net.lock:
-            state = _python_state(self.deck, net)
-            result = _advise(name, state, Assessment(state), self.costs, self._obstacles,
-                             net.layer_range, request)
+            view = CoreView(name, net.core, self.costs)
+            result = _advise(name, view, self._obstacles, net.layer_range, request)
         self.counters["scores"] += 1
         return result
 
@@ -436,9 +433,3 @@ def _core_net(compiled: CompiledDeck, pins: Sequence[Pin],
     core.add(list(shapes), [Shape(v[0], v[1:]) for v in shapes.values()])  # type: ignore[arg-type]
     return core
 
-
-def _python_state(deck: Deck, net: _Net) -> NetState:
-    state = NetState(StepModel(deck), net.pins)
-    for sid, layer, *rect in net.core.shape_rows():
-        state.add_shape(sid, layer, tuple(rect))  # type: ignore[arg-type]
-    return state

@@ -16,10 +16,10 @@ Page content:
 Figures are drawn with matplotlib (``Agg``, SVG output) and inlined as ``<svg>``
 elements; the page loads no script, font or stylesheet from anywhere.
 
-The offending component of a violating check (layer, measure, kind, oxide) is found
-by rebuilding the net's ``NetState`` from its spec and reading the ``Assessment``
-entries at that step: every component whose entry for that check is over its limit.
-This reads the engine's state; it changes nothing in it.
+The offending components of a violating check (layer, measure, kind, oxide) are the
+net's offences (``NetView.offences``, see ``_netview``) of that check: every component
+whose figure for it is over its limit at that step, with its shapes and pins. The view
+is opened on the net's spec (shapes in spec order); nothing held is changed.
 """
 
 from __future__ import annotations
@@ -33,10 +33,9 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TextIO
 
-from ._assess import Assessment
-from ._netstate import NetState
 from ._nets import NetSpec
-from ._ratios import StepModel, is_legal
+from ._netview import NetView
+from ._ratios import is_legal
 from ._reports import CheckResult, NetReport
 from ._rules import Deck
 
@@ -91,43 +90,32 @@ class Summary:
 
 
 class OffenderFinder:
-    """Finds, for a net spec, the components that break limits. One per deck."""
+    """Finds, for a net spec, the components that break limits. One per deck.
 
-    def __init__(self, deck: Deck) -> None:
+    ``open_view`` opens a ``NetView`` on a spec (shape indices in spec order); by
+    default the core's view (``_coreview``)."""
+
+    def __init__(self, deck: Deck, open_view: Callable[[NetSpec], NetView] | None = None) -> None:
         self.deck = deck
-        self.model = StepModel(deck)
-
-    def state(self, spec: NetSpec) -> NetState:
-        """The net's state with shape ids 1..n in spec order (id i+1 is spec.shapes[i])."""
-        state = NetState(self.model, spec.pins)
-        for i, shape in enumerate(spec.shapes):
-            state.add_shape(i + 1, shape.layer, shape.rect)
-        return state
+        if open_view is None:
+            from ._coreview import spec_views
+            open_view = spec_views(deck)
+        self.open_view = open_view
 
     def find(self, spec: NetSpec, check: CheckResult | None = None) -> list[Offender]:
         """Components over a limit: of one check (same step, measure, kind, oxide), or of
-        every check when ``check`` is None. Ordered by step, then worst first."""
-        state = self.state(spec)
-        assessment = Assessment(state)
+        every check when ``check`` is None. Ordered by step, then worst first (ties by
+        shapes and pins, so the order does not depend on how the view holds the net)."""
         layers = self.deck.layers
-        steps = range(self.model.steps) if check is None else [check.step]
-        out: list[Offender] = []
-        for step in steps:
-            found: list[Offender] = []
-            for comp, entries in assessment.entries[step].items():
-                for e in entries:
-                    if is_legal(e.utilization):
-                        continue
-                    if check is not None and (e.measure, e.kind, e.oxide) != (
-                            check.measure, check.kind, check.oxide):
-                        continue
-                    shapes = tuple(sorted(m - 1 for m in comp.members if m > 0))
-                    pins = tuple(sorted({state.pin_of[m] for m in comp.members if m < 0}))
-                    found.append(Offender(layers[step].name, step, e.measure, e.kind, e.oxide,
-                                          e.ratio, e.limit, e.utilization, state.pins[e.gate].name,
-                                          shapes, pins))
-            found.sort(key=lambda o: -o.utilization)
-            out.extend(found)
+        out = []
+        for o in self.open_view(spec).offences():
+            if check is not None and (o.step, o.measure, o.kind, o.oxide) != (
+                    check.step, check.measure, check.kind, check.oxide):
+                continue
+            out.append(Offender(layers[o.step].name, o.step, o.measure, o.kind, o.oxide, o.ratio,
+                                o.limit, o.utilization, spec.pins[o.gate].name, o.shapes, o.pins))
+        out.sort(key=lambda o: (o.step, -o.utilization, o.measure, o.kind, o.oxide,
+                                o.shape_indices, o.pin_indices))
         return out
 
 

@@ -216,9 +216,18 @@ class Net {
   // on a layer that meet a closed rectangle.
   std::vector<Toucher> touching(int layer, const Rect& r) const;
   bool reaches_gate(int element, int step) const;
+  // Per step, the diffusion area (um^2) of the component holding pin `pin` (NaN below
+  // the pin's layer).
+  std::vector<double> pin_diffusion(int pin) const;
   std::vector<Rect> near(int layer, const Rect& r) const;
-  // The shape id of an element, or -1 - pin index for a pin rectangle.
-  i64 element_shape_id(int element) const;
+  // What an element is: its layer, rectangle and shape id (-1 - pin index for a pin
+  // rectangle). Throws std::invalid_argument for an element the net does not hold.
+  struct ElementInfo {
+    int layer;
+    Rect rect;
+    i64 shape_id;
+  };
+  ElementInfo element(int element) const;
 
   std::size_t memory_bytes() const;  // approximate heap use of this net
 
