@@ -9,6 +9,7 @@
 #include <nanobind/stl/vector.h>
 
 #include <stdexcept>
+#include <string>
 
 #include "etchguard/core.hpp"
 
@@ -56,6 +57,36 @@ std::vector<Shape> shape_rows(const nb::ndarray<const int, nb::shape<-1>, nb::c_
   for (std::size_t i = 0; i < shapes.size(); ++i)
     shapes[i] = {layers.data()[i], {r[4 * i], r[4 * i + 1], r[4 * i + 2], r[4 * i + 3]}};
   return shapes;
+}
+
+// Shape objects (anything with an int `layer` and a tuple `rect` of four ints) read
+// straight from Python, without an intermediate list of tuples; bools and floats are
+// refused (TypeError naming the index), range and emptiness are the core's to check.
+i64 exact_int(PyObject* o, std::size_t i, const char* what) {
+  if (!PyLong_CheckExact(o)) throw nb::type_error(("shapes[" + std::to_string(i) + "]." + what + ": not an int").c_str());
+  int overflow = 0;
+  long long v = PyLong_AsLongLongAndOverflow(o, &overflow);
+  if (overflow) throw nb::value_error(("shapes[" + std::to_string(i) + "]." + what + ": outside int64").c_str());
+  return v;
+}
+
+std::vector<Shape> shape_objects(nb::handle seq) {
+  static nb::str layer_name("layer"), rect_name("rect");
+  nb::sequence items = nb::borrow<nb::sequence>(seq);
+  const std::size_t n = nb::len(items);
+  std::vector<Shape> out(n);
+  for (std::size_t i = 0; i < n; ++i) {
+    nb::object item = items[i];
+    nb::object layer = nb::getattr(item, layer_name);
+    nb::object rect = nb::getattr(item, rect_name);
+    if (!PyTuple_CheckExact(rect.ptr()) || PyTuple_GET_SIZE(rect.ptr()) != 4)
+      throw nb::type_error(("shapes[" + std::to_string(i) + "].rect: not a tuple of four ints").c_str());
+    PyObject* r = rect.ptr();
+    out[i] = {int(exact_int(layer.ptr(), i, "layer")),
+              {exact_int(PyTuple_GET_ITEM(r, 0), i, "rect"), exact_int(PyTuple_GET_ITEM(r, 1), i, "rect"),
+               exact_int(PyTuple_GET_ITEM(r, 2), i, "rect"), exact_int(PyTuple_GET_ITEM(r, 3), i, "rect")}};
+  }
+  return out;
 }
 
 void check_status(Status s) {
@@ -170,12 +201,9 @@ NB_MODULE(_core, m) {
           out.push_back({ids[i], layers[i], rects[i].xlo, rects[i].ylo, rects[i].xhi, rects[i].yhi});
         return out;
       })
-      .def("score", [](const Net& net, const std::vector<std::tuple<int, i64, i64, i64, i64>>& cands, bool detail,
+      .def("score", [](const Net& net, nb::handle cands, bool detail,
                        std::tuple<double, double, double, double, double> costs, const std::vector<PinTuple>& extra) {
-        std::vector<Shape> shapes;
-        shapes.reserve(cands.size());
-        for (const auto& c : cands)
-          shapes.push_back({std::get<0>(c), {std::get<1>(c), std::get<2>(c), std::get<3>(c), std::get<4>(c)}});
+        std::vector<Shape> shapes = shape_objects(cands);
         std::vector<PinSpec> pins = pin_specs(extra);
         CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
         Score sc;

@@ -23,9 +23,9 @@ void merge(std::vector<Interval>& v) {
 }
 
 // Length of (A xor B) for two sorted lists of disjoint intervals.
-i128 symmetric_difference(const std::vector<Interval>& a, const std::vector<Interval>& b) {
-  std::vector<std::pair<i64, int>> points;
-  points.reserve(2 * (a.size() + b.size()));
+i128 symmetric_difference(const std::vector<Interval>& a, const std::vector<Interval>& b,
+                          std::vector<std::pair<i64, int>>& points) {
+  points.clear();
   for (const auto& iv : a) { points.push_back({iv.first, 1}); points.push_back({iv.second, -1}); }
   for (const auto& iv : b) { points.push_back({iv.first, 1}); points.push_back({iv.second, -1}); }
   std::sort(points.begin(), points.end());
@@ -43,6 +43,11 @@ i128 symmetric_difference(const std::vector<Interval>& a, const std::vector<Inte
 }  // namespace
 
 Measures union_measures(const std::vector<Rect>& rects) {
+  SweepBuffers buffers;
+  return union_measures(rects, buffers);
+}
+
+Measures union_measures(const std::vector<Rect>& rects, SweepBuffers& b) {
   Measures m;
   if (rects.empty()) return m;
   if (rects.size() == 1) {
@@ -51,15 +56,17 @@ Measures union_measures(const std::vector<Rect>& rects) {
     m.perimeter = 2 * (i128(r.xhi - r.xlo) + i128(r.yhi - r.ylo));
     return m;
   }
-  std::vector<i64> xs;
-  xs.reserve(2 * rects.size());
+  auto& xs = b.xs;
+  auto &by_start = b.by_start, &active = b.active;
+  auto &previous = b.previous, &current = b.current;
+  xs.clear();
   for (const Rect& r : rects) { xs.push_back(r.xlo); xs.push_back(r.xhi); }
   std::sort(xs.begin(), xs.end());
   xs.erase(std::unique(xs.begin(), xs.end()), xs.end());
-  std::vector<Rect> by_start(rects);
+  by_start.assign(rects.begin(), rects.end());
   std::sort(by_start.begin(), by_start.end(), [](const Rect& a, const Rect& b) { return a.xlo < b.xlo; });
-  std::vector<Rect> active;
-  std::vector<Interval> previous, current;
+  active.clear();
+  previous.clear();
   std::size_t cursor = 0;
   for (std::size_t i = 0; i + 1 < xs.size(); ++i) {
     i64 x0 = xs[i], x1 = xs[i + 1];
@@ -74,7 +81,7 @@ Measures union_measures(const std::vector<Rect>& rects) {
     for (const auto& iv : current) covered += i128(iv.second) - i128(iv.first);
     m.area += width * covered;
     m.perimeter += 2 * width * i128(current.size());
-    m.perimeter += symmetric_difference(previous, current);
+    m.perimeter += symmetric_difference(previous, current, b.points);
     std::swap(previous, current);
   }
   for (const auto& iv : previous) m.perimeter += i128(iv.second) - i128(iv.first);

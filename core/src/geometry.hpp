@@ -52,7 +52,16 @@ struct Measures {
   i128 perimeter = 0;
 };
 
+// Buffers of the sweep, kept by a caller that sweeps often (a net's what-if).
+struct SweepBuffers {
+  std::vector<i64> xs;
+  std::vector<Rect> by_start, active;
+  std::vector<std::pair<i64, i64>> previous, current;
+  std::vector<std::pair<i64, int>> points;
+};
+
 // Exact area (DBU^2) and perimeter (DBU, holes included) of a union of rectangles.
+Measures union_measures(const std::vector<Rect>& rects, SweepBuffers& buffers);
 Measures union_measures(const std::vector<Rect>& rects);
 
 inline bool valid_rect(const Rect& r) {

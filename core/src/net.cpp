@@ -23,6 +23,19 @@ void Comp::absorb(const Comp& o) {
   }
 }
 
+void Comp::absorb_figures(const Comp& o) {
+  area += o.area;
+  perim += o.perim;
+  if (!o.pins.empty()) {
+    gates.insert(gates.end(), o.gates.begin(), o.gates.end());
+    gate.add(o.gate);
+    diff.add(o.diff);
+    cell.add(o.cell);
+    oxides |= o.oxides;
+    refresh();
+  }
+}
+
 void Comp::reset() {
   members.clear();
   gates.clear();
@@ -184,13 +197,13 @@ void Net::State::routed_on(int layer, const std::vector<std::pair<int, int>>& ne
 
 Measures Net::State::local_delta(const Rect& r, const std::vector<Rect>& local, int step) const {
   Measures d;
-  std::vector<Rect> clipped;
+  clipped.clear();
   Rect c;
   for (const Rect& q : local)
     if (intersection(r, q, c)) clipped.push_back(c);
   if (clipped.empty()) d.area = rect_area(r);
   else if (clipped.size() == 1) d.area = rect_area(r) - rect_area(clipped[0]);
-  else d.area = rect_area(r) - union_measures(clipped).area;
+  else d.area = rect_area(r) - union_measures(clipped, sweep).area;
   if (!m.side_needed[std::size_t(step)]) return d;
   i128 own = 2 * (i128(r.xhi - r.xlo) + i128(r.yhi - r.ylo));
   if (local.empty()) {
@@ -198,9 +211,9 @@ Measures Net::State::local_delta(const Rect& r, const std::vector<Rect>& local, 
   } else if (local.size() == 1) {
     d.perimeter = own - shared_perimeter(r, local[0]);
   } else {
-    std::vector<Rect> with(local);
+    with.assign(local.begin(), local.end());
     with.push_back(r);
-    d.perimeter = union_measures(with).perimeter - union_measures(local).perimeter;
+    d.perimeter = union_measures(with, sweep).perimeter - union_measures(local, sweep).perimeter;
   }
   return d;
 }
@@ -297,7 +310,7 @@ void Net::State::rebuild(Comp& c, const std::vector<int>& members, int step) con
     if (el.layer == step && el.pin < 0) routed.push_back(el.r);
   }
   c.refresh();
-  Measures u = union_measures(routed);
+  Measures u = union_measures(routed, sweep);
   c.area = u.area;
   c.perim = m.side_needed[std::size_t(step)] ? u.perimeter : 0;
 }

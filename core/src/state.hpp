@@ -43,6 +43,7 @@ struct Comp {
   bool alive = false;
   void refresh() { G = gate.value(); D = diff.value(); cell_um2 = cell.value(); }
   void absorb(const Comp& o);
+  void absorb_figures(const Comp& o);  // without the member lists (a what-if's group)
   void reset();
 };
 
@@ -97,6 +98,13 @@ struct Assessment {
   std::vector<std::vector<double>> comp_worst, partial_worst;  // [s][comp]
   std::vector<std::vector<std::pair<double, int>>> ranked;     // [s]: (worst, comp), worst first
   std::vector<const double*> rows;                             // per pin: its CAR rows, or null
+  // Per step s, component X and group g (index X * groups + g): the largest CAR at s of
+  // X's gates (-1 without one), and the components of the step feeding s that hold X's
+  // gates, each with the largest CAR there of its gates, largest first. A what-if reads
+  // a component's best cumulative ratio from these instead of walking every gate:
+  // rounding is monotone, so max_p fl(t + x_p) = fl(t + max_p x_p).
+  std::vector<std::vector<double>> best;                                   // [s][X * groups + g]
+  std::vector<std::vector<std::vector<std::pair<double, int>>>> feeders;  // [s][X * groups + g]
   std::vector<double> step_worst, worst_below;                 // worst_below[s]: over steps < s
   std::size_t row(int slot, int g) const { return (std::size_t(slot) * std::size_t(groups) + std::size_t(g)) * std::size_t(steps); }
   double worst_untouched(int s, const std::vector<int>& touched) const;
@@ -127,6 +135,12 @@ struct Scratch {
   std::vector<std::pair<int, int>> first_toucher, seen;
   std::vector<Rect> local, rects_here, with;
   std::vector<Entry> es, before;
+  std::vector<double> terms;
+  // per step: the comps the candidates touched, the groups (by root) with their best
+  // CAR per (measure, oxide) group, and each candidate's group index
+  std::vector<std::vector<int>> touched_at;
+  std::vector<std::vector<double>> group_best;  // [s][group index * groups + g], -1: none
+  std::vector<std::vector<int>> group_of_cand;  // [s][candidate] -> group index, -1 absent
   Comp built;
 };
 
@@ -151,6 +165,8 @@ struct Net::State {
   std::size_t shapes = 0;
   mutable Assessment assessment;
   mutable Scratch scratch;
+  mutable SweepBuffers sweep;
+  mutable std::vector<Rect> clipped, with;  // local_delta's
   mutable std::vector<std::uint32_t> stamp;  // per element, for searches
   mutable std::uint32_t clock = 0;
 
@@ -173,6 +189,7 @@ struct Net::State {
   // The what-if (whatif.cpp): figures into `out`; changes only with detail.
   void what_if(const Shape* shapes, std::size_t n, const PinSpec* extra, std::size_t n_extra, bool detail,
                Score& out) const;
+  double lean_worst(int s, const Comp& c, bool partial, const std::vector<double>& bests) const;
   void record_change(const Entry& e, const std::vector<Entry>& before, bool one_predecessor, Score& out) const;
 };
 

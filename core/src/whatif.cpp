@@ -141,10 +141,17 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
   auto& parent = sc.parent;
   parent.resize(k);
   for (std::size_t i = 0; i < k; ++i) parent[i] = int(i);
-  auto &touched = sc.touched, &roots = sc.roots, &members = sc.members, &group_comps = sc.group_comps;
+  auto &roots = sc.roots, &members = sc.members, &group_comps = sc.group_comps;
   auto &first_toucher = sc.first_toucher, &seen = sc.seen;
   auto &local = sc.local, &rects_here = sc.rects_here;
   auto &es = sc.es, &before = sc.before;
+  const std::size_t G = std::size_t(ng);
+  if (sc.touched_at.size() < std::size_t(steps)) {
+    sc.touched_at.resize(std::size_t(steps));
+    sc.group_best.resize(std::size_t(steps));
+    sc.group_of_cand.resize(std::size_t(steps));
+  }
+  auto& bests = sc.terms;  // per (measure, oxide) group: the group's best CAR at s
   for (int s = first; s < steps; ++s) {
     for (const auto& l : links)
       if (l.step == s) join(parent, l.i, l.j);
@@ -162,13 +169,20 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         else join(parent, int(i), it->second);
       }
     }
+    auto& group_of = sc.group_of_cand[std::size_t(s)];
+    group_of.assign(k, -1);
     for (std::size_t i = 0; i < k; ++i) {
       if (cands[i].layer > s) continue;
       int r = find(parent, int(i));
-      if (!contains(roots, r)) roots.push_back(r);
+      auto it = std::find(roots.begin(), roots.end(), r);
+      group_of[i] = int(it - roots.begin());
+      if (it == roots.end()) roots.push_back(r);
     }
+    sc.group_best[std::size_t(s)].assign(roots.size() * G, -1.0);
+    auto& touched = sc.touched_at[std::size_t(s)];
     touched.clear();
-    for (int root : roots) {
+    for (std::size_t gi = 0; gi < roots.size(); ++gi) {
+      const int root = roots[gi];
       members.clear();
       group_comps.clear();
       rects_here.clear();
@@ -203,10 +217,10 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
                 seen.push_back({t.first, 0});
           }
           routed_on(s, seen, local);
-          Measures before_u = union_measures(local);
+          Measures before_u = union_measures(local, sweep);
           sc.with.assign(local.begin(), local.end());
           sc.with.insert(sc.with.end(), rects_here.begin(), rects_here.end());
-          Measures after_u = union_measures(sc.with);
+          Measures after_u = union_measures(sc.with, sweep);
           change.area = after_u.area - before_u.area;
           change.perimeter = m.side_needed[std::size_t(s)] ? after_u.perimeter - before_u.perimeter : 0;
         }
@@ -218,7 +232,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       if (merged) {
         Comp& built = sc.built;
         built.reset();
-        for (int c : group_comps) built.absorb(pool[std::size_t(c)]);
+        for (int c : group_comps) built.absorb_figures(pool[std::size_t(c)]);
         built.area += change.area;
         built.perim += change.perimeter;
         for (int x : members) {
@@ -242,37 +256,69 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         group = &pool[std::size_t(group_comps[0])];
       }
       if (group->G <= 0) continue;
-      // The gates' sums along the chain, with this step's new term where it changed.
-      bool moved = false;
-      for (int p : group->gates) {
-        double* row = fresh_row(p);
-        for (int g = 0; g < ng; ++g) {
-          if (!has_group(p, g)) continue;
-          double t = merged ? m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D)
-                            : a.term[a.row(a.slot_of_pin[std::size_t(p)], g) + std::size_t(s)];
-          int f = m.feeding(s, g);
-          const std::size_t at = std::size_t(g) * std::size_t(steps);
-          double& cell = row[at + std::size_t(s)];
-          cell = f >= 0 ? t + row[at + std::size_t(f)] : t;
-          if (!merged && cell != a.rows[std::size_t(p)][at + std::size_t(s)]) moved = true;
-        }
-      }
+      // The group's best CAR per (measure, oxide) group: this step's term (new where the
+      // group changed, else the component's own) plus the largest CAR at the feeding
+      // step among its gates: the untouched feeding components' (held, largest first)
+      // and the candidate groups' there (computed at that step).
       const int only = merged ? -1 : group_comps[0];
+      bests.assign(G, -1.0);
+      bool moved = false;
+      for (int g = 0; g < ng; ++g) {
+        if (!((group->oxides >> m.groups[std::size_t(g)].oxide) & 1u)) continue;
+        const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+        const int f = m.feeding(s, g);
+        double value = t;
+        if (f >= 0) {
+          double below = 0.0;  // a gate not there yet at f adds 0
+          const std::vector<int>* touched_f = f >= first ? &sc.touched_at[std::size_t(f)] : nullptr;
+          for (int c : group_comps) {
+            for (const auto& vy : a.feeders[std::size_t(s)][std::size_t(c) * G + std::size_t(g)]) {
+              if (touched_f != nullptr && contains(*touched_f, vy.second)) continue;
+              below = std::max(below, vy.first);
+              break;
+            }
+          }
+          if (f >= first) {
+            for (int x : members) {
+              const int at_f = sc.group_of_cand[std::size_t(f)][std::size_t(x)];
+              if (at_f >= 0) below = std::max(below, sc.group_best[std::size_t(f)][std::size_t(at_f) * G + std::size_t(g)]);
+            }
+          }
+          value = t + below;
+        }
+        bests[std::size_t(g)] = value;
+        sc.group_best[std::size_t(s)][gi * G + std::size_t(g)] = value;
+        if (!merged && value != a.best[std::size_t(s)][std::size_t(only) * G + std::size_t(g)]) moved = true;
+      }
       if (!merged && !moved) {
         worst_net = std::max({worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)],
                               a.comp_worst[std::size_t(s)][std::size_t(only)]});
         continue;
       }
       if (!merged) worst_net = std::max(worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)]);
+      if (!detail) {
+        worst_change = std::max(worst_change, lean_worst(s, *group, merged, bests));
+        worst_net = std::max(worst_net, worst_change);
+        continue;
+      }
+      // With detail, every gate's sum along the chain: the figures name their gate.
+      for (int p : group->gates) {
+        double* row = fresh_row(p);
+        for (int g = 0; g < ng; ++g) {
+          if (!has_group(p, g)) continue;
+          const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+          const int f = m.feeding(s, g);
+          const std::size_t at = std::size_t(g) * std::size_t(steps);
+          row[at + std::size_t(s)] = f >= 0 ? t + row[at + std::size_t(f)] : t;
+        }
+      }
       es.clear();
       entries(s, *group, merged, car_view.data(), oxides, es);
-      if (detail) {
-        before.clear();
-        for (int c : group_comps) entries(s, pool[std::size_t(c)], true, a.rows.data(), oxides, before);
-      }
+      before.clear();
+      for (int c : group_comps) entries(s, pool[std::size_t(c)], true, a.rows.data(), oxides, before);
       for (const Entry& e : es) {
         if (e.utilization > worst_change) worst_change = e.utilization;
-        if (detail) record_change(e, before, group_comps.size() == 1, out);
+        record_change(e, before, group_comps.size() == 1, out);
       }
       worst_net = std::max(worst_net, worst_change);
     }
@@ -284,6 +330,26 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
   out.worst_utilization = worst_net;
   out.legal = is_legal(worst_net);
   out.breaks_limit = !is_legal(worst_change);
+}
+
+// The worst utilization of a group's checks at s from its best CAR per (measure, oxide)
+// group (the partial checks only where the group changed).
+double Net::State::lean_worst(int s, const Comp& c, bool partial, const std::vector<double>& bests) const {
+  double worst = 0.0;
+  if (partial) {
+    for (const CheckKey& key : m.partial_checks[std::size_t(s)]) {
+      if (!((c.oxides >> key.oxide) & 1u)) continue;
+      const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
+      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+      worst = std::max(worst, utilization(rule.ratio(conductor, c.G, c.D), rule.partial_limit(c.D)));
+    }
+  }
+  for (const CheckKey& key : m.cumulative_checks[std::size_t(s)]) {
+    if (!((c.oxides >> key.oxide) & 1u)) continue;
+    const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
+    worst = std::max(worst, utilization(bests[std::size_t(key.group)], rule.cumulative_limit(c.D)));
+  }
+  return worst;
 }
 
 // The change record of an after-entry, unless it is the same component's same figure as

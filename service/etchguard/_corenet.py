@@ -66,14 +66,13 @@ def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
 class CoreNet:
     """One net's state in the core, answering in the package's types."""
 
-    __slots__ = ("compiled", "deck", "pins", "net", "_costs")
+    __slots__ = ("compiled", "deck", "pins", "net")
 
     def __init__(self, compiled: CompiledDeck, pins: Sequence[Pin]) -> None:
         self.compiled = compiled
         self.deck = compiled.deck
         self.pins = tuple(pins)
         self.net = _core.Net(compiled.model, [_pin_tuple(compiled, p) for p in self.pins])
-        self._costs: tuple[float, ...] = ()
 
     # -- changes --------------------------------------------------------------------
 
@@ -99,9 +98,8 @@ class CoreNet:
     def score(self, shapes: Sequence[Shape], detail: bool = True, extra_pins: Sequence[Pin] = (),
               costs: tuple[float, ...] | None = None) -> Score:
         """What committing ``shapes`` (and adding ``extra_pins``) would do."""
-        cands = [(s.layer,) + s.rect for s in shapes]
-        extra = [_pin_tuple(self.compiled, p) for p in extra_pins]
-        raw = self.net.score(cands, detail, costs or self._costs or _DEFAULT_COSTS, extra)
+        extra = [_pin_tuple(self.compiled, p) for p in extra_pins] if extra_pins else []
+        raw = self.net.score(shapes, detail, costs or _DEFAULT_COSTS, extra)
         return self._score(raw, extra_pins)
 
     def _score(self, raw: tuple, extra_pins: Sequence[Pin]) -> Score:

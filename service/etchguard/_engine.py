@@ -96,6 +96,10 @@ class Engine:
     def _cost_tuple(self) -> tuple[float, float, float, float, float]:
         return self.costs.as_tuple()
 
+    @property
+    def _most_candidate_shapes(self) -> int:
+        return min(self.limits.max_candidates, self.limits.max_shapes_per_net)
+
     def load_deck(self, deck: Deck, text: str | None = None) -> None:
         """Load or replace the deck. Held nets are carried over by layer name; if one
         uses a layer the new deck lacks, the call is refused and nothing changes.
@@ -264,6 +268,18 @@ class Engine:
     def score(self, name: str, candidate: Sequence[Shape], detail: bool = True) -> Score:
         """What committing ``candidate`` would do; changes nothing. Without ``detail``
         the per-ratio changes are left out (verdict, utilizations and cost are not)."""
+        net = self._nets.get(name)
+        if net is not None and 0 < len(candidate) <= self._most_candidate_shapes:
+            # The router's inner loop: the binding reads the shapes and the core checks
+            # them; only a refusal takes the path below, which names the bad field.
+            try:
+                with net.lock:
+                    result = net.core.score(candidate, detail, (), self._cost_tuple)
+            except (TypeError, ValueError, AttributeError):
+                pass
+            else:
+                self.counters["scores"] += 1
+                return result
         if not candidate:
             raise InputError("a candidate needs at least one shape", "candidate")
         self._check_shapes(candidate, 0)
