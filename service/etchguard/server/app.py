@@ -70,6 +70,7 @@ class ServerConfig:
     sync: str = SyncPolicy.BATCH.value  # always | batch | none
     sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
     snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
+    keep_journal_before_damage: bool = False  # start from the records before damage (see _journal)
     # access (issue 5): see server/security.py
     tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
     tls_key: Path | None = None  # PEM private key
@@ -116,11 +117,13 @@ def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
     engine = Engine(None, config.limits(), config.costs())
     journal = Journal.open(config.state_dir, engine, sync=config.sync,
                            interval_ms=config.sync_interval_ms,
-                           snapshot_every=config.snapshot_every, version=__version__)
+                           snapshot_every=config.snapshot_every, version=__version__,
+                           keep_before_damage=config.keep_journal_before_damage)
     r = journal.recovery
     log.info("state recovered", extra={"fields": {
         "state_dir": str(config.state_dir), "snapshot": str(r.snapshot) if r.snapshot else None,
         "snapshot_nets": r.snapshot_nets, "records_replayed": r.records, "torn_tails": len(r.torn),
+        "records_set_aside": r.records_set_aside,
         "nets": len(engine.net_names()), "seconds": round(r.seconds, 3), "sync": config.sync}})
     if config.rules is not None:
         try:

@@ -71,6 +71,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--snapshot-every", type=int, default=_DEFAULTS.snapshot_every,
                         metavar="N", help="journal records between snapshots, which bound the "
                                           "replay on start; 0 = at shutdown only (default %(default)s)")
+    parser.add_argument("--keep-journal-before-damage", action="store_true",
+                        help="when the journal is damaged other than by a torn last write (the "
+                             "start is refused then, naming file and offset), replay the records "
+                             "before the damage and set the damaged segment and every later one "
+                             "aside as *.damaged; the records in them are not in the state")
     # access (issue 5)
     parser.add_argument("--tls-cert", type=Path, metavar="PEM",
                         help="TLS certificate chain; with --tls-key every TCP address is TLS. "
@@ -92,7 +97,8 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
-        snapshot_every=args.snapshot_every, tls_cert=args.tls_cert, tls_key=args.tls_key,
+        snapshot_every=args.snapshot_every,
+        keep_journal_before_damage=args.keep_journal_before_damage, tls_cert=args.tls_cert, tls_key=args.tls_key,
         tls_client_ca=args.tls_client_ca, token_file=args.token_file,
         cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
         cost_violation=args.cost_violation)
