@@ -112,7 +112,9 @@ class Engine:
             try:
                 moved = [self._moved(net, old, deck) for net in nets] if old is not None else []
                 blockages = self._obstacles.moved_blockages(old, deck) if old is not None else {}
-                self._deck, self._model = deck, StepModel(deck)
+                model = StepModel(deck)
+                self._record(DeckLoaded(deck, text))  # logged first: a refused log changes nothing
+                self._deck, self._model = deck, model
                 for net, (pins, shapes, layer_range) in zip(nets, moved):
                     net.pins, net.shapes, net.layer_range = pins, shapes, layer_range
                     net.state = net.assessment = None
@@ -121,7 +123,6 @@ class Engine:
                 self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
                     net.name, net.pins, net.shapes)], blockages)
                 self._deck_text = text
-                self._record(DeckLoaded(deck, text))
             finally:
                 for net in nets:
                     net.lock.release()
@@ -172,24 +173,35 @@ class Engine:
             self._nets[name] = net
             self._obstacles.add_net_items(name, _pin_items(net.pins))
         try:
-            ids = self._commit_locked(net, shapes)
             self._record(NetOpened(name, net.pins, net.layer_range, tuple(shapes), 1))
-            return ids
+        except BaseException:
+            net.closed = True  # a caller that found it meanwhile gets NOT_FOUND
+            net.lock.release()
+            with self._registry:
+                if self._nets.get(name) is net:
+                    del self._nets[name]
+                    self._obstacles.drop_net(name)
+            raise
+        try:
+            return self._commit_locked(net, shapes)
         finally:
             net.lock.release()
 
     def close_net(self, name: str) -> None:
         with self._registry:
-            if name not in self._nets:
+            net = self._nets.get(name)
+            if net is None:
                 raise NotFoundError(f"no open net {name!r}", "net")
-            net = self._nets.pop(name)
-            with self._hot_lock:
-                self._hot.pop(name, None)
-            self._obstacles.drop_net(name)
             with net.lock:  # registry -> net: no reopen of the name is logged before this close
+                if net.closed:  # an open whose log entry was refused, being taken back
+                    raise NotFoundError(f"no open net {name!r}", "net")
+                self._record(NetClosed(name))  # logged first: a refused log changes nothing
+                del self._nets[name]
+                with self._hot_lock:
+                    self._hot.pop(name, None)
+                self._obstacles.drop_net(name)
                 net.closed = True
                 net.state = net.assessment = None
-                self._record(NetClosed(name))
 
     def net_names(self) -> list[str]:
         with self._registry:
@@ -252,10 +264,9 @@ class Engine:
             if net.closed:
                 raise NotFoundError(f"no open net {name!r}", "net")
             self._check_shapes(shapes, len(net.shapes))
-            ids = self._commit_locked(net, shapes)
-            if ids:
-                self._record(ShapesCommitted(name, tuple(shapes), ids[0]))
-            return ids
+            if shapes:  # logged first: a refused log changes nothing
+                self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
+            return self._commit_locked(net, shapes)
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
         state = net.state  # a net not held built gets its state on the next question
@@ -283,6 +294,8 @@ class Engine:
                     raise NotFoundError(f"net {name!r} has no shape {sid}" if sid not in seen
                                         else f"shape {sid} is listed twice", f"shape_ids[{i}]")
                 seen.add(sid)
+            if ids:  # logged first: a refused log changes nothing
+                self._record(ShapesRemoved(name, tuple(ids)))
             for sid in ids:
                 del net.shapes[sid]
             self._obstacles.remove_net_items(name, [_shape_key(sid) for sid in ids])
@@ -293,8 +306,6 @@ class Engine:
                     for sid in ids:
                         net.state.remove_shape(sid)
             self.counters["removals"] += len(ids)
-            if ids:
-                self._record(ShapesRemoved(name, tuple(ids)))
 
     def shapes(self, name: str) -> dict[int, Shape]:
         net = self._net(name)
@@ -425,14 +436,15 @@ class Engine:
             raise InputError(f"unknown layer {layer!r}", "layer")
         checked = _checked_rect(list(rect), "rect")
         with self._registry:  # ordered against deck loads and snapshots in the change log
-            bid = self._obstacles.add_blockage(layer, checked)
-            self._record(BlockageDeclared(bid, layer, checked))
-        return bid
+            self._record(BlockageDeclared(self._obstacles._next_blockage, layer, checked))
+            return self._obstacles.add_blockage(layer, checked)
 
     def remove_blockage(self, blockage_id: int) -> None:
         with self._registry:
-            self._obstacles.remove_blockage(blockage_id)
+            if blockage_id not in self._obstacles.blockages:
+                raise NotFoundError(f"no blockage {blockage_id}", "blockage_id")
             self._record(BlockageRemoved(blockage_id))
+            self._obstacles.remove_blockage(blockage_id)
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
                width: int | None = None, allow_non_preferred: bool = False,
@@ -452,8 +464,9 @@ class Engine:
     # -- durability: change-log hook and whole-state images ----------------------------
 
     def _record(self, change) -> None:
-        """Hand a change that has been applied to the change log, if there is one
-        (the caller holds the lock that ordered the change; see _changelog)."""
+        """Hand a change to the change log, if there is one, after it was validated and
+        before it is applied: a log that refuses it (ChangeLogError) leaves the engine
+        as it was. The caller holds the lock that ordered the change (see _changelog)."""
         log = self.changelog
         if log is not None:
             log.record(change)

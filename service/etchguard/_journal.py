@@ -64,6 +64,7 @@ import threading
 import time
 import zlib
 from collections.abc import Iterator
+from typing import NoReturn
 from dataclasses import dataclass, field
 from enum import Enum
 from pathlib import Path
@@ -358,6 +359,17 @@ def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: i
                                 written_by=version)
     for bid, (layer, (xlo, ylo, xhi, yhi)) in sorted(image.blockages.items()):
         header.blockages.add(blockage_id=bid, layer=layer, xlo=xlo, ylo=ylo, xhi=xhi, yhi=yhi)
+    try:
+        _write_image(tmp, header, image)
+        os.replace(tmp, final)
+    except BaseException:
+        tmp.unlink(missing_ok=True)  # a full disk must not keep a half image on it
+        raise
+    _fsync_dir(directory)
+    return final
+
+
+def _write_image(tmp: Path, header: jpb.SnapshotHeader, image: EngineImage) -> None:
     shapes = 0
     with open(tmp, "wb") as f:
         f.write(file_header(SNAPSHOT_MAGIC))
@@ -382,9 +394,6 @@ def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: i
         f.write(frame(jpb.SnapshotEnd(net_count=len(image.nets), shape_count=shapes).SerializeToString()))
         f.flush()
         os.fsync(f.fileno())
-    os.replace(tmp, final)
-    _fsync_dir(directory)
-    return final
 
 
 def read_snapshot(path: Path) -> tuple[EngineImage, int]:
@@ -585,6 +594,7 @@ class Journal:
         self._syncing = False
         self._written = 0  # bytes appended since start (all segments)
         self._synced = 0  # bytes known on disk
+        self._segment_base = 0  # self._written when the current segment was started
         self._since_snapshot = recovery.records
         self._failed: BaseException | None = None
         self._closed = False
@@ -609,8 +619,11 @@ class Journal:
         """``keep_before_damage``: the operator's choice to start from the records before
         damage that is not a torn tail (see "Damage on start") instead of refusing."""
         directory = Path(directory)
-        directory.mkdir(parents=True, exist_ok=True)
-        lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            directory.mkdir(parents=True, exist_ok=True)
+            lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise JournalError(f"cannot use the state folder: {exc.strerror}", str(directory)) from None
         try:
             fcntl.flock(lock_fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -620,6 +633,10 @@ class Journal:
             recovery = recover(directory, engine, keep_before_damage)
             journal = cls(directory, engine, recovery, lock_fd, SyncPolicy(sync), interval_ms,
                           snapshot_every, version)
+        except OSError as exc:  # a full disk or an I/O error while recovering: no traceback
+            os.close(lock_fd)
+            where = exc.filename or directory
+            raise JournalError(f"cannot recover the state: {exc.strerror}", str(where)) from None
         except BaseException:
             os.close(lock_fd)
             raise
@@ -655,11 +672,7 @@ class Journal:
             try:
                 _write_all(self._fd, data)
             except OSError as exc:
-                self._failed = exc
-                log.error("journal write failed", extra={"fields": {"error": str(exc)}})
-                raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change "
-                                     "is held but not durable, and later changes are refused",
-                                     "journal") from None
+                self._refuse_write(exc)
             self._written += len(data)
             mark = self._written
             self._since_snapshot += 1
@@ -667,6 +680,24 @@ class Journal:
                 self._wake.set()
         if self.sync is SyncPolicy.ALWAYS:
             self._sync_to(mark)
+
+    def _refuse_write(self, exc: OSError) -> NoReturn:
+        """A record could not be written (whole): cut the segment back to its last whole
+        record, so the next one does not follow half a frame, and refuse the change (the
+        engine applies a change only once it is recorded). If even the cut fails, no
+        later record can be trusted to land after whole ones: refuse all from now on."""
+        try:
+            os.ftruncate(self._fd, _HEADER.size + self._written - self._segment_base)
+        except OSError as cut_error:
+            self._failed = cut_error
+            log.error("journal write failed and could not be undone; changes are refused from "
+                      "now on", extra={"fields": {"error": str(exc), "undo_error": str(cut_error)}})
+            raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change is "
+                                 "refused, and so are later ones until a restart", "journal") from None
+        log.error("journal write failed; the change is refused", extra={"fields": {
+            "error": str(exc), "segment": self._segment}})
+        raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change is "
+                             "refused and not applied", "journal") from None
 
     # -- syncing ----------------------------------------------------------------------
 
@@ -676,6 +707,9 @@ class Journal:
         cond = self._sync_cond
         with cond:
             while self._synced < mark:
+                if self._failed is not None:  # an fsync failed: nothing unsynced is trusted
+                    raise ChangeLogError(f"the journal cannot be synced ({self._failed}); "
+                                         "changes are refused until a restart", "journal")
                 if self._syncing:
                     cond.wait()
                     continue
@@ -693,8 +727,28 @@ class Journal:
                     cond.notify_all()
                 if error is not None:
                     self._failed = error
-                    raise ChangeLogError(f"the journal cannot be synced ({error.strerror})", "journal")
+                    break
                 self._synced = max(self._synced, target)
+        if self._failed is not None:
+            self._fsync_failed()
+
+    def _fsync_failed(self) -> NoReturn:
+        """After a failed fsync the OS may have dropped the unsynced pages, or may write
+        them later: nothing past the last good fsync is trusted, and no change is taken
+        from now on. Under ``always`` no record past it was acknowledged (each waits for
+        its fsync), so they are cut from the segment: a restart must not replay changes
+        their callers were told were refused."""
+        error = self._failed
+        if self.sync is SyncPolicy.ALWAYS:
+            with self._write_lock:
+                try:
+                    os.ftruncate(self._fd, _HEADER.size + self._synced - self._segment_base)
+                except OSError:
+                    pass  # already failed; the records past the cut stay unacknowledged
+        log.error("journal fsync failed; changes are refused from now on", extra={"fields": {
+            "error": str(error)}})
+        raise ChangeLogError(f"the journal cannot be synced ({error}); this change is refused "
+                             "and not applied, and so are later ones until a restart", "journal")
 
     def _flusher(self) -> None:
         while not self._stop.wait(self.interval_s):
@@ -702,7 +756,7 @@ class Journal:
                 try:
                     self._sync_to(self._written)
                 except ChangeLogError:
-                    log.error("journal fsync failed; changes are refused from now on")
+                    pass  # logged by _fsync_failed
 
     # -- snapshots --------------------------------------------------------------------
 
@@ -714,12 +768,18 @@ class Journal:
         with self._write_lock, self._sync_cond:
             while self._syncing:
                 self._sync_cond.wait()
-            os.fsync(self._fd)
+            if self._failed is not None:
+                raise ChangeLogError(f"the journal failed earlier ({self._failed})", "journal")
+            try:
+                os.fsync(self._fd)
+            except OSError as exc:
+                self._failed = exc
+                raise ChangeLogError(f"the journal cannot be synced ({exc.strerror})", "journal") from None
             fd = self._new_segment(self._segment + 1)
             old, self._fd = self._fd, fd
             os.close(old)
             self._segment += 1
-            self._synced = self._written
+            self._synced = self._segment_base = self._written
             self._since_snapshot = 0
             return self._segment
 
@@ -747,7 +807,10 @@ class Journal:
                 return
             try:
                 self.snapshot()
-            except Exception:  # noqa: BLE001 - the journal still holds everything; retry later
+            except (OSError, EtchguardError) as exc:  # a full disk: the journal holds everything
+                log.error("snapshot failed; the journal keeps every change", extra={"fields": {
+                    "error": str(exc)}})
+            except Exception:  # noqa: BLE001 - a bug; the journal still holds everything
                 log.exception("snapshot failed; the journal keeps every change")
 
     # -- shutdown ---------------------------------------------------------------------
@@ -763,12 +826,18 @@ class Journal:
         if snapshot and self._failed is None:
             try:
                 self.snapshot()
-            except Exception:  # noqa: BLE001 - the journal is still complete
+            except (OSError, EtchguardError) as exc:  # a full disk: the journal is still complete
+                log.error("final snapshot failed; the journal keeps every change", extra={"fields": {
+                    "error": str(exc)}})
+            except Exception:  # noqa: BLE001 - a bug; the journal is still complete
                 log.exception("final snapshot failed; the journal keeps every change")
         with self._write_lock:
             self._closed = True
             try:
                 os.fsync(self._fd)
+            except OSError as exc:  # reported, not raised: the stop goes on and frees the folder
+                log.error("journal fsync at stop failed; the last changes may not be on disk",
+                          extra={"fields": {"error": str(exc)}})
             finally:
                 os.close(self._fd)
         os.close(self._lock_fd)
