@@ -20,7 +20,7 @@ import signal
 import socket
 import threading
 from concurrent import futures
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 import grpc
@@ -71,6 +71,7 @@ class ServerConfig:
     sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
     snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
     keep_journal_before_damage: bool = False  # start from the records before damage (see _journal)
+    rejudge_held_nets: bool = False  # --rules may replace the recovered deck of held nets
     # access (issue 5): see server/security.py
     tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
     tls_key: Path | None = None  # PEM private key
@@ -107,9 +108,8 @@ def _engine(config: ServerConfig) -> Engine:
 
 
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
-    """An engine rebuilt from the state folder with the journal attached. ``--rules``
-    is then loaded like a LoadDeck (journaled, held nets carried over) unless the
-    recovered deck is the same text."""
+    """An engine rebuilt from the state folder with the journal attached, then
+    ``--rules`` applied (``_deck_at_start``)."""
     if config.sync not in {p.value for p in SyncPolicy}:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
@@ -127,17 +127,38 @@ def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
         "nets": len(engine.net_names()), "seconds": round(r.seconds, 3), "sync": config.sync}})
     if config.rules is not None:
         try:
-            text = Path(config.rules).read_text(encoding="utf-8")
-        except OSError as exc:
+            _deck_at_start(config, engine, r.deck_text)
+        except EtchguardError:
             journal.close(snapshot=False)
-            raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(config.rules)) from None
-        if text != r.deck_text:
-            try:
-                engine.load_deck(loads_deck(text, str(config.rules)), text)
-            except EtchguardError:
-                journal.close(snapshot=False)
-                raise
+            raise
     return engine, journal
+
+
+def _deck_at_start(config: ServerConfig, engine: Engine, held_text: str | None) -> None:
+    """Load ``--rules`` over a recovered state like a LoadDeck (journaled, held nets
+    carried over by layer name). The deck is part of the state: when it differs in
+    substance from the recovered one and nets are held, every net would be judged anew
+    (other limits, another DBU scale...), so that takes ``--rejudge-held-nets``."""
+    try:
+        text = Path(config.rules).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(config.rules)) from None
+    if text == held_text:
+        return
+    deck = loads_deck(text, str(config.rules))
+    nets = len(engine.net_names())
+    held = loads_deck(held_text, "<held deck>") if held_text is not None else None
+    if held is not None and replace(held, source=deck.source) != deck and nets:
+        if not config.rejudge_held_nets:
+            raise ServeError(
+                f"the state folder {config.state_dir} holds {nets} net(s) judged under deck "
+                f"{held.name!r}, and {config.rules} is another deck ({deck.name!r}); loading it "
+                f"would judge every held net anew. Start without --rules to keep the held deck, "
+                f"or add --rejudge-held-nets to load this one over them", "rules")
+        log.warning("held nets re-judged under another deck", extra={"fields": {
+            "from_deck": held.name, "to_deck": deck.name, "nets": nets,
+            "rules_file": str(config.rules), "state_dir": str(config.state_dir)}})
+    engine.load_deck(deck, text)
 
 
 def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials | None:

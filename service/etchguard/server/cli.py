@@ -76,6 +76,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "start is refused then, naming file and offset), replay the records "
                              "before the damage and set the damaged segment and every later one "
                              "aside as *.damaged; the records in them are not in the state")
+    parser.add_argument("--rejudge-held-nets", action="store_true",
+                        help="with --state-dir: let --rules replace the deck the held nets were "
+                             "recovered with (every held net is then judged by the new deck; "
+                             "logged). Without it a start with another deck is refused")
     # access (issue 5)
     parser.add_argument("--tls-cert", type=Path, metavar="PEM",
                         help="TLS certificate chain; with --tls-key every TCP address is TLS. "
@@ -98,7 +102,8 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
         snapshot_every=args.snapshot_every,
-        keep_journal_before_damage=args.keep_journal_before_damage, tls_cert=args.tls_cert, tls_key=args.tls_key,
+        keep_journal_before_damage=args.keep_journal_before_damage,
+        rejudge_held_nets=args.rejudge_held_nets, tls_cert=args.tls_cert, tls_key=args.tls_key,
         tls_client_ca=args.tls_client_ca, token_file=args.token_file,
         cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
         cost_violation=args.cost_violation)
