@@ -36,11 +36,14 @@ from .servicer import AntennaServicer
 from .. import DeckError, loads_deck
 from .._journal import Journal, SyncPolicy
 from . import security
+from .streams import StreamGate
 
 log = logging.getLogger("etchguard.server")
 
 SERVICE_NAME = pb.DESCRIPTOR.services_by_name["AntennaService"].full_name
 _DEFAULT_LIMITS = Limits()
+KEEPALIVE_MS = 60_000  # the server pings a connection silent this long
+KEEPALIVE_TIMEOUT_MS = 20_000  # and closes it when the ping is not answered in this
 _DEFAULT_COSTS = CostModel()
 
 
@@ -63,6 +66,9 @@ class ServerConfig:
     max_candidates: int = _DEFAULT_LIMITS.max_candidates
     hot_nets: int = _DEFAULT_LIMITS.hot_nets
     workers: int = 64  # concurrent calls; each open Session stream holds one
+    max_sessions: int | None = None  # open bidirectional streams; None: workers - workers // 4
+    session_idle_s: float = 300.0  # a stream waiting this long for a request is closed
+    connection_idle_s: float = 300.0  # a connection without a call this long is closed
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"
     # durability (issue 5): see etchguard._journal for the formats and the loss bounds
@@ -92,6 +98,15 @@ class ServerConfig:
                 raise ServeError("must be > 0", name)
         return CostModel(knee=self.cost_knee, exponent=self.cost_exponent, scale=self.cost_scale,
                          violation=self.cost_violation)
+
+    def stream_slots(self) -> int:
+        """Streams admitted at once: below the workers, so calls and health find a thread."""
+        slots = self.workers - max(1, self.workers // 4) if self.max_sessions is None else self.max_sessions
+        if not 0 <= slots < self.workers:
+            raise ServeError(f"must be below --workers ({self.workers}): an open session holds a "
+                             f"worker, and calls and health checks need one too (got {slots})",
+                             "max_sessions")
+        return slots
 
     def limits(self) -> Limits:
         names = {f.name for f in fields(Limits)}
@@ -168,10 +183,12 @@ def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials |
     return security.server_credentials(config)
 
 
-def _interceptors(config: ServerConfig) -> list[grpc.ServerInterceptor]:
+def _interceptors(config: ServerConfig, gate: StreamGate | None) -> list[grpc.ServerInterceptor]:
     chain: list[grpc.ServerInterceptor] = []
     if config.token_file is not None:  # outermost: a stranger's call goes no further
         chain.append(security.TokenInterceptor(security.read_token(config.token_file)))
+    if gate is not None:  # after the token: a refused stranger takes no stream slot
+        chain.append(gate)
     chain.append(security.MalformedRequestInterceptor())
     return chain
 
@@ -190,6 +207,7 @@ class EtchguardServer:
         self.metrics_port = 0
         self._stopped = threading.Event()
         self.journal: Journal | None = None  # set by build_server with a state folder
+        self.stream_gate: StreamGate | None = None  # set by build_server
 
     def start(self) -> None:
         self.grpc_server.start()
@@ -202,6 +220,7 @@ class EtchguardServer:
         log.info("listening", extra={"fields": {
             "addresses": self.addresses, "metrics_port": self.metrics_port, "deck": deck,
             "pid": os.getpid(), "version": __version__, "workers": self.config.workers,
+            "max_sessions": self.config.stream_slots(),
             "limits": self.config.limits().__dict__}})
 
     def stop(self, grace: float | None = None) -> None:
@@ -212,6 +231,8 @@ class EtchguardServer:
         log.info("stopping", extra={"fields": {"grace_s": grace}})
         self.health.enter_graceful_shutdown()
         self.grpc_server.stop(grace).wait()
+        if self.stream_gate is not None:
+            self.stream_gate.close()
         if self.journal is not None:  # after the last call: a final snapshot, then fsync
             self.journal.close()
         self.metrics.close()
@@ -283,17 +304,23 @@ def _bind(server: grpc.Server, config: ServerConfig, address: str) -> str:
     return f"{host}:{port}"
 
 
-def grpc_server(config: ServerConfig) -> grpc.Server:
-    """The bare grpc.Server: thread pool, message limits, interceptors, no services.
-    (The bench's echo server is built here too, so both pay the same transport.)"""
+def grpc_server(config: ServerConfig, gate: StreamGate | None = None) -> grpc.Server:
+    """The bare grpc.Server: thread pool, message limits, connection upkeep,
+    interceptors, no services. (The bench's echo server is built here too, so both pay
+    the same transport.)"""
     options = [
         ("grpc.max_receive_message_length", config.max_message_bytes),
         ("grpc.max_send_message_length", config.max_message_bytes),
         ("grpc.so_reuseport", 0),  # a second server on the same port must fail, not share it
+        # a connection with no call (a stranger refused, a client gone quiet) is closed
+        ("grpc.max_connection_idle_ms", int(config.connection_idle_s * 1000)),
+        # pings find peers that vanished without closing (a pulled cable, a killed VM)
+        ("grpc.keepalive_time_ms", KEEPALIVE_MS),
+        ("grpc.keepalive_timeout_ms", KEEPALIVE_TIMEOUT_MS),
     ]
     return grpc.server(futures.ThreadPoolExecutor(max_workers=config.workers,
                                                   thread_name_prefix="etchguard-rpc"),
-                       interceptors=_interceptors(config), options=options,
+                       interceptors=_interceptors(config, gate), options=options,
                        maximum_concurrent_rpcs=config.workers)
 
 
@@ -301,6 +328,10 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     """Assemble (but do not start) a server from ``config``."""
     if config.workers < 1:
         raise ServeError("must be at least 1", "workers")
+    for name in ("session_idle_s", "connection_idle_s"):
+        if not getattr(config, name) > 0:
+            raise ServeError("must be > 0 s", name)
+    gate = StreamGate(config.stream_slots(), config.session_idle_s)
     security.check_listen(config)
     journal = None
     if config.state_dir is not None:
@@ -308,7 +339,7 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     else:
         engine = _engine(config)
     metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
-    server = grpc_server(config)
+    server = grpc_server(config, gate)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
     health_servicer = health.HealthServicer(experimental_non_blocking=True)
     health_pb2_grpc.add_HealthServicer_to_server(health_servicer, server)
@@ -325,4 +356,5 @@ def build_server(config: ServerConfig) -> EtchguardServer:
         raise
     built = EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
     built.journal = journal
+    built.stream_gate = gate
     return built

@@ -47,8 +47,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--cost-violation", type=float, default=_DEFAULTS.cost_violation, metavar="C",
                         help="router cost added once a limit is broken (default %(default)s)")
     parser.add_argument("--workers", type=int, default=_DEFAULTS.workers, metavar="N",
-                        help="concurrent calls, each open session stream holding one; calls "
-                             "beyond are refused with RESOURCE_EXHAUSTED (default %(default)s)")
+                        help="concurrent calls, each open session stream holding one (see "
+                             "--max-sessions); calls beyond are refused with RESOURCE_EXHAUSTED "
+                             "(default %(default)s)")
+    parser.add_argument("--max-sessions", type=int, default=None, metavar="N",
+                        help="open session (bidirectional) streams at once, below --workers so "
+                             "that calls and health checks always find a worker; one more is "
+                             "refused RESOURCE_EXHAUSTED (default: workers - workers // 4)")
+    parser.add_argument("--session-idle-s", type=float, default=_DEFAULTS.session_idle_s,
+                        metavar="SECONDS", help="a session stream waiting this long for its "
+                        "client's next request is closed (UNAVAILABLE) (default %(default)s)")
+    parser.add_argument("--connection-idle-s", type=float, default=_DEFAULTS.connection_idle_s,
+                        metavar="SECONDS", help="a connection without any call this long is "
+                        "closed (default %(default)s)")
     parser.add_argument("--grace", type=float, default=_DEFAULTS.grace_s, metavar="SECONDS",
                         help="on SIGTERM/SIGINT, time calls in flight get to finish "
                              "(default %(default)s)")
@@ -99,6 +110,8 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
         max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
+        max_sessions=args.max_sessions, session_idle_s=args.session_idle_s,
+        connection_idle_s=args.connection_idle_s,
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
         snapshot_every=args.snapshot_every,
