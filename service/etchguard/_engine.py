@@ -29,6 +29,7 @@ from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoade
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from ._geometry import Rect, checked_rect as _checked_rect
 from ._netstate import NetState
+from ._names import check_name
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
 from ._headroom import layer_headroom
@@ -150,8 +151,7 @@ class Engine:
                  shapes: Sequence[Shape] = ()) -> list[int]:
         """Open a net with its pins (and optionally shapes already routed)."""
         self.deck  # noqa: B018 - raises NoDeckError
-        if not isinstance(name, str) or not name:
-            raise InputError("a net needs a non-empty name", "net")
+        check_name(name, "a net", "net")
         if len(pins) > self.limits.max_pins_per_net:
             raise LimitExceededError(f"{len(pins)} pins exceed the limit of "
                                      f"{self.limits.max_pins_per_net} per net", "pins")

@@ -19,6 +19,7 @@ import numpy as np
 
 from .. import (EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape,
                 resolve_layer, run_shapes)
+from .._names import check_length
 from .._nets import checked_layer_range
 from ..v1 import etchguard_pb2 as pb
 
@@ -31,6 +32,13 @@ _RUN_FIELDS = {"layer": "layer", "run": "run", "width": "run.width", "extension"
 
 
 # -- inbound ----------------------------------------------------------------------------
+
+def net_name_checked(request) -> None:
+    """A request's ``net`` within the name limit, refused before the engine would look
+    it up (and quote it back in a NOT_FOUND)."""
+    if "net" in request.DESCRIPTOR.fields_by_name:
+        check_length(request.net, "a net name", "net")
+
 
 def at_most(count: int, limit: int | None, what: str, path: str) -> None:
     """Refuse a repeated field by its length, before any of it is converted."""

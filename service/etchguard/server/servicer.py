@@ -124,6 +124,7 @@ def _unary(name: str, fill, reply_type):
         t0 = perf_counter()
         out = reply_type()
         try:
+            convert.net_name_checked(request)
             fill(self, request, out)
         except EtchguardError as exc:
             self._abort(name, exc, context, t0)
@@ -208,7 +209,9 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
             out = getattr(reply, op)
             out.SetInParent()
             try:
-                fill(self, getattr(req, op), out)
+                request = getattr(req, op)
+                convert.net_name_checked(request)
+                fill(self, request, out)
                 code = "OK"
             except EtchguardError as exc:
                 reply.ClearField(op)
