@@ -15,6 +15,9 @@ A server with ``--state-dir DIR`` keeps there:
   the segments it covers are deleted.
 * ``LOCK`` - held (flock) by the one server using the folder.
 
+Every file is created 0600 and the folder 0700: they hold every net of a design. A
+folder that already exists readable by others is used as it is, with a warning.
+
 Start = snapshot (if any) + replay of the segments from the one it names, in order.
 Replay checks that every shape and blockage gets back the id it had.
 
@@ -59,6 +62,7 @@ import fcntl
 import logging
 import os
 import re
+import stat
 import struct
 import threading
 import time
@@ -85,6 +89,7 @@ FORMAT_VERSION = 1
 _HEADER = struct.Struct("<8sI")
 _FRAME = struct.Struct("<II")  # payload length, crc32(payload)
 SNAPSHOT_NAME = "snapshot.pb"
+FILE_MODE, DIR_MODE = 0o600, 0o700
 _SEGMENT = re.compile(r"^journal-(\d{8})\.log$")
 
 
@@ -218,6 +223,13 @@ def read_frames(path: Path, data: bytes, start: int = _HEADER.size,
         following = next_record_frame(data, offset + 1) if records else None
         return frames, Damage(path, offset, end - offset, reason, following, whole)
     return frames, None
+
+
+def _private(path: Path):
+    """``open(path, "wb")`` on a new file of mode FILE_MODE (one left by a crash is
+    replaced, not reused with whatever mode it had)."""
+    path.unlink(missing_ok=True)
+    return os.fdopen(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, FILE_MODE), "wb")
 
 
 def _write_all(fd: int, data: bytes) -> None:
@@ -371,7 +383,7 @@ def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: i
 
 def _write_image(tmp: Path, header: jpb.SnapshotHeader, image: EngineImage) -> None:
     shapes = 0
-    with open(tmp, "wb") as f:
+    with _private(tmp) as f:
         f.write(file_header(SNAPSHOT_MAGIC))
         f.write(frame(header.SerializeToString()))
         for net in image.nets:
@@ -479,7 +491,7 @@ def _set_aside(directory: Path, damage: Damage, data: bytes, later: list[Path], 
     """Keep the damaged segment's records before ``damage`` and set the rest aside: a
     copy of the whole damaged file and every later segment renamed ``*.damaged``."""
     copy = _aside_name(damage.path)
-    with open(copy, "wb") as f:
+    with _private(copy) as f:
         f.write(data)
         f.flush()
         os.fsync(f.fileno())
@@ -620,10 +632,14 @@ class Journal:
         damage that is not a torn tail (see "Damage on start") instead of refusing."""
         directory = Path(directory)
         try:
-            directory.mkdir(parents=True, exist_ok=True)
-            lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, 0o644)
+            directory.mkdir(mode=DIR_MODE, parents=True, exist_ok=True)
+            lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, FILE_MODE)
+            mode = stat.S_IMODE(directory.stat().st_mode)
         except OSError as exc:
             raise JournalError(f"cannot use the state folder: {exc.strerror}", str(directory)) from None
+        if mode & 0o077:
+            log.warning("state folder readable by others", extra={"fields": {
+                "state_dir": str(directory), "mode": oct(mode), "advice": "chmod 700"}})
         try:
             fcntl.flock(lock_fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -648,7 +664,7 @@ class Journal:
         left behind (no file, no descriptor) and JournalError names the file."""
         path = segment_path(self.directory, number)
         try:
-            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_APPEND, 0o644)
+            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_APPEND, FILE_MODE)
         except OSError as exc:
             raise JournalError(f"cannot create a journal segment: {exc.strerror}", str(path)) from None
         try:

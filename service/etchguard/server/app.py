@@ -58,7 +58,8 @@ class ServerConfig:
     listen: list[str] = field(default_factory=lambda: ["127.0.0.1:50051"])  # host:port | unix:/path
     rules: Path | None = None  # rule deck loaded at start; None: wait for LoadDeck
     metrics_port: int = 0  # Prometheus endpoint port; 0 = off
-    metrics_address: str = "127.0.0.1"
+    metrics_address: str = "127.0.0.1"  # another than loopback needs metrics_beyond_loopback
+    metrics_beyond_loopback: bool = False
     # per message, both ways. Parsing alone costs ~6x the bytes (upb, measured: 33 MiB of
     # commit -> 181 MB), so no larger than the biggest request the default limits accept
     # needs: a commit of max_shapes_per_net shapes at the widest coordinates is ~10 MB.
@@ -336,6 +337,7 @@ def build_server(config: ServerConfig) -> EtchguardServer:
             raise ServeError("must be > 0 s", name)
     gate = StreamGate(config.stream_slots(), config.session_idle_s)
     security.check_listen(config)
+    security.check_metrics(config)
     journal = None
     if config.state_dir is not None:
         engine, journal = _journaled_engine(config)

@@ -22,7 +22,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--metrics-port", type=int, default=_DEFAULTS.metrics_port, metavar="N",
                         help="port of the Prometheus metrics endpoint; 0 = off (default)")
     parser.add_argument("--metrics-address", default=_DEFAULTS.metrics_address, metavar="HOST",
-                        help="address the metrics endpoint binds (default %(default)s)")
+                        help="address the metrics endpoint binds (default %(default)s); "
+                             "another than loopback needs --metrics-beyond-loopback")
+    parser.add_argument("--metrics-beyond-loopback", action="store_true",
+                        help="let --metrics-address be reachable from other machines (the "
+                             "endpoint is plain HTTP without a token)")
     parser.add_argument("--max-message-bytes", type=int, default=_DEFAULTS.max_message_bytes,
                         metavar="N", help="largest message either way (default %(default)s)")
     parser.add_argument("--max-nets", type=int, default=_DEFAULTS.max_nets, metavar="N",
@@ -107,6 +111,7 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
     return ServerConfig(
         listen=args.listen or list(_DEFAULTS.listen), rules=args.rules,
         metrics_port=args.metrics_port, metrics_address=args.metrics_address,
+        metrics_beyond_loopback=args.metrics_beyond_loopback,
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
         max_candidates=args.max_candidates, hot_nets=args.hot_nets, workers=args.workers,
