@@ -15,6 +15,7 @@ import socket
 import subprocess
 import sys
 import threading
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -76,8 +77,9 @@ class ServerProcess:
 
 
 def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = True,
-                 listen: str = "127.0.0.1:0") -> ServerProcess:
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", listen,
+                 listen: str = "127.0.0.1:0", prefix: Sequence[str] = ()) -> ServerProcess:
+    """``prefix``: a command the server runs under (e.g. nsenter into a namespace)."""
+    cmd = [*prefix, sys.executable, "-m", "etchguard.cli", "serve", "--listen", listen,
            "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
     if rules is not None:
         cmd += ["--rules", str(rules)]

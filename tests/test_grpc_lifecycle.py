@@ -25,7 +25,8 @@ def _wait_for(predicate, timeout: float = 10.0) -> bool:
 
 
 def test_sigterm_lets_calls_in_flight_finish():
-    srv = start_server(metrics=False)
+    # the detailed batch below may reply more than the default 16 MiB
+    srv = start_server("--max-message-bytes", str(64 << 20), metrics=False)
     with srv.client() as c:
         name, _ = open_small_net(c)
         with c.session() as s:

@@ -12,6 +12,7 @@ from ._obstacles import Conflict
 from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
                       LimitExceededError, NoDeckError, NotFoundError)
 from ._geometry import Rect, run_rect, union_measures
+from ._names import MAX_NAME_BYTES
 from ._nets import (NetSpec, Pin, Shape, load_net_file, make_pin, make_shape, parse_net_file,
                     resolve_layer, run_shapes, via_shapes)
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
@@ -25,6 +26,7 @@ __all__ = [
     "PlacedShape",
     "AlreadyExistsError", "BatchScores", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
+    "MAX_NAME_BYTES",
     "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",
     "Rule", "Score", "Shape", "load_deck", "load_net_file", "loads_deck", "make_pin",
     "make_shape", "parse_deck", "parse_net_file", "resolve_layer", "run_rect", "run_shapes",

@@ -1,19 +1,20 @@
 """The engine's change log hook: every acknowledged state change, in the order applied.
 
 An ``Engine`` built with a ``changelog`` calls ``changelog.record(change)`` once per
-successful mutation, *while it still holds the lock that ordered the mutation*: a
-net's lock for commits and removals, the registry lock for deck loads, net opens and
-closes and blockages. So the order in which changes reach the log is, per net, the
-order in which they were applied, and a change is recorded before the call that made
-it returns (before the reply is sent). Refused calls record nothing.
+mutation, after validating it and before applying it, *while it holds the lock that
+orders the mutation*: a net's lock for commits and removals, the registry lock for
+deck loads, net opens and closes and blockages. So the order in which changes reach
+the log is, per net, the order in which they are applied, and a change is recorded
+before the call that made it returns (before the reply is sent). Refused calls
+record nothing.
 
 The changes are plain values (engine types, layers as process-step indices of the
 deck in force when the change was applied); how they are written down is the log's
 business (``_journal`` writes protobuf records).
 
 ``record`` may raise ``ChangeLogError`` (the log cannot be written). The change is
-then held in memory but not durable; a log that failed once refuses every later
-change, so the engine's held state never runs ahead of the log by more than that one.
+then not applied (an open already in the registry is taken out again), so the
+engine's held state never runs ahead of the log.
 """
 
 from __future__ import annotations

@@ -28,6 +28,7 @@ from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoade
                          NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from ._geometry import Rect, checked_rect as _checked_rect
+from ._names import check_name
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
 from ._reports import Headroom, NetReport, Score
@@ -114,13 +115,13 @@ class Engine:
                 blockages = self._obstacles.moved_blockages(old, deck) if old is not None else {}
                 compiled = compile_deck(deck)
                 cores = [_core_net(compiled, pins, shapes) for pins, shapes, _ in moved]
+                self._record(DeckLoaded(deck, text))  # logged first: a refused log changes nothing
                 self._deck, self._compiled = deck, compiled
                 for net, (pins, shapes, layer_range), core in zip(nets, moved, cores):
                     net.pins, net.layer_range, net.core = pins, layer_range, core
                 self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
                     net.name, net.pins, net.shape_table())], blockages)
                 self._deck_text = text
-                self._record(DeckLoaded(deck, text))
             finally:
                 for net in nets:
                     net.lock.release()
@@ -148,8 +149,7 @@ class Engine:
                  shapes: Sequence[Shape] = ()) -> list[int]:
         """Open a net with its pins (and optionally shapes already routed)."""
         self.deck  # noqa: B018 - raises NoDeckError
-        if not isinstance(name, str) or not name:
-            raise InputError("a net needs a non-empty name", "net")
+        check_name(name, "a net", "net")
         if len(pins) > self.limits.max_pins_per_net:
             raise LimitExceededError(f"{len(pins)} pins exceed the limit of "
                                      f"{self.limits.max_pins_per_net} per net", "pins")
@@ -171,21 +171,32 @@ class Engine:
             self._nets[name] = net
             self._obstacles.add_net_items(name, _pin_items(net.pins))
         try:
-            ids = self._commit_locked(net, shapes)
             self._record(NetOpened(name, net.pins, net.layer_range, tuple(shapes), 1))
-            return ids
+        except BaseException:
+            net.closed = True  # a caller that found it meanwhile gets NOT_FOUND
+            net.lock.release()
+            with self._registry:
+                if self._nets.get(name) is net:
+                    del self._nets[name]
+                    self._obstacles.drop_net(name)
+            raise
+        try:
+            return self._commit_locked(net, shapes)
         finally:
             net.lock.release()
 
     def close_net(self, name: str) -> None:
         with self._registry:
-            if name not in self._nets:
+            net = self._nets.get(name)
+            if net is None:
                 raise NotFoundError(f"no open net {name!r}", "net")
-            net = self._nets.pop(name)
-            self._obstacles.drop_net(name)
             with net.lock:  # registry -> net: no reopen of the name is logged before this close
+                if net.closed:  # an open whose log entry was refused, being taken back
+                    raise NotFoundError(f"no open net {name!r}", "net")
+                self._record(NetClosed(name))  # logged first: a refused log changes nothing
+                del self._nets[name]
+                self._obstacles.drop_net(name)
                 net.closed = True
-                self._record(NetClosed(name))
 
     def net_names(self) -> list[str]:
         with self._registry:
@@ -216,10 +227,9 @@ class Engine:
             if net.closed:
                 raise NotFoundError(f"no open net {name!r}", "net")
             self._check_shapes(shapes, net.core.shape_count)
-            ids = self._commit_locked(net, shapes)
-            if ids:
-                self._record(ShapesCommitted(name, tuple(shapes), ids[0]))
-            return ids
+            if shapes:  # logged first: a refused log changes nothing
+                self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
+            return self._commit_locked(net, shapes)
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
         ids = list(range(net.next_id, net.next_id + len(shapes)))
@@ -241,11 +251,11 @@ class Engine:
                     raise NotFoundError(f"shape {sid} is listed twice" if sid in seen
                                         else f"net {name!r} has no shape {sid}", f"shape_ids[{i}]")
                 seen.add(sid)
+            if ids:  # logged first: a refused log changes nothing
+                self._record(ShapesRemoved(name, tuple(ids)))
             net.core.remove(ids)
             self._obstacles.remove_net_items(name, [_shape_key(sid) for sid in ids])
             self.counters["removals"] += len(ids)
-            if ids:
-                self._record(ShapesRemoved(name, tuple(ids)))
 
     def shapes(self, name: str) -> dict[int, Shape]:
         net = self._net(name)
@@ -370,14 +380,15 @@ class Engine:
             raise InputError(f"unknown layer {layer!r}", "layer")
         checked = _checked_rect(list(rect), "rect")
         with self._registry:  # ordered against deck loads and snapshots in the change log
-            bid = self._obstacles.add_blockage(layer, checked)
-            self._record(BlockageDeclared(bid, layer, checked))
-        return bid
+            self._record(BlockageDeclared(self._obstacles._next_blockage, layer, checked))
+            return self._obstacles.add_blockage(layer, checked)
 
     def remove_blockage(self, blockage_id: int) -> None:
         with self._registry:
-            self._obstacles.remove_blockage(blockage_id)
+            if blockage_id not in self._obstacles.blockages:
+                raise NotFoundError(f"no blockage {blockage_id}", "blockage_id")
             self._record(BlockageRemoved(blockage_id))
+            self._obstacles.remove_blockage(blockage_id)
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
                width: int | None = None, allow_non_preferred: bool = False,
@@ -396,8 +407,9 @@ class Engine:
     # -- durability: change-log hook and whole-state images ----------------------------
 
     def _record(self, change) -> None:
-        """Hand a change that has been applied to the change log, if there is one
-        (the caller holds the lock that ordered the change; see _changelog)."""
+        """Hand a change to the change log, if there is one, after it was validated and
+        before it is applied: a log that refuses it (ChangeLogError) leaves the engine
+        as it was. The caller holds the lock that ordered the change (see _changelog)."""
         log = self.changelog
         if log is not None:
             log.record(change)

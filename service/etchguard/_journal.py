@@ -15,15 +15,33 @@ A server with ``--state-dir DIR`` keeps there:
   the segments it covers are deleted.
 * ``LOCK`` - held (flock) by the one server using the folder.
 
+Every file is created 0600 and the folder 0700: they hold every net of a design. A
+folder that already exists readable by others is used as it is, with a warning.
+
 Start = snapshot (if any) + replay of the segments from the one it names, in order.
 Replay checks that every shape and blockage gets back the id it had.
 
-Damage on start:
-* the last frame of the last segment torn or failing its CRC (a crash in the middle
-  of a write): reported in the log and truncated away; the records before it stand;
-* anything else (a bad frame with valid data after it, a torn frame in an older
-  segment, a gap in the numbering, a record the engine refuses): the server refuses
-  to start and names the file and the offset;
+Damage on start (a frame whose length runs past the end, whose CRC fails, or whose
+length is zero with data after it):
+* cut - only a *torn tail*: the damage is in the newest segment, no whole record
+  frame follows it anywhere in the file (``next_record_frame`` searches every offset
+  after it), and the bytes to the end do not match the frame's CRC (which would make
+  it a whole record under a damaged length). That is what a write cut short by a
+  crash leaves, so no acknowledged record is in those bytes: logged (``torn journal
+  tail truncated``, file, offset, bytes) and truncated away;
+* refused - any other damage (a whole record after it, a whole payload under a bad
+  length, damage in an older segment), a gap in the numbering, a record the engine
+  refuses: the server does not start, and the message names the file, the damaged
+  offset and where the next whole record starts. Cutting there would drop
+  acknowledged records, so that takes the operator's word:
+* ``keep_before_damage`` (``etchguard serve --keep-journal-before-damage``): the
+  records before the damage are replayed (a consistent state: the journal as it was
+  up to one record), the damaged segment is copied whole to ``<name>.damaged`` and
+  cut at the damage, every later segment is renamed ``<name>.damaged``, nothing is
+  deleted; the log (``journal cut at damage; the rest set aside``) names the files
+  and counts the whole records set aside;
+* a newest segment shorter than its header (a kill between creating it and writing
+  the header, a full disk) holds no record: removed (logged), and its number reused;
 * another magic or format version: refused, naming the file and both versions.
 
 Sync policy (``SyncPolicy``), what an acknowledged change survives:
@@ -44,11 +62,13 @@ import fcntl
 import logging
 import os
 import re
+import stat
 import struct
 import threading
 import time
 import zlib
 from collections.abc import Iterator
+from typing import NoReturn
 from dataclasses import dataclass, field
 from enum import Enum
 from pathlib import Path
@@ -69,6 +89,7 @@ FORMAT_VERSION = 1
 _HEADER = struct.Struct("<8sI")
 _FRAME = struct.Struct("<II")  # payload length, crc32(payload)
 SNAPSHOT_NAME = "snapshot.pb"
+FILE_MODE, DIR_MODE = 0o600, 0o700
 _SEGMENT = re.compile(r"^journal-(\d{8})\.log$")
 
 
@@ -105,49 +126,116 @@ def check_header(path: Path, data: bytes, magic: bytes, what: str) -> None:
 
 
 @dataclass
-class TornTail:
-    """A damaged last frame that was cut off: where, and why."""
+class Damage:
+    """A frame that does not read (bad length, CRC mismatch), and what follows it."""
 
     path: Path
-    offset: int
-    dropped_bytes: int
+    offset: int  # byte offset of the damaged frame
+    size: int  # bytes from there to the end of the file
     reason: str
+    next_record: int | None  # byte offset of the first whole record frame after it
+    whole_payload: bool  # the bytes to the end match the frame's CRC: only its length is bad
+
+    @property
+    def torn(self) -> bool:
+        """Nothing whole after the damage, and no whole payload under it: what a write
+        cut short by a crash leaves, so nothing acknowledged can be in these bytes."""
+        return self.next_record is None and not self.whole_payload
+
+    def refusal(self, later_segments: int, records_after: int) -> str:
+        if self.next_record is not None:
+            after = (f"a whole record follows at byte offset {self.next_record} "
+                     f"({records_after} readable from there in this segment")
+            after += f", and {later_segments} later segment(s))" if later_segments else ")"
+        elif self.whole_payload:
+            after = "the frame's payload is whole (its CRC matches), only its length is wrong"
+        else:
+            after = f"{later_segments} later segment(s) follow it"
+        return (f"damaged frame at byte offset {self.offset} ({self.reason}); {after}: this is "
+                f"damage, not a torn write, and cutting it would drop acknowledged records. "
+                f"Refusing to start. To keep the records before the damage and set this segment "
+                f"and every later one aside (renamed *.damaged, not deleted), start once with "
+                f"--keep-journal-before-damage")
 
 
-def read_frames(path: Path, data: bytes, last: bool) -> tuple[list[tuple[int, bytes]], TornTail | None]:
-    """The frames after the header as (offset, payload). A bad frame that reaches the
-    end of the data is a torn tail (allowed only when ``last``); one followed by more
-    data is corruption: JournalError naming the offset."""
+# The first byte of a serialized JournalRecord: the tag of its one `change` field
+# (field numbers 1-7, wire type 2, length-delimited).
+_RECORD_TAGS = frozenset((number << 3) | 2 for number in range(1, 8))
+
+
+def _one_field_fills(data: bytes, body: int, length: int) -> bool:
+    """The payload at ``body`` is one length-delimited field that fills exactly
+    ``length`` bytes, as every JournalRecord does (a cheap test before a CRC)."""
+    if data[body] not in _RECORD_TAGS:
+        return False
+    value = shift = 0
+    for k in range(body + 1, min(body + 11, body + length)):
+        byte = data[k]
+        value |= (byte & 0x7F) << shift
+        shift += 7
+        if byte < 0x80:
+            return value == body + length - k - 1
+    return False
+
+
+def next_record_frame(data: bytes, start: int) -> int | None:
+    """The offset of the first whole journal record frame at or after ``start``: its
+    length fits, its payload is one record field filling it, and its CRC matches.
+    A random match is about as likely as a CRC-32 collision among candidates that
+    already passed the length and field tests."""
+    end = len(data)
+    unpack = _FRAME.unpack_from
+    for p in range(start, end - _FRAME.size):
+        length, crc = unpack(data, p)
+        body = p + _FRAME.size
+        if 0 < length <= end - body and _one_field_fills(data, body, length) \
+                and zlib.crc32(data[body:body + length]) == crc:
+            return p
+    return None
+
+
+def read_frames(path: Path, data: bytes, start: int = _HEADER.size,
+                records: bool = True) -> tuple[list[tuple[int, bytes]], Damage | None]:
+    """The frames from ``start`` as (offset, payload), up to the first damaged one,
+    which is described (``records``: the frames are journal records, so what follows
+    the damage is searched for whole records)."""
     frames: list[tuple[int, bytes]] = []
-    offset, end = _HEADER.size, len(data)
+    offset, end = start, len(data)
     while offset < end:
-        reason = ""
-        frame_end = end
         if end - offset < _FRAME.size:
             reason = f"{end - offset} bytes, less than a frame header"
+            length = crc = 0
         else:
             length, crc = _FRAME.unpack_from(data, offset)
             frame_end = offset + _FRAME.size + length
             if length == 0:  # no record is empty; zeros to the end are a file the OS extended
                 reason = "zero frame length"
-                frame_end = end if not any(data[offset:]) else -1
-            elif frame_end > end:  # the write of the last frame did not finish
+            elif frame_end > end:
                 reason = f"frame of {length} bytes runs past the end ({end - offset - _FRAME.size} there)"
-                frame_end = end
+            elif zlib.crc32(data[offset + _FRAME.size:frame_end]) != crc:
+                reason = "CRC mismatch"
             else:
-                payload = data[offset + _FRAME.size:frame_end]
-                if zlib.crc32(payload) != crc:
-                    reason = "CRC mismatch"
-                else:
-                    frames.append((offset, payload))
-                    offset = frame_end
-                    continue
-        if frame_end == end and last:
-            return frames, TornTail(path, offset, end - offset, reason)
-        where = "the last frame of an older segment" if frame_end == end else "data follows it"
-        raise JournalError(f"damaged frame at byte offset {offset}: {reason}; {where}, so this is "
-                           f"corruption, not a torn write; refusing to start", str(path))
+                frames.append((offset, data[offset + _FRAME.size:frame_end]))
+                offset = frame_end
+                continue
+        body = offset + _FRAME.size
+        whole = body < end and length != end - body and zlib.crc32(data[body:]) == crc
+        following = next_record_frame(data, offset + 1) if records else None
+        return frames, Damage(path, offset, end - offset, reason, following, whole)
     return frames, None
+
+
+def _private(path: Path):
+    """``open(path, "wb")`` on a new file of mode FILE_MODE (one left by a crash is
+    replaced, not reused with whatever mode it had)."""
+    path.unlink(missing_ok=True)
+    return os.fdopen(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, FILE_MODE), "wb")
+
+
+def _write_all(fd: int, data: bytes) -> None:
+    view = memoryview(data)
+    while view:
+        view = view[os.write(fd, view):]
 
 
 def _fsync_dir(path: Path) -> None:
@@ -283,8 +371,19 @@ def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: i
                                 written_by=version)
     for bid, (layer, (xlo, ylo, xhi, yhi)) in sorted(image.blockages.items()):
         header.blockages.add(blockage_id=bid, layer=layer, xlo=xlo, ylo=ylo, xhi=xhi, yhi=yhi)
+    try:
+        _write_image(tmp, header, image)
+        os.replace(tmp, final)
+    except BaseException:
+        tmp.unlink(missing_ok=True)  # a full disk must not keep a half image on it
+        raise
+    _fsync_dir(directory)
+    return final
+
+
+def _write_image(tmp: Path, header: jpb.SnapshotHeader, image: EngineImage) -> None:
     shapes = 0
-    with open(tmp, "wb") as f:
+    with _private(tmp) as f:
         f.write(file_header(SNAPSHOT_MAGIC))
         f.write(frame(header.SerializeToString()))
         for net in image.nets:
@@ -307,16 +406,15 @@ def write_snapshot(directory: Path, image: EngineImage, covers_segments_below: i
         f.write(frame(jpb.SnapshotEnd(net_count=len(image.nets), shape_count=shapes).SerializeToString()))
         f.flush()
         os.fsync(f.fileno())
-    os.replace(tmp, final)
-    _fsync_dir(directory)
-    return final
 
 
 def read_snapshot(path: Path) -> tuple[EngineImage, int]:
     """The image a snapshot holds and the first segment number it does not cover."""
     data = path.read_bytes()
     check_header(path, data, SNAPSHOT_MAGIC, "snapshot")
-    frames, _ = read_frames(path, data, last=False)  # a snapshot is renamed in whole: no torn tail
+    frames, damage = read_frames(path, data, records=False)
+    if damage is not None:  # a snapshot is renamed into place whole: no torn tail
+        raise JournalError(f"damaged frame at byte offset {damage.offset} ({damage.reason})", str(path))
     if len(frames) < 2:
         raise JournalError("a snapshot needs a header and an end frame", str(path))
     try:
@@ -350,7 +448,9 @@ class Recovery:
     snapshot_nets: int = 0
     segments: list[Path] = field(default_factory=list)
     records: int = 0
-    torn: list[TornTail] = field(default_factory=list)
+    torn: list[Damage] = field(default_factory=list)  # torn tails cut
+    set_aside: list[Path] = field(default_factory=list)  # files renamed *.damaged (keep_before_damage)
+    records_set_aside: int = 0  # whole records found in them after the damage (at least)
     deck_text: str | None = field(default=None, repr=False)  # the deck in force after recovery
     next_segment: int = 1
     seconds: float = 0.0
@@ -369,9 +469,65 @@ def segments(directory: Path) -> list[tuple[int, Path]]:
     return sorted(found)
 
 
-def recover(directory: Path, engine) -> Recovery:
+def _count_records(path: Path, data: bytes | None = None, start: int = _HEADER.size) -> int:
+    """Whole records readable in a segment from ``start`` up to any damage."""
+    try:
+        data = path.read_bytes() if data is None else data
+    except OSError:
+        return 0
+    return len(read_frames(path, data, start, records=False)[0]) if len(data) >= start else 0
+
+
+def _aside_name(path: Path) -> Path:
+    target = path.with_name(path.name + ".damaged")
+    n = 1
+    while target.exists():
+        target = path.with_name(f"{path.name}.damaged.{n}")
+        n += 1
+    return target
+
+
+def _set_aside(directory: Path, damage: Damage, data: bytes, later: list[Path], out: Recovery) -> None:
+    """Keep the damaged segment's records before ``damage`` and set the rest aside: a
+    copy of the whole damaged file and every later segment renamed ``*.damaged``."""
+    copy = _aside_name(damage.path)
+    with _private(copy) as f:
+        f.write(data)
+        f.flush()
+        os.fsync(f.fileno())
+    with open(damage.path, "r+b") as f:
+        f.truncate(damage.offset)
+        os.fsync(f.fileno())
+    out.set_aside.append(copy)
+    if damage.next_record is not None:
+        out.records_set_aside += _count_records(damage.path, data, damage.next_record)
+    for path in later:
+        out.records_set_aside += _count_records(path)
+        target = _aside_name(path)
+        os.replace(path, target)
+        out.set_aside.append(target)
+    _fsync_dir(directory)
+    log.warning("journal cut at damage; the rest set aside", extra={"fields": {
+        "file": str(damage.path), "offset": damage.offset, "reason": damage.reason,
+        "records_set_aside": out.records_set_aside, "set_aside": [str(p) for p in out.set_aside]}})
+
+
+def _replay(engine, path: Path, frames: list[tuple[int, bytes]], out: Recovery) -> None:
+    for offset, payload in frames:
+        where = f"{path}: record at byte offset {offset}"
+        try:
+            rec = jpb.JournalRecord.FromString(payload)
+        except Exception as exc:  # noqa: BLE001 - a protobuf decode error
+            raise JournalError(f"does not decode: {exc}", where) from None
+        text = apply(engine, rec, where)
+        if text is not None:
+            out.deck_text = text
+        out.records += 1
+
+
+def recover(directory: Path, engine, keep_before_damage: bool = False) -> Recovery:
     """Rebuild ``engine`` (empty, without a change log) from the folder's snapshot and
-    journal. Truncates a torn tail (and logs it); raises JournalError on anything else."""
+    journal, by the rules of the module docstring ("Damage on start")."""
     t0 = time.perf_counter()
     out = Recovery()
     snap = directory / SNAPSHOT_NAME
@@ -385,34 +541,42 @@ def recover(directory: Path, engine) -> Recovery:
         if number < first:  # covered by the snapshot; left by a stop before their deletion
             path.unlink()
     found = [(n, p) for n, p in found if n >= first]
+    out.next_segment = (found[-1][0] + 1) if found else first
     for i, (number, path) in enumerate(found):
         expected = first if i == 0 else found[i - 1][0] + 1
         if number != expected:
             raise JournalError(f"journal segment {expected:08d} is missing before this one", str(path))
         data = path.read_bytes()
-        check_header(path, data, JOURNAL_MAGIC, "journal")
         last = i == len(found) - 1
-        frames, torn = read_frames(path, data, last)
-        for offset, payload in frames:
-            where = f"{path}: record at byte offset {offset}"
-            try:
-                rec = jpb.JournalRecord.FromString(payload)
-            except Exception as exc:  # noqa: BLE001 - a protobuf decode error
-                raise JournalError(f"does not decode: {exc}", where) from None
-            text = apply(engine, rec, where)
-            if text is not None:
-                out.deck_text = text
-            out.records += 1
-        if torn is not None:
-            log.warning("torn journal tail truncated", extra={"fields": {
-                "file": str(path), "offset": torn.offset, "dropped_bytes": torn.dropped_bytes,
-                "reason": torn.reason}})
-            with open(path, "r+b") as f:
-                f.truncate(torn.offset)
-                os.fsync(f.fileno())
-            out.torn.append(torn)
+        if last and len(data) < _HEADER.size:  # created, header not (fully) written: no record
+            log.warning("unfinished journal segment removed", extra={"fields": {
+                "file": str(path), "bytes": len(data)}})
+            path.unlink()
+            _fsync_dir(directory)
+            out.next_segment = number
+            break
+        check_header(path, data, JOURNAL_MAGIC, "journal")
+        frames, damage = read_frames(path, data)
+        if damage is not None and not (last and damage.torn) and not keep_before_damage:
+            later = len(found) - i - 1
+            after = _count_records(path, data, damage.next_record) if damage.next_record else 0
+            raise JournalError(damage.refusal(later, after), str(path))
+        _replay(engine, path, frames, out)
         out.segments.append(path)
-    out.next_segment = (found[-1][0] + 1) if found else first
+        if damage is None:
+            continue
+        if last and damage.torn:
+            log.warning("torn journal tail truncated", extra={"fields": {
+                "file": str(path), "offset": damage.offset, "dropped_bytes": damage.size,
+                "reason": damage.reason}})
+            with open(path, "r+b") as f:
+                f.truncate(damage.offset)
+                os.fsync(f.fileno())
+            out.torn.append(damage)
+        else:
+            _set_aside(directory, damage, data, [p for _, p in found[i + 1:]], out)
+            out.next_segment = number + 1
+            break
     out.seconds = time.perf_counter() - t0
     return out
 
@@ -442,6 +606,7 @@ class Journal:
         self._syncing = False
         self._written = 0  # bytes appended since start (all segments)
         self._synced = 0  # bytes known on disk
+        self._segment_base = 0  # self._written when the current segment was started
         self._since_snapshot = recovery.records
         self._failed: BaseException | None = None
         self._closed = False
@@ -461,19 +626,33 @@ class Journal:
 
     @classmethod
     def open(cls, directory: Path, engine, *, sync: SyncPolicy | str = SyncPolicy.BATCH,
-             interval_ms: float = 50.0, snapshot_every: int = 100_000, version: str = "") -> "Journal":
+             interval_ms: float = 50.0, snapshot_every: int = 100_000, version: str = "",
+             keep_before_damage: bool = False) -> "Journal":
+        """``keep_before_damage``: the operator's choice to start from the records before
+        damage that is not a torn tail (see "Damage on start") instead of refusing."""
         directory = Path(directory)
-        directory.mkdir(parents=True, exist_ok=True)
-        lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            directory.mkdir(mode=DIR_MODE, parents=True, exist_ok=True)
+            lock_fd = os.open(directory / "LOCK", os.O_RDWR | os.O_CREAT, FILE_MODE)
+            mode = stat.S_IMODE(directory.stat().st_mode)
+        except OSError as exc:
+            raise JournalError(f"cannot use the state folder: {exc.strerror}", str(directory)) from None
+        if mode & 0o077:
+            log.warning("state folder readable by others", extra={"fields": {
+                "state_dir": str(directory), "mode": oct(mode), "advice": "chmod 700"}})
         try:
             fcntl.flock(lock_fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
             os.close(lock_fd)
             raise JournalError("another etchguard server uses this state folder", str(directory)) from None
         try:
-            recovery = recover(directory, engine)
+            recovery = recover(directory, engine, keep_before_damage)
             journal = cls(directory, engine, recovery, lock_fd, SyncPolicy(sync), interval_ms,
                           snapshot_every, version)
+        except OSError as exc:  # a full disk or an I/O error while recovering: no traceback
+            os.close(lock_fd)
+            where = exc.filename or directory
+            raise JournalError(f"cannot recover the state: {exc.strerror}", str(where)) from None
         except BaseException:
             os.close(lock_fd)
             raise
@@ -481,10 +660,21 @@ class Journal:
         return journal
 
     def _new_segment(self, number: int) -> int:
-        fd = os.open(segment_path(self.directory, number), os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_APPEND, 0o644)
-        os.write(fd, file_header(JOURNAL_MAGIC))
-        os.fsync(fd)
-        _fsync_dir(self.directory)
+        """Create segment ``number`` with its header, fsynced; on any failure nothing is
+        left behind (no file, no descriptor) and JournalError names the file."""
+        path = segment_path(self.directory, number)
+        try:
+            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_APPEND, FILE_MODE)
+        except OSError as exc:
+            raise JournalError(f"cannot create a journal segment: {exc.strerror}", str(path)) from None
+        try:
+            _write_all(fd, file_header(JOURNAL_MAGIC))
+            os.fsync(fd)
+            _fsync_dir(self.directory)
+        except OSError as exc:
+            os.close(fd)
+            path.unlink(missing_ok=True)
+            raise JournalError(f"cannot start a journal segment: {exc.strerror}", str(path)) from None
         return fd
 
     # -- ChangeLog --------------------------------------------------------------------
@@ -496,16 +686,9 @@ class Journal:
                 raise ChangeLogError("the journal is closed or failed earlier; changes are refused "
                                      f"({self._failed or 'closed'})", "journal")
             try:
-                view = memoryview(data)
-                while view:
-                    n = os.write(self._fd, view)
-                    view = view[n:]
+                _write_all(self._fd, data)
             except OSError as exc:
-                self._failed = exc
-                log.error("journal write failed", extra={"fields": {"error": str(exc)}})
-                raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change "
-                                     "is held but not durable, and later changes are refused",
-                                     "journal") from None
+                self._refuse_write(exc)
             self._written += len(data)
             mark = self._written
             self._since_snapshot += 1
@@ -513,6 +696,24 @@ class Journal:
                 self._wake.set()
         if self.sync is SyncPolicy.ALWAYS:
             self._sync_to(mark)
+
+    def _refuse_write(self, exc: OSError) -> NoReturn:
+        """A record could not be written (whole): cut the segment back to its last whole
+        record, so the next one does not follow half a frame, and refuse the change (the
+        engine applies a change only once it is recorded). If even the cut fails, no
+        later record can be trusted to land after whole ones: refuse all from now on."""
+        try:
+            os.ftruncate(self._fd, _HEADER.size + self._written - self._segment_base)
+        except OSError as cut_error:
+            self._failed = cut_error
+            log.error("journal write failed and could not be undone; changes are refused from "
+                      "now on", extra={"fields": {"error": str(exc), "undo_error": str(cut_error)}})
+            raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change is "
+                                 "refused, and so are later ones until a restart", "journal") from None
+        log.error("journal write failed; the change is refused", extra={"fields": {
+            "error": str(exc), "segment": self._segment}})
+        raise ChangeLogError(f"the journal cannot be written ({exc.strerror}); this change is "
+                             "refused and not applied", "journal") from None
 
     # -- syncing ----------------------------------------------------------------------
 
@@ -522,6 +723,9 @@ class Journal:
         cond = self._sync_cond
         with cond:
             while self._synced < mark:
+                if self._failed is not None:  # an fsync failed: nothing unsynced is trusted
+                    raise ChangeLogError(f"the journal cannot be synced ({self._failed}); "
+                                         "changes are refused until a restart", "journal")
                 if self._syncing:
                     cond.wait()
                     continue
@@ -539,8 +743,28 @@ class Journal:
                     cond.notify_all()
                 if error is not None:
                     self._failed = error
-                    raise ChangeLogError(f"the journal cannot be synced ({error.strerror})", "journal")
+                    break
                 self._synced = max(self._synced, target)
+        if self._failed is not None:
+            self._fsync_failed()
+
+    def _fsync_failed(self) -> NoReturn:
+        """After a failed fsync the OS may have dropped the unsynced pages, or may write
+        them later: nothing past the last good fsync is trusted, and no change is taken
+        from now on. Under ``always`` no record past it was acknowledged (each waits for
+        its fsync), so they are cut from the segment: a restart must not replay changes
+        their callers were told were refused."""
+        error = self._failed
+        if self.sync is SyncPolicy.ALWAYS:
+            with self._write_lock:
+                try:
+                    os.ftruncate(self._fd, _HEADER.size + self._synced - self._segment_base)
+                except OSError:
+                    pass  # already failed; the records past the cut stay unacknowledged
+        log.error("journal fsync failed; changes are refused from now on", extra={"fields": {
+            "error": str(error)}})
+        raise ChangeLogError(f"the journal cannot be synced ({error}); this change is refused "
+                             "and not applied, and so are later ones until a restart", "journal")
 
     def _flusher(self) -> None:
         while not self._stop.wait(self.interval_s):
@@ -548,21 +772,30 @@ class Journal:
                 try:
                     self._sync_to(self._written)
                 except ChangeLogError:
-                    log.error("journal fsync failed; changes are refused from now on")
+                    pass  # logged by _fsync_failed
 
     # -- snapshots --------------------------------------------------------------------
 
     def _rotate(self) -> int:
         """Start a new segment (called with every engine lock held); returns its number,
-        the first segment the snapshot being taken does not cover."""
+        the first segment the snapshot being taken does not cover. The new segment is
+        complete (header, fsync) before the old one is let go: a failure leaves the
+        journal appending to the old one, and the snapshot is not taken."""
         with self._write_lock, self._sync_cond:
             while self._syncing:
                 self._sync_cond.wait()
-            os.fsync(self._fd)
-            self._synced = self._written
-            os.close(self._fd)
+            if self._failed is not None:
+                raise ChangeLogError(f"the journal failed earlier ({self._failed})", "journal")
+            try:
+                os.fsync(self._fd)
+            except OSError as exc:
+                self._failed = exc
+                raise ChangeLogError(f"the journal cannot be synced ({exc.strerror})", "journal") from None
+            fd = self._new_segment(self._segment + 1)
+            old, self._fd = self._fd, fd
+            os.close(old)
             self._segment += 1
-            self._fd = self._new_segment(self._segment)
+            self._synced = self._segment_base = self._written
             self._since_snapshot = 0
             return self._segment
 
@@ -590,7 +823,10 @@ class Journal:
                 return
             try:
                 self.snapshot()
-            except Exception:  # noqa: BLE001 - the journal still holds everything; retry later
+            except (OSError, EtchguardError) as exc:  # a full disk: the journal holds everything
+                log.error("snapshot failed; the journal keeps every change", extra={"fields": {
+                    "error": str(exc)}})
+            except Exception:  # noqa: BLE001 - a bug; the journal still holds everything
                 log.exception("snapshot failed; the journal keeps every change")
 
     # -- shutdown ---------------------------------------------------------------------
@@ -606,12 +842,18 @@ class Journal:
         if snapshot and self._failed is None:
             try:
                 self.snapshot()
-            except Exception:  # noqa: BLE001 - the journal is still complete
+            except (OSError, EtchguardError) as exc:  # a full disk: the journal is still complete
+                log.error("final snapshot failed; the journal keeps every change", extra={"fields": {
+                    "error": str(exc)}})
+            except Exception:  # noqa: BLE001 - a bug; the journal is still complete
                 log.exception("final snapshot failed; the journal keeps every change")
         with self._write_lock:
             self._closed = True
             try:
                 os.fsync(self._fd)
+            except OSError as exc:  # reported, not raised: the stop goes on and frees the folder
+                log.error("journal fsync at stop failed; the last changes may not be on disk",
+                          extra={"fields": {"error": str(exc)}})
             finally:
                 os.close(self._fd)
         os.close(self._lock_fd)
@@ -624,9 +866,9 @@ class Journal:
 def iter_records(directory: Path) -> Iterator[tuple[Path, int, jpb.JournalRecord]]:
     """Every record of the folder's segments, in order (for tools and tests)."""
     found = segments(Path(directory))
-    for i, (_, path) in enumerate(found):
+    for _, path in found:
         data = path.read_bytes()
         check_header(path, data, JOURNAL_MAGIC, "journal")
-        frames, _ = read_frames(path, data, last=i == len(found) - 1)
+        frames, _ = read_frames(path, data, records=False)  # up to any damage
         for offset, payload in frames:
             yield path, offset, jpb.JournalRecord.FromString(payload)

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from ._errors import InputError
+from ._names import check_name, shown
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect, square
 from ._rules import DEFAULT_OXIDE, Deck
 
@@ -52,7 +53,7 @@ class NetSpec:
 
 def resolve_layer(deck: Deck, name: object, field_name: str) -> int:
     if not isinstance(name, str) or name not in deck.layer_index:
-        raise InputError(f"unknown layer {name!r} (deck {deck.name} has "
+        raise InputError(f"unknown layer {shown(name)} (deck {deck.name} has "
                          f"{', '.join(deck.layer_index)})", field_name)
     return deck.layer_index[name]
 
@@ -70,8 +71,7 @@ def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
              cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
-    if not isinstance(name, str) or not name:
-        raise InputError("a pin needs a non-empty name", f"{field_name}.name")
+    check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
     if not rects:
         raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
@@ -82,8 +82,9 @@ def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]
         gates = {}
         for oxide, value in gate_area.items():
             if not isinstance(oxide, str) or not oxide:
-                raise InputError(f"oxide class must be a non-empty name, got {oxide!r}",
+                raise InputError(f"oxide class must be a non-empty name, got {shown(oxide)}",
                                  f"{field_name}.gate_area")
+            check_name(oxide, "an oxide class", f"{field_name}.gate_area")
             gates[oxide] = _area(value, f"{field_name}.gate_area.{oxide}")
     else:
         gates = {DEFAULT_OXIDE: _area(gate_area, f"{field_name}.gate_area")}
@@ -105,9 +106,7 @@ def _net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
     unknown = set(raw) - {"name", "pins", "shapes", "layer_range"}
     if unknown:
         raise InputError(f"unknown key {sorted(unknown)[0]!r}", where)
-    name = raw.get("name")
-    if not isinstance(name, str) or not name:
-        raise InputError("a net needs a non-empty name", f"{where}.name")
+    name = check_name(raw.get("name"), "a net", f"{where}.name")
     pins = []
     for i, p in enumerate(raw.get("pins", [])):
         pf = f"{where}.pins[{i}]"
@@ -210,8 +209,7 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
     """Refuse a Pin object handed to the engine directly that make_pin would refuse."""
     if not isinstance(pin, Pin):
         raise InputError("not a pin", field_name)
-    if not isinstance(pin.name, str) or not pin.name:
-        raise InputError("a pin needs a non-empty name", f"{field_name}.name")
+    check_name(pin.name, "a pin", f"{field_name}.name")
     if type(pin.layer) is not int or not 0 <= pin.layer < steps:
         raise InputError("not a layer of the deck", f"{field_name}.layer")
     if not pin.rects:
@@ -221,8 +219,7 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
             checked_rect(r if isinstance(r, (tuple, list)) else (), f"{field_name}.rects[{i}]")
             raise InputError("a rectangle is a tuple of four ints", f"{field_name}.rects[{i}]")
     for oxide, value in pin.gate_area.items():
-        if not isinstance(oxide, str) or not oxide:
-            raise InputError(f"oxide class must be a non-empty name, got {oxide!r}", f"{field_name}.gate_area")
+        check_name(oxide, "an oxide class", f"{field_name}.gate_area")
         _area(value, f"{field_name}.gate_area.{oxide}")
     _area(pin.diff_area, f"{field_name}.diff_area")
     for step, value in pin.cell_area.items():

@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from ._errors import DeckError
+from ._names import MAX_NAME_BYTES, byte_length, shown
 
 ROUTING = "routing"
 CUT = "cut"
@@ -216,9 +217,17 @@ class _Reader:
             return default  # type: ignore[return-value]
         value = self.table[key]
         if not isinstance(value, str) or not value:
-            self.fail(key, f"must be a non-empty string, got {value!r}")
+            self.fail(key, f"must be a non-empty string, got {shown(value)}")
         if choices and value not in choices:
-            self.fail(key, f"must be one of {', '.join(choices)}, got {value!r}")
+            self.fail(key, f"must be one of {', '.join(choices)}, got {shown(value)}")
+        return value
+
+    def name(self, key: str, default: str | None = None) -> str:
+        """A name (process, layer, oxide class): text within MAX_NAME_BYTES."""
+        value = self.text(key, default)
+        if byte_length(value) > MAX_NAME_BYTES:
+            self.fail(key, f"a name of {byte_length(value)} bytes is longer than the limit of "
+                           f"{MAX_NAME_BYTES} bytes (UTF-8): {shown(value)}")
         return value
 
     def number(self, key: str, default: float | None = None, positive: bool = False) -> float | None:
@@ -273,7 +282,7 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
     if not top.has("process"):
         top.fail("process", "is required")
     process = _Reader(source, "process", data["process"], _PROCESS_KEYS)
-    name = process.text("name")
+    name = process.name("name")
     dbu = process.integer("dbu_per_micron", positive=True)
     if dbu is None:
         process.fail("dbu_per_micron", "is required")
@@ -287,7 +296,7 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
     for i, raw in enumerate(raw_layers):
         entry = f"layers[{i}]"
         r = _Reader(source, entry, raw, _LAYER_KEYS)
-        layer_name = r.text("name")
+        layer_name = r.name("name")
         if layer_name in seen:
             r.fail("name", f"layer {layer_name!r} is listed twice")
         seen.add(layer_name)
@@ -334,7 +343,7 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
         r = _Reader(source, entry, raw, _RULE_KEYS)
         layer_name = r.text("layer")
         if layer_name not in index:
-            r.fail("layer", f"unknown layer {layer_name!r} (deck has {', '.join(index)})")
+            r.fail("layer", f"unknown layer {shown(layer_name)} (deck has {', '.join(index)})")
         step = index[layer_name]
         measure = r.text("measure", default="area", choices=MEASURES)
         if measure == "side":
@@ -342,7 +351,7 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
                 r.fail("measure", f"a side-wall rule needs a routing layer; {layer_name} is a cut layer")
             if layers[step].thickness_um is None:
                 r.fail("measure", f"a side-wall rule needs thickness_um on layer {layer_name}")
-        oxide = r.text("oxide", default=DEFAULT_OXIDE)
+        oxide = r.name("oxide", default=DEFAULT_OXIDE)
         if (step, measure, oxide) in keys:
             r.fail("layer", f"a second {measure} rule for {layer_name}, oxide {oxide}")
         keys.add((step, measure, oxide))

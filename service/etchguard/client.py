@@ -83,7 +83,7 @@ class ServiceError(Exception):
 
 
 _CODES = {c.value[0]: c for c in grpc.StatusCode}
-MAX_MESSAGE_BYTES = 64 * 1024 * 1024  # as the server's default --max-message-bytes
+MAX_MESSAGE_BYTES = 64 * 1024 * 1024  # room for any server --max-message-bytes up to this (default 16 MiB)
 _SIZE_OPTIONS = ("grpc.max_receive_message_length", "grpc.max_send_message_length")
 
 
@@ -230,8 +230,8 @@ class Client:
     """A connection to an etchguard server. Use as a context manager, or call close().
 
     ``target`` is ``host:port`` or ``unix:/path``; ``timeout`` (s) bounds each unary
-    call (None: no deadline). Messages may be as large as the server's default limit
-    (64 MiB) both ways unless ``options`` say otherwise. ``tls_roots`` (PEM bytes or a
+    call (None: no deadline). Messages may be up to 64 MiB both ways unless ``options``
+    say otherwise (the server's own limit, 16 MiB by default, is what it accepts). ``tls_roots`` (PEM bytes or a
     file) speaks TLS to a server with a certificate they sign; ``tls_client_cert`` and
     ``tls_client_key`` add a client certificate; ``token`` sends
     ``authorization: Bearer <token>`` on every call.

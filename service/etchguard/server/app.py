@@ -20,7 +20,7 @@ import signal
 import socket
 import threading
 from concurrent import futures
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 import grpc
@@ -36,11 +36,14 @@ from .servicer import AntennaServicer
 from .. import DeckError, loads_deck
 from .._journal import Journal, SyncPolicy
 from . import security
+from .streams import StreamGate
 
 log = logging.getLogger("etchguard.server")
 
 SERVICE_NAME = pb.DESCRIPTOR.services_by_name["AntennaService"].full_name
 _DEFAULT_LIMITS = Limits()
+KEEPALIVE_MS = 60_000  # the server pings a connection silent this long
+KEEPALIVE_TIMEOUT_MS = 20_000  # and closes it when the ping is not answered in this
 _DEFAULT_COSTS = CostModel()
 
 
@@ -55,13 +58,20 @@ class ServerConfig:
     listen: list[str] = field(default_factory=lambda: ["127.0.0.1:50051"])  # host:port | unix:/path
     rules: Path | None = None  # rule deck loaded at start; None: wait for LoadDeck
     metrics_port: int = 0  # Prometheus endpoint port; 0 = off
-    metrics_address: str = "127.0.0.1"
-    max_message_bytes: int = 64 * 1024 * 1024  # per message, both ways
+    metrics_address: str = "127.0.0.1"  # another than loopback needs metrics_beyond_loopback
+    metrics_beyond_loopback: bool = False
+    # per message, both ways. Parsing alone costs ~6x the bytes (upb, measured: 33 MiB of
+    # commit -> 181 MB), so no larger than the biggest request the default limits accept
+    # needs: a commit of max_shapes_per_net shapes at the widest coordinates is ~10 MB.
+    max_message_bytes: int = 16 * 1024 * 1024
     max_nets: int = _DEFAULT_LIMITS.max_nets
     max_shapes_per_net: int = _DEFAULT_LIMITS.max_shapes_per_net
     max_pins_per_net: int = _DEFAULT_LIMITS.max_pins_per_net
     max_candidates: int = _DEFAULT_LIMITS.max_candidates
     workers: int = 64  # concurrent calls; each open Session stream holds one
+    max_sessions: int | None = None  # open bidirectional streams; None: workers - workers // 4
+    session_idle_s: float = 300.0  # a stream waiting this long for a request is closed
+    connection_idle_s: float = 300.0  # a connection without a call this long is closed
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"
     # durability (issue 5): see etchguard._journal for the formats and the loss bounds
@@ -69,6 +79,8 @@ class ServerConfig:
     sync: str = SyncPolicy.BATCH.value  # always | batch | none
     sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
     snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
+    keep_journal_before_damage: bool = False  # start from the records before damage (see _journal)
+    rejudge_held_nets: bool = False  # --rules may replace the recovered deck of held nets
     # access (issue 5): see server/security.py
     tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
     tls_key: Path | None = None  # PEM private key
@@ -90,6 +102,15 @@ class ServerConfig:
         return CostModel(knee=self.cost_knee, exponent=self.cost_exponent, scale=self.cost_scale,
                          violation=self.cost_violation)
 
+    def stream_slots(self) -> int:
+        """Streams admitted at once: below the workers, so calls and health find a thread."""
+        slots = self.workers - max(1, self.workers // 4) if self.max_sessions is None else self.max_sessions
+        if not 0 <= slots < self.workers:
+            raise ServeError(f"must be below --workers ({self.workers}): an open session holds a "
+                             f"worker, and calls and health checks need one too (got {slots})",
+                             "max_sessions")
+        return slots
+
     def limits(self) -> Limits:
         names = {f.name for f in fields(Limits)}
         return Limits(**{k: getattr(self, k) for k in names})
@@ -105,9 +126,8 @@ def _engine(config: ServerConfig) -> Engine:
 
 
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
-    """An engine rebuilt from the state folder with the journal attached. ``--rules``
-    is then loaded like a LoadDeck (journaled, held nets carried over) unless the
-    recovered deck is the same text."""
+    """An engine rebuilt from the state folder with the journal attached, then
+    ``--rules`` applied (``_deck_at_start``)."""
     if config.sync not in {p.value for p in SyncPolicy}:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
@@ -115,25 +135,48 @@ def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
     engine = Engine(None, config.limits(), config.costs())
     journal = Journal.open(config.state_dir, engine, sync=config.sync,
                            interval_ms=config.sync_interval_ms,
-                           snapshot_every=config.snapshot_every, version=__version__)
+                           snapshot_every=config.snapshot_every, version=__version__,
+                           keep_before_damage=config.keep_journal_before_damage)
     r = journal.recovery
     log.info("state recovered", extra={"fields": {
         "state_dir": str(config.state_dir), "snapshot": str(r.snapshot) if r.snapshot else None,
         "snapshot_nets": r.snapshot_nets, "records_replayed": r.records, "torn_tails": len(r.torn),
+        "records_set_aside": r.records_set_aside,
         "nets": len(engine.net_names()), "seconds": round(r.seconds, 3), "sync": config.sync}})
     if config.rules is not None:
         try:
-            text = Path(config.rules).read_text(encoding="utf-8")
-        except OSError as exc:
+            _deck_at_start(config, engine, r.deck_text)
+        except EtchguardError:
             journal.close(snapshot=False)
-            raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(config.rules)) from None
-        if text != r.deck_text:
-            try:
-                engine.load_deck(loads_deck(text, str(config.rules)), text)
-            except EtchguardError:
-                journal.close(snapshot=False)
-                raise
+            raise
     return engine, journal
+
+
+def _deck_at_start(config: ServerConfig, engine: Engine, held_text: str | None) -> None:
+    """Load ``--rules`` over a recovered state like a LoadDeck (journaled, held nets
+    carried over by layer name). The deck is part of the state: when it differs in
+    substance from the recovered one and nets are held, every net would be judged anew
+    (other limits, another DBU scale...), so that takes ``--rejudge-held-nets``."""
+    try:
+        text = Path(config.rules).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(config.rules)) from None
+    if text == held_text:
+        return
+    deck = loads_deck(text, str(config.rules))
+    nets = len(engine.net_names())
+    held = loads_deck(held_text, "<held deck>") if held_text is not None else None
+    if held is not None and replace(held, source=deck.source) != deck and nets:
+        if not config.rejudge_held_nets:
+            raise ServeError(
+                f"the state folder {config.state_dir} holds {nets} net(s) judged under deck "
+                f"{held.name!r}, and {config.rules} is another deck ({deck.name!r}); loading it "
+                f"would judge every held net anew. Start without --rules to keep the held deck, "
+                f"or add --rejudge-held-nets to load this one over them", "rules")
+        log.warning("held nets re-judged under another deck", extra={"fields": {
+            "from_deck": held.name, "to_deck": deck.name, "nets": nets,
+            "rules_file": str(config.rules), "state_dir": str(config.state_dir)}})
+    engine.load_deck(deck, text)
 
 
 def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials | None:
@@ -143,10 +186,12 @@ def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials |
     return security.server_credentials(config)
 
 
-def _interceptors(config: ServerConfig) -> list[grpc.ServerInterceptor]:
+def _interceptors(config: ServerConfig, gate: StreamGate | None) -> list[grpc.ServerInterceptor]:
     chain: list[grpc.ServerInterceptor] = []
     if config.token_file is not None:  # outermost: a stranger's call goes no further
         chain.append(security.TokenInterceptor(security.read_token(config.token_file)))
+    if gate is not None:  # after the token: a refused stranger takes no stream slot
+        chain.append(gate)
     chain.append(security.MalformedRequestInterceptor())
     return chain
 
@@ -165,6 +210,7 @@ class EtchguardServer:
         self.metrics_port = 0
         self._stopped = threading.Event()
         self.journal: Journal | None = None  # set by build_server with a state folder
+        self.stream_gate: StreamGate | None = None  # set by build_server
 
     def start(self) -> None:
         self.grpc_server.start()
@@ -177,6 +223,7 @@ class EtchguardServer:
         log.info("listening", extra={"fields": {
             "addresses": self.addresses, "metrics_port": self.metrics_port, "deck": deck,
             "pid": os.getpid(), "version": __version__, "workers": self.config.workers,
+            "max_sessions": self.config.stream_slots(),
             "limits": self.config.limits().__dict__}})
 
     def stop(self, grace: float | None = None) -> None:
@@ -187,6 +234,8 @@ class EtchguardServer:
         log.info("stopping", extra={"fields": {"grace_s": grace}})
         self.health.enter_graceful_shutdown()
         self.grpc_server.stop(grace).wait()
+        if self.stream_gate is not None:
+            self.stream_gate.close()
         if self.journal is not None:  # after the last call: a final snapshot, then fsync
             self.journal.close()
         self.metrics.close()
@@ -258,17 +307,23 @@ def _bind(server: grpc.Server, config: ServerConfig, address: str) -> str:
     return f"{host}:{port}"
 
 
-def grpc_server(config: ServerConfig) -> grpc.Server:
-    """The bare grpc.Server: thread pool, message limits, interceptors, no services.
-    (The bench's echo server is built here too, so both pay the same transport.)"""
+def grpc_server(config: ServerConfig, gate: StreamGate | None = None) -> grpc.Server:
+    """The bare grpc.Server: thread pool, message limits, connection upkeep,
+    interceptors, no services. (The bench's echo server is built here too, so both pay
+    the same transport.)"""
     options = [
         ("grpc.max_receive_message_length", config.max_message_bytes),
         ("grpc.max_send_message_length", config.max_message_bytes),
         ("grpc.so_reuseport", 0),  # a second server on the same port must fail, not share it
+        # a connection with no call (a stranger refused, a client gone quiet) is closed
+        ("grpc.max_connection_idle_ms", int(config.connection_idle_s * 1000)),
+        # pings find peers that vanished without closing (a pulled cable, a killed VM)
+        ("grpc.keepalive_time_ms", KEEPALIVE_MS),
+        ("grpc.keepalive_timeout_ms", KEEPALIVE_TIMEOUT_MS),
     ]
     return grpc.server(futures.ThreadPoolExecutor(max_workers=config.workers,
                                                   thread_name_prefix="etchguard-rpc"),
-                       interceptors=_interceptors(config), options=options,
+                       interceptors=_interceptors(config, gate), options=options,
                        maximum_concurrent_rpcs=config.workers)
 
 
@@ -276,14 +331,19 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     """Assemble (but do not start) a server from ``config``."""
     if config.workers < 1:
         raise ServeError("must be at least 1", "workers")
+    for name in ("session_idle_s", "connection_idle_s"):
+        if not getattr(config, name) > 0:
+            raise ServeError("must be > 0 s", name)
+    gate = StreamGate(config.stream_slots(), config.session_idle_s)
     security.check_listen(config)
+    security.check_metrics(config)
     journal = None
     if config.state_dir is not None:
         engine, journal = _journaled_engine(config)
     else:
         engine = _engine(config)
     metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
-    server = grpc_server(config)
+    server = grpc_server(config, gate)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
     health_servicer = health.HealthServicer(experimental_non_blocking=True)
     health_pb2_grpc.add_HealthServicer_to_server(health_servicer, server)
@@ -300,4 +360,5 @@ def build_server(config: ServerConfig) -> EtchguardServer:
         raise
     built = EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
     built.journal = journal
+    built.stream_gate = gate
     return built

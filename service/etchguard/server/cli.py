@@ -22,7 +22,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--metrics-port", type=int, default=_DEFAULTS.metrics_port, metavar="N",
                         help="port of the Prometheus metrics endpoint; 0 = off (default)")
     parser.add_argument("--metrics-address", default=_DEFAULTS.metrics_address, metavar="HOST",
-                        help="address the metrics endpoint binds (default %(default)s)")
+                        help="address the metrics endpoint binds (default %(default)s); "
+                             "another than loopback needs --metrics-beyond-loopback")
+    parser.add_argument("--metrics-beyond-loopback", action="store_true",
+                        help="let --metrics-address be reachable from other machines (the "
+                             "endpoint is plain HTTP without a token)")
     parser.add_argument("--max-message-bytes", type=int, default=_DEFAULTS.max_message_bytes,
                         metavar="N", help="largest message either way (default %(default)s)")
     parser.add_argument("--max-nets", type=int, default=_DEFAULTS.max_nets, metavar="N",
@@ -45,8 +49,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--cost-violation", type=float, default=_DEFAULTS.cost_violation, metavar="C",
                         help="router cost added once a limit is broken (default %(default)s)")
     parser.add_argument("--workers", type=int, default=_DEFAULTS.workers, metavar="N",
-                        help="concurrent calls, each open session stream holding one; calls "
-                             "beyond are refused with RESOURCE_EXHAUSTED (default %(default)s)")
+                        help="concurrent calls, each open session stream holding one (see "
+                             "--max-sessions); calls beyond are refused with RESOURCE_EXHAUSTED "
+                             "(default %(default)s)")
+    parser.add_argument("--max-sessions", type=int, default=None, metavar="N",
+                        help="open session (bidirectional) streams at once, below --workers so "
+                             "that calls and health checks always find a worker; one more is "
+                             "refused RESOURCE_EXHAUSTED (default: workers - workers // 4)")
+    parser.add_argument("--session-idle-s", type=float, default=_DEFAULTS.session_idle_s,
+                        metavar="SECONDS", help="a session stream waiting this long for its "
+                        "client's next request is closed (UNAVAILABLE) (default %(default)s)")
+    parser.add_argument("--connection-idle-s", type=float, default=_DEFAULTS.connection_idle_s,
+                        metavar="SECONDS", help="a connection without any call this long is "
+                        "closed (default %(default)s)")
     parser.add_argument("--grace", type=float, default=_DEFAULTS.grace_s, metavar="SECONDS",
                         help="on SIGTERM/SIGINT, time calls in flight get to finish "
                              "(default %(default)s)")
@@ -69,6 +84,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--snapshot-every", type=int, default=_DEFAULTS.snapshot_every,
                         metavar="N", help="journal records between snapshots, which bound the "
                                           "replay on start; 0 = at shutdown only (default %(default)s)")
+    parser.add_argument("--keep-journal-before-damage", action="store_true",
+                        help="when the journal is damaged other than by a torn last write (the "
+                             "start is refused then, naming file and offset), replay the records "
+                             "before the damage and set the damaged segment and every later one "
+                             "aside as *.damaged; the records in them are not in the state")
+    parser.add_argument("--rejudge-held-nets", action="store_true",
+                        help="with --state-dir: let --rules replace the deck the held nets were "
+                             "recovered with (every held net is then judged by the new deck; "
+                             "logged). Without it a start with another deck is refused")
     # access (issue 5)
     parser.add_argument("--tls-cert", type=Path, metavar="PEM",
                         help="TLS certificate chain; with --tls-key every TCP address is TLS. "
@@ -85,12 +109,17 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
     return ServerConfig(
         listen=args.listen or list(_DEFAULTS.listen), rules=args.rules,
         metrics_port=args.metrics_port, metrics_address=args.metrics_address,
+        metrics_beyond_loopback=args.metrics_beyond_loopback,
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
         max_candidates=args.max_candidates, workers=args.workers,
+        max_sessions=args.max_sessions, session_idle_s=args.session_idle_s,
+        connection_idle_s=args.connection_idle_s,
         grace_s=args.grace, log_level=args.log_level,
         state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
-        snapshot_every=args.snapshot_every, tls_cert=args.tls_cert, tls_key=args.tls_key,
+        snapshot_every=args.snapshot_every,
+        keep_journal_before_damage=args.keep_journal_before_damage,
+        rejudge_held_nets=args.rejudge_held_nets, tls_cert=args.tls_cert, tls_key=args.tls_key,
         tls_client_ca=args.tls_client_ca, token_file=args.token_file,
         cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
         cost_violation=args.cost_violation)

@@ -2,7 +2,10 @@
 
 Inbound, every value goes through the engine's own validators (``make_shape``,
 ``make_pin``, ``resolve_layer``, ...) with the proto field path as the field name, so
-an InputError names e.g. ``candidate[2].rect`` or ``pins[0].gate_area.thin``.
+an InputError names e.g. ``candidate[2].rect`` or ``pins[0].gate_area.thin``. Before
+that, a repeated field is held to its limit by its length alone (``at_most``), so an
+oversize request costs nothing but its parse: converting costs hundreds of bytes a
+shape, which the engine's own check would only see afterwards.
 Outbound, the ``*_into`` functions fill a message the caller owns (a unary reply or
 a session reply's oneof member), so no reply is built twice or copied.
 """
@@ -14,7 +17,9 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .. import EtchguardError, InputError, make_pin, make_shape, resolve_layer, run_shapes
+from .. import (EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape,
+                resolve_layer, run_shapes)
+from .._names import check_length
 from .._nets import checked_layer_range
 from ..v1 import etchguard_pb2 as pb
 
@@ -27,6 +32,19 @@ _RUN_FIELDS = {"layer": "layer", "run": "run", "width": "run.width", "extension"
 
 
 # -- inbound ----------------------------------------------------------------------------
+
+def net_name_checked(request) -> None:
+    """A request's ``net`` within the name limit, refused before the engine would look
+    it up (and quote it back in a NOT_FOUND)."""
+    if "net" in request.DESCRIPTOR.fields_by_name:
+        check_length(request.net, "a net name", "net")
+
+
+def at_most(count: int, limit: int | None, what: str, path: str) -> None:
+    """Refuse a repeated field by its length, before any of it is converted."""
+    if limit is not None and count > limit:
+        raise LimitExceededError(f"{count} {what} exceed the limit of {limit}", path)
+
 
 def shape(deck, msg, path: str):
     """One proto Shape (rect or run) as an engine Shape."""
@@ -47,11 +65,26 @@ def shape(deck, msg, path: str):
     raise InputError("a shape needs a rect or a run", f"{path}.geometry")
 
 
-def shapes(deck, msgs, path: str) -> list:
+def shapes(deck, msgs, path: str, limit: int | None = None) -> list:
+    """Proto Shapes as engine Shapes; more than ``limit`` are refused unconverted."""
+    at_most(len(msgs), limit, "shapes", path)
     return [shape(deck, m, f"{path}[{i}]") for i, m in enumerate(msgs)]
 
 
-def pins(deck, msgs, path: str = "pins") -> list:
+def shape_ids(ids, path: str = "shape_ids", limit: int | None = None) -> list[int]:
+    at_most(len(ids), limit, "shape ids", path)
+    return list(ids)
+
+
+def pins(deck, msgs, path: str = "pins", limits: Limits | None = None) -> list:
+    """Proto Pins as engine Pins; with ``limits``, more pins than a net may have, or
+    more rectangles over all of them than a net may hold shapes, are refused unconverted."""
+    if limits is not None:
+        at_most(len(msgs), limits.max_pins_per_net, "pins", path)
+        rects = 0
+        for i, p in enumerate(msgs):
+            rects += len(p.rects)
+            at_most(rects, limits.max_shapes_per_net, "pin rectangles", f"{path}[{i}].rects")
     out = []
     for i, p in enumerate(msgs):
         where = f"{path}[{i}]"
@@ -91,9 +124,11 @@ def _checked_columns(deck, cols, path: str) -> tuple[np.ndarray, np.ndarray]:
     return counts, table[index] if n else index
 
 
-def candidate_arrays(deck, cols, path: str = "candidates") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def candidate_arrays(deck, cols, path: str = "candidates", max_candidates: int | None = None
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Candidates as (shapes per candidate, deck step per shape, (N, 4) int64 DBU rects),
     the engine's columnar form (Engine.score_columns validates the rectangles)."""
+    at_most(len(cols.shape_count), max_candidates, "candidates", path)
     counts, steps = _checked_columns(deck, cols, path)
     rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
                              for name in ("xlo", "ylo", "xhi", "yhi")]).reshape(-1, 4)
@@ -115,8 +150,12 @@ def columns_error(exc: EtchguardError, path: str = "candidates") -> EtchguardErr
     return type(exc)(exc.message, field)
 
 
-def candidate_columns(deck, cols, path: str = "candidates") -> list[list]:
-    """Columnar candidates (CandidateColumns) as a list of engine shape lists."""
+def candidate_columns(deck, cols, path: str = "candidates", max_candidates: int | None = None,
+                      max_shapes: int | None = None) -> list[list]:
+    """Columnar candidates (CandidateColumns) as a list of engine shape lists; more than
+    ``max_candidates`` candidates or ``max_shapes`` shapes are refused unconverted."""
+    at_most(len(cols.shape_count), max_candidates, "candidates", path)
+    at_most(len(cols.layer), max_shapes, "shapes", path)
     counts, steps = _checked_columns(deck, cols, path)
     names = [layer.name for layer in deck.layers]
     layer = steps.tolist()

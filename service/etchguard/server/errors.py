@@ -1,7 +1,12 @@
 """Engine errors -> gRPC status codes, with rich details naming the field.
 
 Every engine error carries ``field`` (a proto field path by the time it gets here)
-and ``message``. The status message is ``"<field>: <message>"``; the details carry a
+and ``message``. The status message is ``"<field>: <message>"``, at most
+``MAX_MESSAGE_BYTES`` of UTF-8 and the field at most ``MAX_FIELD_BYTES``, both cut on a
+character boundary: they travel in the trailers, non-ASCII bytes percent-encoded
+(three characters each), and again in the details, and the peer's metadata limit is
+8 KiB; a status past it reached clients as a transport error with another code. The
+details carry a
 ``google.rpc.ErrorInfo`` (domain ``etchguard.v1``, reason the status code's name,
 metadata ``field``) and, for INVALID_ARGUMENT, a ``google.rpc.BadRequest`` with one
 field violation, which is what client libraries show for a bad argument.
@@ -19,7 +24,10 @@ from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, Limit
 from .._changelog import ChangeLogError
 
 DOMAIN = "etchguard.v1"
-MAX_MESSAGE_CHARS = 1000  # sent twice (message and BadRequest detail): well under 8 KiB
+# Worst case on the wire: message 1000 B percent-encoded (3,000) + details in base64
+# (4/3 of: message, field three times, ~100 B of framing): ~5.6 KB, under 8 KiB.
+MAX_MESSAGE_BYTES = 1000
+MAX_FIELD_BYTES = 200
 
 CODES: dict[type, grpc.StatusCode] = {
     InputError: grpc.StatusCode.INVALID_ARGUMENT,
@@ -48,13 +56,19 @@ def field_path(exc: EtchguardError, prefix: str = "") -> str:
     return field
 
 
+def cut(text: str, limit: int, mark: str = " ... (cut)") -> str:
+    """``text`` within ``limit`` bytes of UTF-8, cut on a character boundary."""
+    data = text.encode("utf-8", "replace")
+    if len(data) <= limit:
+        return text
+    return data[:limit - len(mark)].decode("utf-8", "ignore") + mark  # "ignore": a split last char
+
+
 def describe(exc: EtchguardError, prefix: str = "") -> tuple[grpc.StatusCode, str, str]:
-    """(status code, message naming the field, field path) of an engine error."""
-    field = field_path(exc, prefix)
-    message = f"{field}: {exc.message}" if field else exc.message
-    if len(message) > MAX_MESSAGE_CHARS:  # messages quote request values (a 5,000-character
-        # net name...): cut, so status + details stay inside the peer's 8 KiB metadata limit
-        message = message[:MAX_MESSAGE_CHARS - 20] + " ... (message cut)"
+    """(status code, message naming the field, field path) of an engine error, both
+    bounded in bytes (module docstring)."""
+    field = cut(field_path(exc, prefix), MAX_FIELD_BYTES)
+    message = cut(f"{field}: {exc.message}" if field else exc.message, MAX_MESSAGE_BYTES)
     return code_of(exc), message, field
 
 

@@ -11,6 +11,10 @@
   refused call is logged with its method, peer and reason, never the token given.
 * Malformed requests: a request whose bytes do not decode as its message is answered
   INVALID_ARGUMENT naming ``request`` (grpc's own answer would be INTERNAL).
+* Metrics: the Prometheus endpoint is plain HTTP without a token, so it binds a
+  loopback address unless the operator says ``--metrics-beyond-loopback``.
+* A token file that the group or others may read is loaded, with a warning
+  (``token file readable by others``, file and mode; never the token).
 """
 
 from __future__ import annotations
@@ -18,6 +22,8 @@ from __future__ import annotations
 import hmac
 import ipaddress
 import logging
+import os
+import stat
 from pathlib import Path
 from typing import Any
 
@@ -68,6 +74,19 @@ def check_listen(config) -> None:
                          "(plaintext is served on loopback addresses and unix sockets only)", "listen")
 
 
+def check_metrics(config) -> None:
+    """Refuse a metrics endpoint beyond loopback unless the operator asked for it."""
+    from .app import ServeError
+
+    if not config.metrics_port or config.metrics_beyond_loopback:
+        return
+    if not is_local(f"{config.metrics_address}:{config.metrics_port}"):
+        raise ServeError(f"metrics on {config.metrics_address} would be served beyond this machine "
+                         "as plain HTTP without a token; bind a loopback address (and put a proxy "
+                         "with TLS in front), or give --metrics-beyond-loopback to do it anyway",
+                         "metrics_address")
+
+
 def server_credentials(config) -> grpc.ServerCredentials | None:
     """TLS credentials for every TCP address when a certificate is configured."""
     if not config.tls_cert:
@@ -83,6 +102,10 @@ def read_token(path: Path) -> str:
     from .app import ServeError
 
     token = _read(path, "token file", "token_file").decode("utf-8", "replace").strip()
+    mode = stat.S_IMODE(os.stat(path).st_mode)
+    if mode & 0o077:  # warned, not refused: the operator may share it with a group on purpose
+        log.warning("token file readable by others", extra={"fields": {
+            "file": str(path), "mode": oct(mode), "advice": "chmod 600"}})
     if not token or any(c.isspace() for c in token):
         raise ServeError(f"the token file {path} must hold one token without spaces", "token_file")
     return token

@@ -40,20 +40,20 @@ def _get_deck(self, req, out):
 
 
 def _open_net(self, req, out):
-    deck = self.engine.deck
-    pins = convert.pins(deck, req.pins)
+    deck, limits = self.engine.deck, self.engine.limits
+    pins = convert.pins(deck, req.pins, "pins", limits)
     layer_range = convert.layer_range(deck, req.layer_range) if req.HasField("layer_range") else None
-    shapes = convert.shapes(deck, req.shapes, "shapes")
+    shapes = convert.shapes(deck, req.shapes, "shapes", limits.max_shapes_per_net)
     convert.ids_into(out, self.engine.open_net(req.net, pins, layer_range, shapes))
 
 
 def _commit(self, req, out):
-    shapes = convert.shapes(self.engine.deck, req.shapes, "shapes")
+    shapes = convert.shapes(self.engine.deck, req.shapes, "shapes", self.engine.limits.max_shapes_per_net)
     convert.ids_into(out, self.engine.commit(req.net, shapes))
 
 
 def _remove(self, req, out):
-    ids = list(req.shape_ids)
+    ids = convert.shape_ids(req.shape_ids, "shape_ids", self.engine.limits.max_shapes_per_net)
     self.engine.remove(req.net, ids)
     out.removed = len(ids)
 
@@ -63,21 +63,25 @@ def _close_net(self, req, out):
 
 
 def _score(self, req, out):
-    candidate = convert.shapes(self.engine.deck, req.candidate, "candidate")
+    limits = self.engine.limits
+    candidate = convert.shapes(self.engine.deck, req.candidate, "candidate",
+                               min(limits.max_candidates, limits.max_shapes_per_net))
     convert.score_into(out, self.engine.score(req.net, candidate, not req.without_changes))
 
 
 def _score_batch(self, req, out):
-    deck = self.engine.deck
+    deck, limits = self.engine.deck, self.engine.limits
     if not req.details:  # the columnar path
-        counts, steps, rects = convert.candidate_arrays(deck, req.candidates)
+        counts, steps, rects = convert.candidate_arrays(deck, req.candidates, "candidates",
+                                                        limits.max_candidates)
         try:
             scores = self.engine.score_columns(req.net, steps, rects, counts)
         except EtchguardError as exc:
             raise convert.columns_error(exc) from None
         convert.columns_into(out, scores)
         return
-    candidates = convert.candidate_columns(deck, req.candidates)
+    candidates = convert.candidate_columns(deck, req.candidates, "candidates",
+                                           limits.max_candidates, limits.max_shapes_per_net)
     convert.batch_into(out, self.engine.score_many(req.net, candidates, req.details), req.details)
 
 
@@ -120,6 +124,7 @@ def _unary(name: str, fill, reply_type):
         t0 = perf_counter()
         out = reply_type()
         try:
+            convert.net_name_checked(request)
             fill(self, request, out)
         except EtchguardError as exc:
             self._abort(name, exc, context, t0)
@@ -204,7 +209,9 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
             out = getattr(reply, op)
             out.SetInParent()
             try:
-                fill(self, getattr(req, op), out)
+                request = getattr(req, op)
+                convert.net_name_checked(request)
+                fill(self, request, out)
                 code = "OK"
             except EtchguardError as exc:
                 reply.ClearField(op)
