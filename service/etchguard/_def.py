@@ -51,7 +51,7 @@ class Item(Enum):
     VIRTUAL = 4  # (x, y): a jump without wire
 
 
-@dataclass
+@dataclass(slots=True)
 class RawPath:
     layer: str
     line: int
@@ -60,7 +60,7 @@ class RawPath:
     items: list[tuple]
 
 
-@dataclass
+@dataclass(slots=True)
 class RawNet:
     name: str
     line: int
@@ -77,7 +77,7 @@ class DefVia:
     generated: GeneratedVia | None = None  # DBU values
 
 
-@dataclass
+@dataclass(slots=True)
 class DefComponent:
     macro: str
     line: int
@@ -462,6 +462,13 @@ class DefReader:
         if len(words) < 3:
             raise fail(self.source, line, "COMPONENTS", "expected - name macro")
         name, macro = words[1], words[2]
+        if (len(words) == 10 and words[3] == "+" and words[4] in _PLACEMENT and words[5] == "("
+                and words[8] == ")" and words[9] in ORIENTATIONS and name not in self.header.components):
+            # the common form, "- name macro + PLACED ( x y ) orient", without the general walk
+            self.header.components[name] = DefComponent(macro, line, (
+                coordinate(words[6], self.source, line, "COMPONENTS"),
+                coordinate(words[7], self.source, line, "COMPONENTS"), ORIENTATIONS[words[9]]))
+            return
         placement = None
         i = 3
         while i < len(words) and words[i] != "+":

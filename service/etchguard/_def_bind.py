@@ -56,7 +56,7 @@ class DesignBinder:
         self.steps = deck.layer_index
         self._templates: dict[tuple[str, str], _PinTemplate | None] = {}
         self._oriented: dict[tuple[str, str, Orientation], list[Rect]] = {}
-        self._vias: dict[tuple[str, Orientation], tuple[list[tuple[int, Rect]], set[str]]] = {}
+        self._vias: dict[tuple[str, Orientation], tuple[list[tuple[int, Rect]], tuple[str, ...]]] = {}
         self._widths: dict[tuple[str | None, str], int] = {}
         self._seen: set[str] = set()
         for name, component in header.components.items():
@@ -113,7 +113,7 @@ class DesignBinder:
 
     # -- vias -------------------------------------------------------------------------------
 
-    def _via(self, name: str, orient: Orientation, line: int) -> tuple[list[tuple[int, Rect]], set[str]]:
+    def _via(self, name: str, orient: Orientation, line: int) -> tuple[list[tuple[int, Rect]], tuple[str, ...]]:
         """A via's shapes (deck step, rect about the via origin) and its routing layers."""
         key = (name, orient)
         cached = self._vias.get(key)
@@ -142,8 +142,8 @@ class DesignBinder:
             step = self._step(layer, line, f"via {name}")
             if step is not None:
                 placed.extend((step, r) for r in place(rects, orient, 0, 0))
-        self._vias[key] = (placed, routing)
-        return placed, routing
+        self._vias[key] = (placed, tuple(sorted(routing)))
+        return self._vias[key]
 
     def _generated(self, name: str, gen, scale: int, line: int) -> dict[str, list[Rect]]:  # type: ignore[no-untyped-def]
         def dbu(value: float) -> int:
@@ -253,16 +253,17 @@ class DesignBinder:
         key = (component.macro, pin_name, orient)
         rects = self._oriented.get(key)
         if rects is None:
-            rects = place(template.rects, orient, 0, 0)
+            macro = self.lef.macros[component.macro]
+            if macro.size is None and orient is not _N:
+                raise fail(macro.at.source, macro.at.line, "SIZE", f"macro {macro.name} has no SIZE, so it "
+                           f"cannot be placed in orientation {orient.name}")
+            width, height = (self._size(macro.size, macro.at) if macro.size else (0, 0))
+            # oriented about the origin and moved so that the box's lower-left is at 0, 0
+            bx, by = placement_shift(orient, width, height, 0, 0)
+            rects = place(template.rects, orient, bx, by)
             self._oriented[key] = rects
-        macro = self.lef.macros[component.macro]
-        if macro.size is None and orient is not _N:
-            raise fail(macro.at.source, macro.at.line, "SIZE", f"macro {macro.name} has no SIZE, so it cannot be "
-                       f"placed in orientation {orient.name}")
-        width, height = (self._size(macro.size, macro.at) if macro.size else (0, 0))
-        dx, dy = placement_shift(orient, width, height, x, y)
         return Pin(f"{comp_name}.{pin_name}", template.layer,
-                   tuple((r[0] + dx, r[1] + dy, r[2] + dx, r[3] + dy) for r in rects),
+                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]),
                    template.gate, template.diff, template.cell)
 
     def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
@@ -349,13 +350,17 @@ class DesignBinder:
                 if px is None or py is None:
                     raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} before any point")
                 placed, routing = self._via(item[1], item[2] or _N, line)
-                shapes.extend(Shape(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed)
-                other = routing - {layer}
-                if len(routing) == 2 and layer in routing:
-                    layer = other.pop()
-                elif routing != {layer}:
+                shapes.extend([Shape(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
+                if layer not in routing:
                     raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} does not land on {layer}")
-                step_after = self._step(layer, line, "NETS")
+                if len(routing) == 2:
+                    layer = routing[1] if routing[0] == layer else routing[0]
+                elif len(routing) != 1:
+                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} joins "
+                               f"{', '.join(routing)}: not one layer to another")
+                step_after = self.steps.get(layer)
+                if step_after is None:
+                    step_after = self._step(layer, line, "NETS")
                 if step_after is None:
                     return  # the rest of the path runs on a layer the deck does not hold
                 step, width, pext = step_after, self._width(rule, layer, line), None

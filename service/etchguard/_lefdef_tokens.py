@@ -27,7 +27,11 @@ from typing import BinaryIO
 from ._errors import InputError
 
 _QUOTED_OR_WORD = re.compile(r'"[^"]*"|[^\s"]+|"')
-_PUNCTUATION = str.maketrans({";": " ; ", "(": " ( ", ")": " ) "})
+
+
+def _spaced(text: str) -> str:
+    """Blanks around ; ( and ) (three C-level passes: far quicker than str.translate)."""
+    return text.replace("(", " ( ").replace(")", " ) ").replace(";", " ; ")
 
 
 def where(source: str, line: int) -> str:
@@ -51,7 +55,7 @@ def _split_careful(text: str, source: str, line: int) -> list[str]:
         if word.startswith('"'):
             words.append(word)
         else:
-            words.extend(word.translate(_PUNCTUATION).split())
+            words.extend(_spaced(word).split())
     return words
 
 
@@ -81,7 +85,7 @@ def _decoded_lines(handle: BinaryIO, source: str, notes: Notes | None) -> Iterat
         if "#" in text or '"' in text:
             words = _split_careful(text, source, number)
         elif text:
-            words = text.translate(_PUNCTUATION).split()
+            words = _spaced(text).split()
         if words:
             yield number, words
 
