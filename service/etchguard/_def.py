@@ -131,16 +131,18 @@ def coordinate(word: str, source: str, line: int, keyword: str) -> int:
 
 def split_plus(words: list[str], start: int) -> list[tuple[int, list[str]]]:
     """The '+'-separated groups of a statement from word ``start``: (index, words)."""
+    n = len(words)
+    if start < n and words[start] != "+":
+        raise InputError(f"expected '+' before {words[start]!r}", "statement")
     groups: list[tuple[int, list[str]]] = []
-    current: list[str] | None = None
-    for i in range(start, len(words)):
-        if words[i] == "+":
-            current = []
-            groups.append((i + 1, current))
-        elif current is not None:
-            current.append(words[i])
-        else:
-            raise InputError(f"expected '+' before {words[i]!r}", "statement")
+    at = start
+    while at < n:
+        try:
+            following = words.index("+", at + 1)
+        except ValueError:
+            following = n
+        groups.append((at + 1, words[at + 1:following]))
+        at = following
     return groups
 
 
@@ -360,37 +362,53 @@ class DefReader:
                                 "segment is taken as a rectangle of the path's width")
                 i += 2
             items: list[tuple] = []
-            while i < n and words[i] != "NEW":
-                word = words[i]
-                if word == "(":
-                    x = None if words[i + 1] == "*" else coordinate(words[i + 1], source, line, "NETS")
-                    y = None if words[i + 2] == "*" else coordinate(words[i + 2], source, line, "NETS")
-                    if words[i + 3] == ")":
-                        items.append((Item.POINT, x, y, None))
-                        i += 4
-                    else:
-                        ext = coordinate(words[i + 3], source, line, "NETS")
-                        if ext < 0 or words[i + 4] != ")":
-                            raise fail(source, line_of(marks, start + i), "NETS",
-                                       f"net {net.name}: expected ( x y [extension >= 0] )")
-                        items.append((Item.POINT, x, y, ext))
-                        i += 5
-                elif word == "MASK":
-                    i += 2
-                elif word in ("RECT", "VIRTUAL"):
-                    count = 4 if word == "RECT" else 2
-                    if words[i + 1] != "(" or words[i + 2 + count] != ")":
-                        raise fail(source, line_of(marks, start + i), word,
-                                   f"net {net.name}: expected {word} ( {count} numbers )")
-                    values = tuple(coordinate(w, source, line, word) for w in words[i + 2:i + 2 + count])
-                    items.append((Item.RECT if word == "RECT" else Item.VIRTUAL, *values))
-                    i += 3 + count
-                else:
-                    orient = ORIENTATIONS.get(words[i + 1]) if i + 1 < n else None
-                    items.append((Item.VIA, word, orient))
-                    i += 2 if orient is not None else 1
+            try:
+                i = self._points(net, words, i, items, line)
+            except IndexError:
+                raise fail(source, line_of(marks, start + n - 1), "NETS",
+                           f"net {net.name}: the wiring ends inside a routing point") from None
             net.paths.append(RawPath(layer, line, taper, taper_rule, items))
             i += 1  # past NEW
+
+    def _points(self, net: RawNet, words: list[str], i: int, items: list[tuple], line: int) -> int:
+        """Routing points, vias, RECT and VIRTUAL up to NEW or the end; the index after."""
+        n = len(words)
+        point, via = Item.POINT, Item.VIA
+        while i < n:
+            word = words[i]
+            if word == "(":
+                wx, wy, close = words[i + 1], words[i + 2], words[i + 3]
+                try:
+                    x = None if wx == "*" else int(wx)
+                    y = None if wy == "*" else int(wy)
+                except ValueError:
+                    x = None if wx == "*" else coordinate(wx, self.source, line, "NETS")
+                    y = None if wy == "*" else coordinate(wy, self.source, line, "NETS")
+                if close == ")":
+                    items.append((point, x, y, None))
+                    i += 4
+                    continue
+                ext = coordinate(close, self.source, line, "NETS")
+                if ext < 0 or words[i + 4] != ")":
+                    raise fail(self.source, line, "NETS", f"net {net.name}: expected ( x y [extension >= 0] )")
+                items.append((point, x, y, ext))
+                i += 5
+            elif word == "NEW":
+                return i
+            elif word == "MASK":
+                i += 2
+            elif word in ("RECT", "VIRTUAL"):
+                count = 4 if word == "RECT" else 2
+                if words[i + 1] != "(" or words[i + 2 + count] != ")":
+                    raise fail(self.source, line, word, f"net {net.name}: expected {word} ( {count} numbers )")
+                values = tuple(coordinate(w, self.source, line, word) for w in words[i + 2:i + 2 + count])
+                items.append((Item.RECT if word == "RECT" else Item.VIRTUAL, *values))
+                i += 3 + count
+            else:
+                orient = ORIENTATIONS.get(words[i + 1]) if i + 1 < n else None
+                items.append((via, word, orient))
+                i += 2 if orient is not None else 1
+        return i
 
     # -- header statements ------------------------------------------------------------------
 
@@ -507,11 +525,13 @@ class DefReader:
                 kind = "RECT" if key == "LAYER" else "POLYGON"
                 port.shapes.extend((group[1], r) for r in self._shape_rects(kind, values, Located(self.source, at_line)))
             elif key == "VIA":
-                values = [w for w in group[2:] if w not in ("(", ")")]
-                if values and values[0].upper() == "MASK":
-                    values = values[2:]
-                port.vias.append((group[1], coordinate(values[0], self.source, at_line, key),
-                                  coordinate(values[1], self.source, at_line, key)))
+                words_at = [w for w in group[2:] if w not in ("(", ")")]
+                if words_at and words_at[0].upper() == "MASK":
+                    words_at = words_at[2:]
+                if len(words_at) != 2:
+                    raise fail(self.source, at_line, key, "expected VIA name [MASK n] ( x y )")
+                port.vias.append((group[1], coordinate(words_at[0], self.source, at_line, key),
+                                  coordinate(words_at[1], self.source, at_line, key)))
             elif key in _PLACEMENT:
                 port.placement = self._placement(group, at_line, "PINS")
             elif key == "ANTENNAMODEL":

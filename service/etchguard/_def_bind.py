@@ -26,7 +26,7 @@ from collections.abc import Iterator
 
 from ._def import DefHeader, DefPin, Item, RawNet, RawPath
 from ._geometry import Rect
-from ._lef_model import LayerKind, Lef, Located, MacroPin, Measure, PinAntenna
+from ._lef_model import GeneratedVia, LayerKind, Lef, Located, MacroPin, Measure, PinAntenna
 from ._lefdef_geometry import Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
 from ._nets import NetSpec, Pin, Shape
@@ -129,8 +129,8 @@ class DesignBinder:
         elif def_via is not None:
             shapes = def_via.shapes
         elif lef_via is not None:
-            for layer, rects in lef_via.shapes.items():
-                shapes[layer] = [self._rect_dbu(r, f"via {name}", lef_via.at) for r in rects]
+            for layer, rects_um in lef_via.shapes.items():
+                shapes[layer] = [self._rect_dbu(r, f"via {name}", lef_via.at) for r in rects_um]
         else:
             raise fail(self.source, line, "NETS", f"unknown via {name} (not in the DEF VIAS nor the LEF files)")
         placed: list[tuple[int, Rect]] = []
@@ -145,16 +145,18 @@ class DesignBinder:
         self._vias[key] = (placed, tuple(sorted(routing)))
         return self._vias[key]
 
-    def _generated(self, name: str, gen, scale: int, line: int) -> dict[str, list[Rect]]:  # type: ignore[no-untyped-def]
+    def _generated(self, name: str, gen: GeneratedVia, scale: int, line: int) -> dict[str, list[Rect]]:
         def dbu(value: float) -> int:
             out = to_dbu(value, scale) if scale != 1 else (int(value) if value == int(value) else None)
             if out is None:
                 raise fail(self.source, line, "VIA", f"via {name}: {value:g} is off the DBU grid")
             return out
+        enclosure, offset = gen.enclosure, gen.offset
         made = cut_array(dbu(gen.cut_size[0]), dbu(gen.cut_size[1]), dbu(gen.cut_spacing[0]),
                          dbu(gen.cut_spacing[1]), gen.rowcol[0], gen.rowcol[1],
-                         tuple(dbu(v) for v in gen.enclosure), (dbu(gen.origin[0]), dbu(gen.origin[1])),
-                         tuple(dbu(v) for v in gen.offset))  # type: ignore[arg-type]
+                         (dbu(enclosure[0]), dbu(enclosure[1]), dbu(enclosure[2]), dbu(enclosure[3])),
+                         (dbu(gen.origin[0]), dbu(gen.origin[1])),
+                         (dbu(offset[0]), dbu(offset[1]), dbu(offset[2]), dbu(offset[3])))
         if made is None:
             raise fail(self.source, line, "VIA", f"via {name}: its cut array cannot be centred on the DBU grid")
         below, cuts, above = made

@@ -177,10 +177,8 @@ def _read_layer(lef: Lef, stream: TokenStream, name: str, at: Located) -> None:
         elif up == "SPACING" and len(words) == 1:
             value = words.number(0)
             layer.spacing = value if layer.spacing is None else min(layer.spacing, value)
-        elif up == "ENCLOSURE" and _plain_enclosure(words) is not None:
-            value = _plain_enclosure(words)
-            assert value is not None
-            layer.enclosure = value if layer.enclosure is None else max(layer.enclosure, value)
+        elif up == "ENCLOSURE" and (overhang := _plain_enclosure(words)) is not None:
+            layer.enclosure = overhang if layer.enclosure is None else max(layer.enclosure, overhang)
         else:
             stream.warn(up, "layer statement skipped (not used by the antenna model)", words.at.line)
     if kind is None:
