@@ -6,7 +6,8 @@
   width past each end unless the point gives its own extension; ``*`` repeats the
   previous coordinate; ``RECT`` is relative to the last point; ``VIRTUAL`` moves without
   a wire; a via is placed at the last point (oriented about its origin when DEF names an
-  orientation) and switches the path to its other routing layer. Odd widths lean one
+  orientation) and switches the path to its other routing layer (a via of cuts alone
+  leaves the path where it is). Odd widths lean one
   DBU up or right, as the package's runs do.
 * Pins: a component pin is its macro pin's port shapes, moved by the macro ORIGIN,
   oriented and placed (``_lefdef_geometry``); the engine holds a pin on one layer, so
@@ -26,7 +27,15 @@ from collections.abc import Iterator
 
 from ._def import DefHeader, DefPin, Item, RawNet, RawPath
 from ._geometry import Rect
-from ._lef_model import GeneratedVia, LayerKind, Lef, Located, MacroPin, Measure, PinAntenna
+from ._lef_model import (
+    GeneratedVia,
+    LayerKind,
+    Lef,
+    Located,
+    MacroPin,
+    Measure,
+    PinAntenna,
+)
 from ._lefdef_geometry import Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
 from ._nets import NetSpec, Pin, Shape
@@ -353,6 +362,8 @@ class DesignBinder:
                     raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} before any point")
                 placed, routing = self._via(item[1], item[2] or _N, line)
                 shapes.extend([Shape(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
+                if not routing:
+                    continue  # cuts only: placed, the path stays on its layer
                 if layer not in routing:
                     raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} does not land on {layer}")
                 if len(routing) == 2:

@@ -198,11 +198,11 @@ def _rule(info: LefLayer, index: int, oxide: str, measure: Measure, antenna: Ant
             notes.warn(factor_at.source, factor_at.line, f"{prefix}AREAFACTOR", f"a factor on {info.name} "
                        f"({oxide}) without any {measure.value} ratio: no rule, the factor is not used")
         return None
-    at = next(a for k, a in antenna.at.items() if ("SIDE" in k) == side and "RATIO" in k)
+    keyword, at = next((k, a) for k, a in antenna.at.items() if ("SIDE" in k) == side and "RATIO" in k)
     if side and info.kind is LayerKind.CUT:
-        raise _error(at, "ANTENNASIDEAREARATIO", f"a side-wall rule needs a routing layer; {info.name} is a cut layer")
+        raise _error(at, keyword, f"a side-wall rule needs a routing layer; {info.name} is a cut layer")
     if side and info.thickness is None:
-        raise _error(at, "ANTENNASIDEAREARATIO", f"a side-wall rule on {info.name}, which has no THICKNESS "
+        raise _error(at, keyword, f"a side-wall rule on {info.name}, which has no THICKNESS "
                      "(a silent zero would hide every side-wall violation)")
     factor, diffuse_only = antenna.factor.get(measure, (1.0, False))
     extra: dict[str, Any] = {}
