@@ -412,3 +412,31 @@ def _is_utf8(raw: bytes) -> bool:
     except UnicodeDecodeError:
         return False
     return True
+
+
+# -- the server ----------------------------------------------------------------------------------
+
+def test_serve_takes_rules_from_lef_and_opens_the_def_nets() -> None:
+    from grpc_fixtures import start_server
+
+    offline = {r["name"]: r for r in lefdef_check_json()}
+    server = start_server("--lef", str(LEFS[0]), "--lef", str(LEFS[1]), "--def", str(BLOCK),
+                          rules=None, metrics=False)
+    try:
+        with server.client() as client:
+            assert [l.name for l in client.deck.layers] == ["M1", "V1", "M2", "V2", "M3"]
+            held = {r.net: r for r in client.check_all()}
+        assert sorted(held) == sorted(offline)
+        for name, report in held.items():
+            assert report.legal == offline[name]["legal"]
+            assert report.worst_utilization == offline[name]["worst_utilization"]
+        skipped = [e for e in server.logs if e.get("msg") == "LEF/DEF statement not used"]
+        pin_line = line_of(LEFS[1].read_text(encoding="utf-8"), "PIN IN")  # LBLOCK's pin
+        assert any(e["keyword"] == "ANTENNAMAXAREACAR" and e["where"] == f"{LEFS[1]}:{pin_line}" for e in skipped)
+    finally:
+        assert server.stop() == 0
+
+
+def test_serve_refuses_rules_twice() -> None:
+    done = run_cli("serve", "--rules", "deck.toml", "--lef", str(LEFS[0]), "--listen", "127.0.0.1:0")
+    assert done.returncode == 2 and "--lef" in done.stderr

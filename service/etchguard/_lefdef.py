@@ -16,7 +16,7 @@ from ._def import DefHeader, DefReader
 from ._def_bind import DesignBinder, bound_nets
 from ._errors import InputError
 from ._lef import read_lef
-from ._lef_deck import deck_from_lef, require_fields
+from ._lef_deck import deck_from_lef, deck_toml, require_fields
 from ._lef_model import Lef
 from ._lefdef_tokens import Notes
 from ._nets import NetSpec
@@ -46,6 +46,17 @@ def open_design(lef_paths: Sequence[str | Path], def_path: str | Path, notes: No
     require_fields(extras, notes)
     binder = DesignBinder(deck, lef, header, notes)
     return Design(deck, lef, header, bound_nets(binder, reader.raw_nets()), reader.nets_declared, notes)
+
+
+def lef_deck_text(lef_paths: Sequence[str | Path], deck: Deck | None = None, notes: Notes | None = None) -> str:
+    """The deck TOML of a technology LEF (``deck`` when already built from it, e.g. at a
+    DEF's database units), refusing what the deck would silently leave out."""
+    notes = notes if notes is not None else Notes()
+    if deck is None:
+        deck, extras = deck_from_lef(read_lef(list(lef_paths), notes), notes)
+        require_fields(extras, notes)
+    names = ", ".join(Path(p).name for p in lef_paths)
+    return deck_toml(deck, header=f"Rule deck converted from {names} by etchguard.")
 
 
 def print_notes(notes: Notes, stream) -> None:  # type: ignore[no-untyped-def]
