@@ -16,7 +16,7 @@ from ._nets import NetSpec, load_net_file
 from ._reports import NetReport
 from ._rules import Deck, load_deck
 
-HELP = "check every net of a net file against a rule deck (offline)"
+HELP = "check every net of a net file against a rule deck, or of a LEF/DEF design (offline)"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

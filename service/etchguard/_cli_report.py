@@ -120,7 +120,7 @@ def run(args: argparse.Namespace) -> int:
     if args.server:
         if args.nets or args.rules or args.lef or args.def_path:
             raise InputError("--server reports the server's own nets and deck; give no net "
-                             "file and no --rules with it", "--server")
+                             "file, --rules, --lef or --def with it", "--server")
         deck_name, layer_order, records, deck = records_from_server(args.server, args.timeout, bar)
         source = f"server {args.server}"
     else:

@@ -257,8 +257,8 @@ class DesignBinder:
         if template is None:
             return None
         if component.placement is None:
-            self.notes.warn(self.source, component.line, "COMPONENTS", f"component {comp_name} is not placed; "
-                            "its pins are left out of their nets")
+            self.notes.warn(self.source, component.line, "COMPONENTS", "a component that is not placed: its "
+                            "pins are left out of their nets", subject=comp_name)
             return None
         x, y, orient = component.placement
         key = (component.macro, pin_name, orient)

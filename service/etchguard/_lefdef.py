@@ -18,7 +18,7 @@ from ._errors import InputError
 from ._lef import read_lef
 from ._lef_deck import deck_from_lef, deck_toml, require_fields
 from ._lef_model import Lef
-from ._lefdef_tokens import Notes
+from ._lefdef_tokens import Note, Notes
 from ._nets import NetSpec
 from ._rules import Deck
 
@@ -63,10 +63,10 @@ def print_notes(notes: Notes, stream) -> None:  # type: ignore[no-untyped-def]
     """Warnings on stderr: one line per kind with where it first happened and how often."""
     if not notes.total:
         return
-    firsts: dict[tuple[str, str], str] = {}
+    firsts: dict[tuple[str, str], Note] = {}
     for note in notes.kept:
-        firsts.setdefault((note.keyword, note.message), f"{note.source}:{note.line}")
+        firsts.setdefault((note.keyword, note.message), note)
     print(f"{notes.total} warnings reading LEF/DEF (statements skipped or not expressible):", file=stream)
-    for (keyword, message), count in notes.counts.items():
-        times = f" ({count} times)" if count > 1 else ""
-        print(f"  {firsts[(keyword, message)]}: {keyword}: {message}{times}", file=stream)
+    for key, count in notes.counts.items():
+        times = f" ({count} times, the first here)" if count > 1 else ""
+        print(f"  {firsts[key]}{times}", file=stream)

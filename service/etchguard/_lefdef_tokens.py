@@ -96,9 +96,11 @@ class Note:
     line: int
     keyword: str
     message: str
+    subject: str = ""  # what it is about (a component, a pin), kept out of the kind
 
     def __str__(self) -> str:
-        return f"{where(self.source, self.line)}: {self.keyword}: {self.message}"
+        about = f"{self.subject}: " if self.subject else ""
+        return f"{where(self.source, self.line)}: {self.keyword}: {about}{self.message}"
 
 
 @dataclass
@@ -109,12 +111,14 @@ class Notes:
     kept: list[Note] = field(default_factory=list)
     counts: dict[tuple[str, str], int] = field(default_factory=dict)
 
-    def warn(self, source: str, line: int, keyword: str, message: str) -> None:
+    def warn(self, source: str, line: int, keyword: str, message: str, subject: str = "") -> None:
+        """Count a warning of kind (keyword, message); keep the first few whole. Names of
+        single objects go in ``subject`` so that a kind stays one kind however many."""
         key = (keyword, message)
         seen = self.counts.get(key, 0)
         self.counts[key] = seen + 1
         if seen < self.keep:
-            self.kept.append(Note(source, line, keyword, message))
+            self.kept.append(Note(source, line, keyword, message, subject))
 
     @property
     def total(self) -> int:

@@ -10,7 +10,7 @@ from pathlib import Path
 from .._engine import Engine
 from .._errors import InputError
 from .._lefdef import Design, lef_deck_text, open_design
-from .._lefdef_tokens import Notes
+from .._lefdef_tokens import Note, Notes
 from . import logs
 from .app import ServerConfig, build_server
 
@@ -150,9 +150,11 @@ def _open_nets(engine: Engine, design: Design) -> None:
 
 def _log_notes(notes: Notes) -> None:
     """One warning line per kind of LEF/DEF statement skipped or not expressible."""
-    firsts: dict[tuple[str, str], str] = {}
+    firsts: dict[tuple[str, str], Note] = {}
     for note in notes.kept:
-        firsts.setdefault((note.keyword, note.message), f"{note.source}:{note.line}")
+        firsts.setdefault((note.keyword, note.message), note)
     for (keyword, message), count in notes.counts.items():
+        first = firsts[(keyword, message)]
         _log.warning("LEF/DEF statement not used", extra={"fields": {
-            "where": firsts[(keyword, message)], "keyword": keyword, "reason": message, "times": count}})
+            "where": f"{first.source}:{first.line}", "keyword": keyword, "reason": message,
+            "subject": first.subject, "times": count}})
