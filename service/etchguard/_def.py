@@ -16,134 +16,18 @@ section's line. Errors (``InputError``) name file:line and the keyword.
 from __future__ import annotations
 
 from collections.abc import Iterator
-from dataclasses import dataclass, field
-from enum import Enum
 from pathlib import Path
 
+from ._def_model import WIRING, DefHeader, Item, RawNet, RawPath, coordinate, split_plus
+from ._def_sections import SectionReader
 from ._errors import InputError
-from ._geometry import Rect
-from ._lef_macro import pin_antenna
-from ._lef_model import OXIDES, GeneratedVia, Located, PinAntenna
-from ._lef_words import Words
-from ._lefdef_geometry import (
-    ORIENTATIONS,
-    Orientation,
-    bounding_box,
-    normalized,
-    rectilinear_pieces,
-)
+from ._lefdef_geometry import ORIENTATIONS, bounding_box
 from ._lefdef_tokens import Notes, TokenStream, fail, line_of
 
 # sections skipped whole (their statements are "- ... ;" up to END name)
 _SKIPPED_SECTIONS = {"REGIONS", "PINPROPERTIES", "BLOCKAGES", "SLOTS", "FILLS", "SCANCHAINS", "GROUPS", "STYLES"}
 _NEEDED_BEFORE_NETS = {"VIAS", "NONDEFAULTRULES", "COMPONENTS", "PINS"}
 _QUIET = {"VERSION", "NAMESCASESENSITIVE", "DIVIDERCHAR", "BUSBITCHARS", "TECHNOLOGY"}
-_WIRING = {"ROUTED", "FIXED", "COVER", "NOSHIELD"}
-_PLACEMENT = {"PLACED", "FIXED", "COVER"}
-
-
-class Item(Enum):
-    """A routing point's kind in a wiring path."""
-
-    POINT = 1  # (x, y, extension); x or y None for '*'
-    VIA = 2  # (name, orientation or None)
-    RECT = 3  # (dx1, dy1, dx2, dy2) relative to the last point
-    VIRTUAL = 4  # (x, y): a jump without wire
-
-
-@dataclass(slots=True)
-class RawPath:
-    layer: str
-    line: int
-    taper: bool  # TAPER: the layer's default width whatever the net's rule
-    taper_rule: str | None
-    items: list[tuple]
-
-
-@dataclass(slots=True)
-class RawNet:
-    name: str
-    line: int
-    connections: list[tuple[str, str, int]]  # (component or PIN, pin, line)
-    paths: list[RawPath]
-    rule: str | None  # NONDEFAULTRULE
-
-
-@dataclass
-class DefVia:
-    name: str
-    at: Located
-    shapes: dict[str, list[Rect]] = field(default_factory=dict)  # layer -> rects, DBU
-    generated: GeneratedVia | None = None  # DBU values
-
-
-@dataclass(slots=True)
-class DefComponent:
-    macro: str
-    line: int
-    placement: tuple[int, int, Orientation] | None  # None: UNPLACED
-
-
-@dataclass
-class DefPort:
-    shapes: list[tuple[str, Rect]] = field(default_factory=list)  # relative to the placement
-    vias: list[tuple[str, int, int]] = field(default_factory=list)
-    placement: tuple[int, int, Orientation] | None = None
-
-
-@dataclass
-class DefPin:
-    name: str
-    net: str
-    line: int
-    ports: list[DefPort]
-    antenna: PinAntenna
-    special: bool = False
-
-
-@dataclass
-class DefHeader:
-    source: str
-    design: str = ""
-    dbu: int | None = None
-    die_area: tuple[int, int, int, int] | None = None
-    vias: dict[str, DefVia] = field(default_factory=dict)
-    ndr_widths: dict[str, dict[str, tuple[float, int]]] = field(default_factory=dict)  # DBU, line
-    components: dict[str, DefComponent] = field(default_factory=dict)
-    pins: dict[str, DefPin] = field(default_factory=dict)
-    counts: dict[str, tuple[int, int, int]] = field(default_factory=dict)  # section -> (declared, found, line)
-    special_nets: int = 0
-
-
-def coordinate(word: str, source: str, line: int, keyword: str) -> int:
-    try:
-        return int(word)
-    except ValueError:
-        pass
-    try:
-        value = float(word)
-    except ValueError:
-        raise fail(source, line, keyword, f"expected a coordinate, got {word!r}") from None
-    if value != int(value):
-        raise fail(source, line, keyword, f"coordinates are whole DBU, got {word!r}")
-    return int(value)
-
-
-def split_plus(words: list[str], start: int) -> list[tuple[int, list[str]]]:
-    """The '+'-separated groups of a statement from word ``start``: (index, words)."""
-    n = len(words)
-    if start < n and words[start] != "+":
-        raise InputError(f"expected '+' before {words[start]!r}", "statement")
-    groups: list[tuple[int, list[str]]] = []
-    at = start
-    while at < n:
-        try:
-            following = words.index("+", at + 1)
-        except ValueError:
-            following = n
-        groups.append((at + 1, words[at + 1:following]))
-        at = following
-    return groups
 
 
 class DefReader:
@@ -152,6 +36,7 @@ class DefReader:
         self.source = self.stream.source
         self.notes = self.stream.notes
         self.header = DefHeader(self.source)
+        self._sections = SectionReader(self.stream, self.header)
         self._in_nets = False
         self._nets_declared = (0, 0)
         self._done = False
@@ -234,16 +119,16 @@ class DefReader:
             self.header.die_area = (int(box[0]), int(box[1]), int(box[2]), int(box[3]))
         elif up == "VIAS":
             for words, marks in self._statements(up):
-                self._via(words, marks)
+                self._sections.via(words, marks)
         elif up == "NONDEFAULTRULES":
             for words, marks in self._statements(up):
-                self._ndr(words, marks)
+                self._sections.ndr(words, marks)
         elif up == "COMPONENTS":
             for words, marks in self._statements(up):
-                self._component(words, marks)
+                self._sections.component(words, marks)
         elif up == "PINS":
             for words, marks in self._statements(up):
-                self._pin(words, marks)
+                self._sections.pin(words, marks)
         elif up == "SPECIALNETS":
             for _ in self._statements(up):
                 self.header.special_nets += 1
@@ -314,7 +199,7 @@ class DefReader:
         wiring: list[tuple[int, list[str]]] = []
         for start, group in groups:
             key = group[0].upper() if group else ""
-            if key in _WIRING:
+            if key in WIRING:
                 wiring.append((start + 1, group[1:]))
             elif key in ("RECT", "VIRTUAL") and wiring:
                 wiring[-1][1].extend(group)  # '+ RECT' / '+ VIRTUAL' continue a path
@@ -341,7 +226,7 @@ class DefReader:
             self.notes.warn(self.source, line_of(marks, start + i), "SUBNET",
                             "a subnet's own non-default rule is not applied; the net's widths are used")
             i += 2
-        if i < len(group) and group[i].upper() in _WIRING:
+        if i < len(group) and group[i].upper() in WIRING:
             self._paths(net, group[i + 1:], start + i + 1, marks)
 
     def _paths(self, net: RawNet, words: list[str], start: int, marks: list[tuple[int, int]]) -> None:
@@ -409,141 +294,3 @@ class DefReader:
                 items.append((via, word, orient))
                 i += 2 if orient is not None else 1
         return i
-
-    # -- header statements ------------------------------------------------------------------
-
-    def _via(self, words: list[str], marks: list[tuple[int, int]]) -> None:
-        source, line = self.source, marks[0][1]
-        name = words[1]
-        via = DefVia(name, Located(source, line))
-        gen: dict[str, Words] = {}
-        groups: list[tuple[int, list[str]]] = []
-        for start, group in split_plus(words, 2):
-            if group and group[0].upper() == "MASK" and groups:
-                groups[-1][1].extend(group[2:])  # '+ MASK n' then the points of the shape before it
-            else:
-                groups.append((start, group))
-        for start, group in groups:
-            key = group[0].upper() if group else ""
-            at = Located(source, line_of(marks, start))
-            if key in ("RECT", "POLYGON"):
-                values = [coordinate(w, source, at.line, key) for w in group[2:] if w not in ("(", ")")]
-                via.shapes.setdefault(group[1], []).extend(self._shape_rects(key, values, at))
-            elif key in ("VIARULE", "CUTSIZE", "LAYERS", "CUTSPACING", "ENCLOSURE", "ROWCOL", "ORIGIN",
-                         "OFFSET", "PATTERN"):
-                gen[key] = Words.of(group[1:], key, at, self.stream)
-            else:
-                self.notes.warn(source, at.line, key, "via attribute skipped (not used by the antenna model)")
-        if gen:
-            from ._lef import generated_via
-            via.generated = generated_via(gen, f"{source}:{line}: VIAS {name}")
-        if name in self.header.vias:
-            raise fail(source, line, "VIAS", f"via {name} is defined twice")
-        self.header.vias[name] = via
-
-    def _shape_rects(self, key: str, values: list[int], at: Located) -> list[Rect]:
-        if key == "RECT":
-            if len(values) != 4:
-                raise fail(at.source, at.line, key, "expected RECT layer ( x y ) ( x y )")
-            rect = normalized(*values)
-            if rect is None:
-                raise fail(at.source, at.line, key, "the rectangle has no area")
-            return [rect]
-        points = list(zip(values[0::2], values[1::2]))
-        pieces = rectilinear_pieces(points)
-        if pieces is None:
-            self.notes.warn(at.source, at.line, key, "a polygon with slanted edges: its bounding box is used")
-            pieces = [bounding_box(points)]
-        return [(int(p[0]), int(p[1]), int(p[2]), int(p[3])) for p in pieces]
-
-    def _ndr(self, words: list[str], marks: list[tuple[int, int]]) -> None:
-        widths: dict[str, tuple[float, int]] = {}
-        for start, group in split_plus(words, 2):
-            if group and group[0].upper() == "LAYER":
-                upper = [w.upper() for w in group]
-                if "WIDTH" in upper:
-                    at = upper.index("WIDTH")
-                    width = Words.of(group[at + 1:at + 2], "WIDTH", Located(self.source, line_of(marks, start)),
-                                     self.stream).number(0)
-                    widths[group[1]] = (width, line_of(marks, start))
-        self.header.ndr_widths[words[1]] = widths
-
-    def _placement(self, group: list[str], line: int, keyword: str) -> tuple[int, int, Orientation]:
-        values = [w for w in group[1:] if w not in ("(", ")")]
-        if len(values) != 3 or values[2] not in ORIENTATIONS:
-            raise fail(self.source, line, keyword, f"expected {group[0]} ( x y ) orientation (N, S, E, W, FN, FS, FE, FW)")
-        return (coordinate(values[0], self.source, line, keyword),
-                coordinate(values[1], self.source, line, keyword), ORIENTATIONS[values[2]])
-
-    def _component(self, words: list[str], marks: list[tuple[int, int]]) -> None:
-        line = marks[0][1]
-        if len(words) < 3:
-            raise fail(self.source, line, "COMPONENTS", "expected - name macro")
-        name, macro = words[1], words[2]
-        if (len(words) == 10 and words[3] == "+" and words[4] in _PLACEMENT and words[5] == "("
-                and words[8] == ")" and words[9] in ORIENTATIONS and name not in self.header.components):
-            # the common form, "- name macro + PLACED ( x y ) orient", without the general walk
-            self.header.components[name] = DefComponent(macro, line, (
-                coordinate(words[6], self.source, line, "COMPONENTS"),
-                coordinate(words[7], self.source, line, "COMPONENTS"), ORIENTATIONS[words[9]]))
-            return
-        placement = None
-        i = 3
-        while i < len(words) and words[i] != "+":
-            i += 1  # 5.x net names after the macro: not used
-        for start, group in split_plus(words, i):
-            key = group[0].upper() if group else ""
-            if key in _PLACEMENT:
-                placement = self._placement(group, line_of(marks, start), "COMPONENTS")
-            elif key != "UNPLACED":
-                self.notes.warn(self.source, line_of(marks, start), key, "component attribute skipped "
-                                "(not used by the antenna model)")
-        if name in self.header.components:
-            raise fail(self.source, line, "COMPONENTS", f"component {name} is defined twice")
-        self.header.components[name] = DefComponent(macro, line, placement)
-
-    def _pin(self, words: list[str], marks: list[tuple[int, int]]) -> None:
-        line = marks[0][1]
-        pin = DefPin(words[1], "", line, [DefPort()], PinAntenna())
-        oxide = OXIDES["OXIDE1"]
-        for start, group in split_plus(words, 2):
-            key = group[0].upper() if group else ""
-            at_line = line_of(marks, start)
-            port = pin.ports[-1]
-            if key == "NET":
-                pin.net = group[1]
-            elif key == "SPECIAL":
-                pin.special = True
-            elif key == "PORT":
-                if port.shapes or port.vias or port.placement:
-                    pin.ports.append(DefPort())
-            elif key in ("LAYER", "POLYGON"):
-                rest = [w for w in group[2:]]
-                while rest and rest[0].upper() in ("MASK", "SPACING", "DESIGNRULEWIDTH"):
-                    rest = rest[2:]
-                values = [coordinate(w, self.source, at_line, key) for w in rest if w not in ("(", ")")]
-                kind = "RECT" if key == "LAYER" else "POLYGON"
-                port.shapes.extend((group[1], r) for r in self._shape_rects(kind, values, Located(self.source, at_line)))
-            elif key == "VIA":
-                words_at = [w for w in group[2:] if w not in ("(", ")")]
-                if words_at and words_at[0].upper() == "MASK":
-                    words_at = words_at[2:]
-                if len(words_at) != 2:
-                    raise fail(self.source, at_line, key, "expected VIA name [MASK n] ( x y )")
-                port.vias.append((group[1], coordinate(words_at[0], self.source, at_line, key),
-                                  coordinate(words_at[1], self.source, at_line, key)))
-            elif key in _PLACEMENT:
-                port.placement = self._placement(group, at_line, "PINS")
-            elif key == "ANTENNAMODEL":
-                if len(group) != 2 or group[1].upper() not in OXIDES:
-                    raise fail(self.source, at_line, key, "expected OXIDE1..OXIDE4")
-                oxide = OXIDES[group[1].upper()]
-            elif key.startswith("ANTENNAPIN"):
-                lef_key = "ANTENNA" + key[len("ANTENNAPIN"):]
-                pin_antenna(pin.antenna, oxide, lef_key,
-                            Words.of(group[1:], key, Located(self.source, at_line), self.stream))
-            else:
-                self.notes.warn(self.source, at_line, key, "pin attribute skipped (not used by the antenna model)")
-        if pin.name in self.header.pins:
-            raise fail(self.source, line, "PINS", f"pin {pin.name} is defined twice")
-        self.header.pins[pin.name] = pin

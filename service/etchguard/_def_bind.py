@@ -25,7 +25,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from ._def import DefHeader, DefPin, Item, RawNet, RawPath
+from ._def_model import DefHeader, DefPin, Item, RawNet, RawPath
 from ._geometry import Rect
 from ._lef_model import (
     GeneratedVia,

@@ -12,7 +12,8 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-from ._def import DefHeader, DefReader
+from ._def import DefReader
+from ._def_model import DefHeader
 from ._def_bind import DesignBinder, bound_nets
 from ._errors import InputError
 from ._lef import read_lef
