@@ -13,8 +13,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ._def import DefReader
-from ._def_model import DefHeader
 from ._def_bind import DesignBinder, bound_nets
+from ._def_model import DefHeader
 from ._errors import InputError
 from ._lef import read_lef
 from ._lef_deck import deck_from_lef, deck_toml, require_fields
