@@ -8,9 +8,10 @@ import tempfile
 from pathlib import Path
 
 from .._engine import Engine
-from .._errors import InputError
-from .._lefdef import Design, lef_deck_text, open_design
+from .._errors import EtchguardError, InputError
+from .._lefdef import lef_deck_text, open_design
 from .._lefdef_tokens import Note, Notes
+from .._nets import NetSpec
 from . import logs
 from .app import ServerConfig, build_server
 
@@ -124,28 +125,34 @@ def run(args: argparse.Namespace) -> int:
     notes = Notes()
     with tempfile.TemporaryDirectory(prefix="etchguard-lef-") as folder:
         design = open_design(args.lef, args.def_path, notes) if args.def_path else None
+        # the whole DEF is read before anything starts: a bad line refuses the start
+        specs = list(design.nets) if design is not None else []
         text = lef_deck_text(args.lef, design.deck if design else None, notes)
         config.rules = Path(folder) / (Path(args.lef[0]).stem + ".toml")
         config.rules.write_text(text, encoding="utf-8")
         server = build_server(config)
         if design is not None:
-            _open_nets(server.engine, design)
+            try:
+                _open_nets(server.engine, specs, design.header.source)
+            except EtchguardError:
+                if server.journal is not None:
+                    server.journal.close(snapshot=False)
+                raise
         _log_notes(notes)
         return server.serve_forever()
 
 
-def _open_nets(engine: Engine, design: Design) -> None:
+def _open_nets(engine: Engine, specs: list[NetSpec], source: str) -> None:
     """Every net of the DEF, except those the state folder already brought back (newer)."""
     held = set(engine.net_names())
     opened = kept = 0
-    for spec in design.nets:
+    for spec in specs:
         if spec.name in held:
             kept += 1
             continue
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
         opened += 1
-    _log.info("nets opened from DEF", extra={"fields": {
-        "def": str(design.header.source), "opened": opened, "already_held": kept}})
+    _log.info("nets opened from DEF", extra={"fields": {"def": source, "opened": opened, "already_held": kept}})
 
 
 def _log_notes(notes: Notes) -> None:
