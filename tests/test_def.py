@@ -208,6 +208,14 @@ EXPECTED_NETS = [
         shape("M2", [40230, 7380, 40370, 7620]), shape("V2", [40230, 7430, 40370, 7570]),
         shape("M3", [40180, 7400, 40420, 7600]),
         shape("M3", [40200, 7400, 190100, 7600])]},  # a long M3 run: over its limits
+    {"name": "n8", "pins": [
+        # u10, u11, u12 LINV at (50000 | 54000 | 58000, 4000) N; u12 joins through the subnet
+        pin("u10.A", "M1", [50200, 4600, 50400, 5200], gate={"thin": 0.05}, cell={"M1": 0.02}),
+        pin("u11.Y", "M1", [55000, 4600, 55200, 6000], diff=0.3, cell={"M1": 0.05}),
+        pin("u12.A", "M1", [58200, 4600, 58400, 5200], gate={"thin": 0.05}, cell={"M1": 0.02})],
+     "shapes": [
+        shape("M1", [50230, 4930, 55170, 5070]),  # NOSHIELD wiring: M1's own 140
+        shape("M1", [54960, 4860, 58440, 5140])]},  # the subnet's TAPERRULE WIDE2X: 280
 ]
 
 
@@ -270,7 +278,7 @@ def test_report_reads_lef_and_def(tmp_path: Path) -> None:
     done = run_cli("report", "--lef", str(LEFS[0]), "--lef", str(LEFS[1]), "--def", str(BLOCK),
                    "--json", str(out), "--progress", "never")
     assert done.returncode == 1, done.stderr
-    assert "7 nets, 1 violating" in done.stderr
+    assert "8 nets, 1 violating" in done.stderr
 
 
 # -- refusals name file:line and the keyword ----------------------------------------------------
