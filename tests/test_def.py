@@ -314,6 +314,7 @@ def read_error(path: Path) -> eg.InputError:
     ("+ NONDEFAULTRULE WIDE2X", "+ NONDEFAULTRULE WIDE9X", "ROUTED M1 ( 16000", "NONDEFAULTRULE",
      "unknown non-default rule"),
     ("END NETS", "", "END DESIGN", "END", "END NETS"),
+    ("  + RECT M1 ( -200 -70 )", "  RECT M1 ( -200 -70 )", "RECT M1 ( -200 -70 )", "VIAS", "expected '+'"),
     ("UNITS DISTANCE MICRONS 1000", "UNITS DISTANCE MICRONS 1OOO", "UNITS", "UNITS", "coordinate"),
 ])
 def test_bad_design_is_refused_naming_file_and_line(tmp_path: Path, old: str, new: str, needle: str,

@@ -31,6 +31,8 @@ _QUIET = {"VERSION", "NAMESCASESENSITIVE", "DIVIDERCHAR", "BUSBITCHARS", "TECHNO
 
 
 class DefReader:
+    """One DEF file: ``read_header()``, then ``raw_nets()`` (see the module doc)."""
+
     def __init__(self, path: str | Path, notes: Notes | None = None) -> None:
         self.stream = TokenStream(path, notes)
         self.source = self.stream.source
@@ -68,7 +70,8 @@ class DefReader:
                 break
             words, marks = stream.statement(section)
             if not words or words[0] != "-":
-                raise fail(self.source, marks[0][1], section, f"expected '- name ...' in {section}, got {words[0]!r}")
+                got = words[0] if words else ";"
+                raise fail(self.source, marks[0][1], section, f"expected '- name ...' in {section}, got {got!r}")
             found += 1
             yield words, marks
         self.header.counts[section] = (declared, found, line)

@@ -18,6 +18,7 @@ from ._def_model import (
     coordinate,
     split_plus,
 )
+from ._errors import InputError
 from ._geometry import Rect
 from ._lef_macro import pin_antenna
 from ._lef_model import OXIDES, Located, PinAntenna
@@ -40,13 +41,20 @@ class SectionReader:
         self.stream, self.header = stream, header
         self.source, self.notes = stream.source, stream.notes
 
+    def _groups(self, words: list[str], start: int, marks: list[tuple[int, int]],
+                section: str) -> list[tuple[int, list[str]]]:
+        try:
+            return split_plus(words, start)
+        except InputError as exc:
+            raise fail(self.source, line_of(marks, start), section, exc.message) from None
+
     def via(self, words: list[str], marks: list[tuple[int, int]]) -> None:
         source, line = self.source, marks[0][1]
         name = words[1]
         via = DefVia(name, Located(source, line))
         gen: dict[str, Words] = {}
         groups: list[tuple[int, list[str]]] = []
-        for start, group in split_plus(words, 2):
+        for start, group in self._groups(words, 2, marks, "VIAS"):
             if group and group[0].upper() == "MASK" and groups:
                 groups[-1][1].extend(group[2:])  # '+ MASK n' then the points of the shape before it
             else:
@@ -85,7 +93,7 @@ class SectionReader:
 
     def ndr(self, words: list[str], marks: list[tuple[int, int]]) -> None:
         widths: dict[str, tuple[float, int]] = {}
-        for start, group in split_plus(words, 2):
+        for start, group in self._groups(words, 2, marks, "NONDEFAULTRULES"):
             if group and group[0].upper() == "LAYER":
                 upper = [w.upper() for w in group]
                 if "WIDTH" in upper:
@@ -117,8 +125,11 @@ class SectionReader:
         placement = None
         i = 3
         while i < len(words) and words[i] != "+":
-            i += 1  # 5.x net names after the macro: not used
-        for start, group in split_plus(words, i):
+            i += 1
+        if i > 3:
+            self.notes.warn(self.source, line, "COMPONENTS", "words between the macro and the first '+' are "
+                            "skipped (old net lists, or a '+' missing)", subject=name)
+        for start, group in self._groups(words, i, marks, "COMPONENTS"):
             key = group[0].upper() if group else ""
             if key in PLACEMENT:
                 placement = self._placement(group, line_of(marks, start), "COMPONENTS")
@@ -133,7 +144,7 @@ class SectionReader:
         line = marks[0][1]
         pin = DefPin(words[1], "", line, [DefPort()], PinAntenna())
         oxide = OXIDES["OXIDE1"]
-        for start, group in split_plus(words, 2):
+        for start, group in self._groups(words, 2, marks, "PINS"):
             key = group[0].upper() if group else ""
             at_line = line_of(marks, start)
             port = pin.ports[-1]
