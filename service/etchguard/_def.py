@@ -15,14 +15,17 @@ section's line. Errors (``InputError``) name file:line and the keyword.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path
+from typing import TypeVar
 
 from ._def_model import WIRING, DefHeader, Item, RawNet, RawPath, coordinate, split_plus
 from ._def_sections import SectionReader
 from ._errors import InputError
 from ._lefdef_geometry import ORIENTATIONS, bounding_box
 from ._lefdef_tokens import Notes, TokenStream, fail, line_of
+
+_T = TypeVar("_T")
 
 # sections skipped whole (their statements are "- ... ;" up to END name)
 _SKIPPED_SECTIONS = {"REGIONS", "PINPROPERTIES", "BLOCKAGES", "SLOTS", "FILLS", "SCANCHAINS", "GROUPS", "STYLES"}
@@ -78,6 +81,17 @@ class DefReader:
         if declared != found:
             self.notes.warn(self.source, line, section, f"declares {declared} but holds {found}")
 
+    def _guarded(self, read: Callable[[list[str], list[tuple[int, int]]], _T], section: str,
+                 words: list[str], marks: list[tuple[int, int]]) -> _T:
+        """A statement reader whose words run out early, or that finds no ')' it expects,
+        is refused naming the statement's line (not an IndexError)."""
+        try:
+            return read(words, marks)
+        except (IndexError, ValueError) as exc:
+            name = words[1] if len(words) > 1 else ""
+            raise fail(self.source, marks[0][1], section, f"statement {name!r} is cut short or malformed "
+                       f"({type(exc).__name__})") from None
+
     @property
     def nets_declared(self) -> int:
         """The count the NETS section declares (0 before it is reached)."""
@@ -122,16 +136,16 @@ class DefReader:
             self.header.die_area = (int(box[0]), int(box[1]), int(box[2]), int(box[3]))
         elif up == "VIAS":
             for words, marks in self._statements(up):
-                self._sections.via(words, marks)
+                self._guarded(self._sections.via, up, words, marks)
         elif up == "NONDEFAULTRULES":
             for words, marks in self._statements(up):
-                self._sections.ndr(words, marks)
+                self._guarded(self._sections.ndr, up, words, marks)
         elif up == "COMPONENTS":
             for words, marks in self._statements(up):
-                self._sections.component(words, marks)
+                self._guarded(self._sections.component, up, words, marks)
         elif up == "PINS":
             for words, marks in self._statements(up):
-                self._sections.pin(words, marks)
+                self._guarded(self._sections.pin, up, words, marks)
         elif up == "SPECIALNETS":
             for _ in self._statements(up):
                 self.header.special_nets += 1
@@ -168,7 +182,7 @@ class DefReader:
             self.read_header()
         if self._in_nets:
             for words, marks in self._statements("NETS", self._nets_declared):
-                net = self._net(words, marks)
+                net = self._guarded(self._net, "NETS", words, marks)
                 if net is not None:
                     yield net
             self._in_nets = False

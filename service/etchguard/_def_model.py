@@ -8,6 +8,7 @@ helpers every DEF statement uses.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from enum import Enum
 
@@ -103,7 +104,7 @@ def coordinate(word: str, source: str, line: int, keyword: str) -> int:
         value = float(word)
     except ValueError:
         raise fail(source, line, keyword, f"expected a coordinate, got {word!r}") from None
-    if value != int(value):
+    if not math.isfinite(value) or value != int(value):
         raise fail(source, line, keyword, f"coordinates are whole DBU, got {word!r}")
     return int(value)
 
