@@ -1,4 +1,5 @@
-"""``etchguard check``: the offline check of a net file against a rule deck."""
+"""``etchguard check``: the offline check of a net file against a rule deck, or of a
+design given as LEF (technology, then cells) and DEF."""
 
 from __future__ import annotations
 
@@ -8,26 +9,53 @@ import sys
 from collections.abc import Iterable, Iterator
 
 from ._engine import Engine
+from ._errors import InputError
+from ._lefdef import open_design, print_notes
+from ._lefdef_tokens import Notes
 from ._nets import NetSpec, load_net_file
 from ._reports import NetReport
-from ._rules import load_deck
+from ._rules import Deck, load_deck
 
-HELP = "check every net of a net file against a rule deck (offline)"
+HELP = "check every net of a net file against a rule deck, or of a LEF/DEF design (offline)"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("nets", help="net file (JSON)")
-    parser.add_argument("--rules", required=True, metavar="DECK", help="rule deck (TOML)")
+    parser.add_argument("nets", nargs="?", help="net file (JSON), with --rules")
+    parser.add_argument("--rules", metavar="DECK", help="rule deck (TOML)")
+    add_lefdef_arguments(parser)
     parser.add_argument("--json", action="store_true", help="print the contract's JSON instead of a table")
     parser.add_argument("--all", action="store_true", help="table: list legal nets too")
 
 
-def _with_progress(items: list[NetSpec], label: str) -> Iterable[NetSpec]:
+def add_lefdef_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--lef", action="append", default=[], metavar="LEF",
+                        help="LEF file, repeatable: the technology LEF first, then cell LEFs")
+    parser.add_argument("--def", dest="def_path", metavar="DEF", help="the design (DEF), with --lef")
+
+
+def specs_from_args(args: argparse.Namespace) -> tuple[Deck, Iterable[NetSpec], int | None, Notes | None]:
+    """(deck, nets, how many, LEF/DEF warnings) from either input form."""
+    if args.lef or args.def_path:
+        if args.nets or args.rules:
+            raise InputError("give a net file with --rules, or --lef ... --def DESIGN, not both", "--def")
+        if not args.def_path:
+            raise InputError("--lef needs --def DESIGN (to convert a tech LEF alone: etchguard deck-from-lef)",
+                             "--def")
+        design = open_design(args.lef, args.def_path)
+        return design.deck, design.nets, design.nets_declared, design.notes
+    if not args.nets or not args.rules:
+        raise InputError("give a net file and --rules DECK, or --lef TECH [--lef CELLS] --def DESIGN", "nets")
+    deck = load_deck(args.rules)
+    specs = load_net_file(deck, args.nets)
+    return deck, specs, len(specs), None
+
+
+def _with_progress(items: Iterable[NetSpec], total: int | None, label: str) -> Iterable[NetSpec]:
     try:
         from ._progress import progress
     except ImportError:
         return items
-    return progress(items, len(items), label)
+    return progress(items, total, label)
 
 
 def check_specs(engine: Engine, specs: Iterable[NetSpec]) -> Iterator[NetReport]:
@@ -66,10 +94,11 @@ def format_table(reports: list[NetReport], show_all: bool) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    deck = load_deck(args.rules)
-    specs = load_net_file(deck, args.nets)
+    deck, specs, total, notes = specs_from_args(args)
     engine = Engine(deck)
-    reports = list(check_specs(engine, _with_progress(specs, "checking")))
+    reports = list(check_specs(engine, _with_progress(specs, total, "checking")))
+    if notes is not None:
+        print_notes(notes, sys.stderr)
     if args.json:
         json.dump([r.as_dict() for r in reports], sys.stdout, indent=1)
         sys.stdout.write("\n")

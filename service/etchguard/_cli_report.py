@@ -20,12 +20,14 @@ from pathlib import Path
 from collections.abc import Callable, Iterable
 from typing import Any
 
+from ._cli_check import add_lefdef_arguments, specs_from_args
 from ._errors import InputError
-from ._nets import NetSpec, load_net_file
+from ._lefdef import print_notes
+from ._nets import NetSpec
 from ._progress import progress
 from ._report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
 from ._reports import CheckResult, NetReport
-from ._rules import Deck, load_deck, loads_deck
+from ._rules import Deck, loads_deck
 
 HELP = "write a design report of a net file: an HTML page, and CSV or JSON for scripts"
 
@@ -33,6 +35,7 @@ HELP = "write a design report of a net file: an HTML page, and CSV or JSON for s
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("nets", nargs="?", help="net file (JSON); not with --server")
     parser.add_argument("--rules", metavar="DECK", help="rule deck (TOML), for a net file")
+    add_lefdef_arguments(parser)
     parser.add_argument("--server", metavar="ADDRESS",
                         help="report the nets a running server holds (host:port or unix:PATH)")
     parser.add_argument("--timeout", type=float, default=60.0, metavar="S",
@@ -115,18 +118,21 @@ def run(args: argparse.Namespace) -> int:
 
     deck: Deck | None = None
     if args.server:
-        if args.nets or args.rules:
+        if args.nets or args.rules or args.lef or args.def_path:
             raise InputError("--server reports the server's own nets and deck; give no net "
-                             "file and no --rules with it", "--server")
+                             "file, --rules, --lef or --def with it", "--server")
         deck_name, layer_order, records, deck = records_from_server(args.server, args.timeout, bar)
         source = f"server {args.server}"
     else:
-        if not args.nets or not args.rules:
-            raise InputError("give a net file and --rules DECK, or --server ADDRESS", "nets")
-        deck = load_deck(args.rules)
-        specs = load_net_file(deck, args.nets)
-        records = list(check_records(deck, bar(specs, len(specs), "checking")))
-        deck_name, layer_order, source = deck.name, [l.name for l in deck.layers], str(args.nets)
+        if not (args.lef or args.def_path) and (not args.nets or not args.rules):
+            raise InputError("give a net file and --rules DECK, --lef ... --def DESIGN, or --server ADDRESS",
+                             "nets")
+        deck, specs, total, notes = specs_from_args(args)
+        records = list(check_records(deck, bar(specs, total, "checking")))
+        if notes is not None:
+            print_notes(notes, sys.stderr)
+        source = str(args.def_path or args.nets)
+        deck_name, layer_order = deck.name, [l.name for l in deck.layers]
     if args.output:
         try:
             page = render_html(records, deck_name, deck=deck, layer_order=layer_order, source=source,

@@ -18,6 +18,7 @@ COMMANDS = {
     "advise": "etchguard._cli_advise",
     "report": "etchguard._cli_report",
     "serve": "etchguard.server.cli",
+    "deck-from-lef": "etchguard._cli_deck_from_lef",
 }
 
 EXIT_OK, EXIT_VIOLATIONS, EXIT_BAD_INPUT = 0, 1, 2

@@ -3,19 +3,32 @@
 from __future__ import annotations
 
 import argparse
+import logging
+import tempfile
 from pathlib import Path
 
+from .._engine import Engine
+from .._errors import EtchguardError, InputError
+from .._lefdef import lef_deck_text, open_design
+from .._lefdef_tokens import Note, Notes
+from .._nets import NetSpec
 from . import logs
 from .app import ServerConfig, build_server
 
 HELP = "Serve antenna ratios, what-if scores and checks to routers over gRPC (headless)."
 
 _DEFAULTS = ServerConfig()
+_log = logging.getLogger("etchguard.server")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--rules", type=Path, metavar="DECK",
                         help="rule deck (TOML) to load at start; without it, clients call LoadDeck")
+    parser.add_argument("--lef", action="append", default=[], metavar="LEF",
+                        help="rules from LEF instead of --rules: the technology LEF first, then cell "
+                             "LEFs (repeatable); converted as `etchguard deck-from-lef` does")
+    parser.add_argument("--def", dest="def_path", metavar="DEF",
+                        help="with --lef: open every net of this (partly routed) design at start")
     parser.add_argument("--listen", action="append", metavar="ADDR",
                         help="address to serve on: HOST:PORT (port 0 picks a free one) or "
                              "unix:/path; repeat for several (default 127.0.0.1:50051)")
@@ -128,4 +141,54 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
 def run(args: argparse.Namespace) -> int:
     config = config_from_args(args)
     logs.configure(config.log_level)
-    return build_server(config).serve_forever()
+    if not args.lef:
+        if args.def_path:
+            raise InputError("--def needs the LEF files (--lef TECH [--lef CELLS])", "--def")
+        return build_server(config).serve_forever()
+    if args.rules:
+        raise InputError("give the rules as --rules DECK or as --lef files, not both", "--lef")
+    # The deck's TOML text goes through a file so that the server loads (and journals)
+    # it exactly as it would load --rules.
+    notes = Notes()
+    with tempfile.TemporaryDirectory(prefix="etchguard-lef-") as folder:
+        design = open_design(args.lef, args.def_path, notes) if args.def_path else None
+        # the whole DEF is read before anything starts: a bad line refuses the start
+        specs = list(design.nets) if design is not None else []
+        text = lef_deck_text(args.lef, design.deck if design else None, notes)
+        config.rules = Path(folder) / (Path(args.lef[0]).stem + ".toml")
+        config.rules.write_text(text, encoding="utf-8")
+        server = build_server(config)
+        if design is not None:
+            try:
+                _open_nets(server.engine, specs, design.header.source)
+            except EtchguardError:
+                if server.journal is not None:
+                    server.journal.close(snapshot=False)
+                raise
+        _log_notes(notes)
+        return server.serve_forever()
+
+
+def _open_nets(engine: Engine, specs: list[NetSpec], source: str) -> None:
+    """Every net of the DEF, except those the state folder already brought back (newer)."""
+    held = set(engine.net_names())
+    opened = kept = 0
+    for spec in specs:
+        if spec.name in held:
+            kept += 1
+            continue
+        engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
+        opened += 1
+    _log.info("nets opened from DEF", extra={"fields": {"def": source, "opened": opened, "already_held": kept}})
+
+
+def _log_notes(notes: Notes) -> None:
+    """One warning line per kind of LEF/DEF statement skipped or not expressible."""
+    firsts: dict[tuple[str, str], Note] = {}
+    for note in notes.kept:
+        firsts.setdefault((note.keyword, note.message), note)
+    for (keyword, message), count in notes.counts.items():
+        first = firsts[(keyword, message)]
+        _log.warning("LEF/DEF statement not used", extra={"fields": {
+            "where": f"{first.source}:{first.line}", "keyword": keyword, "reason": message,
+            "subject": first.subject, "times": count}})

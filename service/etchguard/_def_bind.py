@@ -1,0 +1,411 @@
+"""DEF nets bound to a deck and a cell library: ``NetSpec``s the engine can check.
+
+* Regular wiring (the contract's last paragraph): a segment between two routing points
+  is a rectangle of the path's width (the net's NONDEFAULTRULE width on the layer, a
+  TAPERRULE's, or the layer's WIDTH; TAPER returns to the layer's), extending half the
+  width past each end unless the point gives its own extension; ``*`` repeats the
+  previous coordinate; ``RECT`` is relative to the last point; ``VIRTUAL`` moves without
+  a wire; a via is placed at the last point (oriented about its origin when DEF names an
+  orientation) and switches the path to its other routing layer (a via of cuts alone
+  leaves the path where it is). Odd widths lean one
+  DBU up or right, as the package's runs do.
+* Pins: a component pin is its macro pin's port shapes, moved by the macro ORIGIN,
+  oriented and placed (``_lefdef_geometry``); the engine holds a pin on one layer, so
+  the lowest process step with shapes is used (a warning names the others). Gate area
+  per oxide, diffusion area and in-cell areas (ANTENNAPARTIALMETALAREA and
+  ANTENNAPARTIALCUTAREA on their layers) come from the LEF pin. Where a pin gives only
+  per-LAYER gate or diffusion areas, the smallest is used (a warning says so: it gives
+  the highest ratio). A DEF PIN is its ports placed, with its ANTENNAPIN values.
+* Not expressible in the engine, each a warning naming file:line: side-wall in-cell areas
+  (ANTENNAPARTIALMETALSIDEAREA), hierarchical ANTENNAMAX*CAR values, shapes on layers
+  that are not process steps of the deck (poly, contacts), unplaced components.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+
+from ._def_model import DefHeader, DefPin, Item, RawNet, RawPath
+from ._geometry import Rect
+from ._lef_model import (
+    GeneratedVia,
+    LayerKind,
+    Lef,
+    Located,
+    MacroPin,
+    Measure,
+    PinAntenna,
+)
+from ._lefdef_geometry import Orientation, cut_array, place, placement_shift, to_dbu
+from ._lefdef_tokens import Notes, fail
+from ._nets import NetSpec, Pin, Shape
+from ._rules import Deck
+
+_N = Orientation.N
+
+
+class _PinTemplate:
+    """A macro pin in macro-local DBU (origin applied), on one layer, with its areas."""
+
+    __slots__ = ("cell", "diff", "gate", "layer", "rects")
+
+    def __init__(self, layer: int, rects: list[Rect], gate: dict[str, float], diff: float,
+                 cell: dict[int, float]) -> None:
+        self.layer, self.rects, self.gate, self.diff, self.cell = layer, rects, gate, diff, cell
+
+
+class DesignBinder:
+    """Turns ``RawNet``s of one DEF into ``NetSpec``s (one at a time, nothing kept but
+    per-macro and per-via caches and the names of nets seen)."""
+
+    def __init__(self, deck: Deck, lef: Lef, header: DefHeader, notes: Notes) -> None:
+        self.deck, self.lef, self.header, self.notes = deck, lef, header, notes
+        self.source = header.source
+        self.dbu = deck.dbu_per_micron
+        self.steps = deck.layer_index
+        self._templates: dict[tuple[str, str], _PinTemplate | None] = {}
+        self._oriented: dict[tuple[str, str, Orientation], list[Rect]] = {}
+        self._vias: dict[tuple[str, Orientation], tuple[list[tuple[int, Rect]], tuple[str, ...]]] = {}
+        self._widths: dict[tuple[str | None, str], int] = {}
+        self._seen: set[str] = set()
+        for name, component in header.components.items():
+            if component.macro not in lef.macros:
+                raise fail(self.source, component.line, "COMPONENTS",
+                           f"component {name}: macro {component.macro} is not in the LEF files")
+
+    # -- layers and widths ------------------------------------------------------------------
+
+    def _known(self, layer: str) -> bool:
+        return layer in self.lef.other_layers or self.lef.layer(layer) is not None
+
+    def _step(self, layer: str, line: int, keyword: str) -> int | None:
+        """The deck step of a layer; None (with a warning) for a LEF layer that is not a
+        process step; an error for a name nobody defined."""
+        step = self.steps.get(layer)
+        if step is not None:
+            return step
+        if self._known(layer):
+            self.notes.warn(self.source, line, keyword, f"layer {layer} is not a process step of the deck "
+                            "(not routing or cut, or a contact); its shapes are left out")
+            return None
+        raise fail(self.source, line, keyword, f"unknown layer {layer} (not in the LEF files)")
+
+    def _width(self, rule: str | None, layer: str, line: int) -> int:
+        key = (rule, layer)
+        if key in self._widths:
+            return self._widths[key]
+        width: int | None = None
+        if rule is not None:
+            if rule in self.header.ndr_widths:
+                value = self.header.ndr_widths[rule].get(layer)
+                if value is not None:
+                    width = int(value[0]) if value[0] == int(value[0]) else None
+                    if width is None or width <= 0:
+                        raise fail(self.source, value[1], "WIDTH", f"rule {rule}: width {value[0]:g} on {layer} "
+                                   "is not a positive whole number of DBU")
+            elif rule in self.lef.ndr_widths:
+                um = self.lef.ndr_widths[rule].get(layer)
+                if um is not None:
+                    width = to_dbu(um, self.dbu)
+                    if width is None:
+                        raise fail(self.source, line, "NONDEFAULTRULE", f"rule {rule}: width {um:g} um on "
+                                   f"{layer} is off the DBU grid")
+            else:
+                raise fail(self.source, line, "NONDEFAULTRULE", f"unknown non-default rule {rule}")
+        if width is None:
+            width = self.deck.layers[self.steps[layer]].wire_width
+            if width is None:
+                raise fail(self.source, line, "WIDTH", f"layer {layer} has no WIDTH in the LEF; a wire on it "
+                           "has no width")
+        self._widths[key] = width
+        return width
+
+    # -- vias -------------------------------------------------------------------------------
+
+    def _via(self, name: str, orient: Orientation, line: int) -> tuple[list[tuple[int, Rect]], tuple[str, ...]]:
+        """A via's shapes (deck step, rect about the via origin) and its routing layers."""
+        key = (name, orient)
+        cached = self._vias.get(key)
+        if cached is not None:
+            return cached
+        shapes: dict[str, list[Rect]] = {}
+        def_via = self.header.vias.get(name)
+        lef_via = self.lef.vias.get(name)
+        generated = def_via.generated if def_via is not None else (lef_via.generated if lef_via else None)
+        scale = 1 if def_via is not None else self.dbu
+        if generated is not None:
+            shapes = self._generated(name, generated, scale, line)
+        elif def_via is not None:
+            shapes = def_via.shapes
+        elif lef_via is not None:
+            for layer, rects_um in lef_via.shapes.items():
+                shapes[layer] = [self._rect_dbu(r, f"via {name}", lef_via.at) for r in rects_um]
+        else:
+            raise fail(self.source, line, "NETS", f"unknown via {name} (not in the DEF VIAS nor the LEF files)")
+        placed: list[tuple[int, Rect]] = []
+        routing: set[str] = set()
+        for layer, rects in shapes.items():
+            info = self.lef.layer(layer)
+            if (info is not None and info.kind is LayerKind.ROUTING) or layer in self.lef.other_layers:
+                routing.add(layer)
+            step = self._step(layer, line, f"via {name}")
+            if step is not None:
+                placed.extend((step, r) for r in place(rects, orient, 0, 0))
+        self._vias[key] = (placed, tuple(sorted(routing)))
+        return self._vias[key]
+
+    def _generated(self, name: str, gen: GeneratedVia, scale: int, line: int) -> dict[str, list[Rect]]:
+        def dbu(value: float) -> int:
+            out = to_dbu(value, scale) if scale != 1 else (int(value) if value == int(value) else None)
+            if out is None:
+                raise fail(self.source, line, "VIA", f"via {name}: {value:g} is off the DBU grid")
+            return out
+        enclosure, offset = gen.enclosure, gen.offset
+        made = cut_array(dbu(gen.cut_size[0]), dbu(gen.cut_size[1]), dbu(gen.cut_spacing[0]),
+                         dbu(gen.cut_spacing[1]), gen.rowcol[0], gen.rowcol[1],
+                         (dbu(enclosure[0]), dbu(enclosure[1]), dbu(enclosure[2]), dbu(enclosure[3])),
+                         (dbu(gen.origin[0]), dbu(gen.origin[1])),
+                         (dbu(offset[0]), dbu(offset[1]), dbu(offset[2]), dbu(offset[3])))
+        if made is None:
+            raise fail(self.source, line, "VIA", f"via {name}: its cut array cannot be centred on the DBU grid")
+        below, cuts, above = made
+        bottom, cut, top = gen.layers
+        return {bottom: [below], cut: cuts, top: [above]}
+
+    def _rect_dbu(self, r: tuple[float, float, float, float], what: str, at: Located,
+                  dx: float = 0.0, dy: float = 0.0) -> Rect:
+        values = [to_dbu(v, self.dbu) for v in (r[0] + dx, r[1] + dy, r[2] + dx, r[3] + dy)]
+        if any(v is None for v in values):
+            raise fail(at.source, at.line, what, f"{r} is off the DBU grid at {self.dbu} per micron")
+        return (values[0], values[1], values[2], values[3])  # type: ignore[return-value]
+
+    # -- pins -------------------------------------------------------------------------------
+
+    def _areas(self, antenna: PinAntenna, what: str, at: Located) -> tuple[dict[str, float], float, dict[int, float]]:
+        gate = dict(antenna.gate_area)
+        for oxide, by_layer in antenna.gate_area_by_layer.items():
+            if oxide not in gate and by_layer:
+                gate[oxide] = min(by_layer.values())
+                self.notes.warn(at.source, at.line, "ANTENNAGATEAREA", f"{what}: only per-LAYER gate areas; "
+                                "the smallest is used (the highest ratio)")
+        diff = antenna.diff_area
+        if diff is None and antenna.diff_area_by_layer:
+            diff = min(antenna.diff_area_by_layer.values())
+            self.notes.warn(at.source, at.line, "ANTENNADIFFAREA", f"{what}: only per-LAYER diffusion areas; "
+                            "the smallest is used (the highest ratio)")
+        cell: dict[int, float] = {}
+        for (measure, layer), value in antenna.partial.items():
+            if measure is Measure.SIDE:
+                self.notes.warn(at.source, at.line, "ANTENNAPARTIALMETALSIDEAREA", f"{what}: the engine has "
+                                "no in-cell side-wall area; left out")
+                continue
+            step = self.steps.get(layer)
+            if step is None:
+                self.notes.warn(at.source, at.line, "ANTENNAPARTIAL", f"{what}: in-cell area on {layer}, "
+                                "which is not a process step of the deck; left out")
+                continue
+            cell[step] = value
+        if antenna.max_car:
+            self.notes.warn(at.source, at.line, antenna.max_car[0][0], f"{what}: hierarchical ANTENNAMAX*CAR "
+                            "values have no term in the engine yet; not added")
+        return {k: v for k, v in gate.items() if v > 0}, diff or 0.0, cell
+
+    def _one_layer(self, shapes: list[tuple[int, Rect]], what: str, at: Located) -> tuple[int, list[Rect]] | None:
+        if not shapes:
+            return None
+        lowest = min(step for step, _ in shapes)
+        others = sorted({step for step, _ in shapes if step != lowest})
+        if others:
+            names = ", ".join(self.deck.layers[s].name for s in others)
+            self.notes.warn(at.source, at.line, "PIN", f"{what} also has shapes on {names}; the engine holds a "
+                            f"pin on one layer, {self.deck.layers[lowest].name}")
+        return lowest, [r for step, r in shapes if step == lowest]
+
+    def _template(self, macro_name: str, pin_name: str, line: int) -> _PinTemplate | None:
+        key = (macro_name, pin_name)
+        if key in self._templates:
+            return self._templates[key]
+        macro = self.lef.macros[macro_name]
+        pin: MacroPin | None = macro.pins.get(pin_name)
+        if pin is None:
+            raise fail(self.source, line, "NETS", f"macro {macro_name} has no pin {pin_name}")
+        what = f"pin {pin_name} of {macro_name}"
+        shapes = []
+        for layer, rect in pin.shapes:
+            step = self.steps.get(layer)
+            if step is None:
+                if not self._known(layer):
+                    raise fail(pin.at.source, pin.at.line, "PIN", f"{what}: unknown layer {layer}")
+                continue
+            shapes.append((step, self._rect_dbu(rect, "PIN", pin.at, macro.origin[0], macro.origin[1])))
+        one = self._one_layer(shapes, what, pin.at)
+        template = None
+        if one is None:
+            self.notes.warn(pin.at.source, pin.at.line, "PIN", f"{what} has no shape on a process step of the "
+                            "deck; it is left out of its nets")
+        else:
+            gate, diff, cell = self._areas(pin.antenna, what, pin.at)
+            template = _PinTemplate(one[0], one[1], gate, diff, cell)
+        self._templates[key] = template
+        return template
+
+    def _component_pin(self, comp_name: str, pin_name: str, line: int) -> Pin | None:
+        component = self.header.components.get(comp_name)
+        if component is None:
+            raise fail(self.source, line, "NETS", f"unknown component {comp_name}")
+        template = self._template(component.macro, pin_name, line)
+        if template is None:
+            return None
+        if component.placement is None:
+            self.notes.warn(self.source, component.line, "COMPONENTS", "a component that is not placed: its "
+                            "pins are left out of their nets", subject=comp_name)
+            return None
+        x, y, orient = component.placement
+        key = (component.macro, pin_name, orient)
+        rects = self._oriented.get(key)
+        if rects is None:
+            macro = self.lef.macros[component.macro]
+            if macro.size is None and orient is not _N:
+                raise fail(macro.at.source, macro.at.line, "SIZE", f"macro {macro.name} has no SIZE, so it "
+                           f"cannot be placed in orientation {orient.name}")
+            width, height = (self._size(macro.size, macro.at) if macro.size else (0, 0))
+            # oriented about the origin and moved so that the box's lower-left is at 0, 0
+            bx, by = placement_shift(orient, width, height, 0, 0)
+            rects = place(template.rects, orient, bx, by)
+            self._oriented[key] = rects
+        return Pin(f"{comp_name}.{pin_name}", template.layer,
+                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]),
+                   template.gate, template.diff, template.cell)
+
+    def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
+        w, h = to_dbu(size[0], self.dbu), to_dbu(size[1], self.dbu)
+        if w is None or h is None:
+            raise fail(at.source, at.line, "SIZE", f"macro size {size[0]:g} x {size[1]:g} is off the DBU grid")
+        return w, h
+
+    def _io_pin(self, name: str, line: int) -> Pin | None:
+        pin: DefPin | None = self.header.pins.get(name)
+        if pin is None:
+            raise fail(self.source, line, "NETS", f"unknown design pin {name} (not in PINS)")
+        at = Located(self.source, pin.line)
+        shapes: list[tuple[int, Rect]] = []
+        for port in pin.ports:
+            if not port.shapes and not port.vias:
+                continue
+            if port.placement is None:
+                self.notes.warn(self.source, pin.line, "PINS", f"pin {name} has a port that is not placed; "
+                                "it is left out")
+                continue
+            x, y, orient = port.placement
+            for layer, rect in port.shapes:
+                step = self._step(layer, pin.line, "PINS")
+                if step is not None:
+                    shapes.extend((step, r) for r in place([rect], orient, x, y))
+            for via_name, vx, vy in port.vias:
+                for step, r in self._via(via_name, _N, pin.line)[0]:
+                    shapes.extend((step, o) for o in place([(r[0] + vx, r[1] + vy, r[2] + vx, r[3] + vy)],
+                                                          orient, x, y))
+        one = self._one_layer(shapes, f"pin {name}", at)
+        if one is None:
+            self.notes.warn(self.source, pin.line, "PINS", f"pin {name} has no placed shape on a process "
+                            "step; it is left out of its net")
+            return None
+        gate, diff, cell = self._areas(pin.antenna, f"pin {name}", at)
+        return Pin(f"PIN {name}", one[0], tuple(one[1]), gate, diff, cell)
+
+    # -- nets -------------------------------------------------------------------------------
+
+    def spec(self, raw: RawNet) -> NetSpec:
+        if raw.name in self._seen:
+            raise fail(self.source, raw.line, "NETS", f"net {raw.name} appears twice")
+        self._seen.add(raw.name)
+        pins: list[Pin] = []
+        names: set[str] = set()
+        for comp, pin_name, line in raw.connections:
+            if comp == "*":
+                self.notes.warn(self.source, line, "NETS", "a '*' connection (every component) is left out")
+                continue
+            pin = self._io_pin(pin_name, line) if comp == "PIN" else self._component_pin(comp, pin_name, line)
+            if pin is not None and pin.name not in names:
+                names.add(pin.name)
+                pins.append(pin)
+        shapes: list[Shape] = []
+        for path in raw.paths:
+            self._wire(raw, path, shapes)
+        return NetSpec(raw.name, tuple(pins), tuple(shapes))
+
+    def _wire(self, raw: RawNet, path: RawPath, shapes: list[Shape]) -> None:
+        line = path.line
+        layer = path.layer
+        step = self._step(layer, line, "NETS")
+        if step is None:
+            return
+        if not self.deck.layers[step].is_routing:
+            raise fail(self.source, line, "NETS", f"net {raw.name}: wiring on cut layer {layer}")
+        rule = None if path.taper else (path.taper_rule or raw.rule)
+        width = self._width(rule, layer, line)
+        px: int | None = None
+        py: int | None = None
+        pext: int | None = None
+        for item in path.items:
+            kind = item[0]
+            if kind is Item.POINT:
+                x = px if item[1] is None else item[1]
+                y = py if item[2] is None else item[2]
+                if x is None or y is None:
+                    raise fail(self.source, line, "NETS", f"net {raw.name}: '*' before any point")
+                if px is not None:
+                    shapes.append(Shape(step, self._segment(px, py, pext, x, y, item[3], width, step, raw, line)))  # type: ignore[arg-type]
+                px, py, pext = x, y, item[3]
+            elif kind is Item.VIA:
+                if px is None or py is None:
+                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} before any point")
+                placed, routing = self._via(item[1], item[2] or _N, line)
+                shapes.extend([Shape(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
+                if not routing:
+                    continue  # cuts only: placed, the path stays on its layer
+                if layer not in routing:
+                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} does not land on {layer}")
+                if len(routing) == 2:
+                    layer = routing[1] if routing[0] == layer else routing[0]
+                elif len(routing) != 1:
+                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} joins "
+                               f"{', '.join(routing)}: not one layer to another")
+                step_after = self.steps.get(layer)
+                if step_after is None:
+                    step_after = self._step(layer, line, "NETS")
+                if step_after is None:
+                    return  # the rest of the path runs on a layer the deck does not hold
+                step, width, pext = step_after, self._width(rule, layer, line), None
+            elif kind is Item.RECT:
+                if px is None or py is None:
+                    raise fail(self.source, line, "RECT", f"net {raw.name}: RECT before any point")
+                x1, y1, x2, y2 = px + item[1], py + item[2], px + item[3], py + item[4]
+                rect = (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))
+                if rect[0] == rect[2] or rect[1] == rect[3]:
+                    raise fail(self.source, line, "RECT", f"net {raw.name}: the rectangle has no area")
+                shapes.append(Shape(step, rect))
+            else:  # VIRTUAL
+                px, py, pext = item[1], item[2], None
+
+    def _segment(self, x1: int, y1: int, e1: int | None, x2: int, y2: int, e2: int | None, width: int,
+                 step: int, raw: RawNet, line: int) -> Rect:
+        half = width // 2
+        d1 = half if e1 is None else e1
+        d2 = half if e2 is None else e2
+        if y1 == y2 and (x1 != x2 or self.deck.layers[step].direction == "horizontal"):
+            if x1 > x2:
+                x1, x2, d1, d2 = x2, x1, d2, d1
+            return (x1 - d1, y1 - half, x2 + d2, y1 - half + width)
+        if x1 == x2:
+            if y1 > y2:
+                y1, y2, d1, d2 = y2, y1, d2, d1
+            return (x1 - half, y1 - d1, x1 - half + width, y2 + d2)
+        raise fail(self.source, line, "NETS", f"net {raw.name}: segment ({x1} {y1}) to ({x2} {y2}) is neither "
+                   "horizontal nor vertical")
+
+
+def bound_nets(binder: DesignBinder, raws: Iterator[RawNet]) -> Iterator[NetSpec]:
+    """One NetSpec per DEF net, as the reader streams them."""
+    for raw in raws:
+        yield binder.spec(raw)

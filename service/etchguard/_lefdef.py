@@ -1,0 +1,73 @@
+"""A design given as LEF + DEF, opened for checking: the deck and a stream of nets.
+
+``open_design`` reads the LEF files (technology first, then cells), the DEF up to its
+NETS section, builds the rule deck at the DEF's database units (so coordinates stay
+exact integers), refuses a deck that would quietly drop a LEF rule
+(``_lef_deck.require_fields``) and hands out the nets one at a time.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from ._def import DefReader
+from ._def_bind import DesignBinder, bound_nets
+from ._def_model import DefHeader
+from ._errors import InputError
+from ._lef import read_lef
+from ._lef_deck import deck_from_lef, deck_toml, require_fields
+from ._lef_model import Lef
+from ._lefdef_tokens import Note, Notes
+from ._nets import NetSpec
+from ._rules import Deck
+
+
+@dataclass
+class Design:
+    deck: Deck
+    lef: Lef
+    header: DefHeader
+    nets: Iterator[NetSpec]  # streamed: each net is read when asked for
+    nets_declared: int  # the count the DEF's NETS section declares
+    notes: Notes
+
+
+def open_design(lef_paths: Sequence[str | Path], def_path: str | Path, notes: Notes | None = None) -> Design:
+    notes = notes if notes is not None else Notes()
+    if not lef_paths:
+        raise InputError("give the technology LEF (and cell LEFs) with --lef", "--lef")
+    lef = read_lef(list(lef_paths), notes)
+    reader = DefReader(def_path, notes)
+    header = reader.read_header()
+    if header.dbu is None:
+        raise InputError("the DEF has no UNITS DISTANCE MICRONS before its nets", f"{def_path}: UNITS")
+    deck, extras = deck_from_lef(lef, notes, dbu=header.dbu)
+    require_fields(extras, notes)
+    binder = DesignBinder(deck, lef, header, notes)
+    return Design(deck, lef, header, bound_nets(binder, reader.raw_nets()), reader.nets_declared, notes)
+
+
+def lef_deck_text(lef_paths: Sequence[str | Path], deck: Deck | None = None, notes: Notes | None = None) -> str:
+    """The deck TOML of a technology LEF (``deck`` when already built from it, e.g. at a
+    DEF's database units), refusing what the deck would silently leave out."""
+    notes = notes if notes is not None else Notes()
+    if deck is None:
+        deck, extras = deck_from_lef(read_lef(list(lef_paths), notes), notes)
+        require_fields(extras, notes)
+    names = ", ".join(Path(p).name for p in lef_paths)
+    return deck_toml(deck, header=f"Rule deck converted from {names} by etchguard.")
+
+
+def print_notes(notes: Notes, stream) -> None:  # type: ignore[no-untyped-def]
+    """Warnings on stderr: one line per kind with where it first happened and how often."""
+    if not notes.total:
+        return
+    firsts: dict[tuple[str, str], Note] = {}
+    for note in notes.kept:
+        firsts.setdefault((note.keyword, note.message), note)
+    print(f"{notes.total} warnings reading LEF/DEF (statements skipped or not expressible):", file=stream)
+    for key, count in notes.counts.items():
+        times = f" ({count} times, the first here)" if count > 1 else ""
+        print(f"  {firsts[key]}{times}", file=stream)

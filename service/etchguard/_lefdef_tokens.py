@@ -1,0 +1,235 @@
+"""Tokens of the LEF and DEF languages (the open LEF/DEF 5.8 standard), with file:line.
+
+Both languages are whitespace-separated words; ``;`` ends a statement, ``(`` and ``)``
+bracket points, ``"..."`` is one word that may hold blanks, and ``#`` at the start of a
+word comments out the rest of its line. Writers do not always leave blanks around the
+punctuation, so ``;``, ``(`` and ``)`` are split off words here.
+
+The stream reads the file line by line (memory stays flat however long it is), decodes
+each line as UTF-8 on its own so that a bad byte is reported with its line, and hands
+out words one at a time (``next``/``peek``, for the LEF reader and DEF headers) or a
+whole statement up to its ``;`` (``statement``, the fast path for DEF's big sections).
+
+``Notes`` collects warnings: every statement a reader skips or cannot express names its
+file:line and keyword there. A big file repeats the same warning thousands of times,
+so only the first few of each (keyword, message) are kept, with a count of the rest.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import BinaryIO
+
+from ._errors import InputError
+
+_QUOTED_OR_WORD = re.compile(r'"[^"]*"|[^\s"]+|"')
+
+
+def _spaced(text: str) -> str:
+    """Blanks around ; ( and ) (three C-level passes: far quicker than str.translate)."""
+    return text.replace("(", " ( ").replace(")", " ) ").replace(";", " ; ")
+
+
+def where(source: str, line: int) -> str:
+    return f"{source}:{line}"
+
+
+def fail(source: str, line: int, keyword: str, message: str) -> InputError:
+    """The error every reader raises: field ``file:line: KEYWORD``."""
+    return InputError(message, f"{where(source, line)}: {keyword}")
+
+
+def _split_careful(text: str, source: str, line: int) -> list[str]:
+    """Words of a line holding a quote or a comment (the slow, exact path)."""
+    words: list[str] = []
+    for match in _QUOTED_OR_WORD.finditer(text):
+        word = match.group()
+        if word == '"':
+            raise fail(source, line, "string", "a quoted string is not closed on its line")
+        if word.startswith("#"):
+            break
+        if word.startswith('"'):
+            words.append(word)
+        else:
+            words.extend(_spaced(word).split())
+    return words
+
+
+def lines_of(path: Path, source: str, notes: Notes | None = None) -> Iterator[tuple[int, list[str]]]:
+    """(line number, words) of every line that has words, read lazily."""
+    try:
+        with open(path, "rb") as handle:
+            yield from _decoded_lines(handle, source, notes)
+    except OSError as exc:
+        raise InputError(f"cannot read: {exc.strerror}", source) from exc
+
+
+def _decoded_lines(handle: BinaryIO, source: str, notes: Notes | None) -> Iterator[tuple[int, list[str]]]:
+    for number, raw in enumerate(handle, 1):
+        try:
+            text = raw.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            # A stray byte inside a comment harms nothing (the standard's own example
+            # files have one); anywhere else it is refused.
+            words = _split_careful(raw.decode("utf-8", errors="replace"), source, number)
+            if any("\ufffd" in word for word in words):
+                raise fail(source, number, "encoding", f"not UTF-8 text (byte {exc.start + 1} of the "
+                           f"line is {raw[exc.start]:#04x})") from exc
+            if notes is not None:
+                notes.warn(source, number, "encoding", "a byte that is not UTF-8 in a comment; ignored")
+            text = ""
+        if "#" in text or '"' in text:
+            words = _split_careful(text, source, number)
+        elif text:
+            words = _spaced(text).split()
+        if words:
+            yield number, words
+
+
+@dataclass
+class Note:
+    source: str
+    line: int
+    keyword: str
+    message: str
+    subject: str = ""  # what it is about (a component, a pin), kept out of the kind
+
+    def __str__(self) -> str:
+        about = f"{self.subject}: " if self.subject else ""
+        return f"{where(self.source, self.line)}: {self.keyword}: {about}{self.message}"
+
+
+@dataclass
+class Notes:
+    """Warnings of one read. Keeps the first ``keep`` of each kind and counts the rest."""
+
+    keep: int = 3
+    kept: list[Note] = field(default_factory=list)
+    counts: dict[tuple[str, str], int] = field(default_factory=dict)
+
+    def warn(self, source: str, line: int, keyword: str, message: str, subject: str = "") -> None:
+        """Count a warning of kind (keyword, message); keep the first few whole. Names of
+        single objects go in ``subject`` so that a kind stays one kind however many."""
+        key = (keyword, message)
+        seen = self.counts.get(key, 0)
+        self.counts[key] = seen + 1
+        if seen < self.keep:
+            self.kept.append(Note(source, line, keyword, message, subject))
+
+    @property
+    def total(self) -> int:
+        return sum(self.counts.values())
+
+    def count(self, keyword: str) -> int:
+        return sum(n for (k, _), n in self.counts.items() if k == keyword)
+
+    def summary(self) -> list[str]:
+        """One line per kept warning, then one per kind with more than were kept."""
+        out = [str(note) for note in self.kept]
+        for (keyword, message), n in self.counts.items():
+            if n > self.keep:
+                out.append(f"... {keyword}: {message}: {n - self.keep} more")
+        return out
+
+
+class TokenStream:
+    """Words of one file with their line numbers; nothing is read ahead of a line."""
+
+    def __init__(self, path: str | Path, notes: Notes | None = None) -> None:
+        self.path = Path(path)
+        self.source = str(path)
+        self.notes = notes if notes is not None else Notes()
+        self._lines = lines_of(self.path, self.source, self.notes)
+        self._words: list[str] = []
+        self._pos = 0
+        self.line = 0  # line of the word last handed out (or of the current line)
+
+    def _fill(self) -> bool:
+        for number, words in self._lines:
+            self._words, self._pos, self.line = words, 0, number
+            return True
+        return False
+
+    def at_end(self) -> bool:
+        return self._pos >= len(self._words) and not self._fill()
+
+    def peek(self) -> str | None:
+        if self._pos >= len(self._words) and not self._fill():
+            return None
+        return self._words[self._pos]
+
+    def next(self, what: str) -> str:
+        """The next word; ``what`` names what was expected if the file ends here."""
+        if self._pos >= len(self._words) and not self._fill():
+            raise self.error(what, "the file ends here (truncated, or an END is missing)")
+        word = self._words[self._pos]
+        self._pos += 1
+        return word
+
+    def expect(self, word: str, keyword: str) -> None:
+        got = self.next(keyword)
+        if got != word:
+            raise self.error(keyword, f"expected {word!r}, got {got!r}")
+
+    def number(self, keyword: str) -> float:
+        word = self.next(keyword)
+        try:
+            value = float(word)
+        except ValueError:
+            raise self.error(keyword, f"expected a number, got {word!r}") from None
+        if not math.isfinite(value):
+            raise self.error(keyword, f"expected a finite number, got {word!r}")
+        return value
+
+    def integer(self, keyword: str) -> int:
+        word = self.next(keyword)
+        try:
+            return int(word)
+        except ValueError:
+            raise self.error(keyword, f"expected an integer, got {word!r}") from None
+
+    def end_statement(self, keyword: str) -> None:
+        self.expect(";", keyword)
+
+    def statement(self, keyword: str) -> tuple[list[str], list[tuple[int, int]]]:
+        """Every word up to the next ``;`` (not included), and (word index, line) marks
+        of where each line of the statement starts, for error messages."""
+        out: list[str] = []
+        marks: list[tuple[int, int]] = []
+        while True:
+            if self._pos >= len(self._words) and not self._fill():
+                raise self.error(keyword, "the file ends inside a statement (a ';' is missing)")
+            words, pos = self._words, self._pos
+            marks.append((len(out), self.line))
+            try:
+                end = words.index(";", pos)
+            except ValueError:
+                out.extend(words[pos:])
+                self._pos = len(words)
+                continue
+            out.extend(words[pos:end])
+            self._pos = end + 1
+            return out, marks
+
+    def skip_statement(self, keyword: str) -> None:
+        self.statement(keyword)
+
+    def error(self, keyword: str, message: str) -> InputError:
+        return fail(self.source, self.line, keyword, message)
+
+    def warn(self, keyword: str, message: str, line: int | None = None) -> None:
+        self.notes.warn(self.source, self.line if line is None else line, keyword, message)
+
+
+def line_of(marks: list[tuple[int, int]], index: int) -> int:
+    """The line of word ``index`` of a statement from its marks."""
+    line = marks[0][1]
+    for start, number in marks:
+        if start > index:
+            break
+        line = number
+    return line
