@@ -27,13 +27,18 @@ format, the same on every client and every shard (see ``parse_topology``)::
     # comment lines and blank lines are ignored
     etchguard-topology 1
     shards 3
+    directory-cell 50000
     shard 0 10.1.0.11:50051
     shard 1 10.1.0.12:50051
     shard 2 unix:/run/etchguard/shard-2.sock
 
+``directory-cell`` (optional, DBU, default 50,000) is the side of the square cells of
+the farm's metal directory (which shards hold metal where; see ``_shard_engine``);
+every shard must use the same, so it belongs to the topology.
+
 Its fingerprint (``Topology.fingerprint``) is the FNV-1a 64 hash of the canonical
-text (``canonical_text``): the header, the count and one ``shard K ADDRESS`` line per
-shard in index order, newline-terminated. Client and server compare fingerprints at
+text (``canonical_text``): the header, the count, the directory cell and one ``shard K
+ADDRESS`` line per shard in index order, newline-terminated. Client and server compare fingerprints at
 connect, so a client holding a different file is refused before it routes a call.
 """
 
@@ -49,6 +54,8 @@ FNV64_PRIME = 0x100000001B3
 _MASK64 = (1 << 64) - 1
 JUMP_LCG_MULTIPLIER = 2862933555777941757  # Lamping & Veach 2014, figure 1
 MAX_SHARDS = 1 << 16  # far past any farm; keeps a topology file's size sane
+DEFAULT_DIRECTORY_CELL = 50_000  # DBU: 50 um at 1,000 DBU/um, a few dozen tracks
+MAX_DIRECTORY_CELL = 999_999_999  # DBU; nine digits, as the C++ reader takes them
 
 TOPOLOGY_HEADER = "etchguard-topology"
 TOPOLOGY_FORMAT = 1
@@ -87,10 +94,14 @@ class Topology:
     """Shard k listens at ``addresses[k]``."""
 
     addresses: tuple[str, ...]
+    directory_cell: int = DEFAULT_DIRECTORY_CELL  # DBU, side of a metal directory cell
 
     def __post_init__(self) -> None:
         if not 1 <= len(self.addresses) <= MAX_SHARDS:
             raise InputError(f"needs 1 to {MAX_SHARDS} shards, got {len(self.addresses)}", "shards")
+        if not 1 <= self.directory_cell <= MAX_DIRECTORY_CELL:
+            raise InputError(f"must be 1 to {MAX_DIRECTORY_CELL} DBU, got {self.directory_cell}",
+                             "directory_cell")
 
     @property
     def shards(self) -> int:
@@ -100,7 +111,8 @@ class Topology:
         return shard_of(net, len(self.addresses))
 
     def canonical_text(self) -> str:
-        lines = [f"{TOPOLOGY_HEADER} {TOPOLOGY_FORMAT}", f"shards {self.shards}"]
+        lines = [f"{TOPOLOGY_HEADER} {TOPOLOGY_FORMAT}", f"shards {self.shards}",
+                 f"directory-cell {self.directory_cell}"]
         lines += [f"shard {k} {address}" for k, address in enumerate(self.addresses)]
         return "\n".join(lines) + "\n"
 
@@ -120,9 +132,10 @@ class Topology:
 def parse_topology(text: str, source: str = "<topology>") -> Topology:
     """A topology from its text. Errors name ``source:line`` and the field: the header
     (``etchguard-topology 1``) first, then ``shards N``, then exactly one ``shard K
-    ADDRESS`` per K in 0 .. N-1 (any order); an address is ``host:port`` or
-    ``unix:/path`` and holds no white space."""
-    header_seen, count, count_line = False, None, 0
+    ADDRESS`` per K in 0 .. N-1 (any order), and at most one ``directory-cell DBU``
+    anywhere after the header; an address is ``host:port`` or ``unix:/path`` and holds
+    no white space."""
+    header_seen, count, count_line, cell = False, None, 0, None
     addresses: dict[int, str] = {}
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.strip()
@@ -143,6 +156,13 @@ def parse_topology(text: str, source: str = "<topology>") -> Topology:
                 raise InputError(f"given twice (first on line {count_line})", f"{where}: shards")
             count = _count(words, where)
             count_line = number
+        elif words[0] == "directory-cell":
+            if cell is not None:
+                raise InputError("given twice", f"{where}: directory-cell")
+            if len(words) != 2 or not words[1].isdigit() or not 1 <= int(words[1]) <= MAX_DIRECTORY_CELL:
+                raise InputError(f"must be 'directory-cell N' with N in 1 .. {MAX_DIRECTORY_CELL} DBU",
+                                 f"{where}: directory-cell")
+            cell = int(words[1])
         elif words[0] == "shard":
             if count is None:
                 raise InputError("'shards N' must come before the first shard line", f"{where}: shard")
@@ -151,7 +171,8 @@ def parse_topology(text: str, source: str = "<topology>") -> Topology:
                 raise InputError(f"shard {k} is given twice", f"{where}: shard")
             addresses[k] = address
         else:
-            raise InputError(f"unknown entry {words[0]!r} (expected 'shards' or 'shard')",
+            raise InputError(f"unknown entry {words[0]!r} (expected 'shards', 'shard' or "
+                             f"'directory-cell')",
                              f"{where}: entry")
     if not header_seen:
         raise InputError(f"empty: needs '{TOPOLOGY_HEADER} {TOPOLOGY_FORMAT}'", f"{source}: header")
@@ -161,7 +182,8 @@ def parse_topology(text: str, source: str = "<topology>") -> Topology:
     if missing:
         raise InputError(f"no address for shard {missing[0]} ({len(missing)} missing)",
                          f"{source}: shard")
-    return Topology(tuple(addresses[k] for k in range(count)))
+    return Topology(tuple(addresses[k] for k in range(count)),
+                    DEFAULT_DIRECTORY_CELL if cell is None else cell)
 
 
 def _count(words: list[str], where: str) -> int:

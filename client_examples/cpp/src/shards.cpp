@@ -63,7 +63,8 @@ void CheckAddress(const std::string& address, const std::string& where) {
 
 std::string Topology::CanonicalText() const {
   std::ostringstream out;
-  out << kHeader << ' ' << kFormat << '\n' << "shards " << addresses.size() << '\n';
+  out << kHeader << ' ' << kFormat << '\n' << "shards " << addresses.size() << '\n'
+      << "directory-cell " << directory_cell << '\n';
   for (std::size_t k = 0; k < addresses.size(); ++k) out << "shard " << k << ' ' << addresses[k] << '\n';
   return out.str();
 }
@@ -74,6 +75,7 @@ Topology ParseTopology(const std::string& text, const std::string& source) {
   int number = 0;
   bool header_seen = false;
   long count = -1;
+  long long cell = -1;
   std::map<long, std::string> addresses;
   while (std::getline(lines, raw)) {
     ++number;
@@ -93,6 +95,12 @@ Topology ParseTopology(const std::string& text, const std::string& source) {
       if (words.size() != 2 || !AllDigits(words[1])) Fail(where, "shards", "must be 'shards N'");
       count = std::stol(words[1]);
       if (count < 1 || count > kMaxShards) Fail(where, "shards", "must be 1 to 65536");
+    } else if (words[0] == "directory-cell") {
+      if (cell >= 0) Fail(where, "directory-cell", "given twice");
+      if (words.size() != 2 || !AllDigits(words[1]) || std::stoll(words[1]) < 1) {
+        Fail(where, "directory-cell", "must be 'directory-cell N' with N >= 1 DBU");
+      }
+      cell = std::stoll(words[1]);
     } else if (words[0] == "shard") {
       if (count < 0) Fail(where, "shard", "'shards N' must come before the first shard line");
       if (words.size() != 3) Fail(where, "shard", "must be 'shard K ADDRESS'");
@@ -110,6 +118,7 @@ Topology ParseTopology(const std::string& text, const std::string& source) {
   if (!header_seen) Fail(source, "header", "empty: needs 'etchguard-topology 1'");
   if (count < 0) Fail(source, "shards", "no 'shards N' line");
   Topology topology;
+  if (cell >= 0) topology.directory_cell = cell;
   for (long k = 0; k < count; ++k) {
     auto found = addresses.find(k);
     if (found == addresses.end()) Fail(source, "shard", "no address for shard " + std::to_string(k));

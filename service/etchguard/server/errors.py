@@ -17,6 +17,7 @@ from grpc_status import rpc_status
 from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
                 NoDeckError, NotFoundError)
 from .._changelog import ChangeLogError
+from .._errors import PeerUnavailableError, WrongShardError
 
 DOMAIN = "etchguard.v1"
 MAX_MESSAGE_CHARS = 1000  # sent twice (message and BadRequest detail): well under 8 KiB
@@ -29,6 +30,8 @@ CODES: dict[type, grpc.StatusCode] = {
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
     ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
+    WrongShardError: grpc.StatusCode.FAILED_PRECONDITION,  # another shard holds the net (issue 14)
+    PeerUnavailableError: grpc.StatusCode.UNAVAILABLE,  # advice needs a shard that is down
 }
 
 

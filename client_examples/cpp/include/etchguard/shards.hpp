@@ -30,9 +30,10 @@ class TopologyError : public std::runtime_error {
 
 // Shard k listens at addresses[k]. The file format is etchguard's own (see
 // etchguard._shards): "etchguard-topology 1", "shards N", then "shard K ADDRESS" for
-// every K; '#' comments and blank lines are ignored.
+// every K, optionally "directory-cell DBU"; '#' comments and blank lines are ignored.
 struct Topology {
   std::vector<std::string> addresses;
+  std::int64_t directory_cell = 50000;  // DBU, side of a metal directory cell
 
   std::int32_t shards() const { return static_cast<std::int32_t>(addresses.size()); }
   std::int32_t ShardOf(const std::string& net) const {
