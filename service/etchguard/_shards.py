@@ -44,6 +44,7 @@ connect, so a client holding a different file is refused before it routes a call
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -82,6 +83,7 @@ def jump_hash(key: int, buckets: int) -> int:
     return b
 
 
+@functools.lru_cache(maxsize=1 << 16)  # a router and a shard ask about the same nets again and again
 def shard_of(net: str, shards: int) -> int:
     """The shard (0 .. shards - 1) that holds ``net``."""
     return jump_hash(fnv1a_64(net.encode("utf-8")), shards)

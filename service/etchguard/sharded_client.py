@@ -65,7 +65,6 @@ class ShardedClient:
         self.retry_s = retry_s
         self.shards = [Client(address, **client_options) for address in self.topology.addresses]
         self._count = self.topology.shards
-        self._route = functools.lru_cache(maxsize=1 << 16)(self._shard_of)
         if connect:
             try:
                 self.connect()
@@ -73,11 +72,8 @@ class ShardedClient:
                 self.close()
                 raise
 
-    def _shard_of(self, net: str) -> int:
-        return shard_of(net, self._count)
-
     def shard_of(self, net: str) -> int:
-        return self._route(net)
+        return shard_of(net, self._count)
 
     def connect(self) -> list[spb.TopologyInfo]:
         """Ask every shard for its topology with ours; a mismatch is refused there."""
@@ -100,7 +96,7 @@ class ShardedClient:
 
     def client_for(self, net: str) -> Client:
         """The Client of the shard that holds ``net``."""
-        return self.shards[self._route(net)]
+        return self.shards[shard_of(net, self._count)]
 
     def wait_ready(self, timeout: float = 10.0) -> None:
         for client in self.shards:
@@ -174,7 +170,7 @@ def _routed(name: str):
 
     @functools.wraps(method)
     def call(self: ShardedClient, net: str, *args: Any, **kwargs: Any):
-        return method(self.shards[self._route(net)], net, *args, **kwargs)
+        return method(self.shards[shard_of(net, self._count)], net, *args, **kwargs)
     return call
 
 
