@@ -94,13 +94,24 @@ def _batch_worker(topology: str, names: list[str], batches: int, candidates: int
             requests.append((farm.client_for(name), pb.ScoreBatchRequest(net=name, candidates=candidate_columns(rects, "M2"))))
         requests[0][0].stub.ScoreBatch(requests[0][1])  # warm the channels
         start.wait()
+        cpu0 = time.process_time()
         for b in range(batches):
             client, request = requests[b % len(requests)]
             client.stub.ScoreBatch(request, timeout=120)
-    out.put(batches * candidates)
+        cpu = time.process_time() - cpu0
+    out.put((batches * candidates, cpu))
 
 
-def batch_round(topology: Path, names: list[str], clients: int, batches: int, candidates: int) -> float:
+def cpu_s(pid: int) -> float:
+    """User + system CPU seconds of a process (/proc/PID/stat fields 14 and 15)."""
+    import os
+    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
+def batch_round(topology: Path, names: list[str], clients: int, batches: int, candidates: int,
+                shard_pids: list[int]) -> tuple[float, float, float]:
+    """(candidates/s, client CPU us per candidate, shard CPU us per candidate) of one round."""
     ctx = multiprocessing.get_context("spawn")
     start, out = ctx.Event(), ctx.Queue()
     share = [names[i::clients] for i in range(clients)]
@@ -109,13 +120,16 @@ def batch_round(topology: Path, names: list[str], clients: int, batches: int, ca
     for p in procs:
         p.start()
     time.sleep(2.0)  # let every worker connect and warm up before the clock starts
+    server0 = sum(cpu_s(pid) for pid in shard_pids)
     t0 = time.perf_counter()
     start.set()
-    scored = sum(out.get(timeout=600) for _ in procs)
+    results = [out.get(timeout=600) for _ in procs]
     elapsed = time.perf_counter() - t0
+    server = sum(cpu_s(pid) for pid in shard_pids) - server0
     for p in procs:
         p.join(30)
-    return scored / elapsed
+    scored = sum(r[0] for r in results)
+    return scored / elapsed, sum(r[1] for r in results) / scored * 1e6, server / scored * 1e6
 
 
 def latency_round(call, calls: int) -> float:
@@ -170,13 +184,18 @@ def main(argv: list[str] | None = None) -> int:
                 after = {"single": rss_kib(single_pid), "farm2": sum(rss_kib(p) for p in pids2)}
                 rows["bytes_per_shape"] = {k: round((after[k] - before[k]) * 1024 / shapes, 1) for k in after}
                 # throughput: alternate 1-shard and 2-shard rounds
-                thr: dict[str, list[float]] = {"1 shard": [], "2 shards": []}
+                thr: dict[str, list[tuple[float, float, float]]] = {"1 shard": [], "2 shards": []}
                 for _ in range(args.rounds):
-                    thr["1 shard"].append(batch_round(topo1, names, args.clients, args.batches, args.candidates))
-                    thr["2 shards"].append(batch_round(topo2, names, args.clients, args.batches, args.candidates))
-                med = {k: statistics.median(v) for k, v in thr.items()}
+                    thr["1 shard"].append(batch_round(topo1, names, args.clients, args.batches, args.candidates, pids1))
+                    thr["2 shards"].append(batch_round(topo2, names, args.clients, args.batches, args.candidates, pids2))
+                med = {k: statistics.median(r[0] for r in v) for k, v in thr.items()}
                 rows["candidates_per_s"] = {k: round(v) for k, v in med.items()}
                 rows["two_vs_one"] = round(med["2 shards"] / med["1 shard"], 3)
+                # where the CPU goes: on a 2-core machine the client processes share the
+                # cores with the shards, which bounds what a second shard can add
+                rows["cpu_us_per_candidate"] = {k: {"clients": round(statistics.median(r[1] for r in v), 3),
+                                                    "shards": round(statistics.median(r[2] for r in v), 3)}
+                                                for k, v in thr.items()}
                 # client overhead: plain client + plain server vs sharding client + 1-shard farm
                 net = names[0]
                 candidate = [run("M2", 4900, 100, 4900, 30_000)]

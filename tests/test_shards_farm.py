@@ -182,3 +182,18 @@ def test_health_and_metrics_per_shard_labelled(farm, loaded):
         assert f'etchguard_shard_up{{shard="{k}"}} 1.0' in text
         assert f'etchguard_nets_held{{shard="{k}"}} {float(per_shard[k])}' in text
         assert f'etchguard_shard_restarts_total{{shard="{k}"}}' in text
+
+
+def test_bad_topology_or_shard_options_exit_2_naming_file_line_and_field(tmp_path):
+    import subprocess
+    import sys
+    bad = tmp_path / "farm.topology"
+    bad.write_text("etchguard-topology 1\nshards 2\nshard 0 127.0.0.1:1\nshard 0 127.0.0.1:2\n")
+    serve = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", "127.0.0.1:0"]
+    for extra, expected in (
+            (["--topology", str(bad), "--shard-index", "0"], f"{bad}:4: shard: shard 0 is given twice"),
+            (["--shards", "0"], "shards: must be 1 to 1024"),
+            (["--shard-index", "1"], "shard_index: --shard-index needs --topology")):
+        done = subprocess.run(serve + extra, capture_output=True, text=True, timeout=60)
+        assert done.returncode == 2, done.stderr
+        assert expected in done.stderr, done.stderr
