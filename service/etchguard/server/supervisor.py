@@ -39,6 +39,7 @@ import time
 import urllib.request
 from dataclasses import dataclass, field, replace
 from pathlib import Path
+from typing import Any
 
 from prometheus_client import CollectorRegistry, start_http_server
 from prometheus_client.core import CounterMetricFamily, GaugeMetricFamily, Metric
@@ -150,7 +151,7 @@ class Supervisor:
         self._stopping = threading.Event()
         self._out_lock = threading.Lock()
         self.metrics_port = 0
-        self._metrics_server = None
+        self._metrics_server: Any = None  # prometheus_client's WSGI server once serving
 
     # -- children -----------------------------------------------------------------------
 
