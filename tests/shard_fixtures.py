@@ -19,6 +19,7 @@ import random
 import signal
 import subprocess
 import sys
+import tempfile
 import threading
 import time
 from dataclasses import dataclass, field
@@ -99,6 +100,8 @@ def start_farm(shards: int, *extra: str, metrics: bool = True, rules: Path | Non
                listen: str = "127.0.0.1:0") -> FarmProcess:
     cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--shards", str(shards), "--listen", listen,
            "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+    if "--topology-out" not in extra and "--state-dir" not in extra:  # not into the work tree
+        cmd += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
     if rules is not None:
         cmd += ["--rules", str(rules)]
     env = dict(os.environ, PYTHONUNBUFFERED="1")
