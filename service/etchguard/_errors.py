@@ -38,3 +38,15 @@ class NoDeckError(EtchguardError):
 
 class LimitExceededError(EtchguardError):
     """A configured limit (nets held, shapes per net, batch size) would be exceeded."""
+
+
+class WrongShardError(EtchguardError):
+    """A call about a net that another shard holds; ``owner`` is that shard's index."""
+
+    def __init__(self, message: str, field: str | None = None, owner: int = -1) -> None:
+        super().__init__(message, field)
+        self.owner = owner
+
+
+class PeerUnavailableError(EtchguardError):
+    """A question needs another shard's answer and that shard cannot be reached."""

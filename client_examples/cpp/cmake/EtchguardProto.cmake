@@ -22,13 +22,19 @@ endif()
 # The proto tree of the repository: <repo>/proto, two levels above this file's folder.
 get_filename_component(ETCHGUARD_PROTO_ROOT "${CMAKE_CURRENT_LIST_DIR}/../../../proto" ABSOLUTE)
 set(ETCHGUARD_PROTO_FILE "${ETCHGUARD_PROTO_ROOT}/etchguard/v1/etchguard.proto")
+# the shard face (GetTopology; issue 14), used by the sharding client
+set(ETCHGUARD_SHARDS_PROTO_FILE "${ETCHGUARD_PROTO_ROOT}/etchguard/v1/shards.proto")
 set(ETCHGUARD_GEN_DIR "${CMAKE_BINARY_DIR}/generated")
 set(ETCHGUARD_GEN_SOURCES
     "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.pb.cc"
-    "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.grpc.pb.cc")
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.grpc.pb.cc"
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/shards.pb.cc"
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/shards.grpc.pb.cc")
 set(ETCHGUARD_GEN_HEADERS
     "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.pb.h"
-    "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.grpc.pb.h")
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/etchguard.grpc.pb.h"
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/shards.pb.h"
+    "${ETCHGUARD_GEN_DIR}/etchguard/v1/shards.grpc.pb.h")
 
 add_custom_command(
   OUTPUT ${ETCHGUARD_GEN_SOURCES} ${ETCHGUARD_GEN_HEADERS}
@@ -38,9 +44,9 @@ add_custom_command(
           --cpp_out=${ETCHGUARD_GEN_DIR}
           --grpc_out=${ETCHGUARD_GEN_DIR}
           --plugin=protoc-gen-grpc=${ETCHGUARD_GRPC_PLUGIN}
-          ${ETCHGUARD_PROTO_FILE}
-  DEPENDS ${ETCHGUARD_PROTO_FILE}
-  COMMENT "Generating C++ code from etchguard/v1/etchguard.proto"
+          ${ETCHGUARD_PROTO_FILE} ${ETCHGUARD_SHARDS_PROTO_FILE}
+  DEPENDS ${ETCHGUARD_PROTO_FILE} ${ETCHGUARD_SHARDS_PROTO_FILE}
+  COMMENT "Generating C++ code from etchguard/v1/etchguard.proto and shards.proto"
   VERBATIM)
 
 add_library(etchguard_proto STATIC ${ETCHGUARD_GEN_SOURCES})

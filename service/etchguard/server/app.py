@@ -86,6 +86,10 @@ class ServerConfig:
     tls_key: Path | None = None  # PEM private key
     tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates
     token_file: Path | None = None  # file holding the bearer token every call must carry
+    # sharding (issue 14): see etchguard._shard_engine and server/sharding.py
+    topology: Path | None = None  # the farm's topology file; None: one server holds every net
+    shard_index: int | None = None  # this server's shard in the topology
+    peer_tls_roots: Path | None = None  # PEM CA bundle the other shards' certificates chain to
 
     # router cost of a candidate (etchguard.CostModel): 0 up to the knee, then steeply up
     cost_knee: float = _DEFAULT_COSTS.knee  # utilization where the cost starts
@@ -116,8 +120,22 @@ class ServerConfig:
         return Limits(**{k: getattr(self, k) for k in names})
 
 
+def _new_engine(config: ServerConfig) -> Engine:
+    """An empty engine: one shard's (refusing other shards' nets) with a topology."""
+    if config.topology is None:
+        if config.shard_index is not None:
+            raise ServeError("--shard-index needs --topology", "shard_index")
+        return Engine(None, config.limits(), config.costs())
+    from .._shard_engine import ShardEngine
+    from .._shards import load_topology
+    topology = load_topology(config.topology)
+    if config.shard_index is None or not 0 <= config.shard_index < topology.shards:
+        raise ServeError(f"--topology needs --shard-index in 0 .. {topology.shards - 1}", "shard_index")
+    return ShardEngine(topology, config.shard_index, config.limits(), config.costs())
+
+
 def _engine(config: ServerConfig) -> Engine:
-    engine = Engine(None, config.limits(), config.costs())
+    engine = _new_engine(config)
     if config.rules is not None:
         load_deck(config.rules)  # refuses an unreadable or invalid deck, naming the file
         text = Path(config.rules).read_text(encoding="utf-8")
@@ -132,7 +150,7 @@ def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
         raise ServeError("must be > 0 ms", "sync_interval_ms")
-    engine = Engine(None, config.limits(), config.costs())
+    engine = _new_engine(config)
     journal = Journal.open(config.state_dir, engine, sync=config.sync,
                            interval_ms=config.sync_interval_ms,
                            snapshot_every=config.snapshot_every, version=__version__,
@@ -211,9 +229,12 @@ class EtchguardServer:
         self._stopped = threading.Event()
         self.journal: Journal | None = None  # set by build_server with a state folder
         self.stream_gate: StreamGate | None = None  # set by build_server
+        self.shard = None  # sharding.ShardRuntime of a shard server (set by build_server)
 
     def start(self) -> None:
         self.grpc_server.start()
+        if self.shard is not None:  # listening first: peers may push while this shard fetches
+            self.shard.start()
         if self.config.metrics_port:
             self.metrics_port = self.metrics.serve(self.config.metrics_address, self.config.metrics_port)
         try:
@@ -224,7 +245,7 @@ class EtchguardServer:
             "addresses": self.addresses, "metrics_port": self.metrics_port, "deck": deck,
             "pid": os.getpid(), "version": __version__, "workers": self.config.workers,
             "max_sessions": self.config.stream_slots(),
-            "limits": self.config.limits().__dict__}})
+            "limits": self.config.limits().__dict__, "shard": self.config.shard_index}})
 
     def stop(self, grace: float | None = None) -> None:
         """Refuse new calls, let those in flight finish (up to ``grace`` s), then stop."""
@@ -236,6 +257,8 @@ class EtchguardServer:
         self.grpc_server.stop(grace).wait()
         if self.stream_gate is not None:
             self.stream_gate.close()
+        if self.shard is not None:
+            self.shard.stop()
         if self.journal is not None:  # after the last call: a final snapshot, then fsync
             self.journal.close()
         self.metrics.close()
@@ -345,13 +368,18 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
     server = grpc_server(config, gate)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
+    shard = None
+    if config.topology is not None:
+        from . import sharding
+        shard = sharding.attach(server, engine, config)  # type: ignore[arg-type]
     health_servicer = health.HealthServicer(experimental_non_blocking=True)
     health_pb2_grpc.add_HealthServicer_to_server(health_servicer, server)
     for name in ("", SERVICE_NAME):
         health_servicer.set(name, health_pb2.HealthCheckResponse.SERVING)
+    shard_services = () if shard is None else (sharding.SERVICE_NAME,)
     reflection.enable_server_reflection(
         (SERVICE_NAME, health_pb2.DESCRIPTOR.services_by_name["Health"].full_name,
-         reflection.SERVICE_NAME), server)
+         reflection.SERVICE_NAME, *shard_services), server)
     try:
         addresses = [_bind(server, config, address) for address in config.listen]
     except BaseException:
@@ -361,4 +389,5 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     built = EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
     built.journal = journal
     built.stream_gate = gate
+    built.shard = shard
     return built

@@ -116,6 +116,23 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--token-file", type=Path, metavar="FILE",
                         help="every call must carry 'authorization: Bearer <token>' with the "
                              "token in FILE (health checks stay open); others get UNAUTHENTICATED")
+    # sharding (issue 14): one design's nets over many server processes and hosts
+    parser.add_argument("--shards", type=int, metavar="N",
+                        help="run N shard processes under a supervisor that restarts a crashed one: "
+                             "--listen HOST:PORT gives shard k port PORT+k, unix:PATH gives "
+                             "PATH-k (or PATH with {shard} replaced); --state-dir DIR gives "
+                             "shard k DIR/shard-k; --metrics-port P serves every shard's "
+                             "metrics, labelled by shard, on P")
+    parser.add_argument("--topology-out", type=Path, metavar="FILE",
+                        help="with --shards: where the supervisor writes the topology it starts "
+                             "(default DIR/topology with --state-dir, else ./etchguard.topology)")
+    parser.add_argument("--topology", type=Path, metavar="FILE",
+                        help="serve one shard of a farm: FILE says which shard listens where; "
+                             "calls for other shards' nets are refused naming the right shard")
+    parser.add_argument("--shard-index", type=int, metavar="K", help="with --topology: this server's shard")
+    parser.add_argument("--peer-tls-roots", type=Path, metavar="PEM",
+                        help="with --topology on a TLS farm: CAs the other shards' certificates "
+                             "chain to")
 
 
 def config_from_args(args: argparse.Namespace) -> ServerConfig:
@@ -135,7 +152,8 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         rejudge_held_nets=args.rejudge_held_nets, tls_cert=args.tls_cert, tls_key=args.tls_key,
         tls_client_ca=args.tls_client_ca, token_file=args.token_file,
         cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
-        cost_violation=args.cost_violation)
+        cost_violation=args.cost_violation, topology=args.topology, shard_index=args.shard_index,
+        peer_tls_roots=args.peer_tls_roots)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -144,6 +162,9 @@ def run(args: argparse.Namespace) -> int:
     if not args.lef:
         if args.def_path:
             raise InputError("--def needs the LEF files (--lef TECH [--lef CELLS])", "--def")
+        if args.shards is not None:
+            from .supervisor import supervise
+            return supervise(config, args.shards, args.topology_out)
         return build_server(config).serve_forever()
     if args.rules:
         raise InputError("give the rules as --rules DECK or as --lef files, not both", "--lef")

@@ -185,6 +185,8 @@ class Client {
 
   Session OpenSession() { return Session(*stub_); }
   pb::AntennaService::Stub& stub() { return *stub_; }
+  // The channel, for stubs of the other services (the shard face, sharded_client.hpp).
+  std::shared_ptr<grpc::Channel> channel() const { return channel_; }
 
   // Sets this client's per-call deadline on a fresh context (for calls made on
   // stub() by helpers outside this class, e.g. advice.hpp).

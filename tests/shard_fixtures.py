@@ -1,0 +1,147 @@
+"""A real ``etchguard serve --shards N`` farm on loopback, and nets that crowd each other.
+
+``start_farm(n)`` runs the supervisor as a subprocess with ``--listen 127.0.0.1:0``
+(a free port per shard) and reads its JSON log lines: the ``shards listening`` line
+gives the addresses, the topology file and the metrics port; each shard's own
+``listening`` line (relayed with ``"shard": k``) gives that shard's pid, so a test
+can kill one shard and wait for the supervisor to bring it back.
+
+``crowded_nets(count)`` makes nets of the demo deck whose metal interleaves on M1 to
+M4 within a few tens of microns, so that advice for one net meets other nets' metal,
+which the farm holds on other shards.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import random
+import signal
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from etchguard.client import Client, pb, pin, rect, run
+from etchguard.sharded_client import ShardedClient
+from grpc_fixtures import DEMO_DECK, REPO, free_port
+
+START_TIMEOUT_S = 40.0
+
+
+@dataclass
+class FarmProcess:
+    proc: subprocess.Popen
+    topology: Path | None = None
+    addresses: list[str] = field(default_factory=list)
+    metrics_port: int = 0
+    logs: list[dict] = field(default_factory=list)
+    pids: dict[int, int] = field(default_factory=dict)  # shard -> pid of its latest start
+    _ready: threading.Event = field(default_factory=threading.Event)
+    _changed: threading.Condition = field(default_factory=threading.Condition)
+
+    def _read(self) -> None:
+        assert self.proc.stderr is not None
+        for line in self.proc.stderr:
+            try:
+                entry = json.loads(line)
+            except json.JSONDecodeError:
+                entry = {"msg": line.rstrip("\n"), "level": "raw"}
+            with self._changed:
+                self.logs.append(entry)
+                if entry.get("msg") == "listening" and "shard" in entry:
+                    self.pids[entry["shard"]] = entry["pid"]
+                if entry.get("msg") == "shards listening":
+                    self.topology = Path(entry["topology"])
+                    self.addresses = entry["addresses"]
+                    self.metrics_port = entry["metrics_port"]
+                    self._ready.set()
+                self._changed.notify_all()
+        self._ready.set()
+
+    def client(self, **kwargs) -> ShardedClient:
+        assert self.topology is not None
+        return ShardedClient(self.topology, timeout=kwargs.pop("timeout", 20.0), **kwargs)
+
+    def shard_client(self, k: int, **kwargs) -> Client:
+        return Client(self.addresses[k], timeout=kwargs.pop("timeout", 20.0), **kwargs)
+
+    def kill_shard(self, k: int) -> int:
+        """kill -9 shard k; returns the pid killed."""
+        pid = self.pids[k]
+        os.kill(pid, signal.SIGKILL)
+        return pid
+
+    def wait_restarted(self, k: int, old_pid: int, timeout: float = 30.0) -> int:
+        deadline = time.monotonic() + timeout
+        with self._changed:
+            while self.pids.get(k) == old_pid:
+                left = deadline - time.monotonic()
+                if left <= 0:
+                    raise TimeoutError(f"shard {k} was not restarted")
+                self._changed.wait(left)
+            return self.pids[k]
+
+    def stop(self, timeout: float = 30.0) -> int:
+        if self.proc.poll() is None:
+            self.proc.send_signal(signal.SIGTERM)
+        try:
+            return self.proc.wait(timeout)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+            raise
+
+
+def start_farm(shards: int, *extra: str, metrics: bool = True, rules: Path | None = DEMO_DECK,
+               listen: str = "127.0.0.1:0") -> FarmProcess:
+    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--shards", str(shards), "--listen", listen,
+           "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+    if "--topology-out" not in extra and "--state-dir" not in extra:  # not into the work tree
+        cmd += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
+    if rules is not None:
+        cmd += ["--rules", str(rules)]
+    env = dict(os.environ, PYTHONUNBUFFERED="1")
+    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
+    farm = FarmProcess(proc)
+    threading.Thread(target=farm._read, daemon=True).start()
+    if not farm._ready.wait(START_TIMEOUT_S) or not farm.addresses:
+        proc.kill()
+        proc.wait()
+        raise RuntimeError(f"etchguard serve --shards did not start: {farm.logs[-20:]}")
+    return farm
+
+
+# -- crowded nets ------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class CrowdedNet:
+    name: str
+    pins: tuple[pb.Pin, ...]
+    shapes: tuple[pb.Shape, ...]
+    origin: tuple[int, int]
+
+
+def crowded_nets(count: int, seed: int = 0, prefix: str = "blk_c") -> list[CrowdedNet]:
+    """Nets on a 4-wide grid of 6 um pitch, each reaching 4-15 um on M1-M4: neighbours
+    overlap in extent, so one net's hop or jumper lands near another's metal."""
+    rng = random.Random(seed)
+    out = []
+    for i in range(count):
+        ox, oy = (i % 4) * 6000, (i // 4) * 6000
+        gate = pin(f"u{i}.a", "M1", [(ox, oy, ox + 200, oy + 200)], gate_area={"thin": 0.004 + 0.002 * (i % 5)},
+                   cell_area={"M1": 0.01})
+        driver = pin(f"u{i}.y", "M1", [(ox + 4000, oy, ox + 4200, oy + 200)], diff_area=0.1 + 0.05 * (i % 3))
+        shapes = [rect("M1", ox, oy + 30, ox + 4200, oy + 170)]
+        for _ in range(rng.randint(2, 5)):
+            layer = rng.choice(["M2", "M3", "M4"])
+            x, y = ox + rng.randrange(-2000, 8000, 20), oy + rng.randrange(-2000, 8000, 20)
+            length = rng.randrange(2000, 15000, 20)
+            horizontal = layer in ("M3",)  # lumen-6m: M1, M3, M5 horizontal
+            shapes.append(run(layer, x, y, x + length, y) if horizontal else run(layer, x, y, x, y + length))
+        out.append(CrowdedNet(f"{prefix}/n{i}", (gate, driver), tuple(shapes), (ox, oy)))
+    return out
