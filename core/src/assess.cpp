@@ -29,7 +29,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
       double ratio = rule.ratio(conductor, c.G, c.D);
       double limit = rule.partial_limit(c.D);
       int gate = -1;
-      for (int p : c.gates)
+      for (int p : c.gates())
         if ((gate_oxides[p] & bit) && (gate < 0 || p < gate)) gate = p;
       out.push_back({s, key.measure, Kind::Partial, key.oxide, ratio, limit, utilization(ratio, limit), gate,
                      conductor, 0.0, c.G, c.D});
@@ -41,7 +41,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
     if (!(c.oxides & bit)) continue;
     int best_p = -1;
     double best = -1.0;
-    for (int p : c.gates) {
+    for (int p : c.gates()) {
       if (!(gate_oxides[p] & bit)) continue;
       double value = cars_by_slot[p][std::size_t(key.group) * steps + std::size_t(s)];
       if (value > best || (value == best && p < best_p)) {
@@ -136,7 +136,7 @@ const Assessment& Net::State::assess() const {
     for (std::size_t ci = 0; ci < pool.size(); ++ci) {
       const Comp& c = pool[ci];
       if (!c.alive || c.G <= 0) continue;
-      for (int p : c.gates) {
+      for (int p : c.gates()) {
         const int slot = a.slot_of_pin[std::size_t(p)];
         for (int g = 0; g < ng; ++g) {
           if (!a.has[std::size_t(slot) * G + std::size_t(g)]) continue;

@@ -10,39 +10,38 @@ namespace etchguard {
 
 void Comp::absorb(const Comp& o) {
   members.insert(members.end(), o.members.begin(), o.members.end());
-  area += o.area;
-  perim += o.perim;
-  if (!o.pins.empty()) {
-    gates.insert(gates.end(), o.gates.begin(), o.gates.end());
-    pins.insert(pins.end(), o.pins.begin(), o.pins.end());
-    gate.add(o.gate);
-    diff.add(o.diff);
-    cell.add(o.cell);
-    oxides |= o.oxides;
-    refresh();
+  absorb_figures(o);
+  if (o.figures_) {
+    auto& mine = figures_->pins;
+    mine.insert(mine.end(), o.figures_->pins.begin(), o.figures_->pins.end());
   }
 }
 
 void Comp::absorb_figures(const Comp& o) {
   area += o.area;
   perim += o.perim;
-  if (!o.pins.empty()) {
-    gates.insert(gates.end(), o.gates.begin(), o.gates.end());
-    gate.add(o.gate);
-    diff.add(o.diff);
-    cell.add(o.cell);
+  if (o.figures_) {
+    PinFigures& f = figures();
+    f.gates.insert(f.gates.end(), o.figures_->gates.begin(), o.figures_->gates.end());
+    f.gate.add(o.figures_->gate);
+    f.diff.add(o.figures_->diff);
+    f.cell.add(o.figures_->cell);
     oxides |= o.oxides;
     refresh();
   }
 }
 
-void Comp::reset() {
+void Comp::reset(bool keep) {
   members.clear();
-  gates.clear();
-  pins.clear();
-  gate.clear();
-  diff.clear();
-  cell.clear();
+  if (keep && figures_) {
+    figures_->gates.clear();
+    figures_->pins.clear();
+    figures_->gate.clear();
+    figures_->diff.clear();
+    figures_->cell.clear();
+  } else {
+    figures_.reset();
+  }
   G = D = cell_um2 = 0.0;
   area = perim = 0;
   oxides = 0;
@@ -222,11 +221,12 @@ void Net::State::own_terms(Comp& c, int e, int step) const {
   const Element& el = elems[std::size_t(e)];
   if (el.pin < 0 || !el.anchor) return;
   const PinSpec& pin = pins[std::size_t(el.pin)];
-  c.gate.add(pin_gate[std::size_t(el.pin)]);
-  c.diff.add(pin.diff_um2);
-  c.cell.add(pin_cell(el.pin, step));
-  c.pins.push_back(el.pin);
-  if (pin_gate[std::size_t(el.pin)] > 0) c.gates.push_back(el.pin);
+  PinFigures& f = c.figures();
+  f.gate.add(pin_gate[std::size_t(el.pin)]);
+  f.diff.add(pin.diff_um2);
+  f.cell.add(pin_cell(el.pin, step));
+  f.pins.push_back(el.pin);
+  if (pin_gate[std::size_t(el.pin)] > 0) f.gates.push_back(el.pin);
   c.oxides |= pin_oxides[std::size_t(el.pin)];
 }
 

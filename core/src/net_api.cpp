@@ -173,7 +173,7 @@ std::vector<Offence> Net::offences() const {
       if (el.pin < 0) o.shape_ids.push_back(el.sid);
     }
     std::sort(o.shape_ids.begin(), o.shape_ids.end());
-    o.pins = c.pins;
+    o.pins = c.pins();
     std::sort(o.pins.begin(), o.pins.end());
     out.push_back(std::move(o));
   });
@@ -232,7 +232,7 @@ Headroom Net::headroom(int layer, i64 x, i64 y) const {
         double conductor = m.conductor(layer, key.measure, c.area, c.cell_um2, c.perim);
         double term = factors == nullptr ? conductor / c.G : factors->ratio(conductor, c.G, c.D);
         const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-        for (int p : c.gates) {
+        for (int p : c.gates()) {
           if (!(st.pin_oxides[std::size_t(p)] & (std::uint64_t(1) << key.oxide))) continue;
           const Comp& later = st.comps[std::size_t(s)][std::size_t(
               st.comp_of[std::size_t(s)][std::size_t(st.anchor_of_pin[std::size_t(p)])])];
@@ -328,7 +328,8 @@ std::size_t Net::memory_bytes() const {
   for (const auto& pool : st.comps) {
     bytes += sizeof(pool) + pool.capacity() * sizeof(Comp);
     for (const Comp& c : pool)
-      bytes += (c.members.capacity() + c.gates.capacity() + c.pins.capacity()) * sizeof(int) + 3 * 16;
+      bytes += c.members.capacity() * sizeof(int) +
+               (c.figures_ ? sizeof(PinFigures) + (c.gates().capacity() + c.pins().capacity()) * sizeof(int) : 0);
   }
   const Assessment& a = st.assessment;
   bytes += (a.term.capacity() + a.car.capacity()) * sizeof(double);

@@ -12,6 +12,7 @@
 
 #include <algorithm>
 #include <cstdint>
+#include <memory>
 #include <unordered_map>
 #include <vector>
 
@@ -32,19 +33,47 @@ struct Element {
   bool alive;
 };
 
+// What a component holds when it holds pins: most components (floating metal at a
+// step) hold none, so these live apart and cost a pointer when absent.
+struct PinFigures {
+  std::vector<int> gates;  // pin indices with gate area
+  std::vector<int> pins;   // every pin index (anchors) in the component
+  ExactSum gate, diff, cell;
+};
+
 struct Comp {
   std::vector<int> members;  // elements
-  std::vector<int> gates;    // pin indices with gate area
-  std::vector<int> pins;     // every pin index (anchors) in the component
-  ExactSum gate, diff, cell;
+  std::unique_ptr<PinFigures> figures_;
   double G = 0.0, D = 0.0, cell_um2 = 0.0;
   i128 area = 0, perim = 0;
   std::uint64_t oxides = 0;  // oxide classes with gate area here
   bool alive = false;
-  void refresh() { G = gate.value(); D = diff.value(); cell_um2 = cell.value(); }
+
+  const std::vector<int>& gates() const { return figures_ ? figures_->gates : no_pins(); }
+  const std::vector<int>& pins() const { return figures_ ? figures_->pins : no_pins(); }
+  PinFigures& figures() {
+    if (!figures_) figures_ = std::make_unique<PinFigures>();
+    return *figures_;
+  }
+  void refresh() {
+    if (figures_) {
+      G = figures_->gate.value();
+      D = figures_->diff.value();
+      cell_um2 = figures_->cell.value();
+    } else {
+      G = D = cell_um2 = 0.0;
+    }
+  }
   void absorb(const Comp& o);
   void absorb_figures(const Comp& o);  // without the member lists (a what-if's group)
-  void reset();
+  // Back to empty; `keep` keeps the pin figures' buffers (a what-if's scratch group).
+  void reset(bool keep = false);
+
+ private:
+  static const std::vector<int>& no_pins() {
+    static const std::vector<int> none;
+    return none;
+  }
 };
 
 // Per-layer lookup of one net's rectangles: a scan while small, a bucket grid beyond.

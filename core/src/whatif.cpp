@@ -231,7 +231,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       const Comp* group;
       if (merged) {
         Comp& built = sc.built;
-        built.reset();
+        built.reset(true);
         for (int c : group_comps) built.absorb_figures(pool[std::size_t(c)]);
         built.area += change.area;
         built.perim += change.perimeter;
@@ -240,14 +240,15 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
           if (cd.pin < 0 || !cd.anchor) continue;
           const PinSpec& pin = extra[std::size_t(cd.pin)];
           const int p = int(npins) + cd.pin;
-          built.gate.add(sc.extra_gate[std::size_t(cd.pin)]);
-          built.diff.add(pin.diff_um2);
+          PinFigures& f = built.figures();
+          f.gate.add(sc.extra_gate[std::size_t(cd.pin)]);
+          f.diff.add(pin.diff_um2);
           double cell = 0.0;
           for (const auto& step_cell : pin.cell_um2)
             if (step_cell.first == s) cell = step_cell.second;
-          built.cell.add(cell);
-          built.pins.push_back(p);
-          if (sc.extra_gate[std::size_t(cd.pin)] > 0) built.gates.push_back(p);
+          f.cell.add(cell);
+          f.pins.push_back(p);
+          if (sc.extra_gate[std::size_t(cd.pin)] > 0) f.gates.push_back(p);
           built.oxides |= oxides[std::size_t(p)];
         }
         built.refresh();
@@ -302,7 +303,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         continue;
       }
       // With detail, every gate's sum along the chain: the figures name their gate.
-      for (int p : group->gates) {
+      for (int p : group->gates()) {
         double* row = fresh_row(p);
         for (int g = 0; g < ng; ++g) {
           if (!has_group(p, g)) continue;
