@@ -38,3 +38,16 @@ class NoDeckError(EtchguardError):
 
 class LimitExceededError(EtchguardError):
     """A configured limit (nets held, shapes per net, batch size) would be exceeded."""
+
+
+class StoppedError(EtchguardError):
+    """Long work (an advice) stopped before its answer because its caller stopped
+    waiting; nothing was changed. ``field`` names what ended it."""
+
+
+class DeadlineExceededError(StoppedError):
+    """The call's deadline passed while its work was under way."""
+
+
+class CancelledError(StoppedError):
+    """The caller cancelled the call (or went away) while its work was under way."""

@@ -21,6 +21,7 @@ from grpc_status import rpc_status
 
 from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
                 NoDeckError, NotFoundError)
+from .._errors import CancelledError, DeadlineExceededError
 from .._changelog import ChangeLogError
 
 DOMAIN = "etchguard.v1"
@@ -37,6 +38,8 @@ CODES: dict[type, grpc.StatusCode] = {
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
     ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
+    DeadlineExceededError: grpc.StatusCode.DEADLINE_EXCEEDED,  # long work stopped (issue 10)
+    CancelledError: grpc.StatusCode.CANCELLED,
 }
 
 
