@@ -46,6 +46,7 @@ import grpc
 import numpy as np
 
 from etchguard import Engine
+from etchguard._jobs import Jobs
 from etchguard.client import Client, candidate_columns, pb
 from etchguard.server.metrics import Metrics
 from etchguard.server.servicer import AntennaServicer
@@ -105,6 +106,20 @@ def _columns(deck, candidates) -> pb.CandidateColumns:
     return candidate_columns(rects, layers, [len(c) for c in candidates])
 
 
+class _InProcess:
+    """The little of a grpc.ServicerContext the servicer reads on a call that succeeds:
+    no job named (the unnamed job), no deadline, never cancelled."""
+
+    def invocation_metadata(self):
+        return ()
+
+    def time_remaining(self):
+        return None
+
+    def is_active(self) -> bool:
+        return True
+
+
 class Case:
     """One measured question: how to ask it on a client, and its canned replies."""
 
@@ -120,11 +135,12 @@ class Case:
             wire = [pb.SessionRequest(seq=i + 1, **{self.op: r}).SerializeToString()
                     for i, r in enumerate(self.requests)]
             parse = pb.SessionRequest.FromString
-            return lambda i: [r.SerializeToString() for r in servicer.Session(iter([parse(wire[i])]), None)]
+            return lambda i: [r.SerializeToString() for r in servicer.Session(iter([parse(wire[i])]), _InProcess())]
         wire = [r.SerializeToString() for r in self.requests]
         parse = type(self.requests[0]).FromString
         method = getattr(servicer, self.kind)
-        return lambda i: method(parse(wire[i]), None).SerializeToString()
+        context = _InProcess()
+        return lambda i: method(parse(wire[i]), context).SerializeToString()
 
     def capture(self, client: Client) -> dict[str, list[str]]:
         """Our server's reply bytes to every request, in order (for the echo floor)."""
@@ -209,7 +225,7 @@ def main(argv: list[str] | None = None) -> int:
 
     engine = Engine(deck)
     engine.open_net(NET, net.pins, None, net.shapes)
-    servicer = AntennaServicer(engine, Metrics(engine.stats, AntennaServicer.METHODS))  # as served
+    servicer = AntennaServicer(Jobs.single(engine), Metrics(engine.stats, AntennaServicer.METHODS))  # as served
     pb_singles = [_pb_shapes(deck, c) for c in singles]
     score_reqs = [pb.ScoreRequest(net=NET, candidate=c) for c in pb_singles]
     lean_reqs = [pb.ScoreRequest(net=NET, candidate=c, without_changes=True) for c in pb_singles]

@@ -21,6 +21,7 @@ from etchguard.server import convert
 from etchguard.server.app import ServerConfig
 from etchguard.server.metrics import NullMetrics
 from etchguard.server.servicer import AntennaServicer
+from etchguard._jobs import Jobs
 from grpc_fixtures import DEMO_DECK, DRIVER, GATE
 
 LIMITS = eg.Limits(max_shapes_per_net=1000, max_pins_per_net=50, max_candidates=100)
@@ -38,6 +39,9 @@ class _Context:
     def abort_with_status(self, status):
         raise _Refused(status)
 
+    def invocation_metadata(self):
+        return ()  # no job named: the unnamed job
+
     def abort(self, code, message):
         raise AssertionError(f"unexpected {code}: {message}")
 
@@ -47,7 +51,7 @@ def servicer():
     deck = eg.load_deck(DEMO_DECK)
     engine = eg.Engine(deck, LIMITS)
     engine.open_net("n", convert.pins(deck, [GATE, DRIVER]))
-    return AntennaServicer(engine, NullMetrics())
+    return AntennaServicer(Jobs.single(engine), NullMetrics())
 
 
 def _shapes(count: int) -> list[pb.Shape]:

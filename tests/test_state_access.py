@@ -36,9 +36,11 @@ def test_state_files_are_0600_and_the_folder_0700(tmp_path):
     finally:
         os.umask(old_umask)
     assert _mode(state) == 0o700
-    files = sorted(state.iterdir())
+    files = sorted(p for p in state.iterdir() if p.is_file())
+    folders = sorted(p for p in state.iterdir() if p.is_dir())  # e.g. the named jobs' folder
     assert {p.name for p in files} >= {"LOCK", "snapshot.pb"} and any(p.suffix == ".log" for p in files)
     assert {p.name: _mode(p) for p in files} == {p.name: 0o600 for p in files}
+    assert {p.name: _mode(p) for p in folders} == {p.name: 0o700 for p in folders}
 
 
 def test_a_damaged_segment_set_aside_is_0600_too(tmp_path):

@@ -9,8 +9,9 @@ from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOpt
 from ._columns import BatchScores  # columnar batch scores (Engine.score_columns)
 from ._engine import Engine, Limits
 from ._obstacles import Conflict
-from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
-                      LimitExceededError, NoDeckError, NotFoundError)
+from ._errors import (AlreadyExistsError, CancelledError, DeadlineExceededError, DeckError,
+                      EtchguardError, InputError, LimitExceededError, NoDeckError,
+                      NotFoundError, StoppedError)
 from ._geometry import Rect, run_rect, union_measures
 from ._names import MAX_NAME_BYTES
 from ._nets import (NetSpec, Pin, Shape, load_net_file, make_pin, make_shape, parse_net_file,
@@ -24,7 +25,8 @@ __version__ = "0.1.0"
 __all__ = [
     "Advice", "AdviceRequest", "Conflict", "DiodeAdvice", "JumperAdvice", "LayerOption",
     "PlacedShape",
-    "AlreadyExistsError", "BatchScores", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
+    "AlreadyExistsError", "BatchScores", "CancelledError", "CheckResult", "CostModel",
+    "DeadlineExceededError", "Deck", "DeckError", "Engine", "StoppedError",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
     "MAX_NAME_BYTES",
     "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",

@@ -92,6 +92,16 @@ Answers asked for (``want``, a subset of ``ANSWERS``): without "hop" the layer o
 are not reported; when the jumper needs its hop layer they are scored nearest first
 only up to the first legal free one (the layer a full advice would pick too).
 ``Advice.exact_scores`` counts the what-if scores an answer took.
+
+Bounds (issue 10). Every exact score goes through ``_Advisor.score``, which checks two
+things first: the caller's ``should_stop`` (its deadline passed, it cancelled: the
+advice is refused with that ``StoppedError``, since nobody waits for it) and the
+advice's budget of exact scores (``max_scores``: the part under way is cut, the parts
+settled so far are answered, and ``Advice.cut`` and the last sentence of the
+explanation say what was left unsettled). A score takes microseconds to a few
+milliseconds, so the caller's lock on the net is let go within one score of either.
+The budget is counted, not timed, so the same request gives the same answer on any
+machine and under any load.
 """
 
 from __future__ import annotations
@@ -100,7 +110,7 @@ import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
-from ._errors import InputError
+from ._errors import InputError, StoppedError
 from ._geometry import COORD_LIMIT, Rect, run_rect
 from ._netview import NetView
 from ._nets import Pin, Shape, via_shapes
@@ -114,6 +124,9 @@ MAX_DIODE_PLACEMENTS = 4  # gates of the violated checks tried as diode sites
 ANSWERS = ("hop", "jumper", "diode")  # the parts of an advice a caller may ask for
 
 Point = tuple[int, int]
+# Asked before every exact score: the error to refuse the advice with (the caller's
+# deadline passed, it cancelled), or None to go on.
+StopCheck = Callable[[], StoppedError | None]
 
 
 # -- result records (plain dataclasses: the RPC layer translates them field by field) ----
@@ -192,6 +205,7 @@ class Advice:
     diode: DiodeAdvice | None
     explanation: tuple[str, ...] = field(default_factory=tuple)
     exact_scores: int = 0  # what-if scores this answer took (a load-independent cost)
+    cut: tuple[str, ...] = ()  # parts left unsettled when the budget ran out ("hop", ...)
 
     @property
     def found(self) -> bool:
@@ -296,13 +310,18 @@ class _Run:
 
 # -- the advice -------------------------------------------------------------------------
 
+class _BudgetSpent(Exception):
+    """Internal: the advice's budget of exact scores ran out (the part under way is cut)."""
+
+
 class _Advisor:
     # False: the jumper's bisection search alone, without the secant steps (tests and
     # the bench compare)
     tangent_search = True
 
     def __init__(self, net: str, view: NetView, obstacles: ObstacleIndex | None,
-                 layer_range: tuple[int, int] | None, req: AdviceRequest) -> None:
+                 layer_range: tuple[int, int] | None, req: AdviceRequest,
+                 should_stop: StopCheck | None = None, max_scores: int | None = None) -> None:
         self.net, self.view = net, view
         self.deck = view.deck
         self.steps = len(view.deck.layers)
@@ -311,8 +330,16 @@ class _Advisor:
         self.req = req
         self.rect = run_rect(req.x1, req.y1, req.x2, req.y2, req.width)
         self.scores = 0
+        self.should_stop = should_stop
+        self.max_scores = max_scores
 
     def score(self, shapes: list[Shape], detail: bool = True, extra_pins: Sequence[Pin] = ()) -> Score:
+        if self.should_stop is not None:
+            stopped = self.should_stop()
+            if stopped is not None:
+                raise stopped
+        if self.max_scores is not None and self.scores >= self.max_scores:
+            raise _BudgetSpent()
         self.scores += 1
         return self.view.score(shapes, detail, extra_pins)
 
@@ -557,19 +584,24 @@ class _Advisor:
         notes: list[str] = []
         best: LayerOption | None = None
         target_opt: LayerOption | None = None
+        cut: list[str] = []
         if want & {"hop", "jumper"}:
             # Without "hop" the options serve only to pick the jumper's hop layer: they
             # are scored nearest first until the first legal free one (that is the
             # layer picked), and not reported.
             lazy = "hop" not in want
-            for target in self.hop_layers():
-                opt = self.option(run, target)
-                if isinstance(opt, str):
-                    notes.append(opt)
-                    continue
-                options.append(opt)
-                if lazy and opt.status == "legal":
-                    break
+            try:
+                for target in self.hop_layers():
+                    opt = self.option(run, target)
+                    if isinstance(opt, str):
+                        notes.append(opt)
+                        continue
+                    options.append(opt)
+                    if lazy and opt.status == "legal":
+                        break
+            except _BudgetSpent:
+                cut.append("hop")  # the layers scored so far stand; the rest were not tried
+                notes.append(f"later layers were not tried: {self._budget_words()}")
             best = next((o for o in options if o.status == "legal"), None)
             free = [o for o in options if not o.blocked]
             target_opt = best or (free[0] if free else None)
@@ -579,16 +611,29 @@ class _Advisor:
                 explanation.append(self._options_sentence(best, options, notes))
         jumper = None
         if "jumper" in want:
-            jumper = self.jumper(run if joins is not None else None,
-                                 target_opt.step if target_opt else None, as_is)
+            try:
+                jumper = self.jumper(run if joins is not None else None,
+                                     target_opt.step if target_opt else None, as_is)
+            except _BudgetSpent:
+                cut.append("jumper")
+                jumper = JumperAdvice(False, f"not settled: {self._budget_words()}", run.length)
             explanation.append(self._jumper_sentence(lname, jumper))
         diode = None
         if "diode" in want:
-            diode = self.diode(as_is)
+            try:
+                diode = self.diode(as_is)
+            except _BudgetSpent:
+                cut.append("diode")
+                diode = DiodeAdvice(False, f"not settled: {self._budget_words()}")
             explanation.append(self._diode_sentence(diode))
+        if cut:
+            explanation.append(f"cut: {self._budget_words()}; left unsettled: {', '.join(cut)}")
         return Advice(self.net, lname, run_info, req.width, self.rect, as_is, False, join_point,
                       far_point, tuple(options), best, jumper, diode, tuple(explanation),
-                      self.scores)
+                      self.scores, tuple(cut))
+
+    def _budget_words(self) -> str:
+        return f"the advice's budget of {self.max_scores} exact scores ran out"
 
     # sentences -------------------------------------------------------------------------
 
@@ -654,9 +699,13 @@ def _pt(p: Point) -> str:
 
 
 def advise(net: str, view: NetView, obstacles: ObstacleIndex | None,
-           layer_range: tuple[int, int] | None, req: AdviceRequest) -> Advice:
-    """The advice for one run (the caller holds the net's lock while the view is used)."""
-    return _Advisor(net, view, obstacles, layer_range, req).advise()
+           layer_range: tuple[int, int] | None, req: AdviceRequest,
+           should_stop: StopCheck | None = None, max_scores: int | None = None) -> Advice:
+    """The advice for one run (the caller holds the net's lock while the view is used).
+    ``should_stop`` is asked before every exact score, and a ``StoppedError`` it returns
+    is raised; at most ``max_scores`` exact scores are taken (None: no bound), the part
+    under way when they run out is cut (``Advice.cut``). See the module docstring."""
+    return _Advisor(net, view, obstacles, layer_range, req, should_stop, max_scores).advise()
 
 
 # -- jumper search on one event interval ---------------------------------------------------

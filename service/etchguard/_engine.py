@@ -19,7 +19,7 @@ from typing import TypeVar
 
 import numpy as np
 
-from ._advice import Advice, advise as _advise, check_request as _check_advice_request
+from ._advice import Advice, StopCheck, advise as _advise, check_request as _check_advice_request
 from ._columns import BatchScores, checked_columns
 from ._corenet import CompiledDeck, CoreNet, compile_deck
 from ._coreview import CoreView
@@ -45,6 +45,9 @@ class Limits:
     max_shapes_per_net: int = 200_000
     max_pins_per_net: int = 10_000
     max_candidates: int = 65_536  # shapes in one what-if, candidates in one batch
+    # exact scores one advice may take; past it the part under way is cut (Advice.cut).
+    # Counted, not timed: the same answer on any machine. About 5 s at 300 us a score.
+    max_advice_scores: int = 20_000
 
 
 @dataclass(eq=False)
@@ -392,15 +395,26 @@ class Engine:
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
                width: int | None = None, allow_non_preferred: bool = False,
-               want: Sequence[str] | None = None) -> Advice:
+               want: Sequence[str] | None = None, should_stop: StopCheck | None = None) -> Advice:
         """Repair advice for a candidate run: layer hops, jumper point, diode (see _advice);
-        ``want`` asks for only some of them (e.g. ``("hop",)``; None: all)."""
+        ``want`` asks for only some of them (e.g. ``("hop",)``; None: all).
+
+        ``should_stop`` (the caller's deadline and cancellation) is asked while waiting
+        for the net and before every exact score; the ``StoppedError`` it returns is
+        raised, so the net is let go within one score of it. At most
+        ``limits.max_advice_scores`` exact scores are taken (``Advice.cut``)."""
         request = _check_advice_request(self.deck, layer, x1, y1, x2, y2, width, allow_non_preferred,
                                         want)
         net = self._net(name)
-        with net.lock:
+        _acquire(net.lock, should_stop)
+        try:
+            if net.closed:
+                raise NotFoundError(f"no open net {name!r}", "net")
             view = CoreView(name, net.core, self.costs)
-            result = _advise(name, view, self._obstacles, net.layer_range, request)
+            result = _advise(name, view, self._obstacles, net.layer_range, request, should_stop,
+                             self.limits.max_advice_scores)
+        finally:
+            net.lock.release()
         self.counters["scores"] += 1
         return result
 
@@ -452,6 +466,20 @@ class Engine:
                                                        _net_items(ni.name, ni.pins, ni.shapes)],
                                     dict(image.blockages))
             self._obstacles._next_blockage = image.next_blockage_id  # ids continue, never reused
+
+
+_LOCK_WAIT_SLICE_S = 0.05  # how often a waiting advice asks whether its caller still waits
+
+
+def _acquire(lock: threading.Lock, should_stop: StopCheck | None) -> None:
+    """Take ``lock``; while it is busy, give up (raise) as soon as ``should_stop`` says so."""
+    if should_stop is None:
+        lock.acquire()
+        return
+    while not lock.acquire(timeout=_LOCK_WAIT_SLICE_S):
+        stopped = should_stop()
+        if stopped is not None:
+            raise stopped
 
 
 def _core_net(compiled: CompiledDeck, pins: Sequence[Pin],

@@ -50,3 +50,16 @@ class WrongShardError(EtchguardError):
 
 class PeerUnavailableError(EtchguardError):
     """A question needs another shard's answer and that shard cannot be reached."""
+
+
+class StoppedError(EtchguardError):
+    """Long work (an advice) stopped before its answer because its caller stopped
+    waiting; nothing was changed. ``field`` names what ended it."""
+
+
+class DeadlineExceededError(StoppedError):
+    """The call's deadline passed while its work was under way."""
+
+
+class CancelledError(StoppedError):
+    """The caller cancelled the call (or went away) while its work was under way."""

@@ -234,13 +234,15 @@ class Client:
     say otherwise (the server's own limit, 16 MiB by default, is what it accepts). ``tls_roots`` (PEM bytes or a
     file) speaks TLS to a server with a certificate they sign; ``tls_client_cert`` and
     ``tls_client_key`` add a client certificate; ``token`` sends
-    ``authorization: Bearer <token>`` on every call.
+    ``authorization: Bearer <token>`` on every call. ``job`` names the job every call
+    works in (metadata ``etchguard-job``: its own deck and nets); None: the unnamed job.
     """
 
     def __init__(self, target: str = "127.0.0.1:50051", *, timeout: float | None = 30.0,
                  options: Sequence[tuple[str, Any]] = (), channel: grpc.Channel | None = None,
                  tls_roots: bytes | Path | None = None, tls_client_cert: bytes | Path | None = None,
-                 tls_client_key: bytes | Path | None = None, token: str | None = None) -> None:
+                 tls_client_key: bytes | Path | None = None, token: str | None = None,
+                 job: str | None = None) -> None:
         self.target = target
         self.timeout = timeout
         self._owns_channel = channel is None
@@ -254,7 +256,9 @@ class Client:
             else:
                 channel = grpc.insecure_channel(target, options=[*defaults, *options])
         if token is not None:
-            channel = grpc.intercept_channel(channel, _BearerToken(token))
+            channel = grpc.intercept_channel(channel, _AddHeader("authorization", f"Bearer {token}"))
+        if job is not None:
+            channel = grpc.intercept_channel(channel, _AddHeader("etchguard-job", job))
         self.channel = channel
         self.stub = pb_grpc.AntennaServiceStub(self.channel)
         self._deck: pb.DeckInfo | None = None
@@ -372,12 +376,12 @@ def _pem(value: bytes | Path | None) -> bytes | None:
     return value.read_bytes() if isinstance(value, Path) else value
 
 
-class _BearerToken(grpc.UnaryUnaryClientInterceptor, grpc.UnaryStreamClientInterceptor,
-                   grpc.StreamUnaryClientInterceptor, grpc.StreamStreamClientInterceptor):
-    """Adds ``authorization: Bearer <token>`` to every call (TLS or loopback plaintext)."""
+class _AddHeader(grpc.UnaryUnaryClientInterceptor, grpc.UnaryStreamClientInterceptor,
+                 grpc.StreamUnaryClientInterceptor, grpc.StreamStreamClientInterceptor):
+    """Adds one metadata entry to every call (the bearer token, the job's name)."""
 
-    def __init__(self, token: str) -> None:
-        self._header = ("authorization", f"Bearer {token}")
+    def __init__(self, key: str, value: str) -> None:
+        self._header = (key, value)
 
     def _with_token(self, details: grpc.ClientCallDetails) -> grpc.ClientCallDetails:
         return _CallDetails(details.method, details.timeout,

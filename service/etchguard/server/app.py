@@ -34,7 +34,9 @@ from .metrics import Metrics, NullMetrics
 from .servicer import AntennaServicer
 # durability and access (issue 5): the journal, TLS, the token, malformed requests
 from .. import DeckError, loads_deck
-from .._journal import Journal, SyncPolicy
+from .._changelog import ChangeLogError
+from .._journal import DIR_MODE, Journal, JournalError, SyncPolicy
+from .._jobs import JOB_NAME, Jobs
 from . import security
 from .streams import StreamGate
 
@@ -68,6 +70,8 @@ class ServerConfig:
     max_shapes_per_net: int = _DEFAULT_LIMITS.max_shapes_per_net
     max_pins_per_net: int = _DEFAULT_LIMITS.max_pins_per_net
     max_candidates: int = _DEFAULT_LIMITS.max_candidates
+    max_advice_scores: int = _DEFAULT_LIMITS.max_advice_scores
+    max_jobs: int = 64  # named jobs (call metadata etchguard-job), each its own deck and nets
     workers: int = 64  # concurrent calls; each open Session stream holds one
     max_sessions: int | None = None  # open bidirectional streams; None: workers - workers // 4
     session_idle_s: float = 300.0  # a stream waiting this long for a request is closed
@@ -197,6 +201,72 @@ def _deck_at_start(config: ServerConfig, engine: Engine, held_text: str | None) 
     engine.load_deck(deck, text)
 
 
+JOBS_FOLDER = "jobs"  # under the state folder: one folder per named job, its own journal
+
+
+class _JobMaker:
+    """Makes a named job's engine: the server's limits and costs, the start-up deck
+    (``--rules``) when one was given, and with a state folder a journal of its own in
+    ``<state-dir>/jobs/<job>`` (the folder keeps the owner across restarts)."""
+
+    def __init__(self, config: ServerConfig) -> None:
+        self.config = config
+        self.deck_text = Path(config.rules).read_text(encoding="utf-8") if config.rules else None
+        self.journals: list[Journal] = []  # appended under the Jobs lock
+
+    def folder(self) -> Path | None:
+        if self.config.state_dir is None:
+            return None
+        folder = Path(self.config.state_dir) / JOBS_FOLDER
+        folder.mkdir(mode=DIR_MODE, exist_ok=True)
+        return folder
+
+    def recover(self, jobs: Jobs) -> None:
+        """Bring back every job the state folder holds."""
+        folder = self.folder()
+        if folder is None:
+            return
+        for path in sorted(folder.iterdir()):
+            if not (path.is_dir() and JOB_NAME.fullmatch(path.name)):
+                log.warning("not a job's folder; left alone", extra={"fields": {"path": str(path)}})
+                continue
+            jobs.adopt(path.name, self._journaled(path))
+            log.info("job recovered", extra={"fields": {"job": path.name,
+                                                        "nets": len(jobs.find(path.name).net_names())}})
+
+    def _journaled(self, path: Path) -> Engine:
+        config = self.config
+        engine = Engine(None, config.limits(), config.costs())
+        self.journals.append(Journal.open(path, engine, sync=config.sync,
+                                          interval_ms=config.sync_interval_ms,
+                                          snapshot_every=config.snapshot_every, version=__version__,
+                                          keep_before_damage=config.keep_journal_before_damage))
+        return engine
+
+    def __call__(self, job: str) -> Engine:
+        folder = self.folder()
+        if folder is None:
+            engine = Engine(None, self.config.limits(), self.config.costs())
+        else:
+            try:
+                engine = self._journaled(folder / job)
+            except JournalError as exc:  # a full disk, say: the job is not made, try again later
+                raise ChangeLogError(f"cannot make the job's state folder: {exc.message}", "job") from None
+        if self.deck_text is not None and engine.deck_text is None:
+            engine.load_deck(loads_deck(self.deck_text, str(self.config.rules)), self.deck_text)
+        log.info("job made", extra={"fields": {"job": job, "deck": engine.deck_text is not None}})
+        return engine
+
+
+def _jobs(config: ServerConfig, engine: Engine, maker: _JobMaker) -> Jobs:
+    empty = Engine(None, config.limits(), config.costs())  # reads for a job not made yet
+    if maker.deck_text is not None:  # they see the start-up deck a new job would get
+        empty.load_deck(loads_deck(maker.deck_text, str(config.rules)), maker.deck_text)
+    jobs = Jobs(engine, maker, config.max_jobs, empty)
+    maker.recover(jobs)
+    return jobs
+
+
 def _credentials(config: ServerConfig, address: str) -> grpc.ServerCredentials | None:
     """Credentials for a listen address; None: plaintext (loopback / unix socket)."""
     if address.startswith("unix:"):
@@ -228,6 +298,7 @@ class EtchguardServer:
         self.metrics_port = 0
         self._stopped = threading.Event()
         self.journal: Journal | None = None  # set by build_server with a state folder
+        self.job_journals: list[Journal] = []  # named jobs' journals (grows as jobs are made)
         self.stream_gate: StreamGate | None = None  # set by build_server
         self.shard = None  # sharding.ShardRuntime of a shard server (set by build_server)
 
@@ -261,6 +332,8 @@ class EtchguardServer:
             self.shard.stop()
         if self.journal is not None:  # after the last call: a final snapshot, then fsync
             self.journal.close()
+        for journal in list(self.job_journals):
+            journal.close()
         self.metrics.close()
         for address in self.addresses:
             if address.startswith("unix:"):
@@ -357,6 +430,11 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     for name in ("session_idle_s", "connection_idle_s"):
         if not getattr(config, name) > 0:
             raise ServeError("must be > 0 s", name)
+    if config.max_advice_scores < 1:
+        raise ServeError("must be at least 1 (the advice scores the run as it is first)",
+                         "max_advice_scores")
+    if config.max_jobs < 0:
+        raise ServeError("must be >= 0 (0: only the unnamed job)", "max_jobs")
     gate = StreamGate(config.stream_slots(), config.session_idle_s)
     security.check_listen(config)
     security.check_metrics(config)
@@ -365,11 +443,18 @@ def build_server(config: ServerConfig) -> EtchguardServer:
         engine, journal = _journaled_engine(config)
     else:
         engine = _engine(config)
-    metrics = Metrics(engine.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
+    maker = _JobMaker(config)
+    try:
+        jobs = _jobs(config, engine, maker)
+    except BaseException:
+        for open_journal in ([journal] if journal is not None else []) + maker.journals:
+            open_journal.close(snapshot=False)
+        raise
+    metrics = Metrics(jobs.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
     server = grpc_server(config, gate)
-    pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(engine, metrics), server)
+    pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(jobs, metrics), server)
     shard = None
-    if config.topology is not None:
+    if config.topology is not None:  # a shard serves the unnamed job's nets
         from . import sharding
         shard = sharding.attach(server, engine, config)  # type: ignore[arg-type]
     health_servicer = health.HealthServicer(experimental_non_blocking=True)
@@ -383,11 +468,12 @@ def build_server(config: ServerConfig) -> EtchguardServer:
     try:
         addresses = [_bind(server, config, address) for address in config.listen]
     except BaseException:
-        if journal is not None:
-            journal.close(snapshot=False)
+        for open_journal in ([journal] if journal is not None else []) + maker.journals:
+            open_journal.close(snapshot=False)
         raise
     built = EtchguardServer(config, engine, metrics, server, health_servicer, addresses)
     built.journal = journal
+    built.job_journals = maker.journals  # the same list: jobs made later are closed too
     built.stream_gate = gate
     built.shard = shard
     return built

@@ -51,6 +51,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--max-candidates", type=int, default=_DEFAULTS.max_candidates,
                         metavar="N", help="shapes in one candidate, candidates in one batch "
                                           "(default %(default)s)")
+    parser.add_argument("--max-advice-scores", type=int, default=_DEFAULTS.max_advice_scores,
+                        metavar="N", help="exact scores one advice may take; past them the part "
+                                          "under way is cut and the answer says so "
+                                          "(default %(default)s)")
+    parser.add_argument("--max-jobs", type=int, default=_DEFAULTS.max_jobs, metavar="N",
+                        help="named jobs held at once, each with its own deck and nets "
+                             "(default %(default)s)")
     parser.add_argument("--cost-knee", type=float, default=_DEFAULTS.cost_knee, metavar="U",
                         help="router cost: utilization below which a candidate costs 0 "
                              "(default %(default)s)")
@@ -142,7 +149,8 @@ def config_from_args(args: argparse.Namespace) -> ServerConfig:
         metrics_beyond_loopback=args.metrics_beyond_loopback,
         max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
         max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
-        max_candidates=args.max_candidates, workers=args.workers,
+        max_candidates=args.max_candidates, max_advice_scores=args.max_advice_scores,
+        max_jobs=args.max_jobs, workers=args.workers,
         max_sessions=args.max_sessions, session_idle_s=args.session_idle_s,
         connection_idle_s=args.connection_idle_s,
         grace_s=args.grace, log_level=args.log_level,

@@ -19,6 +19,7 @@ import numpy as np
 
 from .. import (EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape,
                 resolve_layer, run_shapes)
+from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
 from .._names import check_length
 from .._nets import checked_layer_range
 from ..v1 import etchguard_pb2 as pb
@@ -38,6 +39,15 @@ def net_name_checked(request) -> None:
     it up (and quote it back in a NOT_FOUND)."""
     if "net" in request.DESCRIPTOR.fields_by_name:
         check_length(request.net, "a net name", "net")
+
+
+def job_of(context) -> str:
+    """The job a call names in its metadata (``etchguard-job``), validated; the unnamed
+    job when it names none. Named twice is refused: the two could disagree."""
+    named = [value for key, value in (context.invocation_metadata() or ()) if key == JOB_FIELD]
+    if len(named) > 1:
+        raise InputError("a call names one job at most", JOB_FIELD)
+    return check_job_name(named[0]) if named else DEFAULT_JOB
 
 
 def at_most(count: int, limit: int | None, what: str, path: str) -> None:

@@ -22,7 +22,7 @@ from grpc_status import rpc_status
 from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
                 NoDeckError, NotFoundError)
 from .._changelog import ChangeLogError
-from .._errors import PeerUnavailableError, WrongShardError
+from .._errors import CancelledError, DeadlineExceededError, PeerUnavailableError, WrongShardError
 
 DOMAIN = "etchguard.v1"
 # Worst case on the wire: message 1000 B percent-encoded (3,000) + details in base64
@@ -38,8 +38,10 @@ CODES: dict[type, grpc.StatusCode] = {
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
     ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
-    WrongShardError: grpc.StatusCode.FAILED_PRECONDITION,  # another shard holds the net (issue 14)
+    WrongShardError: grpc.StatusCode.FAILED_PRECONDITION,  # another shard holds the net
     PeerUnavailableError: grpc.StatusCode.UNAVAILABLE,  # advice needs a shard that is down
+    DeadlineExceededError: grpc.StatusCode.DEADLINE_EXCEEDED,  # long work stopped
+    CancelledError: grpc.StatusCode.CANCELLED,
 }
 
 

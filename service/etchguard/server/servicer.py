@@ -1,10 +1,15 @@
 """The gRPC servicer: protobuf in, one engine call, protobuf out.
 
-Each RPC is a *fill* function ``(servicer, request, out) -> None`` that converts the
+Each RPC is a *fill* function ``(call, request, out) -> None`` that converts the
 request (``convert``), calls the engine once and writes the reply into ``out``. The
 unary methods and the session stream share the same fill functions; the only thing
 that differs is how a refusal travels: a unary call aborts with a rich status, a
 session request gets a ``SessionError`` in its reply and the stream goes on.
+
+``call`` (``_Call``) is what the adapter knows of the call beyond its request: the
+engine of the caller's job (call metadata ``etchguard-job``; none: the unnamed job,
+see ``etchguard._jobs``) and whether the caller still waits (its deadline and
+cancellation, which long work such as advice asks between its steps).
 """
 
 from __future__ import annotations
@@ -16,6 +21,8 @@ from time import perf_counter
 import grpc
 
 from .. import EtchguardError, InputError, NoDeckError, __version__, loads_deck, resolve_layer
+from .._errors import CancelledError, DeadlineExceededError, StoppedError
+from .._jobs import Jobs
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from . import convert, errors
@@ -25,98 +32,126 @@ log = logging.getLogger("etchguard.server")
 
 # -- fill functions: (servicer, request, out) -----------------------------------------
 
-def _load_deck(self, req, out):
+def _load_deck(call, req, out):
     deck = loads_deck(req.toml, "toml")
-    self.engine.load_deck(deck, req.toml)  # the text: a journal replays it
+    call.own_engine().load_deck(deck, req.toml)  # the text: a journal replays it
     convert.deck_into(out, deck)
     out.toml = req.toml
     log.info("deck loaded", extra={"fields": {"deck": deck.name, "layers": len(deck.layers),
                                               "rules": len(deck.rules)}})
 
 
-def _get_deck(self, req, out):
-    convert.deck_into(out, self.engine.deck)
-    out.toml = self.engine.deck_text or ""
+def _get_deck(call, req, out):
+    convert.deck_into(out, call.engine.deck)
+    out.toml = call.engine.deck_text or ""
 
 
-def _open_net(self, req, out):
-    deck, limits = self.engine.deck, self.engine.limits
+def _open_net(call, req, out):
+    deck, limits = call.engine.deck, call.engine.limits
     pins = convert.pins(deck, req.pins, "pins", limits)
     layer_range = convert.layer_range(deck, req.layer_range) if req.HasField("layer_range") else None
     shapes = convert.shapes(deck, req.shapes, "shapes", limits.max_shapes_per_net)
-    convert.ids_into(out, self.engine.open_net(req.net, pins, layer_range, shapes))
+    convert.ids_into(out, call.own_engine().open_net(req.net, pins, layer_range, shapes))
 
 
-def _commit(self, req, out):
-    shapes = convert.shapes(self.engine.deck, req.shapes, "shapes", self.engine.limits.max_shapes_per_net)
-    convert.ids_into(out, self.engine.commit(req.net, shapes))
+def _commit(call, req, out):
+    shapes = convert.shapes(call.engine.deck, req.shapes, "shapes", call.engine.limits.max_shapes_per_net)
+    convert.ids_into(out, call.engine.commit(req.net, shapes))
 
 
-def _remove(self, req, out):
-    ids = convert.shape_ids(req.shape_ids, "shape_ids", self.engine.limits.max_shapes_per_net)
-    self.engine.remove(req.net, ids)
+def _remove(call, req, out):
+    ids = convert.shape_ids(req.shape_ids, "shape_ids", call.engine.limits.max_shapes_per_net)
+    call.engine.remove(req.net, ids)
     out.removed = len(ids)
 
 
-def _close_net(self, req, out):
-    self.engine.close_net(req.net)
+def _close_net(call, req, out):
+    call.engine.close_net(req.net)
 
 
-def _score(self, req, out):
-    limits = self.engine.limits
-    candidate = convert.shapes(self.engine.deck, req.candidate, "candidate",
+def _score(call, req, out):
+    limits = call.engine.limits
+    candidate = convert.shapes(call.engine.deck, req.candidate, "candidate",
                                min(limits.max_candidates, limits.max_shapes_per_net))
-    convert.score_into(out, self.engine.score(req.net, candidate, not req.without_changes))
+    convert.score_into(out, call.engine.score(req.net, candidate, not req.without_changes))
 
 
-def _score_batch(self, req, out):
-    deck, limits = self.engine.deck, self.engine.limits
+def _score_batch(call, req, out):
+    deck, limits = call.engine.deck, call.engine.limits
     if not req.details:  # the columnar path
         counts, steps, rects = convert.candidate_arrays(deck, req.candidates, "candidates",
                                                         limits.max_candidates)
         try:
-            scores = self.engine.score_columns(req.net, steps, rects, counts)
+            scores = call.engine.score_columns(req.net, steps, rects, counts)
         except EtchguardError as exc:
             raise convert.columns_error(exc) from None
         convert.columns_into(out, scores)
         return
     candidates = convert.candidate_columns(deck, req.candidates, "candidates",
                                            limits.max_candidates, limits.max_shapes_per_net)
-    convert.batch_into(out, self.engine.score_many(req.net, candidates, req.details), req.details)
+    convert.batch_into(out, call.engine.score_many(req.net, candidates, req.details), req.details)
 
 
-def _headroom(self, req, out):
-    deck = self.engine.deck
+def _headroom(call, req, out):
+    deck = call.engine.deck
     layer = resolve_layer(deck, req.layer, "layer")
-    convert.headroom_into(out, self.engine.headroom(req.net, layer, req.x, req.y))
+    convert.headroom_into(out, call.engine.headroom(req.net, layer, req.x, req.y))
 
 
-def _get_net(self, req, out):
-    spec, ids = self.engine.spec_with_ids(req.net)
-    convert.net_into(out, spec, ids, self.engine.deck)
+def _get_net(call, req, out):
+    spec, ids = call.engine.spec_with_ids(req.net)
+    convert.net_into(out, spec, ids, call.engine.deck)
 
 
-def _check(self, req, out):
-    convert.report_into(out, self.engine.check(req.net))
+def _check(call, req, out):
+    convert.report_into(out, call.engine.check(req.net))
 
 
-def _advise(self, req, out):
-    deck = self.engine.deck
+def _advise(call, req, out):
+    deck = call.engine.deck
     layer = resolve_layer(deck, req.layer, "layer")
     if req.width < 0:
         raise InputError(f"width must be >= 0 DBU (0 = the layer default), got {req.width}", "width")
-    advice = self.engine.advise(req.net, layer, req.x1, req.y1, req.x2, req.y2, req.width or None,
-                                req.allow_non_preferred, list(req.want) or None)
+    advice = call.engine.advise(req.net, layer, req.x1, req.y1, req.x2, req.y2, req.width or None,
+                                req.allow_non_preferred, list(req.want) or None, call.should_stop)
     convert.advice_into(out, advice, [l.name for l in deck.layers])
 
 
-def _stats(self, req, out):
+def _stats(call, req, out):
     try:
-        deck_name = self.engine.deck.name
+        deck_name = call.engine.deck.name
     except NoDeckError:
         deck_name = ""  # stats answer without a deck
-    convert.stats_into(out, self.engine.stats(), deck_name, time.monotonic() - self.started,
+    convert.stats_into(out, call.engine.stats(), deck_name, time.monotonic() - call.started,
                        __version__)
+
+
+class _Call:
+    """One call as its fill function sees it (module docstring)."""
+
+    def __init__(self, jobs: Jobs, started: float, context) -> None:
+        self.started = started  # the server's start (GetStats' uptime)
+        self._jobs, self._context = jobs, context
+        self.job = convert.job_of(context)
+
+    @property
+    def engine(self):
+        """The job's engine, for a call that reads or changes what the job holds."""
+        return self._jobs.find(self.job)
+
+    def own_engine(self):
+        """The job's engine, made if the job has none yet (OpenNet, LoadDeck)."""
+        return self._jobs.open(self.job)
+
+    def should_stop(self) -> StoppedError | None:
+        """Why the caller no longer waits, or None (asked between steps of long work)."""
+        remaining = self._context.time_remaining()
+        if remaining is not None and remaining <= 0:
+            return DeadlineExceededError("the call's deadline passed before its answer was ready; "
+                                         "the work was stopped", "deadline")
+        if not self._context.is_active():
+            return CancelledError("the caller cancelled the call; the work was stopped", "call")
+        return None
 
 
 def _unary(name: str, fill, reply_type):
@@ -125,7 +160,7 @@ def _unary(name: str, fill, reply_type):
         out = reply_type()
         try:
             convert.net_name_checked(request)
-            fill(self, request, out)
+            fill(_Call(self.jobs, self.started, context), request, out)
         except EtchguardError as exc:
             self._abort(name, exc, context, t0)
         except Exception:  # a bug: answer INTERNAL, keep serving, log it
@@ -154,10 +189,15 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
                "ScoreBatch", "Headroom", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
-    def __init__(self, engine, metrics) -> None:
-        self.engine = engine
+    def __init__(self, jobs: Jobs, metrics) -> None:
+        self.jobs = jobs
         self.metrics = metrics
         self.started = time.monotonic()
+
+    @property
+    def engine(self):
+        """The unnamed job's engine (a single-tenant server's only one)."""
+        return self.jobs.default
 
     LoadDeck = _unary("LoadDeck", _load_deck, pb.DeckInfo)
     GetDeck = _unary("GetDeck", _get_deck, pb.DeckInfo)
@@ -176,8 +216,9 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     def CheckAll(self, request, context):
         t0 = perf_counter()
         try:
-            self.engine.deck  # noqa: B018 - FAILED_PRECONDITION without a deck
-            for report in self.engine.check_all():
+            engine = _Call(self.jobs, self.started, context).engine
+            engine.deck  # noqa: B018 - FAILED_PRECONDITION without a deck
+            for report in engine.check_all():
                 if not context.is_active():
                     break
                 if request.violations_only and report.legal:
@@ -194,6 +235,10 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     def Session(self, request_iterator, context):
         labels = self.SESSION_LABELS
         observe = self.metrics.observe
+        try:
+            call = _Call(self.jobs, self.started, context)
+        except EtchguardError as exc:
+            self._abort("Session", exc, context, perf_counter())
         for req in request_iterator:
             t0 = perf_counter()
             reply = pb.SessionReply(seq=req.seq)
@@ -211,7 +256,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
             try:
                 request = getattr(req, op)
                 convert.net_name_checked(request)
-                fill(self, request, out)
+                fill(call, request, out)
                 code = "OK"
             except EtchguardError as exc:
                 reply.ClearField(op)
