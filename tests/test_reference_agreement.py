@@ -310,3 +310,27 @@ def test_commit_then_remove_restores_exactly(case, one_by_one: bool) -> None:
     # may name another of several gates tied for the worst case).
     assert engine.check("n1").as_dict() == before.as_dict()
     assert {k: v for k, v in engine.stats().items() if k in ("nets", "shapes")} == stats
+
+
+@SETTINGS
+@given(cases(), st.randoms(use_true_random=False))
+def test_rip_up_of_any_shapes_equals_reference(case, rng) -> None:
+    """Shapes ripped up one at a time, in a random order, from anywhere in the net (a
+    removal that splits a component, a part of it, or nothing): after each, the check
+    equals the reference's reading of the net that remains, and what-ifs stay exact."""
+    deck, net, _ = case
+    engine = engine_with(deck, net)
+    ids = list(engine.shapes("n1"))
+    kept = dict(zip(ids, net["shapes"]))  # shape ids 1..n are the net's shapes in order
+    for sid in rng.sample(ids, min(len(ids), 6)):
+        engine.remove("n1", [sid])
+        del kept[sid]
+        remaining = {**net, "shapes": list(kept.values())}
+        problems = report_disagreements(engine.check("n1"), reference(deck, remaining))
+        assert not problems, (sid, "\n".join(problems))
+        for s in list(kept.values())[:2]:  # the what-if of a shape held equals a check with it twice
+            shape = eg.make_shape(engine.deck, s["layer"], s["rect"])
+            lean = engine.score("n1", [shape], detail=False)
+            got = engine.commit("n1", [shape])
+            assert lean.worst_utilization == engine.check("n1").worst_utilization
+            engine.remove("n1", got)

@@ -157,6 +157,7 @@ int Net::State::new_element(const Rect& r, int layer, i64 sid, int pin, bool anc
     elems.push_back({});
     adj.emplace_back();
     stamp.push_back(0);
+    part_of.push_back(-1);
     for (auto& v : comp_of) v.push_back(-1);
   }
   elems[std::size_t(e)] = {r, sid, next_seq++, layer, pin, anchor, true};
@@ -315,10 +316,16 @@ void Net::State::rebuild(Comp& c, const std::vector<int>& members, int step) con
   c.perim = m.side_needed[std::size_t(step)] ? u.perimeter : 0;
 }
 
-// Connected parts of c's members at step s after an element left, or false when they
-// stay one. `near` are the element's former neighbours joined at or below s.
-bool Net::State::split(int s, Comp& c, const std::vector<int>& near, std::vector<std::vector<int>>& parts) {
-  // Cheap sufficient test: the neighbours hold each other together by their own links.
+// After element e left component `ci` at step s: its former neighbours `near` (joined
+// at or below s) are searched in turns, one element each, so that a small part that
+// broke off is found in time proportional to its own size, not the component's.
+// Searches that meet become one. When at most one search is still going, the others
+// are complete: they are the parts that broke off (`parts`); the one still going (or,
+// if all ended, the largest) stays in the old component. Returns false when nothing
+// broke off.
+bool Net::State::split(int s, int ci, const std::vector<int>& near, std::vector<std::vector<int>>& parts) {
+  const auto& cof = comp_of[std::size_t(s)];
+  // Cheap sufficient test first: the neighbours hold each other together by their own links.
   std::uint32_t mark = tick();
   for (int x : near) stamp[std::size_t(x)] = mark;
   std::uint32_t linked = tick();
@@ -337,35 +344,74 @@ bool Net::State::split(int s, Comp& c, const std::vector<int>& near, std::vector
     }
   }
   if (reached == near.size()) return false;
-  // A search of the component from each neighbour.
-  std::uint32_t member = tick();
-  for (int x : c.members) stamp[std::size_t(x)] = member;
+
+  // Searches in turns. part_of[x] names the search that reached x (valid under `seen`).
   std::uint32_t seen = tick();
-  std::size_t unseen = c.members.size();
-  parts.clear();
+  std::vector<int> root;                     // union-find over searches
+  std::vector<std::vector<int>> fronts, got;  // per search: to expand, reached
+  auto find_root = [&](int i) {
+    while (root[std::size_t(i)] != i) i = root[std::size_t(i)] = root[std::size_t(root[std::size_t(i)])];
+    return i;
+  };
   for (int start : near) {
-    if (stamp[std::size_t(start)] != member) continue;
-    parts.emplace_back();
-    auto& part = parts.back();
+    if (stamp[std::size_t(start)] == seen) continue;  // two links to one neighbour
     stamp[std::size_t(start)] = seen;
-    --unseen;
-    part.push_back(start);
-    frontier.assign(1, start);
-    while (!frontier.empty()) {
-      int x = frontier.back();
-      frontier.pop_back();
+    part_of[std::size_t(start)] = int(root.size());
+    root.push_back(int(root.size()));
+    fronts.push_back({start});
+    got.push_back({start});
+  }
+  std::size_t going = root.size();
+  while (going > 1) {
+    bool any = false;
+    for (std::size_t i = 0; i < root.size() && going > 1; ++i) {
+      if (root[i] != int(i) || fronts[i].empty()) continue;
+      any = true;
+      int x = fronts[i].back();
+      fronts[i].pop_back();
       for (const auto& n : adj[std::size_t(x)]) {
-        if (n.second <= s && stamp[std::size_t(n.first)] == member) {
-          stamp[std::size_t(n.first)] = seen;
-          --unseen;
-          part.push_back(n.first);
-          frontier.push_back(n.first);
+        const int y = n.first;
+        if (n.second > s || cof[std::size_t(y)] != ci) continue;
+        if (stamp[std::size_t(y)] != seen) {
+          stamp[std::size_t(y)] = seen;
+          part_of[std::size_t(y)] = int(i);
+          fronts[i].push_back(y);
+          got[i].push_back(y);
+          continue;
+        }
+        int j = find_root(part_of[std::size_t(y)]);
+        if (j == int(i)) continue;
+        // Two searches met: one part. The smaller list joins the larger.
+        int keep = int(i), gone = j;
+        if (got[std::size_t(gone)].size() > got[std::size_t(keep)].size()) std::swap(keep, gone);
+        root[std::size_t(gone)] = keep;
+        auto& kf = fronts[std::size_t(keep)];
+        kf.insert(kf.end(), fronts[std::size_t(gone)].begin(), fronts[std::size_t(gone)].end());
+        auto& kg = got[std::size_t(keep)];
+        kg.insert(kg.end(), got[std::size_t(gone)].begin(), got[std::size_t(gone)].end());
+        fronts[std::size_t(gone)].clear();
+        got[std::size_t(gone)].clear();
+        --going;  // the merged pair counts once
+        if (keep != int(i)) {  // this search lives on under `keep`: x's other links too
+          fronts[std::size_t(keep)].push_back(x);
+          break;
         }
       }
+      if (root[i] == int(i) && fronts[i].empty()) --going;  // search i is complete
     }
-    if (unseen == 0) break;
+    if (!any) break;
   }
-  return !(parts.size() == 1 && unseen == 0);
+  // The part that stays: the search still going, else the largest complete one.
+  int stays = -1;
+  for (std::size_t i = 0; i < root.size(); ++i) {
+    if (root[i] != int(i)) continue;
+    if (!fronts[i].empty()) { stays = int(i); break; }
+    if (stays < 0 || got[i].size() > got[std::size_t(stays)].size()) stays = int(i);
+  }
+  parts.clear();
+  for (std::size_t i = 0; i < root.size(); ++i)
+    if (root[i] == int(i) && int(i) != stays) parts.push_back(std::move(got[i]));
+  return !parts.empty();
 }
 
 void Net::State::erase(int e) {
@@ -408,21 +454,50 @@ void Net::State::erase(int e) {
         near_links.push_back(n);
       }
     }
-    if (near.size() <= 1 || !split(s, c, near, parts)) {
-      if (s == layer) {  // still one piece: take away what the shape contributed
-        routed_on(layer, near_links, local);
-        Measures d = local_delta(el.r, local, s);
-        c.area -= d.area;
-        c.perim -= d.perimeter;
-      }
-      continue;
+    if (s == layer) {  // take away what the shape contributed (union areas of parts add)
+      routed_on(layer, near_links, local);
+      Measures d = local_delta(el.r, local, s);
+      c.area -= d.area;
+      c.perim -= d.perimeter;
     }
-    c.reset();
-    free_comps[std::size_t(s)].push_back(ci);
+    if (near.size() <= 1 || !split(s, ci, near, parts)) continue;
+    // The parts that broke off become components of their own; what they held leaves
+    // the old one, which keeps the rest (pin sums exactly: their terms subtracted).
+    std::uint32_t gone = tick();
+    bool pins_left = false;
     for (const auto& part : parts) {
       int ni = new_comp(s);
-      rebuild(comps[std::size_t(s)][std::size_t(ni)], part, s);
-      for (int x : part) cof[std::size_t(x)] = ni;
+      Comp& fresh = comps[std::size_t(s)][std::size_t(ni)];
+      rebuild(fresh, part, s);
+      for (int x : part) {
+        cof[std::size_t(x)] = ni;
+        stamp[std::size_t(x)] = gone;
+      }
+      Comp& old = comps[std::size_t(s)][std::size_t(ci)];
+      old.area -= fresh.area;
+      old.perim -= fresh.perim;
+      if (fresh.figures_) {
+        pins_left = true;
+        PinFigures& f = old.figures();
+        for (int p : fresh.figures_->pins) {
+          f.gate.add(-pin_gate[std::size_t(p)]);
+          f.diff.add(-pins[std::size_t(p)].diff_um2);
+          f.cell.add(-pin_cell(p, s));
+        }
+      }
+    }
+    Comp& old = comps[std::size_t(s)][std::size_t(ci)];
+    auto& ms = old.members;
+    ms.erase(std::remove_if(ms.begin(), ms.end(), [&](int x) { return stamp[std::size_t(x)] == gone; }), ms.end());
+    if (pins_left) {
+      PinFigures& f = *old.figures_;
+      auto moved_out = [&](int p) { return stamp[std::size_t(anchor_of_pin[std::size_t(p)])] == gone; };
+      f.pins.erase(std::remove_if(f.pins.begin(), f.pins.end(), moved_out), f.pins.end());
+      f.gates.erase(std::remove_if(f.gates.begin(), f.gates.end(), moved_out), f.gates.end());
+      old.oxides = 0;
+      for (int p : f.pins) old.oxides |= pin_oxides[std::size_t(p)];
+      if (f.pins.empty()) old.figures_.reset();
+      old.refresh();
     }
   }
   el.alive = false;

@@ -197,6 +197,7 @@ struct Net::State {
   mutable SweepBuffers sweep;
   mutable std::vector<Rect> clipped, with;  // local_delta's
   mutable std::vector<std::uint32_t> stamp;  // per element, for searches
+  std::vector<int> part_of;                  // per element, for splitting searches
   mutable std::uint32_t clock = 0;
 
   double pin_cell(int p, int step) const;
@@ -209,7 +210,7 @@ struct Net::State {
   int new_comp(int step);
   void insert(int e, const std::vector<std::pair<int, int>>& extra);
   void erase(int e);
-  bool split(int s, Comp& c, const std::vector<int>& near, std::vector<std::vector<int>>& parts);
+  bool split(int s, int ci, const std::vector<int>& near, std::vector<std::vector<int>>& parts);
   void rebuild(Comp& c, const std::vector<int>& members, int step) const;
   const Assessment& assess() const;
   void entries(int s, const Comp& c, bool partial, const double* const* cars_by_pin,
