@@ -65,6 +65,7 @@ SPEEDUP_TARGET = 10_000.0
 BYTES_PER_SHAPE_TARGET = 150.0
 MEMORY_TARGET_NETS = 1_000_000
 MEMORY_VERDICT_MIN_NETS = 10_000
+MEMORY_CHECK_EVERY = 256  # nets opened between looks at the clock and the free memory
 SAME_COST_TOLERANCE = 1.25  # first / last net p50: within the noise of this machine
 
 
@@ -310,10 +311,13 @@ def _mem_available_bytes() -> int:
     return 1 << 62
 
 
+def _physical_bytes() -> int:
+    return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+
+
 def memory_reserve_bytes() -> int:
     """Memory the build leaves to the machine's other users: a fifth of it, at least 4 GiB."""
-    total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
-    return max(4 << 30, total // 5)
+    return max(4 << 30, _physical_bytes() // 5)
 
 
 @dataclass(frozen=True)
@@ -368,7 +372,7 @@ def memory_bench(deck: Deck, nets: int, shapes_per_net: int, sample_nets: int, s
         last = net
         if i % every == every // 2:
             unasked.append((net.name, extension_candidates(deck, net, 1, seed="unasked")[0]))
-        if i % 1024 == 1023:
+        if i % MEMORY_CHECK_EVERY == MEMORY_CHECK_EVERY - 1:
             if time.perf_counter() - t0 > budget_s:
                 stopped_by = "time"
             elif _mem_available_bytes() < reserve:
@@ -595,12 +599,16 @@ def _memory_rows(settings: Settings, deck: Deck, log: Callable[[str], None]) -> 
     # A few thousand nets fit in memory the process has mapped already: RSS growth says
     # nothing there, so no verdict below this many nets.
     judged = m.nets >= MEMORY_VERDICT_MIN_NETS
+    projected = m.rss_bytes_per_shape * settings.memory_shapes * MEMORY_TARGET_NETS
     return [
         Row(f"memory per held shape, {m.nets:,} nets of {settings.memory_shapes} held", m.rss_bytes_per_shape, "B",
             None, f"<= {BYTES_PER_SHAPE_TARGET:g} B at {MEMORY_TARGET_NETS:,} nets",
             _met(m.rss_bytes_per_shape, BYTES_PER_SHAPE_TARGET) if judged else None,
             f"RSS growth / {m.shapes:,} shapes, {m.nets:,} of {m.wanted_nets:,} nets wanted{stop}"
-            + ("" if judged else f"; under {MEMORY_VERDICT_MIN_NETS:,} nets RSS growth is no verdict")),
+            + ("" if judged else f"; under {MEMORY_VERDICT_MIN_NETS:,} nets RSS growth is no verdict")
+            + ("" if m.nets >= MEMORY_TARGET_NETS else
+               f"; {MEMORY_TARGET_NETS:,} nets at this rate: {projected / 2**30:.0f} GiB, "
+               f"the machine has {_physical_bytes() / 2**30:.0f} GiB")),
         Row("  of which the core's own estimate", m.core_bytes_per_shape, "B", None,
             note="Net::memory_bytes summed over every held net"),
         Row("  of which Python objects", m.python_bytes_per_shape, "B", None,

@@ -148,6 +148,17 @@ def test_tiny_engine_bench_runs_and_agrees(deck):
     json.dumps(result)  # the JSON copy is plain data
 
 
+def test_memory_build_stops_at_the_machines_reserve(deck, monkeypatch):
+    """A --memory-nets of 1,000,000 must not take the shared machine's last memory: the
+    build stops when the available memory falls to the reserve, and says so."""
+    monkeypatch.setattr(engine_bench, "memory_reserve_bytes", lambda: 1 << 62)  # never enough
+    m = engine_bench.memory_bench(deck, nets=engine_bench.MEMORY_CHECK_EVERY + 10, shapes_per_net=4,
+                                  sample_nets=2, spot_reps=5, unasked_nets=3)
+    assert m.stopped_by == "memory"
+    assert m.nets == engine_bench.MEMORY_CHECK_EVERY
+    assert m.shapes == 4 * m.nets
+
+
 def test_quick_batch_bench_agrees_and_reports_every_figure(capsys):
     assert batch_bench.main(["--quick"]) == 0  # non-zero when columns and scalar disagree
     out = capsys.readouterr().out
