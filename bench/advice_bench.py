@@ -97,8 +97,8 @@ def main() -> int:
 
     p50, s50 = statistics.median(advise_times), statistics.median(score_times)
     b50, h50 = statistics.median(search_times), statistics.median(hop_times)
-    print(f"advice bench (load {os.getloadavg()[0]:.2f}): {NETS} nets of {SHAPES} shapes, {len(advise_times)} calls of each kind "
-          f"({', '.join(f'{k}: {v}' for k, v in outcomes.items())})")
+    print(f"advice bench (load {os.getloadavg()[0]:.2f}): {NETS} nets of {SHAPES} shapes, "
+          f"{len(advise_times)} calls of each kind ({', '.join(f'{k}: {v}' for k, v in outcomes.items())})")
     print(f"  advise p50 {p50 * 1e3:.3f} ms, p99 {p(advise_times, 0.99) * 1e3:.3f} ms "
           f"(target p50 <= {TARGET_P50_S * 1e6:.0f} us: {'met' if p50 <= TARGET_P50_S else 'NOT met'}); "
           f"advise / score = {p50 / s50:.1f}")

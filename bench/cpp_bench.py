@@ -18,8 +18,9 @@ extensions, which the server scores on its columnar path.
 
 Targets (issue 9): streamed score p50 <= 1.10 x the floor's p50 in the same run;
 one-rectangle batches >= 1,000,000 candidates per second from this C++ client. The
-other rows are reported without a target. Ratios are reported, nothing fails on them. The timed part is bounded to about 75 s; a first build of the C++ client adds
-about a minute and a half on 2 cores (later runs reuse it).
+other rows are reported without a target. Ratios are reported, nothing fails on them.
+The timed part is bounded to about 75 s; a first build of the C++ client adds about a
+minute and a half on 2 cores (later runs reuse it).
 
     python -m bench.cpp_bench [--quick] [--rounds N] [--calls N] [--batches N]
 
