@@ -1,29 +1,40 @@
-"""Columnar batch scores against the scalar path, on bench-like nets.
+"""Batch scores in process: columnar batches, the scalar path, and two threads.
 
-For nets of 10, 50 and 100 shapes (bench/netgen.py) and batches of 1,024 candidates
-such as a maze router's expansion front produces (``frontier_candidates``: runs from
-the net's wire ends in the four directions, mostly on the wire's layer, some on the
-layer above, some cuts at the ends), it measures in one run:
+For nets of 10, 50 and 100 shapes (bench/netgen.py), in one run:
 
-* candidates per second of ``Engine.score_columns`` (one call per batch) and of
-  ``Engine.score_many`` (the scalar path, one score per candidate), and their ratio;
-* that both give the same answers (a sanity count; the tests hold this properly);
-* a mixed row per net: half one-run extensions, half run + via stack candidates of 4
-  shapes (bench/netgen.py), through ``score_columns`` with ``shape_count`` against
-  ``score_many`` (one score call per candidate), and the scalar cost
-  of a 4-shape candidate relative to a 1-shape one.
+* one-rectangle batches of 1,024 candidates such as a maze router's expansion front
+  produces (``frontier_candidates``: runs from the net's wire ends in the four
+  directions, mostly on the wire's layer, some on the layer above, some cuts at the
+  ends): candidates per second of ``Engine.score_columns`` (one call per batch;
+  target >= 3,000,000/s) and of ``Engine.score_many`` (one score per candidate), and
+  that both give the same answers (a sanity count; the tests hold this properly);
+* mixed batches of 1,024 candidates of 1 to 4 shapes in equal parts
+  (``netgen.mixed_candidates``: a run, the run as two segments, a via, a via and a
+  run) through ``score_columns`` with ``shape_count`` (target >= 1,000,000/s),
+  against ``score_many``;
+* two threads on two different nets against one thread: the candidates per second of
+  both together over those of one alone (target >= 1.7x), for one-rectangle batches
+  (``score_columns``) and, for comparison, for single what-ifs (``score``, verdict
+  only). The core releases the GIL inside its calls; what is left of each call in
+  Python holds it.
 
-Times are the best of a few repeats (the machine is shared); only ratios measured
-in the same run are meaningful. ``python -m bench.batch_bench`` prints a table and
-writes bench/out/batch.json. Bounded to well under a minute.
+Throughputs are the median of a few repeats (the machine is shared; the load average
+is printed); only ratios measured in the same run are meaningful.
+``python -m bench.batch_bench [--quick]`` prints a table and writes bench/out/batch.json.
+Bounded to well under a minute.
 """
 
 from __future__ import annotations
 
+import argparse
 import json
+import os
 import random
+import statistics
 import sys
+import threading
 import time
+from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
@@ -32,16 +43,19 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from bench.netgen import (RUN_LENGTH, GeneratedNet, bench_deck, extension_candidates,  # noqa: E402
-                          generate_net, via_run_candidates)
+from bench.netgen import RUN_LENGTH, GeneratedNet, bench_deck, extension_candidates, generate_net, mixed_candidates  # noqa: E402
 from etchguard import Deck, Engine, Shape, run_shapes  # noqa: E402
 from etchguard._geometry import square  # noqa: E402
 
 SIZES = (10, 50, 100)
 BATCH = 1024
 NETS_PER_SIZE = 3
-REPEATS = 5  # column timing: best of these
-SCALAR_SAMPLE = 256  # scalar timing: this many candidates of the batch, best of 2
+REPEATS = 7  # throughput: median of these
+SCALAR_SAMPLE = 256  # scalar timing: this many candidates of the batch
+ONE_RECT_TARGET = 3_000_000
+MIXED_TARGET = 1_000_000
+THREADS_TARGET = 1.7
+THREAD_NET_SHAPES = 50
 
 
 def frontier_candidates(deck: Deck, net: GeneratedNet, count: int, seed: int | str = 0,
@@ -81,73 +95,179 @@ def _columns(cands: list[Shape]) -> tuple[np.ndarray, np.ndarray]:
             np.array([c.rect for c in cands], dtype=np.int64).reshape(-1, 4))
 
 
-def _best(fn, repeats: int) -> float:
+def _median_time(fn: Callable[[], object], repeats: int) -> float:
     times = []
     for _ in range(repeats):
         t0 = time.perf_counter()
         fn()
         times.append(time.perf_counter() - t0)
-    return min(times)
+    return statistics.median(times)
 
 
-def measure(size: int, seed: int) -> dict[str, float]:
-    deck = bench_deck()
+def measure(deck: Deck, size: int, seed: int, repeats: int) -> dict[str, float]:
+    """One net: one-rectangle and mixed batches, columnar and scalar."""
     net = generate_net(deck, size, seed=seed, name=f"b{size}_{seed}")
     engine = Engine(deck)
     engine.open_net(net.name, net.pins, None, net.shapes)
     cands = frontier_candidates(deck, net, BATCH, seed=seed)
     layers, rects = _columns(cands)
-    first = engine.score_columns(net.name, layers, rects)  # builds the per-state tables
-    t_first = _best(lambda: engine.score_columns(net.name, layers, rects), 1)
-    t_cols = _best(lambda: engine.score_columns(net.name, layers, rects), REPEATS)
+    first = engine.score_columns(net.name, layers, rects)  # the first question builds the assessment
+    t_cols = _median_time(lambda: engine.score_columns(net.name, layers, rects), repeats)
     sample = [[c] for c in cands[:SCALAR_SAMPLE]]
-    t_scalar = _best(lambda: engine.score_many(net.name, sample), 2) / len(sample)
+    t_scalar = _median_time(lambda: engine.score_many(net.name, sample), 3) / len(sample)
     scalar = engine.score_many(net.name, sample)
     agree = sum(1 for i, s in enumerate(scalar)
                 if s.worst_utilization == first.worst_utilization[i]
                 and s.worst_change_utilization == first.worst_change_utilization[i]
                 and s.legal == first.legal[i] and s.breaks_limit == first.breaks_limit[i])
-    mixed = extension_candidates(deck, net, BATCH // 2, seed=seed) + via_run_candidates(deck, net, BATCH // 2, seed=seed)
+    mixed = mixed_candidates(deck, net, BATCH, seed=seed)
     random.Random(seed).shuffle(mixed)
-    flat = [s for c in mixed for s in c]
-    m_layers, m_rects = _columns(flat)
+    m_layers, m_rects = _columns([s for c in mixed for s in c])
     m_counts = np.array([len(c) for c in mixed], dtype=np.int64)
     engine.score_columns(net.name, m_layers, m_rects, m_counts)  # warm
-    t_mixed = _best(lambda: engine.score_columns(net.name, m_layers, m_rects, m_counts), 2)
-    t_many = _best(lambda: engine.score_many(net.name, mixed), 1)
-    ones = [c for c in mixed if len(c) == 1][:SCALAR_SAMPLE // 2]
-    fours = [c for c in mixed if len(c) == 4][:SCALAR_SAMPLE // 2]
-    t_one = _best(lambda: engine.score_many(net.name, ones), 2) / max(len(ones), 1)
-    t_four = _best(lambda: engine.score_many(net.name, fours), 2) / max(len(fours), 1)
+    t_mixed = _median_time(lambda: engine.score_columns(net.name, m_layers, m_rects, m_counts), repeats)
+    t_many = _median_time(lambda: engine.score_many(net.name, mixed), 3)
     return {"size": size, "seed": seed,
             "columns_per_s": BATCH / t_cols, "scalar_per_s": 1.0 / t_scalar,
-            "speedup": (BATCH / t_cols) * t_scalar, "warm_call_ms": t_first * 1e3,
-            "agree": agree / len(sample),
-            "mixed_columns_per_s": BATCH / t_mixed,
-            "mixed_many_per_s": BATCH / t_many, "mixed_gain": t_many / t_mixed,
-            "scalar_four_vs_one": t_four / t_one}
+            "speedup": (BATCH / t_cols) * t_scalar, "agree": agree / len(sample),
+            "mixed_columns_per_s": BATCH / t_mixed, "mixed_many_per_s": BATCH / t_many,
+            "mixed_gain": t_many / t_mixed}
+
+
+# -- two threads on two nets ------------------------------------------------------------
+
+
+def _rate(jobs: list[Callable[[], int]]) -> tuple[float, float]:
+    """Candidates per second of ``jobs`` run at once, one thread each (all start
+    together), and the cores they used: their threads' CPU time over the wall time
+    (below the thread count when the machine's other work or a lock held them back)."""
+    start = threading.Barrier(len(jobs) + 1)
+    done = [0] * len(jobs)
+    cpu = [0.0] * len(jobs)
+
+    def worker(k: int) -> None:
+        start.wait()
+        c0 = time.thread_time()
+        done[k] = jobs[k]()
+        cpu[k] = time.thread_time() - c0
+
+    threads = [threading.Thread(target=worker, args=(k,)) for k in range(len(jobs))]
+    for t in threads:
+        t.start()
+    start.wait()
+    t0 = time.perf_counter()
+    for t in threads:
+        t.join()
+    wall = time.perf_counter() - t0
+    return sum(done) / wall, sum(cpu) / wall
+
+
+def _calls_for(fn: Callable[[], object], seconds: float) -> int:
+    t0 = time.perf_counter()
+    fn()
+    return max(3, int(seconds / max(time.perf_counter() - t0, 1e-7)))
+
+
+def threads_vs_one(deck: Deck, repeats: int, seconds: float) -> dict[str, float]:
+    """Two threads on two nets of one engine against one thread on one of them, in
+    alternating rounds: one-rectangle batches and single what-ifs (verdict only)."""
+    engine = Engine(deck)
+    nets = [generate_net(deck, THREAD_NET_SHAPES, seed=s, name=f"t{s}") for s in (1, 2)]
+    batches, singles = [], []
+    for net in nets:
+        engine.open_net(net.name, net.pins, None, net.shapes)
+        layers, rects = _columns(frontier_candidates(deck, net, BATCH, seed=1))
+        batches.append((net.name, layers, rects))
+        singles.append((net.name, extension_candidates(deck, net, 64, seed=1)))
+
+    def batch_job(name: str, layers: np.ndarray, rects: np.ndarray, calls: int) -> Callable[[], int]:
+        def job() -> int:
+            for _ in range(calls):
+                engine.score_columns(name, layers, rects)
+            return calls * BATCH
+        return job
+
+    def single_job(name: str, cands: list[list[Shape]], calls: int) -> Callable[[], int]:
+        def job() -> int:
+            score = engine.score
+            for i in range(calls):
+                score(name, cands[i % len(cands)], detail=False)
+            return calls
+        return job
+
+    batch_calls = _calls_for(lambda: engine.score_columns(*batches[0]), seconds)
+    single_calls = _calls_for(lambda: [engine.score(singles[0][0], c, detail=False) for c in singles[0][1]],
+                              seconds) * len(singles[0][1])
+    out: dict[str, float] = {}
+    for kind, make in (("batch", lambda k: batch_job(*batches[k], batch_calls)),
+                       ("single", lambda k: single_job(*singles[k], single_calls))):
+        rates: dict[int, list[tuple[float, float]]] = {1: [], 2: []}
+        for r in range(repeats):
+            for n in ((1, 2) if r % 2 == 0 else (2, 1)):
+                rates[n].append(_rate([make(k) for k in range(n)]))
+        for n, word in ((1, "one"), (2, "two")):
+            out[f"{kind}_{word}_per_s"] = statistics.median(rate for rate, _ in rates[n])
+            out[f"{kind}_{word}_cores"] = statistics.median(cores for _, cores in rates[n])
+        out[f"{kind}_ratio"] = out[f"{kind}_two_per_s"] / out[f"{kind}_one_per_s"]
+    return out
+
+
+# -- the run --------------------------------------------------------------------------
+
+
+def _load() -> float:
+    try:
+        return round(os.getloadavg()[0], 2)
+    except OSError:
+        return float("nan")
+
+
+def _verdict(value: float, target: float) -> str:
+    return "met" if value >= target else "NOT met"
 
 
 def main(argv: list[str] | None = None) -> int:
-    start = time.perf_counter()
-    rows = [measure(size, seed) for size in SIZES for seed in range(NETS_PER_SIZE)]
-    print("one-rectangle frontier batches: score_columns vs one score call per candidate")
+    parser = argparse.ArgumentParser(prog="python -m bench.batch_bench", description=__doc__.split("\n")[0])
+    parser.add_argument("--quick", action="store_true", help="one net per size, few repeats (smoke test)")
+    args = parser.parse_args([] if argv is None else argv)
+    per_size, repeats, seconds = (1, 3, 0.05) if args.quick else (NETS_PER_SIZE, REPEATS, 0.4)
+    start, load_start = time.perf_counter(), _load()
+    deck = bench_deck()
+    rows = [measure(deck, size, seed, repeats) for size in SIZES for seed in range(per_size)]
+    threads = threads_vs_one(deck, repeats, seconds)
+    print(f"batch bench (in process; load {load_start} at start, {_load()} at end; 2 shared cores)")
+    print(f"one-rectangle frontier batches of {BATCH}: score_columns vs one score call per candidate")
     print(f"{'shapes':>6} {'seed':>4} {'columns/s':>11} {'scalar/s':>9} {'ratio':>6} {'agree':>6}")
     for r in rows:
         print(f"{r['size']:>6} {r['seed']:>4} {r['columns_per_s']:>11,.0f} "
               f"{r['scalar_per_s']:>9,.0f} {r['speedup']:>6.1f} {r['agree']:>6.3f}")
-    print("mixed batches: 1-shape runs and 4-shape run + via stacks (shape_count) vs score_many")
-    print(f"{'shapes':>6} {'seed':>4} {'columns/s':>11} {'many/s':>9} {'gain':>5} "
-          f"{'4-shape/1-shape scalar':>23}")
+    print(f"mixed batches of {BATCH}: 1-4 shape candidates in equal parts (shape_count) vs score_many")
+    print(f"{'shapes':>6} {'seed':>4} {'columns/s':>11} {'many/s':>9} {'gain':>5}")
     for r in rows:
         print(f"{r['size']:>6} {r['seed']:>4} {r['mixed_columns_per_s']:>11,.0f} "
-              f"{r['mixed_many_per_s']:>9,.0f} {r['mixed_gain']:>5.2f} {r['scalar_four_vs_one']:>23.2f}")
+              f"{r['mixed_many_per_s']:>9,.0f} {r['mixed_gain']:>5.2f}")
+    one_rect = statistics.median(r["columns_per_s"] for r in rows)
+    mixed = statistics.median(r["mixed_columns_per_s"] for r in rows)
+    summary = {"one_rect_per_s": one_rect, "mixed_per_s": mixed, **threads}
+    print(f"one-rectangle batches, median over nets: {one_rect:,.0f} candidates/s "
+          f"(target >= {ONE_RECT_TARGET:,}/s: {_verdict(one_rect, ONE_RECT_TARGET)})")
+    print(f"mixed 1-4 shape batches, median over nets: {mixed:,.0f} candidates/s "
+          f"(target >= {MIXED_TARGET:,}/s: {_verdict(mixed, MIXED_TARGET)})")
+    print(f"two threads on two {THREAD_NET_SHAPES}-shape nets vs one thread: batches "
+          f"{threads['batch_two_per_s']:,.0f} vs {threads['batch_one_per_s']:,.0f} candidates/s = "
+          f"{threads['batch_ratio']:.2f}x (target >= {THREADS_TARGET}x: "
+          f"{_verdict(threads['batch_ratio'], THREADS_TARGET)}); cores used (thread CPU / wall) "
+          f"{threads['batch_two_cores']:.2f} vs {threads['batch_one_cores']:.2f}")
+    print(f"  single what-ifs (verdict only): {threads['single_two_per_s']:,.0f} vs "
+          f"{threads['single_one_per_s']:,.0f}/s = {threads['single_ratio']:.2f}x; cores used "
+          f"{threads['single_two_cores']:.2f} vs {threads['single_one_cores']:.2f}")
     out = REPO / "bench" / "out" / "batch.json"
     out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text(json.dumps({"batch": BATCH, "rows": rows}, indent=2) + "\n")
+    out.write_text(json.dumps({"batch": BATCH, "load_average_1m": load_start, "rows": rows,
+                               "summary": summary}, indent=2) + "\n")
     print(f"({time.perf_counter() - start:.1f} s; written to {out.relative_to(REPO)})")
-    return 0
+    return 0 if all(r["agree"] == 1.0 for r in rows) else 1
 
 
 if __name__ == "__main__":
-    raise SystemExit(main())
+    raise SystemExit(main(sys.argv[1:]))

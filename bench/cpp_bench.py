@@ -16,10 +16,11 @@ and batches of 1,024 candidates (ScoreBatch): "mixed" as in bench.grpc_bench (ru
 extensions of one shape and via + run of four), "1 rect" all one-rectangle run
 extensions, which the server scores on its columnar path.
 
-Targets (the issue): streamed and unary score p50 <= 1.15 x the floor's p50; batches
-of 1,024 >= 100,000 candidate scores per second. Ratios are reported, nothing fails on
-them. The timed part is bounded to about 75 s; a first build of the C++ client adds
-about a minute and a half on 2 cores (later runs reuse it).
+Targets (issue 9): streamed score p50 <= 1.10 x the floor's p50 in the same run;
+one-rectangle batches >= 1,000,000 candidates per second from this C++ client. The
+other rows are reported without a target. Ratios are reported, nothing fails on them.
+The timed part is bounded to about 75 s; a first build of the C++ client adds about a
+minute and a half on 2 cores (later runs reuse it).
 
     python -m bench.cpp_bench [--quick] [--rounds N] [--calls N] [--batches N]
 
@@ -45,6 +46,7 @@ import grpc
 
 from etchguard.client import Client, candidate_columns, pb
 
+from .native import cmake, cmake_build
 from .rounds import echo_ready, free_port, ours_ready, round_arguments, start_process, stop_process
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
 
@@ -56,8 +58,8 @@ OUT_DIR = Path(__file__).resolve().parent / "out"
 SERVICE = "/etchguard.v1.AntennaService"
 NET = "bench"
 BATCH_SIZE = 1024
-RATIO_TARGET = 1.15
-BATCH_TARGET_PER_S = 100_000
+RATIO_TARGET = 1.10
+BATCH_TARGET_PER_S = 1_000_000
 MEASURE_BUDGET_S = 75.0  # the C++ client's rounds stop early past this
 LABELS = {"stream_score": "stream score", "unary_score": "unary score",
           "batch_mixed": f"batch x{BATCH_SIZE}, mixed", "batch_rects": f"batch x{BATCH_SIZE}, 1 rect"}
@@ -81,23 +83,14 @@ class Row:
 # -- build -------------------------------------------------------------------------
 
 def missing_prerequisites() -> list[str]:
-    missing = [tool for tool in ("cmake", "protoc", "grpc_cpp_plugin") if shutil.which(tool) is None]
+    missing = [tool for tool in ("protoc", "grpc_cpp_plugin") if shutil.which(tool) is None]
+    if cmake() is None:
+        missing.append("cmake")
     if shutil.which("c++") is None and shutil.which("g++") is None:
         missing.append("a C++ compiler")
     if not any(Path(p, "grpcpp", "grpcpp.h").exists() for p in ("/usr/include", "/usr/local/include")):
         missing.append("gRPC C++ headers (libgrpc++-dev)")
     return missing
-
-
-def build() -> float:
-    """Configures and builds bench/cpp in build/cpp-bench; returns the seconds taken."""
-    t = time.monotonic()
-    for cmd in (["cmake", "-S", str(SOURCE), "-B", str(BUILD)],
-                ["cmake", "--build", str(BUILD), "-j", str(os.cpu_count() or 2)]):
-        done = subprocess.run(cmd, capture_output=True, text=True, timeout=900)
-        if done.returncode != 0:
-            raise RuntimeError(f"{' '.join(cmd)} failed:\n{done.stdout[-3000:]}\n{done.stderr[-3000:]}")
-    return time.monotonic() - t
 
 
 # -- requests --------------------------------------------------------------------------
@@ -176,12 +169,15 @@ def rows_of(results: dict, items: dict[str, int]) -> list[Row]:
         ours, floor = results[(case, "ours")], results[(case, "floor")]
         per = items.get(case, 1)
         ratio = ours["p50"] / floor["p50"]
+        target, met = "", None
         if case.startswith("batch"):
             per_s = per / (ours["mean"] / 1e6)
-            target, met = f">= {BATCH_TARGET_PER_S:,}/s", per_s >= BATCH_TARGET_PER_S
+            if case == "batch_rects":
+                target, met = f">= {BATCH_TARGET_PER_S:,}/s", per_s >= BATCH_TARGET_PER_S
         else:
             per_s = 1e6 / ours["mean"]
-            target, met = f"p50 <= {RATIO_TARGET}x", ratio <= RATIO_TARGET
+            if case == "stream_score":
+                target, met = f"p50 <= {RATIO_TARGET:.2f}x", ratio <= RATIO_TARGET
         rows.append(Row(label, int(ours["calls"]), ours["p50"], ours["p99"], floor["p50"], floor["p99"], ratio,
                         target, per_s, per / (floor["mean"] / 1e6), met))
     return rows
@@ -208,8 +204,8 @@ def main(argv: list[str] | None = None) -> int:
         print(f"cpp_bench: cannot build the C++ client: missing {', '.join(missing)}; "
               "run `bash .ci/install-cpp-deps.sh` as root", file=sys.stderr)
         return 1
-    build_s = build()
-    started = time.monotonic()
+    build_s = cmake_build(SOURCE, BUILD)
+    started, load_start = time.monotonic(), os.getloadavg()[0]
 
     deck = bench_deck()
     names = [layer.name for layer in deck.layers]
@@ -259,7 +255,8 @@ def main(argv: list[str] | None = None) -> int:
     elapsed = time.monotonic() - started
     print_table(rows, f"C++ client bench: {args.shapes}-shape net, {args.rounds} rounds x {args.calls} calls "
                       f"({args.batches} batches) per server, floor = bare Python echo server in the same run; "
-                      f"{elapsed:.0f} s (+ build {build_s:.0f} s)")
+                      f"{elapsed:.0f} s (+ build {build_s:.0f} s); load {load_start:.2f} at start, "
+                      f"{os.getloadavg()[0]:.2f} at end")
     args.json.parent.mkdir(parents=True, exist_ok=True)
     args.json.write_text(json.dumps({
         "machine": {"cpus": os.cpu_count(), "python": platform.python_version(), "grpc_python": grpc.__version__},

@@ -16,11 +16,12 @@ that explain a ratio, measured in this process in thread CPU time (no transport)
 adds to it (request parse, conversion, servicer, reply, metrics, serialization: the
 median of paired differences). ``server cpu`` is ours / the floor's process CPU per
 call (all threads, from /proc). Candidates mix run extensions (1 shape) and via +
-run (4 shapes); the batch rows are 1,024 run extensions (one rectangle each, the
-engine's columnar path) and 1,024 of the mix (candidate by candidate).
+run (4 shapes); the batch rows are 1,024 run extensions (one rectangle each) and
+1,024 of the mix, both on the engine's columnar path (``score_columns``).
 
-Targets (issue 3): streamed and unary score p50 <= 1.15 x floor p50; batches of 1,024
->= 100,000 candidate scores per second. Ratios are reported; nothing here fails on them.
+Target (issue 9): streamed score p50 <= 1.10 x floor p50, in the same run. The other
+rows have no target of their own here (the batch target of issue 9 is measured from
+the C++ client, bench/cpp_bench.py). Ratios are reported; nothing here fails on them.
 
     python -m bench.grpc_bench [--quick] [--rounds N] [--calls N] [--batches N] [--json PATH]
 
@@ -57,9 +58,8 @@ from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, 
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
 SERVICE = "/etchguard.v1.AntennaService"
-RATIO_TARGET = 1.15
+RATIO_TARGET = 1.10
 BATCH_SIZE = 1024
-BATCH_TARGET_PER_S = 100_000
 NET = "bench"
 TIME_BUDGET_S = 100.0
 
@@ -212,7 +212,7 @@ def _cpu_s(pid: int) -> float:
 def main(argv: list[str] | None = None) -> int:
     args = round_arguments("python -m bench.grpc_bench", __doc__, 5, OUT_DIR / "grpc_bench.json", argv)
     warmup = max(20, args.calls // 5)
-    started = time.monotonic()
+    started, load_start = time.monotonic(), os.getloadavg()[0]
 
     deck = bench_deck()
     net = generate_net(deck, args.shapes, seed=1, name=NET)
@@ -233,6 +233,9 @@ def main(argv: list[str] | None = None) -> int:
     mixed_req = pb.ScoreBatchRequest(net=NET, candidates=_columns(deck, mixed))
     run_steps = np.array([c[0].layer for c in runs], dtype=np.int64)
     run_rects = np.array([c[0].rect for c in runs], dtype=np.int64)
+    mixed_steps = np.array([s.layer for c in mixed for s in c], dtype=np.int64)
+    mixed_rects = np.array([s.rect for c in mixed for s in c], dtype=np.int64)
+    mixed_counts = np.array([len(c) for c in mixed], dtype=np.int64)
     cases = [
         Case("stream_score", "stream score", "stream", score_reqs, "score",
              lambda i: engine.score(NET, singles[i], True)),
@@ -245,7 +248,7 @@ def main(argv: list[str] | None = None) -> int:
         Case("batch", f"batch x{BATCH_SIZE}, 1 rect", "ScoreBatch", [runs_req], "",
              lambda i: engine.score_columns(NET, run_steps, run_rects), per_call=BATCH_SIZE),
         Case("batch_mixed", f"batch x{BATCH_SIZE}, 1-4 shapes", "ScoreBatch", [mixed_req], "",
-             lambda i: engine.score_many(NET, mixed, False), per_call=BATCH_SIZE),
+             lambda i: engine.score_columns(NET, mixed_steps, mixed_rects, mixed_counts), per_call=BATCH_SIZE),
     ]
 
     ours_cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
@@ -291,7 +294,7 @@ def main(argv: list[str] | None = None) -> int:
         for proc in (ours, echo):
             stop_process(proc)
 
-    _print(rows, args, time.monotonic() - started)
+    _print(rows, args, time.monotonic() - started, load_start)
     args.json.parent.mkdir(parents=True, exist_ok=True)
     args.json.write_text(json.dumps({
         "machine": {"cpus": os.cpu_count(), "python": platform.python_version(), "grpc": grpc.__version__},
@@ -310,20 +313,21 @@ def _row(case: Case, samples: dict[str, list[int]], in_process: tuple[float, flo
                   floor_cpu_us=cpu["floor"])
     if case.per_call > 1:
         per_s = case.per_call / (p50 / 1e6)
-        return Row(**common, target=f">= {BATCH_TARGET_PER_S:,}/s",
+        return Row(**common, target="",
                    throughput=f"{per_s:,.0f}/s (floor {case.per_call / (floor / 1e6):,.0f}/s, "
                               f"engine {case.per_call / (engine_p50 / 1e6):,.0f}/s)",
-                   met=per_s >= BATCH_TARGET_PER_S)
-    target = f"<= {RATIO_TARGET}x" if case.name in ("stream_score", "unary_score") else ""
+                   met=None)
+    target = f"<= {RATIO_TARGET:.2f}x" if case.name == "stream_score" else ""
     return Row(**common, target=target, throughput=f"{1e6 / p50:,.0f} calls/s",
                met=p50 / floor <= RATIO_TARGET if target else None)
 
 
-def _print(rows: list[Row], args, elapsed: float) -> None:
+def _print(rows: list[Row], args, elapsed: float, load_start: float) -> None:
     head = (f"{'method':<26} {'p50 us':>9} {'p99 us':>9} {'floor p50':>10} {'ratio':>6} {'target':>20} "
             f"{'engine us':>10} {'service us':>10} {'server cpu':>14}  throughput")
     print(f"gRPC bench: {args.shapes}-shape net, {args.rounds} rounds x {args.calls} calls per server "
-          f"({args.batches} batches), floor = bare echo in the same run; {elapsed:.0f} s")
+          f"({args.batches} batches), floor = bare echo in the same run; {elapsed:.0f} s; "
+          f"load {load_start:.2f} at start, {os.getloadavg()[0]:.2f} at end")
     print(head)
     print("-" * len(head))
     for r in rows:

@@ -260,5 +260,29 @@ def via_run_candidates(deck: Deck, net: GeneratedNet, count: int, seed: int | st
     return out
 
 
+def mixed_candidates(deck: Deck, net: GeneratedNet, count: int, seed: int | str = 0) -> list[list[Shape]]:
+    """Candidates of 1 to 4 shapes in equal parts, in turn: a run extension (1); the same
+    extension emitted as two overlapping segments, as routers often write one wire (2);
+    a via alone, up from a point on an M1 or M2 run (3: pad, cut, pad); a via and a run
+    above (4)."""
+    quarter = -(-count // 4)
+    ones = extension_candidates(deck, net, 2 * quarter, seed=seed)
+    stacks = via_run_candidates(deck, net, 2 * quarter, seed=seed)
+    twos = [_two_segments(c[0]) for c in ones[quarter:]]
+    threes = [c[:3] for c in stacks[quarter:]]
+    out = [c for group in zip(ones[:quarter], twos, threes, stacks[:quarter]) for c in group]
+    return out[:count]
+
+
+def _two_segments(shape: Shape) -> list[Shape]:
+    """One wire as two segments that overlap by the wire's width around its middle."""
+    xlo, ylo, xhi, yhi = shape.rect
+    if xhi - xlo >= yhi - ylo:
+        mid, w = (xlo + xhi) // 2, yhi - ylo
+        return [Shape(shape.layer, (xlo, ylo, mid + w, yhi)), Shape(shape.layer, (mid, ylo, xhi, yhi))]
+    mid, w = (ylo + yhi) // 2, xhi - xlo
+    return [Shape(shape.layer, (xlo, ylo, xhi, mid + w)), Shape(shape.layer, (xlo, mid, xhi, yhi))]
+
+
 def bench_deck() -> Deck:
     return load_deck(BENCH_DECK)

@@ -21,7 +21,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from bench import engine_bench  # noqa: E402
+from bench import batch_bench, engine_bench, inprocess_bench  # noqa: E402
 from bench.__main__ import discover  # noqa: E402
 from bench.netgen import (bench_deck, default_gate_count, extension_candidates, generate_net,  # noqa: E402
                           via_run_candidates)
@@ -29,8 +29,8 @@ from bench.recompute_reference import disagreements, recompute  # noqa: E402
 from etchguard import Engine  # noqa: E402
 
 TINY = replace(engine_bench.QUICK, score_sizes=(10, 50, 300), reps=60, big_reps=30, warmup=10,
-               commit_reps=40, speedup_size=20, recompute_reps=2, brute_reps=1, memory_nets=60,
-               memory_sample=20, sanity_checks=2)
+               commit_reps=40, big_commit_size=300, big_commit_reps=20, speedup_size=20, recompute_reps=2,
+               brute_reps=1, memory_nets=60, memory_sample=20, spot_reps=50, unasked_nets=20, sanity_checks=2)
 
 
 @pytest.fixture(scope="module")
@@ -116,20 +116,73 @@ def test_tiny_engine_bench_runs_and_agrees(deck):
     assert sanity["problems"] == []
     assert sanity["compared"] >= 10
     rows = {r["metric"]: r for r in result["rows"]}
-    for metric in ("score, 1 run, net of 10 shapes", "score, 1 run, net of 50 shapes",
-                   "commit, per shape, net of 50", "rip-up, per shape, net of 50",
-                   "speed-up of score over recompute, 20 shapes", "  of which cold net (spec only)"):
+    targeted = ["what-if, 1 run, verdict only, net of 10 shapes", "what-if, 1 run, verdict only, net of 50 shapes",
+                "what-if, 1 run, every changed ratio, net of 50 shapes",
+                "what-if, via stack + run (4 shapes), verdict only, net of 50",
+                "commit, per shape, net of 50", "rip-up, per shape, net of 50",
+                "first what-if after a commit, net of 50", "speed-up of the what-if over recompute, 20 shapes",
+                "  first / last net, p50"]
+    for metric in targeted:
         assert metric in rows, sorted(rows)
         assert rows[metric]["value"] > 0
-        assert rows[metric]["met"] in (True, False) or metric.startswith("  of which")
-    # a few thousand shapes may fit in memory the process already holds: RSS can stay flat
-    assert rows["memory per held shape, 60 nets held"]["value"] >= 0
+        assert rows[metric]["met"] in (True, False), metric
+    for metric in ("what-if, 1 run, verdict only, net of 300 shapes", "rip-up, per shape, net of 300",
+                   "what-if on the first net opened, 60 held", "what-if on the last net opened, 60 held",
+                   "first what-if on a held net not asked since opened"):
+        assert rows[metric]["value"] > 0, metric
+        assert rows[metric]["met"] is None, metric  # no target at these sizes
+    assert rows["first what-if on a held net not asked since opened"]["calls"] == TINY.unasked_nets
+    # The incremental what-if beats recomputing the whole net, whatever the machine does.
+    assert rows["speed-up of the what-if over recompute, 20 shapes"]["value"] > 1
+    # Sixty nets fit in memory the process holds already: RSS may stay flat, and the
+    # bench gives no verdict on it; the breakdown still sees what the nets hold.
+    memory = rows["memory per held shape, 60 nets of 20 held"]
+    assert memory["value"] >= 0 and memory["met"] is None
+    assert rows["  of which the core's own estimate"]["value"] > 0
+    assert rows["  of which Python objects"]["value"] > 0
     for r in result["rows"]:
         if r["p99"] is not None:
             assert r["p99"] >= r["value"]
     table = engine_bench.format_table(result)
-    assert "cores" in table and "score, 1 run, net of 50 shapes" in table
+    assert "cores" in table and "load" in table and "what-if, 1 run, verdict only, net of 50 shapes" in table
     json.dumps(result)  # the JSON copy is plain data
+
+
+def test_memory_build_stops_at_the_machines_reserve(deck, monkeypatch):
+    """A --memory-nets of 1,000,000 must not take the shared machine's last memory: the
+    build stops when the available memory falls to the reserve, and says so."""
+    monkeypatch.setattr(engine_bench, "memory_reserve_bytes", lambda: 1 << 62)  # never enough
+    m = engine_bench.memory_bench(deck, nets=engine_bench.MEMORY_CHECK_EVERY + 10, shapes_per_net=4,
+                                  sample_nets=2, spot_reps=5, unasked_nets=3)
+    assert m.stopped_by == "memory"
+    assert m.nets == engine_bench.MEMORY_CHECK_EVERY
+    assert m.shapes == 4 * m.nets
+
+
+def test_quick_batch_bench_agrees_and_reports_every_figure(capsys):
+    assert batch_bench.main(["--quick"]) == 0  # non-zero when columns and scalar disagree
+    out = capsys.readouterr().out
+    for line in ("one-rectangle batches, median over nets:", "mixed 1-4 shape batches, median over nets:",
+                 "two threads on two 50-shape nets vs one thread:"):
+        assert line in out
+    summary = json.loads((REPO / "bench" / "out" / "batch.json").read_text())["summary"]
+    for key in ("one_rect_per_s", "mixed_per_s", "batch_one_per_s", "batch_two_per_s", "single_ratio"):
+        assert summary[key] > 0, key
+    # Two threads cannot use more than the two threads' worth of cores.
+    assert 0 < summary["batch_two_cores"] <= 2.05 and 0 < summary["batch_one_cores"] <= 1.05
+
+
+def test_quick_inprocess_bench_builds_runs_and_agrees_with_the_engine(capsys):
+    """The C++ example on the bench nets: its verdicts equal the Python engine's (the
+    bench exits non-zero otherwise) and its timing line is read for every net."""
+    assert inprocess_bench.main(["--quick"]) == 0
+    assert "C++ what-if p50, median over nets:" in capsys.readouterr().out
+    rows = json.loads((REPO / "bench" / "out" / "inprocess.json").read_text())["rows"]
+    assert len(rows) == len(inprocess_bench.SIZES)
+    for r in rows:
+        assert r["agree"] == 1.0
+        assert 0 < r["cpp_p50_us"] <= r["cpp_p99_us"]
+        assert r["cpp_batch_us"] > 0 and r["python_p50_us"] > 0
 
 
 def test_bench_runner_finds_the_engine_bench_first():
