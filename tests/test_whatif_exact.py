@@ -13,6 +13,7 @@ one end, on random nets of random decks and on the bench's generated nets.
 
 from __future__ import annotations
 
+import dataclasses
 import random
 
 from hypothesis import given
@@ -30,6 +31,8 @@ def assert_exact(engine: eg.Engine, name: str, candidates: list[list[eg.Shape]])
     for shapes in candidates:
         lean = engine.score(name, shapes, detail=False)
         full = engine.score(name, shapes, detail=True)
+        # the face builds Score without its __init__: the same object as one built with it
+        assert lean == dataclasses.replace(lean) and full == dataclasses.replace(full)
         assert (lean.worst_utilization, lean.worst_change_utilization, lean.legal, lean.cost) == \
             (full.worst_utilization, full.worst_change_utilization, full.legal, full.cost), shapes
         ids = engine.commit(name, shapes)

@@ -35,6 +35,7 @@ class CompiledDeck:
     model: object  # _core.Model
     oxides: tuple[str, ...]
     oxide_index: dict[str, int]
+    layer_names: tuple[str, ...]
 
 
 def compile_deck(deck: Deck) -> CompiledDeck:
@@ -50,7 +51,7 @@ def compile_deck(deck: Deck) -> CompiledDeck:
               list(getattr(r, "diode_area_reduction", ())),
               r.diode_gate_factor, r.diode_area_credit) for r in deck.rules]
     model = _core.compile(deck.dbu_per_micron, deck.cumulative_includes_cuts, layers, list(oxides), rules)
-    return CompiledDeck(deck, model, tuple(oxides), index)
+    return CompiledDeck(deck, model, tuple(oxides), index, tuple(l.name for l in deck.layers))
 
 
 def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
@@ -104,10 +105,10 @@ class CoreNet:
 
     def _score(self, raw: tuple, extra_pins: Sequence[Pin]) -> Score:
         added, worst_change, worst, legal, breaks, cost, changes = raw
-        layers = self.deck.layers
-        return Score({layers[s].name: a for s, a in added},
-                     tuple(self._change(c, extra_pins) for c in changes),
-                     worst_change, worst, legal, breaks, cost)
+        names = self.compiled.layer_names
+        return _new_score({names[s]: a for s, a in added},
+                          tuple([self._change(c, extra_pins) for c in changes]) if changes else (),
+                          worst_change, worst, legal, breaks, cost)
 
     def _pin_name(self, p: int, extra_pins: Sequence[Pin] = ()) -> str:
         return self.pins[p].name if p < len(self.pins) else extra_pins[p - len(self.pins)].name
@@ -171,4 +172,18 @@ class CoreNet:
         return self.net.memory_bytes()
 
 
+def _new_score(added: dict[str, float], changes: tuple[RatioChange, ...], worst_change: float,
+               worst: float, legal: bool, breaks: bool, cost: float) -> Score:
+    """A Score without its generated __init__: a frozen dataclass sets each field through
+    object.__setattr__, which is a third of a what-if's Python cost; the fields are set
+    here at once, in the dataclass's own order, and the object is the same."""
+    score = _object_new(Score)
+    _set_attr(score, "__dict__", {"added_area_um2": added, "changes": changes,
+                                  "worst_change_utilization": worst_change, "worst_utilization": worst,
+                                  "legal": legal, "breaks_limit": breaks, "cost": cost})
+    return score
+
+
+_object_new = object.__new__
+_set_attr = object.__setattr__
 _DEFAULT_COSTS = (0.7, 3.0, 10.0, 1.0e6, 1.0e3)  # CostModel() as a tuple

@@ -71,7 +71,7 @@ class Engine:
     def __init__(self, deck: Deck | None = None, limits: Limits | None = None,
                  costs: CostModel | None = None, changelog: ChangeLog | None = None) -> None:
         self.limits = limits or Limits()
-        self.costs = costs or CostModel()
+        self.costs = costs or CostModel()  # settings read per call (see _cost_tuple)
         self.changelog = changelog  # records every change under the lock that ordered it
         self._deck_text: str | None = None  # the loaded deck's TOML, for snapshots
         self._registry = threading.Lock()  # lock order: registry -> net lock
@@ -96,13 +96,24 @@ class Engine:
         """The loaded deck's TOML source, when it was loaded from text."""
         return self._deck_text
 
+    # The costs and limits are plain attributes a caller may replace; what the router's
+    # inner loop reads of them is derived once per new value.
     @property
-    def _cost_tuple(self) -> tuple[float, float, float, float, float]:
-        return self.costs.as_tuple()
+    def costs(self) -> CostModel:
+        return self._costs
+
+    @costs.setter
+    def costs(self, value: CostModel) -> None:
+        self._costs, self._cost_tuple = value, value.as_tuple()
 
     @property
-    def _most_candidate_shapes(self) -> int:
-        return min(self.limits.max_candidates, self.limits.max_shapes_per_net)
+    def limits(self) -> Limits:
+        return self._limits
+
+    @limits.setter
+    def limits(self, value: Limits) -> None:
+        self._limits = value
+        self._most_candidate_shapes = min(value.max_candidates, value.max_shapes_per_net)
 
     def load_deck(self, deck: Deck, text: str | None = None) -> None:
         """Load or replace the deck. Held nets are carried over by layer name; if one
