@@ -147,7 +147,9 @@ def test_kill_9_one_shard_the_others_answer_and_it_returns_with_every_acknowledg
             r.join(60)
             assert not r.is_alive()
             assert r.failure is None, repr(r.failure)
-        during = [k for r in routers for t, k in r.acked_at if killed_at < t < back_at]
+        # a reply the victim sent just before the kill may be read a moment after it
+        in_flight = 0.2
+        during = [k for r in routers for t, k in r.acked_at if killed_at + in_flight < t < back_at]
         assert during and VICTIM not in during, "the other shards did not answer during the outage"
         after = [k for r in routers for t, k in r.acked_at if t > back_at]
         assert VICTIM in after, "no router resumed on the restarted shard"

@@ -37,6 +37,11 @@ class CoreView:
             raise InputError("a what-if needs a shape or a pin", "shapes")
         return self.core.score(shapes, detail, extra_pins, self.costs)
 
+    def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
+        if not shapes and not extra_pins:
+            raise InputError("a what-if needs a shape or a pin", "shapes")
+        return self.core.excess(shapes, extra_pins, self.costs)
+
     def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
         return self.core.touching(layer, rect)
 

@@ -64,6 +64,13 @@ class NetView(Protocol):
         """
         ...
 
+    def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
+        """The most by which a changed ratio of ``score(shapes, True, extra_pins)``
+        exceeds its limit (ratio - limit; -inf when nothing changes), with that score's
+        verdict and figures but without its list of changes (the diode search asks this
+        of every trial diode and needs no more)."""
+        ...
+
     def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
         """Elements that connect to ``rect`` on ``layer`` by the contract's contact rules
         (same layer: a shared area or edge segment; a cut and a routing layer next to
