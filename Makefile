@@ -9,7 +9,26 @@ NETS   ?= service/etchguard/data/lumen-demo-nets.json
 # machine had none).
 CMAKE  ?= $(shell command -v cmake || echo $(BIN)/cmake)
 
-.PHONY: venv proto serve test check bench clean core-test
+# Server threads for `make serve`: the core does the work on the machine's cores (it
+# releases the GIL), and an open session stream holds a thread while it waits for its
+# router, so a few per core, at least 8 (two routers' worth on a small machine).
+WORKERS ?= $(shell n=$$(nproc 2>/dev/null || echo 2); echo $$(( n * 4 > 8 ? n * 4 : 8 )))
+
+.PHONY: help venv proto serve test check bench clean core-test
+.DEFAULT_GOAL := help
+
+help:  # what each target does (a bare `make` prints this)
+	@echo "make serve        set up .venv and serve the demo deck on 127.0.0.1:50051 ($(WORKERS) workers; WORKERS=N, DECK=FILE)"
+	@echo "make test         set up .venv and run every test"
+	@echo "make check        the offline check of the demo block (NETS=FILE, DECK=FILE)"
+	@echo "make demo         route an invented block antenna-blind, then antenna-aware, and compare"
+	@echo "make bench        benchmark tables (ratios measured in one run)"
+	@echo "make core-test    the C++ core's own tests under AddressSanitizer and UBSan"
+	@echo "make cpp-example  build and run the C++ client example"
+	@echo "make proto        regenerate the gRPC stubs from proto/"
+	@echo "make venv         only set up .venv (builds the core)"
+	@echo "make clean        remove .venv and build trees"
+	@echo "exit status of etchguard: 0 legal/done, 1 violations found, 2 bad input, 3 internal fault"
 
 # The compiled core (etchguard._core, built by scikit-build-core from CMakeLists.txt and
 # core/) is rebuilt when any of these change, so `make test` after a C++ edit runs the
@@ -42,7 +61,7 @@ proto: venv
 	$(BIN)/python -m etchguard._protogen
 
 serve: venv
-	$(BIN)/etchguard serve --rules $(DECK)
+	$(BIN)/etchguard serve --rules $(DECK) --workers $(WORKERS)
 
 check: venv  # exit 1 (violations found) is an answer, not a failure of make
 	$(BIN)/etchguard check --rules $(DECK) $(NETS); test $$? -le 1

@@ -101,7 +101,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 from ._errors import InputError
-from ._geometry import COORD_LIMIT, Rect, run_rect
+from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
 from ._netview import NetView
 from ._nets import Pin, Shape, via_shapes
 from ._obstacles import Conflict, ObstacleIndex
@@ -229,8 +229,8 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
     for name, v in (("x1", x1), ("y1", y1), ("x2", x2), ("y2", y2)):
         if isinstance(v, bool) or not isinstance(v, int):
             raise InputError(f"coordinates are integer DBU, got {v!r}", name)
-        if not -COORD_LIMIT // 2 < v < COORD_LIMIT // 2:
-            raise InputError(f"coordinate {v} is outside +-2^61 DBU", name)
+        if not -COORD_LIMIT < v < COORD_LIMIT:
+            raise InputError(f"coordinate {v} is not strictly inside +-2^62 DBU", name)
         coords.append(v)
     if coords[0] != coords[2] and coords[1] != coords[3]:
         raise InputError("a run's centre line must be horizontal or vertical", "run")
@@ -240,6 +240,7 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
         width = info.wire_width
     if isinstance(width, bool) or not isinstance(width, int) or width <= 0:
         raise InputError(f"width must be a positive integer DBU, got {width!r}", "width")
+    _check_room(deck, coords, width)
     if not isinstance(allow_non_preferred, bool):
         raise InputError("must be true or false", "allow_non_preferred")
     if want is None:
@@ -253,6 +254,19 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
         wanted = frozenset(want)
     return AdviceRequest(layer, coords[0], coords[1], coords[2], coords[3], width, allow_non_preferred,
                          wanted)
+
+
+def _check_room(deck, coords: list[int], width: int) -> None:
+    """Every rectangle is held to one limit, strictly inside +-2^62 DBU: the run's own
+    rectangle and every one advice may propose for it (the run moved to another layer at
+    that layer's width, via pads at its ends), which reach at most ``margin`` DBU past the
+    run's centre line."""
+    checked_rect(run_rect(*coords, width), "run")
+    margin = max([width] + [l.wire_width or 0 for l in deck.layers]
+                 + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
+    if any(not -COORD_LIMIT + margin < v < COORD_LIMIT - margin for v in coords):
+        raise InputError(f"the run comes within {margin} DBU of +-2^62 DBU, the limit of every "
+                         "rectangle, and the shapes advice proposes for it would pass it", "run")
 
 
 # -- geometry helpers -------------------------------------------------------------------

@@ -12,7 +12,7 @@ from ._engine import Engine
 from ._errors import InputError
 from ._lefdef import open_design, print_notes
 from ._lefdef_tokens import Notes
-from ._nets import NetSpec, load_net_file
+from ._nets import NetSpec, iter_net_file
 from ._reports import NetReport
 from ._rules import Deck, load_deck
 
@@ -46,8 +46,7 @@ def specs_from_args(args: argparse.Namespace) -> tuple[Deck, Iterable[NetSpec], 
     if not args.nets or not args.rules:
         raise InputError("give a net file and --rules DECK, or --lef TECH [--lef CELLS] --def DESIGN", "nets")
     deck = load_deck(args.rules)
-    specs = load_net_file(deck, args.nets)
-    return deck, specs, len(specs), None
+    return deck, iter_net_file(deck, args.nets), None, None
 
 
 def _with_progress(items: Iterable[NetSpec], total: int | None, label: str) -> Iterable[NetSpec]:
@@ -100,7 +99,7 @@ def run(args: argparse.Namespace) -> int:
     if notes is not None:
         print_notes(notes, sys.stderr)
     if args.json:
-        json.dump([r.as_dict() for r in reports], sys.stdout, indent=1)
+        json.dump([r.as_dict() for r in reports], sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
     else:
         print(format_table(reports, args.all))

@@ -19,6 +19,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 
 from ._errors import InputError
+from ._names import shown
 
 Rect = tuple[int, int, int, int]
 
@@ -29,6 +30,8 @@ COORD_LIMIT = 1 << 62
 
 def checked_rect(values: Sequence[object], field: str) -> Rect:
     """Validate four coordinates and return them as a rectangle, or raise InputError."""
+    if not isinstance(values, (list, tuple)):
+        raise InputError(f"a rectangle is a list of 4 integer DBU coordinates, got {shown(values)}", field)
     if len(values) != 4:
         raise InputError(f"a rectangle needs 4 coordinates, got {len(values)}", field)
     out = []
@@ -37,9 +40,9 @@ def checked_rect(values: Sequence[object], field: str) -> Rect:
             if isinstance(value, float) and value.is_integer():
                 value = int(value)
             else:
-                raise InputError(f"coordinates are integer DBU, got {value!r}", field)
+                raise InputError(f"coordinates are integer DBU, got {shown(value)}", field)
         if not -COORD_LIMIT < value < COORD_LIMIT:
-            raise InputError(f"coordinate {value} is outside +-2^62 DBU", field)
+            raise InputError(f"coordinate {shown(value)} is not strictly inside +-2^62 DBU", field)
         out.append(value)
     xlo, ylo, xhi, yhi = out
     if xlo >= xhi or ylo >= yhi:
