@@ -189,7 +189,12 @@ def checked(deck: eg.Deck, specs: list[eg.NetSpec]) -> list[dict[str, Any]]:
     out = []
     for spec in specs:
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
-        out.append(engine.check(spec.name).as_dict())
+        report = engine.check(spec.name).as_dict()
+        # A tie names the first gate pin, and a DEF lists a net's pins in its own order:
+        # the figures must agree, the tie's pin name need not.
+        for check in report["checks"]:  # type: ignore[attr-defined]
+            del check["gate"]
+        out.append(report)
         engine.close_net(spec.name)
     return out
 
