@@ -102,8 +102,8 @@ from dataclasses import dataclass, field
 
 from ._errors import InputError
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
-from ._netview import NetView
 from ._nets import Pin, Shape, via_shapes
+from ._netview import NetView
 from ._obstacles import Conflict, ObstacleIndex
 from ._ratios import TOLERANCE, is_legal
 from ._reports import RatioChange, Score
@@ -261,7 +261,8 @@ def _check_room(deck, coords: list[int], width: int) -> None:
     rectangle and every one advice may propose for it (the run moved to another layer at
     that layer's width, via pads at its ends), which reach at most ``margin`` DBU past the
     run's centre line."""
-    checked_rect(run_rect(*coords, width), "run")
+    x1, y1, x2, y2 = coords
+    checked_rect(run_rect(x1, y1, x2, y2, width), "run")
     margin = max([width] + [l.wire_width or 0 for l in deck.layers]
                  + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
     if any(not -COORD_LIMIT + margin < v < COORD_LIMIT - margin for v in coords):
@@ -439,7 +440,7 @@ class _Advisor:
         """Kept lengths at which a moving jumper edge meets a coordinate of an element of
         the net it could contact (same layer, or a cut and a metal next to each other,
         overlapping across the run), +-1 for the strict and the closed contact tests."""
-        ax, cross = run.axis, 1 - run.axis
+        ax = run.axis
         at0 = self.jumper_shapes(run, 0, target)
         at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
         end = self.jumper_shapes(run, room, target)

@@ -67,8 +67,8 @@ def advice_as_dict(advice: Advice) -> dict[str, Any]:
     """The advice as JSON with the field names of the API's ``AdviseReply``: ``best_option``
     is the index of the best option in ``options`` (the record itself is listed there)."""
     out: dict[str, Any] = _plain(advice, renames={})
-    best = out.pop("best")
-    out["best_option"] = None if best is None else advice.options.index(advice.best)  # type: ignore[arg-type]
+    out.pop("best")
+    out["best_option"] = None if advice.best is None else advice.options.index(advice.best)
     out["found"] = advice.found
     return out
 
@@ -110,7 +110,8 @@ def run(args: argparse.Namespace) -> int:
     for spec in specs:
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
     try:
-        advice = engine.advise(args.net, layer, *coords, width=args.width,
+        x1, y1, x2, y2 = coords
+        advice = engine.advise(args.net, layer, x1, y1, x2, y2, width=args.width,
                                allow_non_preferred=args.non_preferred, want=args.only)
     except InputError as exc:  # the engine names the API's fields; this command's are options
         raise InputError(exc.message, _OPTION_FIELDS.get(exc.field or "", exc.field)) from None

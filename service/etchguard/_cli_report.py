@@ -15,9 +15,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
-
 from collections.abc import Callable, Iterable
+from pathlib import Path
 from typing import Any
 
 from ._cli_check import add_lefdef_arguments, specs_from_args
@@ -111,7 +110,7 @@ def run(args: argparse.Namespace) -> int:
     if args.top < 0 or args.max_drawings < 0:
         raise InputError("must be >= 0", "--top" if args.top < 0 else "--max-drawings")
 
-    def bar(items, total, label):  # type: ignore[no-untyped-def]
+    def bar(items: Iterable[Any], total: int | None, label: str) -> Iterable[Any]:
         if args.progress == "never":
             return items
         return progress(items, total, label, force=args.progress == "always")

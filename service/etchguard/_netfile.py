@@ -149,10 +149,7 @@ def _locate(text: str, pos: int, path: str) -> int:
     try:
         for key, index in _PATH_STEP.findall(path):
             pos = _skip(text, pos)
-            if key:
-                pos = _member(text, pos, key)
-            else:
-                pos = _element(text, pos, int(index))
+            pos = _member(text, pos, key) if key else _element(text, pos, int(index))
     except (LookupError, ValueError):
         pass  # the path leaves the text here: the last position found stands
     return pos

@@ -13,9 +13,9 @@ from pathlib import Path
 from typing import Any
 
 from ._errors import InputError
+from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect, square
 from ._names import check_name, shown
 from ._netfile import NetFileReader
-from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect, square
 from ._rules import DEFAULT_OXIDE, Deck
 
 
@@ -67,11 +67,11 @@ def _area(value: object, field_name: str) -> float:
     return value
 
 
-def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]],
+def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
              cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
-    check_name(name, "a pin", f"{field_name}.name")
+    pin_name = check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
     if not rects:
         raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
@@ -94,7 +94,7 @@ def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]
     for layer_name, value in (cell_area or {}).items():
         cell_step = resolve_layer(deck, layer_name, f"{field_name}.cell_area")
         cells[cell_step] = _area(value, f"{field_name}.cell_area.{layer_name}")
-    return Pin(name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
 
 
 def _check_oxides(deck: Deck, gates: Mapping[str, float], field_name: str) -> None:
@@ -237,9 +237,9 @@ def via_shapes(deck: Deck, cut_layer: int, x: int, y: int) -> list[Shape]:
 
 def _fast_rect_ok(r: object) -> bool:
     return (type(r) is tuple and len(r) == 4 and all(type(v) is int for v in r)
-            and r[0] < r[2] and r[1] < r[3]  # type: ignore[index]
-            and -COORD_LIMIT < r[0] and r[2] < COORD_LIMIT  # type: ignore[index]
-            and -COORD_LIMIT < r[1] and r[3] < COORD_LIMIT)  # type: ignore[index]
+            and r[0] < r[2] and r[1] < r[3]
+            and r[0] > -COORD_LIMIT and r[2] < COORD_LIMIT
+            and r[1] > -COORD_LIMIT and r[3] < COORD_LIMIT)
 
 
 def check_shape_object(steps: int, shape: object, field_name: str) -> None:

@@ -152,7 +152,7 @@ def summarize(records: Sequence[NetRecord], deck_name: str) -> Summary:
         checks=sum(len(r.checks) for r in reports),
         violating_checks=sum(not c.legal for r in reports for c in r.checks),
         worst_utilization=worst.worst_utilization if worst is not None else 0.0,
-        worst_net=worst.name if has_checks else "",
+        worst_net=worst.name if has_checks and worst is not None else "",
     )
 
 
@@ -418,8 +418,7 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
             ax.set_ylim(*ylim)
             ax.set_aspect("equal", adjustable="box")
             ax.tick_params(labelsize=6)
-            ax.xaxis.get_major_locator().set_params(nbins=4)
-            ax.yaxis.get_major_locator().set_params(nbins=4)
+            ax.locator_params(axis="both", nbins=4)
             if k // cols == rows - 1 or k + cols >= len(panels):
                 ax.set_xlabel("x (µm)", fontsize=6)
             if k % cols == 0:

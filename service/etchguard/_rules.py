@@ -22,8 +22,8 @@ from pathlib import Path
 from typing import Any, NoReturn
 
 from ._errors import DeckError
-from ._textfile import read_text
 from ._names import MAX_NAME_BYTES, byte_length, shown
+from ._textfile import read_text
 
 ROUTING = "routing"
 CUT = "cut"
@@ -218,7 +218,7 @@ class _Reader:
         if key not in self.table:
             if default is None:
                 self.fail(key, "is required")
-            return default  # type: ignore[return-value]
+            return default
         value = self.table[key]
         if not isinstance(value, str) or not value:
             self.fail(key, f"must be a non-empty string, got {shown(value)}")
@@ -266,7 +266,7 @@ class _Reader:
         raw = self.table[key]
         if not isinstance(raw, list) or not raw:
             self.fail(key, f"must be a non-empty list of [diffusion um^2, {value_name}] points")
-        points = []
+        points: list[tuple[float, float]] = []
         for i, point in enumerate(raw):
             if (not isinstance(point, list) or len(point) != 2
                     or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)

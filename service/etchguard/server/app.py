@@ -27,15 +27,14 @@ import grpc
 from grpc_health.v1 import health, health_pb2, health_pb2_grpc
 from grpc_reflection.v1alpha import reflection
 
-from .. import CostModel, Engine, EtchguardError, Limits, __version__, load_deck
+# durability and access (issue 5): the journal, TLS, the token, malformed requests
+from .. import CostModel, DeckError, Engine, EtchguardError, Limits, __version__, load_deck, loads_deck
+from .._journal import Journal, SyncPolicy
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
+from . import security
 from .metrics import Metrics, NullMetrics
 from .servicer import AntennaServicer
-# durability and access (issue 5): the journal, TLS, the token, malformed requests
-from .. import DeckError, loads_deck
-from .._journal import Journal, SyncPolicy
-from . import security
 from .streams import StreamGate
 
 log = logging.getLogger("etchguard.server")
@@ -128,6 +127,7 @@ def _engine(config: ServerConfig) -> Engine:
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
     """An engine rebuilt from the state folder with the journal attached, then
     ``--rules`` applied (``_deck_at_start``)."""
+    assert config.state_dir is not None  # the caller journals only with --state-dir
     if config.sync not in {p.value for p in SyncPolicy}:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
@@ -157,6 +157,7 @@ def _deck_at_start(config: ServerConfig, engine: Engine, held_text: str | None) 
     carried over by layer name). The deck is part of the state: when it differs in
     substance from the recovered one and nets are held, every net would be judged anew
     (other limits, another DBU scale...), so that takes ``--rejudge-held-nets``."""
+    assert config.rules is not None  # applied only when --rules is given
     try:
         text = Path(config.rules).read_text(encoding="utf-8")
     except OSError as exc:

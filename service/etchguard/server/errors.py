@@ -19,8 +19,7 @@ from google.protobuf import any_pb2
 from google.rpc import error_details_pb2, status_pb2
 from grpc_status import rpc_status
 
-from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
-                NoDeckError, NotFoundError)
+from .. import AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from .._changelog import ChangeLogError
 
 DOMAIN = "etchguard.v1"
