@@ -50,10 +50,6 @@ def checked_rect(values: Sequence[object], field: str) -> Rect:
     return (xlo, ylo, xhi, yhi)
 
 
-def rect_area(r: Rect) -> int:
-    return (r[2] - r[0]) * (r[3] - r[1])
-
-
 def edge_touch(a: Rect, b: Rect) -> bool:
     """Same-layer contact: positive-area overlap or a shared edge of positive length."""
     ix = min(a[2], b[2]) - max(a[0], b[0])
@@ -64,15 +60,6 @@ def edge_touch(a: Rect, b: Rect) -> bool:
 def overlap(a: Rect, b: Rect) -> bool:
     """Positive-area overlap (a cut landing on metal)."""
     return min(a[2], b[2]) > max(a[0], b[0]) and min(a[3], b[3]) > max(a[1], b[1])
-
-
-def intersection(a: Rect, b: Rect) -> Rect | None:
-    """The positive-area intersection of two rectangles, or None."""
-    xlo, ylo = max(a[0], b[0]), max(a[1], b[1])
-    xhi, yhi = min(a[2], b[2]), min(a[3], b[3])
-    if xlo < xhi and ylo < yhi:
-        return (xlo, ylo, xhi, yhi)
-    return None
 
 
 def _merged(intervals: list[tuple[int, int]]) -> list[tuple[int, int]]:
@@ -140,10 +127,6 @@ def union_measures(rects: Iterable[Rect]) -> tuple[int, int]:
         previous = current
     perimeter += sum(hi - lo for lo, hi in previous)
     return area, perimeter
-
-
-def union_area(rects: Iterable[Rect]) -> int:
-    return union_measures(rects)[0]
 
 
 def run_rect(x1: int, y1: int, x2: int, y2: int, width: int, extension: int | None = None) -> Rect:

@@ -102,19 +102,6 @@ class Rule:
     def has_cumulative(self) -> bool:
         return self.cumulative_max is not None or bool(self.diode_cumulative_max)
 
-    def _limit(self, plain: float | None, table: Table, diff_um2: float) -> float:
-        if diff_um2 > 0 and table:
-            return table_value(table, diff_um2)
-        if plain is not None:
-            return plain
-        return table_value(table, diff_um2)
-
-    def partial_limit(self, diff_um2: float) -> float:
-        return self._limit(self.partial_max, self.diode_partial_max, diff_um2)
-
-    def cumulative_limit(self, diff_um2: float) -> float:
-        return self._limit(self.cumulative_max, self.diode_cumulative_max, diff_um2)
-
     def area_reduction(self, diff_um2: float) -> float:
         """r(D): the reduction table at D (read at every D, 0 included), 1 without one."""
         if not self.diode_area_reduction:
@@ -155,16 +142,6 @@ class Deck:
     def oxides(self) -> tuple[str, ...]:
         return tuple(sorted({r.oxide for r in self.rules}))
 
-    @property
-    def measures(self) -> tuple[str, ...]:
-        return tuple(m for m in MEASURES if any(r.measure == m for r in self.rules))
-
-    def same_kind(self, a: int, b: int) -> bool:
-        """Whether steps a and b add into one cumulative ratio under the old lane reading
-        (routing with routing, cut with cut, all together with cumulative_includes_cuts).
-        Kept for code that still sums by lane; the contract's chain is ``feeding_step``."""
-        return self.cumulative_includes_cuts or self.layers[a].kind == self.layers[b].kind
-
     def plus_cut(self, step: int) -> bool:
         """Whether the step directly below feeds ``step``'s area sum, whatever its kind."""
         return self.cumulative_includes_cuts or self.layers[step].cumulative_plus_cut
@@ -190,9 +167,6 @@ class Deck:
 
     def layer(self, name: str) -> Layer:
         return self.layers[self.layer_index[name]]
-
-    def dbu2_to_um2(self, value: float) -> float:
-        return value / (self.dbu_per_micron * self.dbu_per_micron)
 
 
 class _Reader:
