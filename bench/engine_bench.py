@@ -39,7 +39,7 @@ from .recompute_reference import added_area_um2, disagreements, recompute
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
 
-# Targets of issue 2 (speed part), on this 2-core machine with the 9-step deck.
+# The speed targets, on this 2-core machine with the 9-step deck.
 SCORE_TARGET_US = {10: 10.0, 50: 10.0, 10_000: 30.0}
 COMMIT_TARGET_US = 20.0
 SPEEDUP_TARGET = 1000.0

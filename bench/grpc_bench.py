@@ -19,7 +19,7 @@ call (all threads, from /proc). Candidates mix run extensions (1 shape) and via 
 run (4 shapes); the batch rows are 1,024 run extensions (one rectangle each, the
 engine's columnar path) and 1,024 of the mix (candidate by candidate).
 
-Targets (issue 3): streamed and unary score p50 <= 1.15 x floor p50; batches of 1,024
+Targets: streamed and unary score p50 <= 1.15 x floor p50; batches of 1,024
 >= 100,000 candidate scores per second. Ratios are reported; nothing here fails on them.
 
     python -m bench.grpc_bench [--quick] [--rounds N] [--calls N] [--batches N] [--json PATH]

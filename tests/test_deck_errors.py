@@ -1,6 +1,6 @@
 """Every rule-deck refusal the loader promises names the file, the entry and the field.
 
-The deck format and its constraints are the contract's (antenna-model.md, "Rule deck
+The deck format and its constraints are the contract's (the antenna model, "Rule deck
 file (TOML)" and "Process steps": layers bottom-up in process order, routing and cut
 layers interleaved, a cut between the two routing layers it joins).
 """

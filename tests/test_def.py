@@ -6,7 +6,7 @@ Sources:
   clockwise, FN mirrored about the y axis, FW/FS/FE = FN then the rotation of W/S/E; a
   placed component's bounding box has its lower-left corner on the placement point.
   The test builds these with shapely.affinity (rotate, scale) and compares;
-* wiring: the contract's last paragraph (antenna-model.md): width from WIDTH or the
+* wiring: the contract's last paragraph (the antenna model): width from WIDTH or the
   non-default rule, half the width past each end unless an extension is given, RECT
   relative to the last point, a via switching the layer;
 * figures: every pin and rectangle of the demo block (tests/data/lumen-block.def, with

@@ -52,7 +52,7 @@ def test_regenerated_files_match(tmp_path):
     written = protogen.generate(tmp_path)
     names = sorted(p.name for p in written)
     assert names == ["etchguard_pb2.py", "etchguard_pb2.pyi", "etchguard_pb2_grpc.py",
-                     "journal_pb2.py", "journal_pb2.pyi", "journal_pb2_grpc.py"]  # journal: issue 5
+                     "journal_pb2.py", "journal_pb2.pyi", "journal_pb2_grpc.py"]  # the journal's records
     for name in names:
         fresh = (tmp_path / name).read_text(encoding="utf-8")
         committed = (COMMITTED / name).read_text(encoding="utf-8")

@@ -3,7 +3,7 @@ net written as cell LEF + DEF checks to the same figures, on random decks and ne
 
 The random decks and nets are those of test_reference_agreement.py (the strategies that
 hold the engine to the independent reference). The writers below put each value in the
-LEF/DEF statement the contract's mapping table names for it (antenna-model.md, "The
+LEF/DEF statement the contract's mapping table names for it (the antenna model, "The
 same model from the open LEF/DEF standard"); reading must then give the deck and the
 check figures back to the bit. Oxide classes: LEF names OXIDE1..4, so "thin" stays the
 default class and the others come back as "oxide2", "oxide3" (renamed on the TOML side

@@ -1,7 +1,7 @@
 """Bad nets and bad shapes are refused with the right exception, naming the field,
 and leave the engine exactly as it was (check reports and held-state stats).
 
-The input rules are the contract's (antenna-model.md): integer DBU coordinates,
+The input rules are the contract's (the antenna model): integer DBU coordinates,
 closed rectangles with xlo < xhi and ylo < yhi, layers of the deck, areas in um^2
 (non-negative, finite), pins named uniquely within a net.
 """

@@ -1,6 +1,6 @@
 """Repair advice for a candidate run that would break a limit: hop, jumper, diode.
 
-Definitions (the project's reading of the contract, antenna-model.md, "Where can it go
+Definitions (the project's reading of the contract, the antenna model, "Where can it go
 instead?"). A request is a straight run R on routing layer L: centre line P..F, width w,
 rectangle ``run_rect(P, F, w)`` (extended w//2 past each end). Everything is integer DBU.
 The net is read only through its ``NetView`` (``_netview``): exact what-if scores,

@@ -27,7 +27,7 @@ import grpc
 from grpc_health.v1 import health, health_pb2, health_pb2_grpc
 from grpc_reflection.v1alpha import reflection
 
-# durability and access (issue 5): the journal, TLS, the token, malformed requests
+# durability and access: the journal, TLS, the token, malformed requests
 from .. import CostModel, DeckError, Engine, EtchguardError, Limits, __version__, load_deck, loads_deck
 from .._journal import Journal, SyncPolicy
 from ..v1 import etchguard_pb2 as pb
@@ -73,14 +73,14 @@ class ServerConfig:
     connection_idle_s: float = 300.0  # a connection without a call this long is closed
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"
-    # durability (issue 5): see etchguard._journal for the formats and the loss bounds
+    # durability: see etchguard._journal for the formats and the loss bounds
     state_dir: Path | None = None  # journal + snapshots; None: state is held in memory only
     sync: str = SyncPolicy.BATCH.value  # always | batch | none
     sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
     snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
     keep_journal_before_damage: bool = False  # start from the records before damage (see _journal)
     rejudge_held_nets: bool = False  # --rules may replace the recovered deck of held nets
-    # access (issue 5): see server/security.py
+    # access: see server/security.py
     tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
     tls_key: Path | None = None  # PEM private key
     tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates

@@ -35,7 +35,7 @@ CODES: dict[type, grpc.StatusCode] = {
     NoDeckError: grpc.StatusCode.FAILED_PRECONDITION,
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
-    ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
+    ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written
 }
 
 
