@@ -54,7 +54,7 @@ from .recompute_reference import added_area_um2, disagreements, recompute
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
 
-# Targets of issue 9 (speed), on this 2-core machine with the 9-step bench deck.
+# The compiled core's speed targets, on this 2-core machine with the 9-step bench deck.
 VERDICT_TARGET_US = {10: 3.0, 50: 3.0, 100: 3.0, 10_000: 10.0}
 DETAIL_TARGET_US = 10.0  # every changed ratio, nets of <= 100 shapes
 VIA_RUN_TARGET_US = 5.0

@@ -19,8 +19,8 @@ call (all threads, from /proc). Candidates mix run extensions (1 shape) and via 
 run (4 shapes); the batch rows are 1,024 run extensions (one rectangle each) and
 1,024 of the mix, both on the engine's columnar path (``score_columns``).
 
-Target (issue 9): streamed score p50 <= 1.10 x floor p50, in the same run. The other
-rows have no target of their own here (the batch target of issue 9 is measured from
+Target: streamed score p50 <= 1.10 x floor p50, in the same run. The other
+rows have no target of their own here (the batch target is measured from
 the C++ client, bench/cpp_bench.py). Ratios are reported; nothing here fails on them.
 
     python -m bench.grpc_bench [--quick] [--rounds N] [--calls N] [--batches N] [--json PATH]

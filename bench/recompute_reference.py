@@ -1,7 +1,7 @@
 """The from-scratch baseline: one net's full antenna check, recomputed with shapely
 (contacts, union areas and perimeters) and networkx (components per step).
 
-Written from the contract (/work/shared/antenna-model.md), not from the engine. It is
+Written from the project's antenna model (the contract), not from the engine. It is
 what a router would pay per question without an incremental engine: every call
 rebuilds every step. It is meant to be a fair baseline, not a slow one: contact
 candidates come from one shapely STRtree query per net and the pair tests are

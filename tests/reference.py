@@ -1,13 +1,13 @@
 """An independent, brute-force reading of the antenna model contract.
 
-Written from /work/shared/antenna-model.md alone (not from the engine), so that the
+Written from the project's antenna model (the contract) alone (not from the engine), so that the
 engine can be held to something outside itself. It is deliberately slow and plain:
 every process step is rebuilt from scratch.
 
 Sources:
 * formulas (G, D, A, A_eff with the reduction r(D), G_eff, PAR, the CAR chain through
   the feeding step, limits, utilization, the offline check output): the contract,
-  antenna-model.md;
+  the antenna model;
 * connectivity: networkx (graph per step, ``networkx.connected_components``);
 * contact tests, union areas and perimeters: shapely (``box``, ``intersection``,
   ``shapely.ops.unary_union``; ``.area``; ``.length``, which includes the boundaries

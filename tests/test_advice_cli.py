@@ -39,7 +39,9 @@ def test_json_output(tmp_path, capsys):
                      "50050", "50", "--json"])
     data = json.loads(capsys.readouterr().out)
     assert code == 0 and data["found"] is True
-    assert data["best"]["layer"] == "M3" and data["jumper"]["kept_length"] == 39900
+    # the API's names (AdviseReply): best_option indexes options, lengths carry their unit
+    assert data["options"][data["best_option"]]["layer"] == "M3" and data["jumper"]["kept_length_dbu"] == 39900
+    assert "best" not in data and "kept_length" not in data["jumper"]
     assert data["diode"]["diff_area_um2"] == pytest.approx(101 / 36000, rel=1e-6)
 
 
@@ -48,7 +50,7 @@ def test_only_some_answers(tmp_path, capsys):
     code = cli.main(["advise", "--rules", deck, nets, "--net", "n", "--run", "M1", "50", "50",
                      "50050", "50", "--only", "hop", "--json"])
     data = json.loads(capsys.readouterr().out)
-    assert code == 0 and data["best"]["layer"] == "M3"
+    assert code == 0 and data["options"][data["best_option"]]["layer"] == "M3"
     assert data["jumper"] is None and data["diode"] is None
     assert data["exact_scores"] == 3  # the run as is, then M3 and M5
 

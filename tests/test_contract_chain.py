@@ -1,6 +1,6 @@
 """Hand-worked nets for the contract's cumulative chain and its area reduction.
 
-The contract (antenna-model.md, "Ratios and limits" and "Quantities"):
+The contract (the antenna model, "Ratios and limits" and "Quantities"):
 * ``CAR_s(g) = PAR_s(C_s(g)) + CAR_p(g)``, p the step that feeds s: the nearest lower
   step of the same kind; the step directly below, of either kind, where layer s sets
   ``cumulative_plus_cut`` (every layer, when the process sets

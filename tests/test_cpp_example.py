@@ -230,7 +230,7 @@ def test_cpp_example_agrees_with_python_client(example_binary, live_server):
 
 
 def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
-    """Figures of the example worked from the contract (antenna-model.md), not the engine.
+    """Figures of the example worked from the contract (the antenna model), not the engine.
 
     Geometry (DBU, 1000 per um): the V1 via pad on M2 is the 220 square
     [4790, -10, 5010, 210] (cut 140 + 2 x enclosure 40); a riser of length L at the

@@ -1,6 +1,6 @@
 """Every rule-deck refusal the loader promises names the file, the entry and the field.
 
-The deck format and its constraints are the contract's (antenna-model.md, "Rule deck
+The deck format and its constraints are the contract's (the antenna model, "Rule deck
 file (TOML)" and "Process steps": layers bottom-up in process order, routing and cut
 layers interleaved, a cut between the two routing layers it joins).
 """
@@ -224,7 +224,8 @@ def test_missing_required_field(tmp_path: Path, text: str, where: str) -> None:
 def test_bad_toml_names_the_file_and_the_line(tmp_path: Path) -> None:
     err, path = load_error(tmp_path, GOOD + "[[rules]\nlayer = \n")
     assert err.field == str(path)
-    assert "TOML" in err.message and "line" in err.message  # tomllib reports the line
+    assert "TOML" in err.message
+    assert err.line == GOOD.count("\n") + 1  # tomllib reports the line of the header
 
 
 def test_unreadable_file(tmp_path: Path) -> None:

@@ -6,7 +6,7 @@ Sources:
   clockwise, FN mirrored about the y axis, FW/FS/FE = FN then the rotation of W/S/E; a
   placed component's bounding box has its lower-left corner on the placement point.
   The test builds these with shapely.affinity (rotate, scale) and compares;
-* wiring: the contract's last paragraph (antenna-model.md): width from WIDTH or the
+* wiring: the contract's last paragraph (the antenna model): width from WIDTH or the
   non-default rule, half the width past each end unless an extension is given, RECT
   relative to the last point, a via switching the layer;
 * figures: every pin and rectangle of the demo block (tests/data/lumen-block.def, with
@@ -256,7 +256,7 @@ def lefdef_check_json() -> list[dict[str, Any]]:
 
 
 def test_check_agrees_with_the_reference_on_the_hand_derived_design() -> None:
-    reports = {r["name"]: r for r in lefdef_check_json()}
+    reports = {r["net"]: r for r in lefdef_check_json()}
     deck = ref_deck(tomllib.loads(EXPECTED_DECK))
     for net in EXPECTED_NETS:
         got = reports[net["name"]]
@@ -428,7 +428,7 @@ def _is_utf8(raw: bytes) -> bool:
 def test_serve_takes_rules_from_lef_and_opens_the_def_nets() -> None:
     from grpc_fixtures import start_server
 
-    offline = {r["name"]: r for r in lefdef_check_json()}
+    offline = {r["net"]: r for r in lefdef_check_json()}
     server = start_server("--lef", str(LEFS[0]), "--lef", str(LEFS[1]), "--def", str(BLOCK),
                           rules=None, metrics=False)
     try:

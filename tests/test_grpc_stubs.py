@@ -52,8 +52,8 @@ def test_regenerated_files_match(tmp_path):
     written = protogen.generate(tmp_path)
     names = sorted(p.name for p in written)
     assert names == ["etchguard_pb2.py", "etchguard_pb2.pyi", "etchguard_pb2_grpc.py",
-                     "journal_pb2.py", "journal_pb2.pyi", "journal_pb2_grpc.py",  # journal: issue 5
-                     "shards_pb2.py", "shards_pb2.pyi", "shards_pb2_grpc.py"]  # sharding: issue 14
+                     "journal_pb2.py", "journal_pb2.pyi", "journal_pb2_grpc.py",  # the journal's records
+                     "shards_pb2.py", "shards_pb2.pyi", "shards_pb2_grpc.py"]  # the shard service
     for name in names:
         fresh = (tmp_path / name).read_text(encoding="utf-8")
         committed = (COMMITTED / name).read_text(encoding="utf-8")

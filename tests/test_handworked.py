@@ -1,6 +1,6 @@
 """Hand-worked nets: every expected figure is derived by hand in a comment beside it.
 
-Sources: the formulas are the contract's (antenna-model.md: A, G, D, A_eff, G_eff, PAR,
+Sources: the formulas are the contract's (the antenna model: A, G, D, A_eff, G_eff, PAR,
 CAR, limits); areas and perimeters are worked out by hand and, where a union is not a
 plain rectangle, confirmed with shapely; every net is also run through the
 independent reference (tests/reference.py) as a second opinion.

@@ -1,7 +1,7 @@
 """The LEF reader and its mapping onto the rule deck.
 
 Sources:
-* the mapping table of the contract (antenna-model.md, "The same model from the open
+* the mapping table of the contract (the antenna model, "The same model from the open
   LEF/DEF standard"): every expected deck value below is derived by hand from the
   demo LEF's statements with that table, in a comment beside it;
 * the open standard's own example file complete.5.8.lef (in ../shared/lefdef, Apache

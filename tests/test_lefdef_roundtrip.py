@@ -3,7 +3,7 @@ net written as cell LEF + DEF checks to the same figures, on random decks and ne
 
 The random decks and nets are those of test_reference_agreement.py (the strategies that
 hold the engine to the independent reference). The writers below put each value in the
-LEF/DEF statement the contract's mapping table names for it (antenna-model.md, "The
+LEF/DEF statement the contract's mapping table names for it (the antenna model, "The
 same model from the open LEF/DEF standard"); reading must then give the deck and the
 check figures back to the bit. Oxide classes: LEF names OXIDE1..4, so "thin" stays the
 default class and the others come back as "oxide2", "oxide3" (renamed on the TOML side
@@ -189,7 +189,12 @@ def checked(deck: eg.Deck, specs: list[eg.NetSpec]) -> list[dict[str, Any]]:
     out = []
     for spec in specs:
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
-        out.append(engine.check(spec.name).as_dict())
+        report = engine.check(spec.name).as_dict()
+        # A tie names the first gate pin, and a DEF lists a net's pins in its own order:
+        # the figures must agree, the tie's pin name need not.
+        for check in report["checks"]:  # type: ignore[attr-defined]
+            del check["gate"]
+        out.append(report)
         engine.close_net(spec.name)
     return out
 

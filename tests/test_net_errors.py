@@ -1,7 +1,7 @@
 """Bad nets and bad shapes are refused with the right exception, naming the field,
 and leave the engine exactly as it was (check reports and held-state stats).
 
-The input rules are the contract's (antenna-model.md): integer DBU coordinates,
+The input rules are the contract's (the antenna model): integer DBU coordinates,
 closed rectangles with xlo < xhi and ylo < yhi, layers of the deck, areas in um^2
 (non-negative, finite), pins named uniquely within a net.
 """
@@ -161,8 +161,20 @@ def test_duplicate_pin_names(engine: eg.Engine, deck: eg.Deck) -> None:
      "nets[0].pins[0].gate_area.thin"),
     ({"name": "n2", "shapes": [{"layer": "M1", "rect": [0, 0, 1.25, 1]}]}, "nets[0].shapes[0].rect"),
     ({"name": "n2", "shapes": [{"layer": "M1", "rect": [9, 0, 1, 1]}]}, "nets[0].shapes[0].rect"),
-    ({"name": "n2", "shapes": [{"layer": "M1", "rect": [0, 0, 1, 1], "width": 3}]}, "nets[0].shapes[0]"),
-    ({"name": "n2", "colour": "red"}, "nets[0]"),
+    ({"name": "n2", "shapes": [{"layer": "M1", "rect": [0, 0, 1, 1], "width": 3}]}, "nets[0].shapes[0].width"),
+    ({"name": "n2", "colour": "red"}, "nets[0].colour"),
+    ({"name": "n2", "pins": [{"name": "p", "layer": "M1", "rects": [[0, 0, 1, 1]], "size": 1}]},
+     "nets[0].pins[0].size"),
+    ({"name": "n2", "pins": 3}, "nets[0].pins"),
+    ({"name": "n2", "shapes": {"layer": "M1"}}, "nets[0].shapes"),
+    ({"name": "n2", "shapes": [{"layer": "M1", "rect": 7}]}, "nets[0].shapes[0].rect"),
+    ({"name": "n2", "pins": [{"name": "p", "layer": "M1", "rects": [[0, 0, 1, 1]], "cell_area": [1]}]},
+     "nets[0].pins[0].cell_area"),
+    # an oxide class no rule of the deck names (lumen-6m has thin and thick): never checked
+    ({"name": "n2", "pins": [{"name": "p", "layer": "M1", "rects": [[0, 0, 1, 1]], "gate_area": {"thik": 1}}]},
+     "nets[0].pins[0].gate_area.thik"),
+    ({"name": "n2", "pins": [{"name": "p", "layer": "M1", "rects": [[0, 0, 1, 1]], "gate_area": {"Thin": 1}}]},
+     "nets[0].pins[0].gate_area.Thin"),
     ({"name": ""}, "nets[0].name"),
     ({"name": "n2", "layer_range": ["M4", "M1"]}, "nets[0].layer_range"),
 ])

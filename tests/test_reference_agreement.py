@@ -142,14 +142,16 @@ def shapes_on(draw: st.DrawFn, deck: dict[str, Any], low_layers: bool, min_size:
 @st.composite
 def pins_for(draw: st.DrawFn, deck: dict[str, Any]) -> list[dict[str, Any]]:
     names = layer_names(deck)[:5]
-    oxides = sorted({r.get("oxide", "thin") for r in deck["rules"]} | {"thin"})
+    # only classes the deck has rules for: a gate of any other class is refused (it would
+    # never be checked); a class limited on some layers and not others stays in play
+    oxides = sorted({r.get("oxide", "thin") for r in deck["rules"]})
     count = draw(st.integers(1, 4))
     pins = []
     for i in range(count):
         pin: dict[str, Any] = {"name": f"u{i}.a", "layer": draw(st.sampled_from(names[:3])),
                                "rects": draw(st.lists(rects(), min_size=1, max_size=2))}
         if i == 0 or draw(st.booleans()):
-            if draw(st.booleans()):
+            if "thin" in oxides and draw(st.booleans()):  # a plain number is the "thin" class
                 pin["gate_area"] = draw(st.floats(0.005, 0.4))
             else:
                 pin["gate_area"] = {ox: draw(st.floats(0.005, 0.4))

@@ -279,6 +279,26 @@ def test_page_highlights_caps_and_missing_geometry(deck: eg.Deck, records: list[
         assert f"<h3>{r.report.name} · worst" in page
 
 
+def test_drawing_progress_counts_the_drawings(deck: eg.Deck, records: list[NetRecord]) -> None:
+    """The bar's total is the number of nets drawn (the cap, or fewer with geometry),
+    not the number of violating nets."""
+    bad = [r for r in records if not r.report.legal]
+    assert len(bad) > 3
+    seen: list[tuple[int, int]] = []
+
+    def bar(items, total, label):  # type: ignore[no-untyped-def]
+        items = list(items)
+        seen.append((total, len(items)))
+        return items
+    page = render_html(bad[:-1] + [NetRecord(bad[-1].report)], deck.name, deck=deck, max_drawings=2,
+                       progress=bar)
+    assert seen == [(2, 2)]
+    assert page.count('<svg class="eg-fig eg-net"') == 2
+    seen.clear()
+    render_html([NetRecord(r.report) for r in bad], deck.name, deck=deck, max_drawings=2, progress=bar)
+    assert seen == [(0, 0)]  # no geometry: nothing to draw
+
+
 # -- progress bar ----------------------------------------------------------------------
 
 

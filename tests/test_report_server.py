@@ -93,7 +93,19 @@ def test_server_unreachable_is_bad_input(tmp_path: Path, capsys: pytest.CaptureF
     rc = main(["report", "--server", f"127.0.0.1:{port}", "--timeout", "1",
                "--json", str(tmp_path / "x.json")])
     assert rc == 2
-    assert "no server answered" in capsys.readouterr().err
+    # the refused connection is the answer (was: a wait for the whole --timeout, then
+    # "no server answered ... within")
+    err = capsys.readouterr().err
+    assert "no server answers at" in err and "within" not in err
+
+
+def test_output_into_a_missing_folder_is_refused_before_any_work(tmp_path: Path,
+                                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    # nothing listens on port 1 either: the folder is refused first, before any call
+    rc = main(["report", "--server", "127.0.0.1:1", "-o", str(tmp_path / "absent" / "r.html")])
+    assert rc == 2
+    err = capsys.readouterr().err
+    assert "--output: the folder" in err and "does not exist" in err and "server" not in err.split("--output")[1]
 
 
 def test_server_with_a_net_file_is_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:

@@ -4,21 +4,39 @@ The public face of the package; the modules behind it are private rooms, one per
 concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 """
 
-from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption,
-                      PlacedShape)
+from ._advice import Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption, PlacedShape
 from ._columns import BatchScores  # columnar batch scores (Engine.score_columns)
+from ._costs import CostModel
 from ._engine import Engine, Limits
-from ._obstacles import Conflict
-from ._errors import (AlreadyExistsError, CancelledError, DeadlineExceededError, DeckError,
-                      EtchguardError, InputError, LimitExceededError, NoDeckError,
-                      NotFoundError, StoppedError)
+from ._errors import (
+    AlreadyExistsError,
+    CancelledError,
+    DeadlineExceededError,
+    DeckError,
+    EtchguardError,
+    InputError,
+    LimitExceededError,
+    NoDeckError,
+    NotFoundError,
+    StoppedError,
+)
 from ._geometry import Rect, run_rect, union_measures
 from ._names import MAX_NAME_BYTES
-from ._nets import (NetSpec, Pin, Shape, load_net_file, make_pin, make_shape, parse_net_file,
-                    resolve_layer, run_shapes, via_shapes)
+from ._nets import (
+                      NetSpec,
+                      Pin,
+                      Shape,
+                      load_net_file,
+                      make_pin,
+                      make_shape,
+                      parse_net_file,
+                      resolve_layer,
+                      run_shapes,
+                      via_shapes,
+)
+from ._obstacles import Conflict
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck, Layer, Rule, load_deck, loads_deck, parse_deck
-from ._costs import CostModel
 
 __version__ = "0.1.0"
 

@@ -1,6 +1,6 @@
 """Repair advice for a candidate run that would break a limit: hop, jumper, diode.
 
-Definitions (the project's reading of the contract, antenna-model.md, "Where can it go
+Definitions (the project's reading of the contract, the antenna model, "Where can it go
 instead?"). A request is a straight run R on routing layer L: centre line P..F, width w,
 rectangle ``run_rect(P, F, w)`` (extended w//2 past each end). Everything is integer DBU.
 The net is read only through its ``NetView`` (``_netview``): exact what-if scores,
@@ -111,9 +111,9 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 from ._errors import InputError, StoppedError
-from ._geometry import COORD_LIMIT, Rect, run_rect
-from ._netview import NetView
+from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
 from ._nets import Pin, Shape, via_shapes
+from ._netview import NetView
 from ._obstacles import Conflict, ObstacleIndex
 from ._ratios import TOLERANCE, is_legal
 from ._reports import RatioChange, Score
@@ -243,8 +243,8 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
     for name, v in (("x1", x1), ("y1", y1), ("x2", x2), ("y2", y2)):
         if isinstance(v, bool) or not isinstance(v, int):
             raise InputError(f"coordinates are integer DBU, got {v!r}", name)
-        if not -COORD_LIMIT // 2 < v < COORD_LIMIT // 2:
-            raise InputError(f"coordinate {v} is outside +-2^61 DBU", name)
+        if not -COORD_LIMIT < v < COORD_LIMIT:
+            raise InputError(f"coordinate {v} is not strictly inside +-2^62 DBU", name)
         coords.append(v)
     if coords[0] != coords[2] and coords[1] != coords[3]:
         raise InputError("a run's centre line must be horizontal or vertical", "run")
@@ -254,6 +254,7 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
         width = info.wire_width
     if isinstance(width, bool) or not isinstance(width, int) or width <= 0:
         raise InputError(f"width must be a positive integer DBU, got {width!r}", "width")
+    _check_room(deck, coords, width)
     if not isinstance(allow_non_preferred, bool):
         raise InputError("must be true or false", "allow_non_preferred")
     if want is None:
@@ -267,6 +268,20 @@ def check_request(deck, layer: object, x1: object, y1: object, x2: object, y2: o
         wanted = frozenset(want)
     return AdviceRequest(layer, coords[0], coords[1], coords[2], coords[3], width, allow_non_preferred,
                          wanted)
+
+
+def _check_room(deck, coords: list[int], width: int) -> None:
+    """Every rectangle is held to one limit, strictly inside +-2^62 DBU: the run's own
+    rectangle and every one advice may propose for it (the run moved to another layer at
+    that layer's width, via pads at its ends), which reach at most ``margin`` DBU past the
+    run's centre line."""
+    x1, y1, x2, y2 = coords
+    checked_rect(run_rect(x1, y1, x2, y2, width), "run")
+    margin = max([width] + [l.wire_width or 0 for l in deck.layers]
+                 + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
+    if any(not -COORD_LIMIT + margin < v < COORD_LIMIT - margin for v in coords):
+        raise InputError(f"the run comes within {margin} DBU of +-2^62 DBU, the limit of every "
+                         "rectangle, and the shapes advice proposes for it would pass it", "run")
 
 
 # -- geometry helpers -------------------------------------------------------------------
@@ -461,7 +476,7 @@ class _Advisor:
         """Kept lengths at which a moving jumper edge meets a coordinate of an element of
         the net it could contact (same layer, or a cut and a metal next to each other,
         overlapping across the run), +-1 for the strict and the closed contact tests."""
-        ax, cross = run.axis, 1 - run.axis
+        ax = run.axis
         at0 = self.jumper_shapes(run, 0, target)
         at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
         end = self.jumper_shapes(run, room, target)

@@ -21,7 +21,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Protocol, Union
+from typing import Protocol
 
 from ._errors import EtchguardError
 from ._geometry import Rect
@@ -86,8 +86,8 @@ class BlockageRemoved:
     blockage_id: int
 
 
-Change = Union[DeckLoaded, NetOpened, ShapesCommitted, ShapesRemoved, NetClosed,
-               BlockageDeclared, BlockageRemoved]
+Change = (DeckLoaded | NetOpened | ShapesCommitted | ShapesRemoved | NetClosed
+          | BlockageDeclared | BlockageRemoved)
 
 
 class ChangeLog(Protocol):
@@ -98,6 +98,9 @@ class ChangeLog(Protocol):
 
 # -- a whole engine's state, for snapshots (Engine.export_state / restore_state) ----------
 
+ShapeRow = tuple[int, int, int, int, int]
+
+
 @dataclass(frozen=True)
 class NetImage:
     """One net as held: pins, layer range, shapes by id, and the id the next shape gets."""
@@ -105,7 +108,7 @@ class NetImage:
     name: str
     pins: tuple[Pin, ...]
     layer_range: tuple[int, int] | None
-    shapes: Mapping[int, Shape]
+    shapes: Mapping[int, ShapeRow]  # id -> (layer step, xlo, ylo, xhi, yhi)
     next_id: int
 
 

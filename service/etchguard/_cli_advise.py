@@ -19,6 +19,7 @@ from ._advice import ANSWERS, Advice
 from ._engine import Engine
 from ._errors import InputError
 from ._nets import load_net_file, resolve_layer
+from ._reports import json_number
 from ._rules import load_deck
 
 HELP = "advise on a candidate run of one net: nearest legal layer hop, jumper point, diode"
@@ -30,7 +31,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--net", required=True, help="the net the run belongs to")
     parser.add_argument("--run", required=True, nargs=5, metavar=("LAYER", "X1", "Y1", "X2", "Y2"),
                         help="the candidate run: routing layer name and centre-line end points (DBU)")
-    parser.add_argument("--width", type=int, default=None, help="run width in DBU (default: the layer's)")
+    parser.add_argument("--width", type=int, default=None, metavar="DBU",
+                        help="run width in DBU (default: the layer's)")
     parser.add_argument("--non-preferred", action="store_true",
                         help="also consider layers whose preferred direction differs from the run's")
     parser.add_argument("--only", nargs="+", choices=ANSWERS, default=None, metavar="ANSWER",
@@ -38,10 +40,22 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the whole advice as JSON")
 
 
-def _plain(value: Any) -> Any:
-    """JSON-safe: non-finite floats become strings ("inf"), tuples lists."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return "inf" if value > 0 else ("-inf" if value < 0 else "nan")
+# Record fields whose JSON name is the API's (AdviseReply and its parts): lengths carry
+# their unit, as in the proto.
+_JSON_NAMES = {"run_length": "run_length_dbu", "kept_length": "kept_length_dbu",
+               "hop_room": "hop_room_dbu", "distance": "distance_dbu", "spacing": "spacing_dbu",
+               "net": "other_net"}
+
+
+def _plain(value: Any, renames: dict[str, str] | None = None) -> Any:
+    """JSON values: non-finite floats as the protobuf JSON mapping writes them, tuples as
+    lists, record fields under their API names."""
+    if isinstance(value, float):
+        return json_number(value)
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        names = _JSON_NAMES if renames is None else renames
+        return {names.get(f.name, f.name): _plain(getattr(value, f.name))
+                for f in dataclasses.fields(value)}
     if isinstance(value, dict):
         return {str(k): _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
@@ -50,9 +64,18 @@ def _plain(value: Any) -> Any:
 
 
 def advice_as_dict(advice: Advice) -> dict[str, Any]:
-    out = _plain(dataclasses.asdict(advice))
+    """The advice as JSON with the field names of the API's ``AdviseReply``: ``best_option``
+    is the index of the best option in ``options`` (the record itself is listed there)."""
+    out: dict[str, Any] = _plain(advice, renames={})
+    out.pop("best")
+    out["best_option"] = None if advice.best is None else advice.options.index(advice.best)
     out["found"] = advice.found
     return out
+
+
+# The engine's field names (AdviseRequest's) -> this command's options.
+_OPTION_FIELDS = {"layer": "run.layer", "x1": "run.x1", "y1": "run.y1", "x2": "run.x2", "y2": "run.y2",
+                  "width": "--width", "want": "--only", "net": "--net"}
 
 
 def format_text(advice: Advice) -> str:
@@ -82,14 +105,18 @@ def run(args: argparse.Namespace) -> int:
         except ValueError:
             raise InputError(f"coordinates are integer DBU, got {text!r}", f"run.{name}") from None
     if not any(s.name == args.net for s in specs):
-        raise InputError(f"the net file has no net {args.net!r}", "net")
+        raise InputError(f"the net file has no net {args.net!r}", "--net")
     engine = Engine(deck)
     for spec in specs:
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
-    advice = engine.advise(args.net, layer, *coords, width=args.width,
-                           allow_non_preferred=args.non_preferred, want=args.only)
+    try:
+        x1, y1, x2, y2 = coords
+        advice = engine.advise(args.net, layer, x1, y1, x2, y2, width=args.width,
+                               allow_non_preferred=args.non_preferred, want=args.only)
+    except InputError as exc:  # the engine names the API's fields; this command's are options
+        raise InputError(exc.message, _OPTION_FIELDS.get(exc.field or "", exc.field)) from None
     if args.json:
-        json.dump(advice_as_dict(advice), sys.stdout, indent=1)
+        json.dump(advice_as_dict(advice), sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
     else:
         print(format_text(advice))

@@ -4,15 +4,18 @@ design given as LEF (technology, then cells) and DEF."""
 from __future__ import annotations
 
 import argparse
+import fnmatch
 import json
 import sys
-from collections.abc import Iterable, Iterator
+from collections.abc import Iterable, Iterator, Sequence
 
 from ._engine import Engine
 from ._errors import InputError
 from ._lefdef import open_design, print_notes
 from ._lefdef_tokens import Notes
-from ._nets import NetSpec, load_net_file
+from ._names import shown
+from ._nets import NetSpec, iter_net_file
+from ._progress import progress
 from ._reports import NetReport
 from ._rules import Deck, load_deck
 
@@ -23,8 +26,42 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("nets", nargs="?", help="net file (JSON), with --rules")
     parser.add_argument("--rules", metavar="DECK", help="rule deck (TOML)")
     add_lefdef_arguments(parser)
-    parser.add_argument("--json", action="store_true", help="print the contract's JSON instead of a table")
+    parser.add_argument("--json", action="store_true",
+                        help="print JSON instead of a table (docs/formats.md describes it)")
     parser.add_argument("--all", action="store_true", help="table: list legal nets too")
+    add_selection_arguments(parser)
+    parser.add_argument("--progress", choices=("auto", "always", "never"), default="auto",
+                        help="count the nets read and checked on stderr: auto on a terminal only")
+
+
+def add_selection_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--net", dest="select_names", action="append", default=[], metavar="NAME",
+                        help="look only at this net (repeatable); every net is still read and validated")
+    parser.add_argument("--match", dest="select_patterns", action="append", default=[], metavar="PATTERN",
+                        help="look only at nets whose name matches this shell-style pattern "
+                             "('blk_a/*', 'n[0-9]?'; repeatable)")
+
+
+def selected(specs: Iterable[NetSpec], names: Sequence[str], patterns: Sequence[str]) -> Iterator[NetSpec]:
+    """The nets named in ``names`` or matching one of ``patterns`` (all when both are
+    empty). A name the input does not have, or a selection nothing matches, is refused
+    once the input is read (an unselected net is still validated)."""
+    if not names and not patterns:
+        yield from specs
+        return
+    wanted, seen, matched = set(names), set(), 0
+    for spec in specs:
+        if spec.name in wanted or any(fnmatch.fnmatchcase(spec.name, p) for p in patterns):
+            seen.add(spec.name)
+            matched += 1
+            yield spec
+    missing = sorted(wanted - seen)
+    if missing:
+        raise InputError(f"the input has no net {shown(missing[0])}"
+                         + (f" (nor {len(missing) - 1} more of the names given)" if len(missing) > 1 else ""),
+                         "--net")
+    if not matched:
+        raise InputError(f"no net matches {', '.join(shown(p) for p in patterns)}", "--match")
 
 
 def add_lefdef_arguments(parser: argparse.ArgumentParser) -> None:
@@ -46,16 +83,15 @@ def specs_from_args(args: argparse.Namespace) -> tuple[Deck, Iterable[NetSpec], 
     if not args.nets or not args.rules:
         raise InputError("give a net file and --rules DECK, or --lef TECH [--lef CELLS] --def DESIGN", "nets")
     deck = load_deck(args.rules)
-    specs = load_net_file(deck, args.nets)
-    return deck, specs, len(specs), None
+    return deck, iter_net_file(deck, args.nets), None, None
 
 
-def _with_progress(items: Iterable[NetSpec], total: int | None, label: str) -> Iterable[NetSpec]:
-    try:
-        from ._progress import progress
-    except ImportError:
+def _with_progress(items: Iterable[NetSpec], total: int | None, label: str, when: str) -> Iterable[NetSpec]:
+    """Count the nets as they are read and checked (the net file is read one net at a
+    time, so reading shows too); ``when`` is auto, always or never."""
+    if when == "never":
         return items
-    return progress(items, total, label)
+    return progress(items, total, label, force=when == "always")
 
 
 def check_specs(engine: Engine, specs: Iterable[NetSpec]) -> Iterator[NetReport]:
@@ -96,11 +132,13 @@ def format_table(reports: list[NetReport], show_all: bool) -> str:
 def run(args: argparse.Namespace) -> int:
     deck, specs, total, notes = specs_from_args(args)
     engine = Engine(deck)
-    reports = list(check_specs(engine, _with_progress(specs, total, "checking")))
+    if args.select_names or args.select_patterns:
+        specs, total = selected(specs, args.select_names, args.select_patterns), None
+    reports = list(check_specs(engine, _with_progress(specs, total, "checking", args.progress)))
     if notes is not None:
         print_notes(notes, sys.stderr)
     if args.json:
-        json.dump([r.as_dict() for r in reports], sys.stdout, indent=1)
+        json.dump([r.as_dict() for r in reports], sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
     else:
         print(format_table(reports, args.all))

@@ -15,9 +15,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
-
 from collections.abc import Callable, Iterable
+from pathlib import Path
 from typing import Any
 
 from ._cli_check import add_lefdef_arguments, specs_from_args
@@ -52,6 +51,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="progress bar on stderr: auto draws it on a terminal only")
 
 
+def _check_folders(args: argparse.Namespace) -> None:
+    """Refuse an output whose folder does not exist before any work is done (the page of
+    a large design takes minutes)."""
+    for option, path in (("--output", args.output), ("--csv", args.csv), ("--json", args.json)):
+        if path and not Path(path).resolve().parent.is_dir():
+            raise InputError(f"the folder {Path(path).parent} does not exist", option)
+
+
 def _write(path: str, text: str, what: str) -> None:
     try:
         Path(path).write_text(text, encoding="utf-8")
@@ -74,7 +81,9 @@ def records_from_server(address: str, timeout: float,
     kind = {pb.RATIO_KIND_PARTIAL: "partial", pb.RATIO_KIND_CUMULATIVE: "cumulative"}
     with Client(address, timeout=timeout) as client:
         try:
-            client.wait_ready(timeout)
+            # A call that does not wait for the channel: a refused connection answers at
+            # once (UNAVAILABLE) instead of after the whole timeout.
+            client.health()
             info = client.deck
             total = int(client.stats().nets)
             reports = []
@@ -90,6 +99,8 @@ def records_from_server(address: str, timeout: float,
         except grpc.FutureTimeoutError as exc:
             raise InputError(f"no server answered at {address} within {timeout:g} s", "--server") from exc
         except ServiceError as exc:
+            if exc.code == grpc.StatusCode.UNAVAILABLE:
+                raise InputError(f"no server answers at {address}: {exc.message}", "--server") from None
             raise InputError(f"the server refused: {exc}", "--server") from exc
     return info.name, [layer.name for layer in info.layers], reports, deck
 
@@ -110,8 +121,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("nothing to write: give -o FILE, --csv FILE and/or --json FILE", "output")
     if args.top < 0 or args.max_drawings < 0:
         raise InputError("must be >= 0", "--top" if args.top < 0 else "--max-drawings")
+    _check_folders(args)
 
-    def bar(items, total, label):  # type: ignore[no-untyped-def]
+    def bar(items: Iterable[Any], total: int | None, label: str) -> Iterable[Any]:
         if args.progress == "never":
             return items
         return progress(items, total, label, force=args.progress == "always")

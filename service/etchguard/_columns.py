@@ -78,9 +78,9 @@ def checked_columns(steps: int, layers: Sequence[int] | np.ndarray, rects: np.nd
                          f"{steps})", f"layers[{int(bad[0])}]")
     limit = COORD_LIMIT
     if rect_arr.dtype.kind == "u":
-        far = np.nonzero((rect_arr >= limit).any(axis=1))[0]
-        if len(far):
-            raise InputError("a coordinate is outside +-2^62 DBU", f"rects[{int(far[0])}]")
+        far_rows = np.nonzero((rect_arr >= limit).any(axis=1))[0]
+        if len(far_rows):
+            raise InputError("a coordinate is outside +-2^62 DBU", f"rects[{int(far_rows[0])}]")
     rect_arr = rect_arr.astype(np.int64, copy=False)
     far = (rect_arr <= -limit) | (rect_arr >= limit)
     empty = (rect_arr[:, 0] >= rect_arr[:, 2]) | (rect_arr[:, 1] >= rect_arr[:, 3])

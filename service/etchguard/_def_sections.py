@@ -106,7 +106,8 @@ class SectionReader:
     def _placement(self, group: list[str], line: int, keyword: str) -> tuple[int, int, Orientation]:
         values = [w for w in group[1:] if w not in ("(", ")")]
         if len(values) != 3 or values[2] not in ORIENTATIONS:
-            raise fail(self.source, line, keyword, f"expected {group[0]} ( x y ) orientation (N, S, E, W, FN, FS, FE, FW)")
+            raise fail(self.source, line, keyword,
+                       f"expected {group[0]} ( x y ) orientation (N, S, E, W, FN, FS, FE, FW)")
         return (coordinate(values[0], self.source, line, keyword),
                 coordinate(values[1], self.source, line, keyword), ORIENTATIONS[values[2]])
 
@@ -161,7 +162,8 @@ class SectionReader:
                     rest = rest[2:]
                 values = [coordinate(w, self.source, at_line, key) for w in rest if w not in ("(", ")")]
                 kind = "RECT" if key == "LAYER" else "POLYGON"
-                port.shapes.extend((group[1], r) for r in self._shape_rects(kind, values, Located(self.source, at_line)))
+                located = Located(self.source, at_line)
+                port.shapes.extend((group[1], r) for r in self._shape_rects(kind, values, located))
             elif key == "VIA":
                 words_at = [w for w in group[2:] if w not in ("(", ")")]
                 if words_at and words_at[0].upper() == "MASK":

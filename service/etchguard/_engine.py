@@ -13,26 +13,42 @@ refused call leaves the engine exactly as it was.
 from __future__ import annotations
 
 import threading
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TypeVar
 
 import numpy as np
 
-from ._advice import Advice, StopCheck, advise as _advise, check_request as _check_advice_request
+from ._advice import Advice, StopCheck
+from ._advice import advise as _advise
+from ._advice import check_request as _check_advice_request
+from ._changelog import (
+    BlockageDeclared,
+    BlockageRemoved,
+    ChangeLog,
+    DeckLoaded,
+    EngineImage,
+    NetClosed,
+    NetImage,
+    NetOpened,
+    ShapesCommitted,
+    ShapesRemoved,
+)
 from ._columns import BatchScores, checked_columns
 from ._corenet import CompiledDeck, CoreNet, compile_deck
 from ._coreview import CoreView
 from ._costs import CostModel
-from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
-                         NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
-from ._geometry import Rect, checked_rect as _checked_rect
+from ._geometry import checked_rect as _checked_rect
 from ._names import check_name
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
-from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
+from ._obstacles import ObstacleIndex
+from ._obstacles import net_items as _net_items
+from ._obstacles import pin_items as _pin_items
+from ._obstacles import shape_key as _shape_key
 from ._reports import Headroom, NetReport, Score
-from ._rules import Deck, loads_deck as _loads_deck
+from ._rules import Deck
+from ._rules import loads_deck as _loads_deck
 
 _Mark = TypeVar("_Mark")
 
@@ -131,7 +147,7 @@ class Engine:
                 cores = [_core_net(compiled, pins, shapes) for pins, shapes, _ in moved]
                 self._record(DeckLoaded(deck, text))  # logged first: a refused log changes nothing
                 self._deck, self._compiled = deck, compiled
-                for net, (pins, shapes, layer_range), core in zip(nets, moved, cores):
+                for net, (pins, _shapes, layer_range), core in zip(nets, moved, cores):
                     net.pins, net.layer_range, net.core = pins, layer_range, core
                 self._obstacles.rebuild(len(deck.layers), [item for net in nets for item in _net_items(
                     net.name, net.pins, net.shape_table())], blockages)
@@ -469,9 +485,11 @@ class Engine:
             return
         deck = _loads_deck(image.deck_text, "<snapshot deck>")
         self.load_deck(deck, image.deck_text)
+        compiled = self._compiled
+        assert compiled is not None  # load_deck has just set it
         with self._registry:
             for ni in image.nets:
-                core = _core_net(self._compiled, ni.pins, ni.shapes)  # type: ignore[arg-type]
+                core = _core_net(compiled, ni.pins, ni.shapes)
                 self._nets[ni.name] = _Net(ni.name, tuple(ni.pins), ni.layer_range, core, ni.next_id)
             self._obstacles.rebuild(len(deck.layers), [item for ni in image.nets for item in
                                                        _net_items(ni.name, ni.pins, ni.shapes)],
@@ -494,9 +512,9 @@ def _acquire(lock: threading.Lock, should_stop: StopCheck | None) -> None:
 
 
 def _core_net(compiled: CompiledDeck, pins: Sequence[Pin],
-              shapes: dict[int, tuple[int, int, int, int, int]]) -> CoreNet:
+              shapes: Mapping[int, tuple[int, int, int, int, int]]) -> CoreNet:
     """A net's core state with its shapes under their ids, in the given order."""
     core = CoreNet(compiled, pins)
-    core.add(list(shapes), [Shape(v[0], v[1:]) for v in shapes.values()])  # type: ignore[arg-type]
+    core.add(list(shapes), [Shape(v[0], v[1:]) for v in shapes.values()])
     return core
 

@@ -10,10 +10,26 @@ from __future__ import annotations
 class EtchguardError(Exception):
     """Base of all errors raised on purpose by etchguard."""
 
-    def __init__(self, message: str, field: str | None = None) -> None:
-        super().__init__(message if field is None else f"{field}: {message}")
+    def __init__(self, message: str, field: str | None = None, line: int | None = None) -> None:
+        super().__init__(_located(message, field, line))
         self.message = message
         self.field = field
+        self.line = line  # the line of an input file the error is about, when known
+
+    def at_line(self, line: int | None) -> EtchguardError:
+        """The same error, placed at ``line`` of the file its field names."""
+        return type(self)(self.message, self.field, line)
+
+
+def _located(message: str, field: str | None, line: int | None) -> str:
+    """``field: message``; with a line and a field ``file: path``, ``file:line: path: message``
+    (the form editors and terminals jump to)."""
+    if field is None:
+        return message
+    if line is not None:
+        source, sep, path = field.partition(": ")
+        return f"{source}:{line}: {path}: {message}" if sep else f"{source}:{line}: {message}"
+    return f"{field}: {message}"
 
 
 class DeckError(EtchguardError):

@@ -19,6 +19,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 
 from ._errors import InputError
+from ._names import shown
 
 Rect = tuple[int, int, int, int]
 
@@ -29,6 +30,8 @@ COORD_LIMIT = 1 << 62
 
 def checked_rect(values: Sequence[object], field: str) -> Rect:
     """Validate four coordinates and return them as a rectangle, or raise InputError."""
+    if not isinstance(values, (list, tuple)):
+        raise InputError(f"a rectangle is a list of 4 integer DBU coordinates, got {shown(values)}", field)
     if len(values) != 4:
         raise InputError(f"a rectangle needs 4 coordinates, got {len(values)}", field)
     out = []
@@ -37,18 +40,14 @@ def checked_rect(values: Sequence[object], field: str) -> Rect:
             if isinstance(value, float) and value.is_integer():
                 value = int(value)
             else:
-                raise InputError(f"coordinates are integer DBU, got {value!r}", field)
+                raise InputError(f"coordinates are integer DBU, got {shown(value)}", field)
         if not -COORD_LIMIT < value < COORD_LIMIT:
-            raise InputError(f"coordinate {value} is outside +-2^62 DBU", field)
+            raise InputError(f"coordinate {shown(value)} is not strictly inside +-2^62 DBU", field)
         out.append(value)
     xlo, ylo, xhi, yhi = out
     if xlo >= xhi or ylo >= yhi:
         raise InputError(f"rectangle {out} is empty or inverted (need xlo < xhi, ylo < yhi)", field)
     return (xlo, ylo, xhi, yhi)
-
-
-def rect_area(r: Rect) -> int:
-    return (r[2] - r[0]) * (r[3] - r[1])
 
 
 def edge_touch(a: Rect, b: Rect) -> bool:
@@ -61,15 +60,6 @@ def edge_touch(a: Rect, b: Rect) -> bool:
 def overlap(a: Rect, b: Rect) -> bool:
     """Positive-area overlap (a cut landing on metal)."""
     return min(a[2], b[2]) > max(a[0], b[0]) and min(a[3], b[3]) > max(a[1], b[1])
-
-
-def intersection(a: Rect, b: Rect) -> Rect | None:
-    """The positive-area intersection of two rectangles, or None."""
-    xlo, ylo = max(a[0], b[0]), max(a[1], b[1])
-    xhi, yhi = min(a[2], b[2]), min(a[3], b[3])
-    if xlo < xhi and ylo < yhi:
-        return (xlo, ylo, xhi, yhi)
-    return None
 
 
 def _merged(intervals: list[tuple[int, int]]) -> list[tuple[int, int]]:
@@ -137,10 +127,6 @@ def union_measures(rects: Iterable[Rect]) -> tuple[int, int]:
         previous = current
     perimeter += sum(hi - lo for lo, hi in previous)
     return area, perimeter
-
-
-def union_area(rects: Iterable[Rect]) -> int:
-    return union_measures(rects)[0]
 
 
 def run_rect(x1: int, y1: int, x2: int, y2: int, width: int, extension: int | None = None) -> Rect:

@@ -65,7 +65,7 @@ class Jobs:
         self._empty = empty
 
     @classmethod
-    def single(cls, engine: Engine) -> "Jobs":
+    def single(cls, engine: Engine) -> Jobs:
         """Only the unnamed job: ``engine`` (a named job is refused as over the limit)."""
         def no_jobs(job: str) -> Engine:
             raise LimitExceededError("this server holds only the unnamed job", JOB_FIELD)

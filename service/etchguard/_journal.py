@@ -58,6 +58,7 @@ Sync policy (``SyncPolicy``), what an acknowledged change survives:
 
 from __future__ import annotations
 
+import contextlib
 import fcntl
 import logging
 import os
@@ -68,14 +69,24 @@ import threading
 import time
 import zlib
 from collections.abc import Iterator
-from typing import NoReturn
 from dataclasses import dataclass, field
-from enum import Enum
+from enum import StrEnum
 from pathlib import Path
+from typing import NoReturn
 
-from ._changelog import (BlockageDeclared, BlockageRemoved, Change, ChangeLogError, DeckLoaded,
-                         EngineImage, NetClosed, NetImage, NetOpened, ShapesCommitted,
-                         ShapesRemoved)
+from ._changelog import (
+    BlockageDeclared,
+    BlockageRemoved,
+    Change,
+    ChangeLogError,
+    DeckLoaded,
+    EngineImage,
+    NetClosed,
+    NetImage,
+    NetOpened,
+    ShapesCommitted,
+    ShapesRemoved,
+)
 from ._errors import EtchguardError
 from ._nets import Pin, Shape
 from ._rules import loads_deck
@@ -97,7 +108,7 @@ class JournalError(EtchguardError):
     """The state folder cannot be used: damage, another format version, another server."""
 
 
-class SyncPolicy(str, Enum):
+class SyncPolicy(StrEnum):
     ALWAYS = "always"
     BATCH = "batch"
     NONE = "none"
@@ -273,7 +284,7 @@ def _pin_into(msg: jpb.PinImage, pin: Pin) -> None:
 def _pin_of(msg: jpb.PinImage) -> Pin:
     v = list(msg.rects)
     rects = tuple(tuple(v[i:i + 4]) for i in range(0, len(v), 4))
-    return Pin(msg.name, msg.layer, rects, dict(msg.gate_area), msg.diff_area,  # type: ignore[arg-type]
+    return Pin(msg.name, msg.layer, rects, dict(msg.gate_area), msg.diff_area,
                dict(msg.cell_area))
 
 
@@ -421,7 +432,7 @@ def read_snapshot(path: Path) -> tuple[EngineImage, int]:
         header = jpb.SnapshotHeader.FromString(frames[0][1])
         end = jpb.SnapshotEnd.FromString(frames[-1][1])
         nets = []
-        for offset, payload in frames[1:-1]:
+        for _offset, payload in frames[1:-1]:
             m = jpb.NetImage.FromString(payload)
             c = m.shapes
             shapes = {sid: (layer, a, b, cc, d) for sid, layer, a, b, cc, d in
@@ -627,7 +638,7 @@ class Journal:
     @classmethod
     def open(cls, directory: Path, engine, *, sync: SyncPolicy | str = SyncPolicy.BATCH,
              interval_ms: float = 50.0, snapshot_every: int = 100_000, version: str = "",
-             keep_before_damage: bool = False) -> "Journal":
+             keep_before_damage: bool = False) -> Journal:
         """``keep_before_damage``: the operator's choice to start from the records before
         damage that is not a torn tail (see "Damage on start") instead of refusing."""
         directory = Path(directory)
@@ -756,11 +767,9 @@ class Journal:
         their callers were told were refused."""
         error = self._failed
         if self.sync is SyncPolicy.ALWAYS:
-            with self._write_lock:
-                try:
-                    os.ftruncate(self._fd, _HEADER.size + self._synced - self._segment_base)
-                except OSError:
-                    pass  # already failed; the records past the cut stay unacknowledged
+            # already failed; the records past the cut stay unacknowledged
+            with self._write_lock, contextlib.suppress(OSError):
+                os.ftruncate(self._fd, _HEADER.size + self._synced - self._segment_base)
         log.error("journal fsync failed; changes are refused from now on", extra={"fields": {
             "error": str(error)}})
         raise ChangeLogError(f"the journal cannot be synced ({error}); this change is refused "
@@ -769,10 +778,8 @@ class Journal:
     def _flusher(self) -> None:
         while not self._stop.wait(self.interval_s):
             if self._synced < self._written and self._failed is None:
-                try:
+                with contextlib.suppress(ChangeLogError):  # logged by _fsync_failed
                     self._sync_to(self._written)
-                except ChangeLogError:
-                    pass  # logged by _fsync_failed
 
     # -- snapshots --------------------------------------------------------------------
 

@@ -1,6 +1,6 @@
 """A technology LEF as a rule deck, and any deck as the contract's TOML text.
 
-The mapping is the contract's table (antenna-model.md, "The same model from the open
+The mapping is the contract's table (the antenna model, "The same model from the open
 LEF/DEF standard"), per layer and per ANTENNAMODEL oxide class:
 
 * ANTENNA[SIDE]AREARATIO -> partial_max; ANTENNADIFF[SIDE]AREARATIO (a number v is the

@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TextIO
 
 from ._def import DefReader
 from ._def_bind import DesignBinder, bound_nets
@@ -60,7 +61,7 @@ def lef_deck_text(lef_paths: Sequence[str | Path], deck: Deck | None = None, not
     return deck_toml(deck, header=f"Rule deck converted from {names} by etchguard.")
 
 
-def print_notes(notes: Notes, stream) -> None:  # type: ignore[no-untyped-def]
+def print_notes(notes: Notes, stream: TextIO) -> None:
     """Warnings on stderr: one line per kind with where it first happened and how often."""
     if not notes.total:
         return

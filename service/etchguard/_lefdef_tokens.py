@@ -192,9 +192,6 @@ class TokenStream:
         except ValueError:
             raise self.error(keyword, f"expected an integer, got {word!r}") from None
 
-    def end_statement(self, keyword: str) -> None:
-        self.expect(";", keyword)
-
     def statement(self, keyword: str) -> tuple[list[str], list[tuple[int, int]]]:
         """Every word up to the next ``;`` (not included), and (word index, line) marks
         of where each line of the statement starts, for error messages."""

@@ -6,16 +6,16 @@ Layers are resolved to process-step indices of the loaded deck.
 
 from __future__ import annotations
 
-import json
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ._errors import InputError
-from ._names import check_name, shown
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect, square
+from ._names import check_name, shown
+from ._netfile import NetFileReader
 from ._rules import DEFAULT_OXIDE, Deck
 
 
@@ -67,11 +67,11 @@ def _area(value: object, field_name: str) -> float:
     return value
 
 
-def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]],
+def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
              cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
-    check_name(name, "a pin", f"{field_name}.name")
+    pin_name = check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
     if not rects:
         raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
@@ -88,40 +88,71 @@ def make_pin(deck: Deck, name: str, layer: str, rects: Sequence[Sequence[object]
             gates[oxide] = _area(value, f"{field_name}.gate_area.{oxide}")
     else:
         gates = {DEFAULT_OXIDE: _area(gate_area, f"{field_name}.gate_area")}
+    _check_oxides(deck, gates, f"{field_name}.gate_area")
     gates = {k: v for k, v in gates.items() if v > 0}
     cells: dict[int, float] = {}
     for layer_name, value in (cell_area or {}).items():
         cell_step = resolve_layer(deck, layer_name, f"{field_name}.cell_area")
         cells[cell_step] = _area(value, f"{field_name}.cell_area.{layer_name}")
-    return Pin(name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+
+
+def _check_oxides(deck: Deck, gates: Mapping[str, float], field_name: str) -> None:
+    """A gate of an oxide class no rule names would never be checked: a net far over its
+    limits would read legal. Refused, naming the class. (A class the deck has rules for,
+    only not on every layer, is fine: the deck states where it is limited.) A deck without
+    any rule checks nothing, so it names no classes to hold a gate to."""
+    known = deck.oxides
+    for oxide, value in gates.items():
+        if known and value > 0 and oxide not in known:
+            raise InputError(f"oxide class {shown(oxide)} has no rule in deck {deck.name} "
+                             f"(its classes: {', '.join(known)})", f"{field_name}.{oxide}")
 
 
 def make_shape(deck: Deck, layer: object, rect: Sequence[object], field_name: str = "shape") -> Shape:
     return Shape(resolve_layer(deck, layer, f"{field_name}.layer"), checked_rect(rect, f"{field_name}.rect"))
 
 
-def _net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
+_NET_KEYS = {"name", "pins", "shapes", "layer_range"}
+_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area"}
+_SHAPE_KEYS = {"layer", "rect"}
+
+
+def _json_object(raw: object, what: str, allowed: set[str], where: str) -> dict[str, Any]:
+    """``raw`` as a JSON object with only ``allowed`` keys; a refusal names the first other."""
     if not isinstance(raw, dict):
-        raise InputError("a net must be a JSON object", where)
-    unknown = set(raw) - {"name", "pins", "shapes", "layer_range"}
+        raise InputError(f"{what} must be a JSON object, got {shown(raw)}", where)
+    unknown = sorted(set(raw) - allowed)
     if unknown:
-        raise InputError(f"unknown key {sorted(unknown)[0]!r}", where)
+        raise InputError(f"unknown key {shown(unknown[0])} (allowed: {', '.join(sorted(allowed))})",
+                         f"{where}.{unknown[0]}")
+    return raw
+
+
+def _json_list(raw: dict[str, Any], key: str, where: str) -> list[Any]:
+    value = raw.get(key, [])
+    if not isinstance(value, list):
+        raise InputError(f"must be a list, got {shown(value)}", f"{where}.{key}")
+    return value
+
+
+def net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
+    """Validate one net object of a net file; ``where`` names it (``file: nets[3]``)."""
+    raw = _json_object(raw, "a net", _NET_KEYS, where)
     name = check_name(raw.get("name"), "a net", f"{where}.name")
     pins = []
-    for i, p in enumerate(raw.get("pins", [])):
+    for i, p in enumerate(_json_list(raw, "pins", where)):
         pf = f"{where}.pins[{i}]"
-        if not isinstance(p, dict):
-            raise InputError("a pin must be a JSON object", pf)
-        unknown = set(p) - {"name", "layer", "rects", "gate_area", "diff_area", "cell_area"}
-        if unknown:
-            raise InputError(f"unknown key {sorted(unknown)[0]!r}", pf)
-        pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), p.get("rects", []),
+        p = _json_object(p, "a pin", _PIN_KEYS, pf)
+        if not isinstance(p.get("cell_area", {}), dict):
+            raise InputError(f"must be an object of um^2 per layer, got {shown(p['cell_area'])}",
+                             f"{pf}.cell_area")
+        pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), _json_list(p, "rects", pf),
                              p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf))
     shapes = []
-    for i, s in enumerate(raw.get("shapes", [])):
+    for i, s in enumerate(_json_list(raw, "shapes", where)):
         sf = f"{where}.shapes[{i}]"
-        if not isinstance(s, dict) or set(s) - {"layer", "rect"}:
-            raise InputError("a shape is an object with 'layer' and 'rect'", sf)
+        s = _json_object(s, "a shape", _SHAPE_KEYS, sf)
         shapes.append(make_shape(deck, s.get("layer"), s.get("rect", []), sf))
     layer_range = None
     if "layer_range" in raw:
@@ -141,27 +172,44 @@ def checked_layer_range(deck: Deck, low: object, high: object, field_name: str) 
 
 
 def parse_net_file(deck: Deck, data: Any, source: str = "<nets>") -> list[NetSpec]:
-    """Validate the JSON net file of the contract: {"nets": [...]}."""
+    """Validate an already decoded net file: {"nets": [...]}."""
     if not isinstance(data, dict) or not isinstance(data.get("nets"), list):
         raise InputError('a net file is a JSON object {"nets": [...]}', source)
-    nets = [_net_from_json(deck, raw, f"{source}: nets[{i}]") for i, raw in enumerate(data["nets"])]
+    unknown = sorted(set(data) - {"nets"})
+    if unknown:
+        raise InputError(f"unknown key {shown(unknown[0])} (a net file has only 'nets')",
+                         f"{source}: {unknown[0]}")
+    nets = [net_from_json(deck, raw, f"{source}: nets[{i}]") for i, raw in enumerate(data["nets"])]
     seen: set[str] = set()
     for i, net in enumerate(nets):
         if net.name in seen:
-            raise InputError(f"net {net.name!r} appears twice", f"{source}: nets[{i}].name")
+            raise InputError(f"net {shown(net.name)} appears twice", f"{source}: nets[{i}].name")
         seen.add(net.name)
     return nets
 
 
+def iter_net_file(deck: Deck, path: str | Path) -> Iterator[NetSpec]:
+    """The nets of a net file one at a time, each validated as it is read; a refusal
+    names the file, the line and the field (``nets[3].shapes[0].rect``)."""
+    reader = NetFileReader(path)
+    seen: set[str] = set()
+    for index, raw, offset in reader.nets():
+        where = f"{reader.source}: nets[{index}]"
+        try:
+            spec = net_from_json(deck, raw, where)
+        except InputError as exc:
+            path_in_net = (exc.field or "")[len(where):]
+            raise exc.at_line(reader.line_of_field(offset, path_in_net)) from None
+        if spec.name in seen:
+            raise InputError(f"net {shown(spec.name)} appears twice", f"{where}.name",
+                             reader.line_of_field(offset, ".name"))
+        seen.add(spec.name)
+        yield spec
+
+
 def load_net_file(deck: Deck, path: str | Path) -> list[NetSpec]:
-    path = Path(path)
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise InputError(f"cannot read the net file: {exc.strerror}", str(path)) from exc
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not valid JSON: {exc}", str(path)) from exc
-    return parse_net_file(deck, data, str(path))
+    """Every net of a net file, validated (see ``iter_net_file``)."""
+    return list(iter_net_file(deck, path))
 
 
 def run_shapes(deck: Deck, layer: int, x1: int, y1: int, x2: int, y2: int,
@@ -189,9 +237,9 @@ def via_shapes(deck: Deck, cut_layer: int, x: int, y: int) -> list[Shape]:
 
 def _fast_rect_ok(r: object) -> bool:
     return (type(r) is tuple and len(r) == 4 and all(type(v) is int for v in r)
-            and r[0] < r[2] and r[1] < r[3]  # type: ignore[index]
-            and -COORD_LIMIT < r[0] and r[2] < COORD_LIMIT  # type: ignore[index]
-            and -COORD_LIMIT < r[1] and r[3] < COORD_LIMIT)  # type: ignore[index]
+            and r[0] < r[2] and r[1] < r[3]
+            and r[0] > -COORD_LIMIT and r[2] < COORD_LIMIT
+            and r[1] > -COORD_LIMIT and r[3] < COORD_LIMIT)
 
 
 def check_shape_object(steps: int, shape: object, field_name: str) -> None:

@@ -7,7 +7,7 @@ pin sums and member lists), per-gate cumulative sums, a per-layer lookup of the
 net's rectangles and the what-if. Everything is read under the net's lock; a view
 is not kept past the call it was made for.
 
-Definitions are the contract's (``antenna-model.md``); an element is a pin rectangle
+Definitions are the contract's (the project's antenna model); an element is a pin rectangle
 or a held shape, named by an opaque integer that only ``touching`` hands out and
 only ``reaches_gate`` takes back.
 """

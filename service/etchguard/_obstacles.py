@@ -34,7 +34,7 @@ and a bulk rebuild drops them.
 from __future__ import annotations
 
 import threading
-from collections.abc import Hashable, Iterable, Sequence
+from collections.abc import Hashable, Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
 from rtree import index as rtree_index
@@ -103,7 +103,7 @@ def pin_items(pins: Sequence[Pin]) -> list[tuple[int, Rect, OwnerKey]]:
     return [(pin.layer, r, pin_key(p, k)) for p, pin in enumerate(pins) for k, r in enumerate(pin.rects)]
 
 
-def net_items(name: str, pins: Sequence[Pin], shapes: dict[int, tuple[int, ...]]
+def net_items(name: str, pins: Sequence[Pin], shapes: Mapping[int, tuple[int, int, int, int, int]]
               ) -> list[tuple[int, Rect, str | None, OwnerKey]]:
     """Everything of one net for a rebuild: pins and committed shapes (id -> (layer, *rect))."""
     out: list[tuple[int, Rect, str | None, OwnerKey]] = [(l, r, name, k) for l, r, k in pin_items(pins)]

@@ -39,8 +39,8 @@ def descriptor_set(root: Path = PROTO_ROOT) -> bytes:
 
 
 def _protoc(root: Path, outputs: list[str]) -> None:
-    from grpc_tools import protoc  # imported here: a test/dev dependency only
     import grpc_tools
+    from grpc_tools import protoc  # imported here: a test/dev dependency only
 
     include = Path(grpc_tools.__file__).resolve().parent / "_proto"
     files = [str(p.relative_to(root)) for p in proto_files(root)]

@@ -1,6 +1,6 @@
 """The verdict of the antenna ratio model: when a utilization is legal.
 
-The model itself (antenna-model.md: components per process step, PAR = A_eff / G_eff,
+The model itself (the antenna model: components per process step, PAR = A_eff / G_eff,
 CAR_s = PAR_s + CAR_p along the feeding chain, diode tables and reduction, oxide
 classes) is computed by the compiled core (core/src/model.cpp states the formulas,
 core/src/whatif.cpp and assess.cpp the evaluation); this module keeps the one figure

@@ -152,7 +152,7 @@ def summarize(records: Sequence[NetRecord], deck_name: str) -> Summary:
         checks=sum(len(r.checks) for r in reports),
         violating_checks=sum(not c.legal for r in reports for c in r.checks),
         worst_utilization=worst.worst_utilization if worst is not None else 0.0,
-        worst_net=worst.name if has_checks else "",
+        worst_net=worst.name if has_checks and worst is not None else "",
     )
 
 
@@ -418,8 +418,7 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
             ax.set_ylim(*ylim)
             ax.set_aspect("equal", adjustable="box")
             ax.tick_params(labelsize=6)
-            ax.xaxis.get_major_locator().set_params(nbins=4)
-            ax.yaxis.get_major_locator().set_params(nbins=4)
+            ax.locator_params(axis="both", nbins=4)
             if k // cols == rows - 1 or k + cols >= len(panels):
                 ax.set_xlabel("x (µm)", fontsize=6)
             if k % cols == 0:
@@ -586,8 +585,14 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     if not violating:
         add('<p class="note">Every net is within its limits.</p>')
     finder = OffenderFinder(deck) if deck is not None else None
-    drawn = 0
-    for k, record in enumerate(wrap(violating, len(violating), "drawing")):
+    # The drawings first, under the bar: its total is what is drawn, not every violating net.
+    drawable = [k for k, record in enumerate(violating) if finder is not None and record.spec is not None]
+    drawings: dict[int, str] = {}
+    for k in wrap(drawable[:max(0, max_drawings)], min(len(drawable), max(0, max_drawings)), "drawing"):
+        spec = violating[k].spec
+        assert finder is not None and spec is not None
+        drawings[k] = net_drawing_svg(finder.deck, spec, finder.find(spec), f"n{k}")
+    for k, record in enumerate(violating):
         r = record.report
         add(f'<div class="netbox" id="{_anchor(r.name)}"><h3>{_e(r.name)} · worst '
             f'<span class="over">{_pct(r.worst_utilization)}</span></h3>')
@@ -599,12 +604,10 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
         add("</tbody></table>")
         if finder is None or record.spec is None:
             add('<p class="note">No geometry for this net: not drawn.</p>')
-        elif drawn >= max_drawings:
+        elif k not in drawings:
             add(f'<p class="note">Not drawn: the page draws at most {max_drawings} nets.</p>')
         else:
-            offenders = finder.find(record.spec)
-            add(f'<div class="fig">{net_drawing_svg(finder.deck, record.spec, offenders, f"n{k}")}</div>')
-            drawn += 1
+            add(f'<div class="fig">{drawings[k]}</div>')
         add("</div>")
     add("</section>\n</main>\n")
     add(f'<footer id="caution"><b>Caution.</b> {_e(CAUTION)}</footer>\n</body>\n</html>\n')

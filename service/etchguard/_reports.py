@@ -2,7 +2,19 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+
+
+def json_number(value: float) -> float | str:
+    """A float as JSON can hold it: finite numbers as they are, the others as the strings
+    the protobuf JSON mapping uses ("Infinity", "-Infinity", "NaN"); JSON has no literal
+    for them (a gate area of 5e-324 makes a ratio overflow to infinity)."""
+    if math.isfinite(value):
+        return value
+    if math.isnan(value):
+        return "NaN"
+    return "Infinity" if value > 0 else "-Infinity"
 
 
 @dataclass(frozen=True)
@@ -29,14 +41,15 @@ class NetReport:
     checks: tuple[CheckResult, ...]
 
     def as_dict(self) -> dict[str, object]:
+        """The report as JSON values, with the field names of the API's ``NetReport``."""
         return {
-            "name": self.name,
+            "net": self.name,
             "legal": self.legal,
-            "worst_utilization": self.worst_utilization,
+            "worst_utilization": json_number(self.worst_utilization),
             "checks": [
-                {"layer": c.layer, "measure": c.measure, "kind": c.kind, "oxide": c.oxide,
-                 "ratio": c.ratio, "limit": c.limit, "utilization": c.utilization,
-                 "legal": c.legal}
+                {"layer": c.layer, "step": c.step, "measure": c.measure, "kind": c.kind,
+                 "oxide": c.oxide, "ratio": json_number(c.ratio), "limit": json_number(c.limit),
+                 "utilization": json_number(c.utilization), "legal": c.legal, "gate": c.gate}
                 for c in self.checks
             ],
         }

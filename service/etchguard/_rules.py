@@ -13,13 +13,17 @@ The deck also answers which step feeds a step's cumulative ratio
 from __future__ import annotations
 
 import math
+import re
 import tomllib
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, NoReturn
 
 from ._errors import DeckError
 from ._names import MAX_NAME_BYTES, byte_length, shown
+from ._textfile import read_text
 
 ROUTING = "routing"
 CUT = "cut"
@@ -98,19 +102,6 @@ class Rule:
     def has_cumulative(self) -> bool:
         return self.cumulative_max is not None or bool(self.diode_cumulative_max)
 
-    def _limit(self, plain: float | None, table: Table, diff_um2: float) -> float:
-        if diff_um2 > 0 and table:
-            return table_value(table, diff_um2)
-        if plain is not None:
-            return plain
-        return table_value(table, diff_um2)
-
-    def partial_limit(self, diff_um2: float) -> float:
-        return self._limit(self.partial_max, self.diode_partial_max, diff_um2)
-
-    def cumulative_limit(self, diff_um2: float) -> float:
-        return self._limit(self.cumulative_max, self.diode_cumulative_max, diff_um2)
-
     def area_reduction(self, diff_um2: float) -> float:
         """r(D): the reduction table at D (read at every D, 0 included), 1 without one."""
         if not self.diode_area_reduction:
@@ -151,16 +142,6 @@ class Deck:
     def oxides(self) -> tuple[str, ...]:
         return tuple(sorted({r.oxide for r in self.rules}))
 
-    @property
-    def measures(self) -> tuple[str, ...]:
-        return tuple(m for m in MEASURES if any(r.measure == m for r in self.rules))
-
-    def same_kind(self, a: int, b: int) -> bool:
-        """Whether steps a and b add into one cumulative ratio under the old lane reading
-        (routing with routing, cut with cut, all together with cumulative_includes_cuts).
-        Kept for code that still sums by lane; the contract's chain is ``feeding_step``."""
-        return self.cumulative_includes_cuts or self.layers[a].kind == self.layers[b].kind
-
     def plus_cut(self, step: int) -> bool:
         """Whether the step directly below feeds ``step``'s area sum, whatever its kind."""
         return self.cumulative_includes_cuts or self.layers[step].cumulative_plus_cut
@@ -187,9 +168,6 @@ class Deck:
     def layer(self, name: str) -> Layer:
         return self.layers[self.layer_index[name]]
 
-    def dbu2_to_um2(self, value: float) -> float:
-        return value / (self.dbu_per_micron * self.dbu_per_micron)
-
 
 class _Reader:
     """Typed field access that names file, entry and field on every refusal."""
@@ -203,7 +181,7 @@ class _Reader:
             if key not in allowed:
                 self.fail(key, f"unknown key (allowed: {', '.join(sorted(allowed))})")
 
-    def fail(self, key: str | None, message: str) -> None:
+    def fail(self, key: str | None, message: str) -> NoReturn:
         where = self.entry if key is None else f"{self.entry}.{key}"
         raise DeckError(message, f"{self.source}: {where}")
 
@@ -214,7 +192,7 @@ class _Reader:
         if key not in self.table:
             if default is None:
                 self.fail(key, "is required")
-            return default  # type: ignore[return-value]
+            return default
         value = self.table[key]
         if not isinstance(value, str) or not value:
             self.fail(key, f"must be a non-empty string, got {shown(value)}")
@@ -262,7 +240,7 @@ class _Reader:
         raw = self.table[key]
         if not isinstance(raw, list) or not raw:
             self.fail(key, f"must be a non-empty list of [diffusion um^2, {value_name}] points")
-        points = []
+        points: list[tuple[float, float]] = []
         for i, point in enumerate(raw):
             if (not isinstance(point, list) or len(point) != 2
                     or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
@@ -281,43 +259,83 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
     top = _Reader(source, "deck", data, {"process", "layers", "rules"})
     if not top.has("process"):
         top.fail("process", "is required")
-    process = _Reader(source, "process", data["process"], _PROCESS_KEYS)
+    errors: list[DeckError] = []
+    name, dbu, includes_cuts = "", 0, False
+    with _collected(errors):
+        name, dbu, includes_cuts = _process(source, data["process"])
+    raw_layers = data.get("layers")
+    if not isinstance(raw_layers, list) or not raw_layers:
+        with _collected(errors):
+            top.fail("layers", "must list at least one layer, bottom-up")
+        raise DeckErrors(errors)
+    layers: list[Layer] = []
+    seen: set[str] = set()
+    for i, raw in enumerate(raw_layers):
+        with _collected(errors):
+            layers.append(_layer(source, i, raw, seen))
+    if errors:  # the layers' order and the rules need every layer
+        raise DeckErrors(errors)
+    _check_layer_order(source, layers)
+    raw_rules = data.get("rules", [])
+    if not isinstance(raw_rules, list):
+        top.fail("rules", "must be an array of tables ([[rules]])")
+    index = {l.name: l.index for l in layers}
+    rules: list[Rule] = []
+    keys: set[tuple[int, str, str]] = set()
+    for i, raw in enumerate(raw_rules):
+        with _collected(errors):
+            rules.append(_rule(source, i, raw, layers, index, keys))
+    if errors:
+        raise DeckErrors(errors)
+    return Deck(name, dbu, includes_cuts, tuple(layers), tuple(rules), source)
+
+
+def _process(source: str, raw: Any) -> tuple[str, int, bool]:
+    process = _Reader(source, "process", raw, _PROCESS_KEYS)
     name = process.name("name")
     dbu = process.integer("dbu_per_micron", positive=True)
     if dbu is None:
         process.fail("dbu_per_micron", "is required")
-    includes_cuts = process.flag("cumulative_includes_cuts")
+    return name, dbu, process.flag("cumulative_includes_cuts")
 
-    raw_layers = data.get("layers")
-    if not isinstance(raw_layers, list) or not raw_layers:
-        top.fail("layers", "must list at least one layer, bottom-up")
-    layers: list[Layer] = []
-    seen: set[str] = set()
-    for i, raw in enumerate(raw_layers):
-        entry = f"layers[{i}]"
-        r = _Reader(source, entry, raw, _LAYER_KEYS)
-        layer_name = r.name("name")
-        if layer_name in seen:
-            r.fail("name", f"layer {layer_name!r} is listed twice")
-        seen.add(layer_name)
-        kind = r.text("kind", choices=(ROUTING, CUT))
-        wrong = (_CUT_ONLY if kind == ROUTING else _ROUTING_ONLY) & set(raw)
-        if wrong:
-            r.fail(sorted(wrong)[0], f"does not apply to a {kind} layer")
-        plus_cut = r.flag("cumulative_plus_cut")
-        if kind == ROUTING:
-            layers.append(Layer(
-                layer_name, i, kind,
-                direction=r.text("direction", choices=("horizontal", "vertical")),
-                thickness_um=r.number("thickness_um", positive=True),
-                wire_width=r.integer("wire_width", positive=True),
-                spacing=r.integer("spacing"),
-                cumulative_plus_cut=plus_cut))
-        else:
-            layers.append(Layer(layer_name, i, kind,
-                                cut_size=r.integer("cut_size", positive=True),
-                                enclosure=r.integer("enclosure", default=0),
-                                cumulative_plus_cut=plus_cut))
+
+@contextmanager
+def _collected(errors: list[DeckError]) -> Iterator[None]:
+    """Note an entry's refusal and go on to the next entry, so that one reading of a deck
+    shows every entry's first fault."""
+    try:
+        yield
+    except DeckError as exc:
+        errors.append(exc)
+
+
+def _layer(source: str, i: int, raw: Any, seen: set[str]) -> Layer:
+    entry = f"layers[{i}]"
+    r = _Reader(source, entry, raw, _LAYER_KEYS)
+    layer_name = r.name("name")
+    if layer_name in seen:
+        r.fail("name", f"layer {layer_name!r} is listed twice")
+    seen.add(layer_name)
+    kind = r.text("kind", choices=(ROUTING, CUT))
+    wrong = (_CUT_ONLY if kind == ROUTING else _ROUTING_ONLY) & set(raw)
+    if wrong:
+        r.fail(sorted(wrong)[0], f"does not apply to a {kind} layer")
+    plus_cut = r.flag("cumulative_plus_cut")
+    if kind == ROUTING:
+        return Layer(
+            layer_name, i, kind,
+            direction=r.text("direction", choices=("horizontal", "vertical")),
+            thickness_um=r.number("thickness_um", positive=True),
+            wire_width=r.integer("wire_width", positive=True),
+            spacing=r.integer("spacing"),
+            cumulative_plus_cut=plus_cut)
+    return Layer(layer_name, i, kind,
+                 cut_size=r.integer("cut_size", positive=True),
+                 enclosure=r.integer("enclosure", default=0),
+                 cumulative_plus_cut=plus_cut)
+
+
+def _check_layer_order(source: str, layers: list[Layer]) -> None:
     for layer in layers:
         if layer.kind == CUT:
             below = layers[layer.index - 1] if layer.index > 0 else None
@@ -332,61 +350,122 @@ def parse_deck(data: dict[str, Any], source: str = "<deck>") -> Deck:
             raise DeckError("routing layers are interleaved with cut layers (M1, V1, M2, ...); "
                             f"{below.name} and {above.name} have no cut layer between them",
                             f"{source}: layers[{above.index}] ({above.name})")
-    raw_rules = data.get("rules", [])
-    if not isinstance(raw_rules, list):
-        top.fail("rules", "must be an array of tables ([[rules]])")
-    index = {l.name: l.index for l in layers}
-    rules: list[Rule] = []
-    keys: set[tuple[int, str, str]] = set()
-    for i, raw in enumerate(raw_rules):
-        entry = f"rules[{i}]"
-        r = _Reader(source, entry, raw, _RULE_KEYS)
-        layer_name = r.text("layer")
-        if layer_name not in index:
-            r.fail("layer", f"unknown layer {shown(layer_name)} (deck has {', '.join(index)})")
-        step = index[layer_name]
-        measure = r.text("measure", default="area", choices=MEASURES)
-        if measure == "side":
-            if layers[step].kind == CUT:
-                r.fail("measure", f"a side-wall rule needs a routing layer; {layer_name} is a cut layer")
-            if layers[step].thickness_um is None:
-                r.fail("measure", f"a side-wall rule needs thickness_um on layer {layer_name}")
-        oxide = r.name("oxide", default=DEFAULT_OXIDE)
-        if (step, measure, oxide) in keys:
-            r.fail("layer", f"a second {measure} rule for {layer_name}, oxide {oxide}")
-        keys.add((step, measure, oxide))
-        rule = Rule(
-            layer=layer_name, step=step, oxide=oxide, measure=measure,
-            partial_max=r.number("partial_max", positive=True),
-            cumulative_max=r.number("cumulative_max", positive=True),
-            area_factor=r.number("area_factor", default=1.0, positive=True),  # type: ignore[arg-type]
-            factor_with_diode_only=r.flag("factor_with_diode_only"),
-            diode_partial_max=r.table_points("diode_partial_max"),
-            diode_cumulative_max=r.table_points("diode_cumulative_max"),
-            diode_gate_factor=r.number("diode_gate_factor", default=0.0),  # type: ignore[arg-type]
-            diode_area_credit=r.number("diode_area_credit", default=0.0),  # type: ignore[arg-type]
-            diode_area_reduction=r.table_points("diode_area_reduction", "reduction factor"),
-        )
-        if not rule.has_partial and not rule.has_cumulative:
-            r.fail("partial_max", "a rule needs a partial or a cumulative limit")
-        rules.append(rule)
-    return Deck(name, dbu, includes_cuts, tuple(layers), tuple(rules), source)  # type: ignore[arg-type]
+
+
+def _rule(source: str, i: int, raw: Any, layers: list[Layer], index: dict[str, int],
+      keys: set[tuple[int, str, str]]) -> Rule:
+    entry = f"rules[{i}]"
+    r = _Reader(source, entry, raw, _RULE_KEYS)
+    layer_name = r.text("layer")
+    if layer_name not in index:
+        r.fail("layer", f"unknown layer {shown(layer_name)} (deck has {', '.join(index)})")
+    step = index[layer_name]
+    measure = r.text("measure", default="area", choices=MEASURES)
+    if measure == "side":
+        if layers[step].kind == CUT:
+            r.fail("measure", f"a side-wall rule needs a routing layer; {layer_name} is a cut layer")
+        if layers[step].thickness_um is None:
+            r.fail("measure", f"a side-wall rule needs thickness_um on layer {layer_name}")
+    oxide = r.name("oxide", default=DEFAULT_OXIDE)
+    if (step, measure, oxide) in keys:
+        r.fail("layer", f"a second {measure} rule for {layer_name}, oxide {oxide}")
+    keys.add((step, measure, oxide))
+    rule = Rule(
+        layer=layer_name, step=step, oxide=oxide, measure=measure,
+        partial_max=r.number("partial_max", positive=True),
+        cumulative_max=r.number("cumulative_max", positive=True),
+        area_factor=r.number("area_factor", default=1.0, positive=True),  # type: ignore[arg-type]
+        factor_with_diode_only=r.flag("factor_with_diode_only"),
+        diode_partial_max=r.table_points("diode_partial_max"),
+        diode_cumulative_max=r.table_points("diode_cumulative_max"),
+        diode_gate_factor=r.number("diode_gate_factor", default=0.0),  # type: ignore[arg-type]
+        diode_area_credit=r.number("diode_area_credit", default=0.0),  # type: ignore[arg-type]
+        diode_area_reduction=r.table_points("diode_area_reduction", "reduction factor"),
+    )
+    if not rule.has_partial and not rule.has_cumulative:
+        r.fail("partial_max", "a rule needs a partial or a cumulative limit")
+    return rule
+
+
+class DeckErrors(DeckError):
+    """Several entries of a deck refused at once; ``errors`` holds each (the first one's
+    field is the error's field, so a caller that wants one field gets the first)."""
+
+    def __init__(self, errors: list[DeckError]) -> None:
+        first = errors[0]
+        if len(errors) == 1:
+            message = first.message
+        else:
+            message = f"{first.message}\n" + "\n".join(f"  and {e}" for e in errors[1:])
+        super().__init__(message, first.field, first.line)
+        self.errors = errors
+
+    def at_line(self, line: int | None) -> DeckError:
+        return DeckErrors(self.errors)
 
 
 def load_deck(path: str | Path) -> Deck:
-    """Read and validate a rule deck file."""
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise DeckError(f"cannot read the rule deck: {exc.strerror}", str(path)) from exc
-    return loads_deck(text, str(path))
+    """Read and validate a rule deck file (UTF-8, a byte-order mark allowed)."""
+    return loads_deck(read_text(path, "the rule deck", DeckError), str(path))
 
 
 def loads_deck(text: str, source: str = "<deck>") -> Deck:
-    """Parse and validate rule-deck TOML text."""
+    """Parse and validate rule-deck TOML text; every refusal names the line it is about
+    where the entry can be found in the text."""
     try:
-        data = tomllib.loads(text)
+        data = tomllib.loads(text.removeprefix("\ufeff"))
     except tomllib.TOMLDecodeError as exc:
-        raise DeckError(f"not valid TOML: {exc}", source) from exc
-    return parse_deck(data, source)
+        found = re.search(r"\(at line (\d+), column (\d+)\)", str(exc))
+        line = int(found.group(1)) if found else None
+        raise DeckError(f"not valid TOML: {str(exc).split(' (at line')[0]}", source, line) from None
+    try:
+        return parse_deck(data, source)
+    except DeckErrors as exc:
+        raise DeckErrors([_placed(e, text, source) for e in exc.errors]) from None
+    except DeckError as exc:
+        raise _placed(exc, text, source) from None
+
+
+def _placed(error: DeckError, text: str, source: str) -> DeckError:
+    prefix = f"{source}: "
+    if error.line is not None or not (error.field or "").startswith(prefix):
+        return error
+    placed = error.at_line(entry_line(text, (error.field or "")[len(prefix):]))
+    assert isinstance(placed, DeckError)
+    return placed
+
+
+_HEADER = re.compile(r"\s*\[\[?\s*([A-Za-z0-9_-]+)\s*\]\]?")
+_ENTRY = re.compile(r"([a-z]+)(?:\[(\d+)\])?(?:\s*\([^)]*\))?(?:\.([A-Za-z0-9_-]+))?")
+
+
+def entry_line(text: str, where: str) -> int | None:
+    """The line of ``where`` (``rules[3].partial_max``, ``process``, ``deck.extras``) in
+    deck text written with table headers (``[process]``, ``[[rules]]``): the key's line
+    inside its table, else the table's header; None when neither is found."""
+    match = _ENTRY.match(where)
+    if match is None:
+        return None
+    table, index, key = match.group(1), int(match.group(2) or 0), match.group(3)
+    lines = text.splitlines()
+    if table == "deck":  # a top-level key: a table of that name, or a key before any table
+        table, key = key or "", None
+    header_at, count = None, 0
+    for number, line in enumerate(lines, 1):
+        header = _HEADER.match(line)
+        if header and header.group(1) == table:
+            if count == index:
+                header_at = number
+                break
+            count += 1
+    if header_at is None:
+        return None
+    if key is None:
+        return header_at
+    key_pattern = re.compile(rf"\s*{re.escape(key)}\s*=")
+    for number in range(header_at + 1, len(lines) + 1):
+        if _HEADER.match(lines[number - 1]):
+            break
+        if key_pattern.match(lines[number - 1]):
+            return number
+    return header_at

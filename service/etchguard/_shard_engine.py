@@ -49,7 +49,7 @@ from ._costs import CostModel
 from ._engine import Engine, Limits
 from ._errors import WrongShardError
 from ._geometry import Rect
-from ._obstacles import Conflict, ObstacleIndex, OwnerKey, LAYER_BITS
+from ._obstacles import LAYER_BITS, Conflict, ObstacleIndex, OwnerKey
 from ._shards import Topology
 
 MAX_CELLS_PER_RECT = 1024

@@ -56,7 +56,7 @@ class ServiceError(Exception):
         self.field = field
 
     @classmethod
-    def from_rpc_error(cls, exc: grpc.RpcError) -> "ServiceError":
+    def from_rpc_error(cls, exc: grpc.RpcError) -> ServiceError:
         code = exc.code() if hasattr(exc, "code") else grpc.StatusCode.UNKNOWN
         message = exc.details() if hasattr(exc, "details") else str(exc)
         field_name = ""
@@ -78,7 +78,7 @@ class ServiceError(Exception):
         return cls(code, message or "", field_name)
 
     @classmethod
-    def from_session(cls, error: pb.SessionError) -> "ServiceError":
+    def from_session(cls, error: pb.SessionError) -> ServiceError:
         return cls(_CODES.get(error.code, grpc.StatusCode.UNKNOWN), error.message, error.field)
 
 
@@ -176,7 +176,8 @@ def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
         names = np.asarray(layers)
         if names.shape != (n,):
             raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
-        table_arr, index = np.unique(names, return_inverse=True)
+        table_arr, inverse = np.unique(names, return_inverse=True)
+        index = inverse.astype(np.uint32)
         table = [str(t) for t in table_arr]
     counts_arr = np.ones(n, dtype=np.uint32) if counts is None else np.asarray(counts, dtype=np.uint32)
     cols = pb.CandidateColumns(layers=table)
@@ -202,7 +203,7 @@ class BatchScores:
     details: list[pb.ScoreReply] = field(default_factory=list)  # when asked for
 
     @classmethod
-    def from_reply(cls, reply: pb.ScoreBatchReply) -> "BatchScores":
+    def from_reply(cls, reply: pb.ScoreBatchReply) -> BatchScores:
         return cls(np.array(reply.cost, dtype=np.float64),
                    np.array(reply.worst_change_utilization, dtype=np.float64),
                    np.array(reply.worst_utilization, dtype=np.float64),
@@ -263,7 +264,7 @@ class Client:
         self.stub = pb_grpc.AntennaServiceStub(self.channel)
         self._deck: pb.DeckInfo | None = None
 
-    def __enter__(self) -> "Client":
+    def __enter__(self) -> Client:
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -365,7 +366,7 @@ class Client:
     def stats(self) -> pb.Stats:
         return self._call(self.stub.GetStats, pb.GetStatsRequest())
 
-    def session(self) -> "Session":
+    def session(self) -> Session:
         return Session(self.stub)
 
 
@@ -437,7 +438,7 @@ class Session:
                 return
             yield item
 
-    def __enter__(self) -> "Session":
+    def __enter__(self) -> Session:
         return self
 
     def __exit__(self, *exc: object) -> None:

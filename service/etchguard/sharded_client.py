@@ -39,8 +39,7 @@ from typing import Any
 import grpc
 
 from ._shards import Topology, load_topology, shard_of
-from .client import (BatchScores, Client, ServiceError, Session, advise_request, candidate_columns,
-                     pb)
+from .client import BatchScores, Client, ServiceError, Session, advise_request, candidate_columns, pb
 from .v1 import shards_pb2 as spb
 from .v1 import shards_pb2_grpc as spb_grpc
 
@@ -84,7 +83,7 @@ class ShardedClient:
             infos.append(client._call(stub.GetTopology, request))
         return infos
 
-    def __enter__(self) -> "ShardedClient":
+    def __enter__(self) -> ShardedClient:
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -161,7 +160,7 @@ class ShardedClient:
     def stats_by_shard(self) -> list[pb.Stats]:
         return [client.stats() for client in self.shards]
 
-    def session(self) -> "ShardedSession":
+    def session(self) -> ShardedSession:
         return ShardedSession(self)
 
 
@@ -186,7 +185,7 @@ class ShardedSession:
         self._farm = farm
         self._streams: dict[int, Session] = {}
 
-    def __enter__(self) -> "ShardedSession":
+    def __enter__(self) -> ShardedSession:
         return self
 
     def __exit__(self, *exc: object) -> None:

@@ -22,23 +22,26 @@ import threading
 from concurrent import futures
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import grpc
 from grpc_health.v1 import health, health_pb2, health_pb2_grpc
 from grpc_reflection.v1alpha import reflection
 
-from .. import CostModel, Engine, EtchguardError, Limits, __version__, load_deck
+# durability and access: the journal, TLS, the token, malformed requests
+from .. import CostModel, DeckError, Engine, EtchguardError, Limits, __version__, load_deck, loads_deck
+from .._changelog import ChangeLogError
+from .._jobs import JOB_NAME, Jobs
+from .._journal import DIR_MODE, Journal, JournalError, SyncPolicy
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
+from . import security
 from .metrics import Metrics, NullMetrics
 from .servicer import AntennaServicer
-# durability and access (issue 5): the journal, TLS, the token, malformed requests
-from .. import DeckError, loads_deck
-from .._changelog import ChangeLogError
-from .._journal import DIR_MODE, Journal, JournalError, SyncPolicy
-from .._jobs import JOB_NAME, Jobs
-from . import security
 from .streams import StreamGate
+
+if TYPE_CHECKING:  # the sharding module is imported only by shard servers
+    from .sharding import ShardRuntime
 
 log = logging.getLogger("etchguard.server")
 
@@ -78,14 +81,14 @@ class ServerConfig:
     connection_idle_s: float = 300.0  # a connection without a call this long is closed
     grace_s: float = 10.0  # how long calls in flight may take to finish on shutdown
     log_level: str = "info"
-    # durability (issue 5): see etchguard._journal for the formats and the loss bounds
+    # durability: see etchguard._journal for the formats and the loss bounds
     state_dir: Path | None = None  # journal + snapshots; None: state is held in memory only
     sync: str = SyncPolicy.BATCH.value  # always | batch | none
     sync_interval_ms: float = 50.0  # batch: the longest an acknowledged change waits for fsync
     snapshot_every: int = 100_000  # journal records between snapshots; 0: only at shutdown
     keep_journal_before_damage: bool = False  # start from the records before damage (see _journal)
     rejudge_held_nets: bool = False  # --rules may replace the recovered deck of held nets
-    # access (issue 5): see server/security.py
+    # access: see server/security.py
     tls_cert: Path | None = None  # PEM certificate chain; with tls_key, TLS on every TCP address
     tls_key: Path | None = None  # PEM private key
     tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates
@@ -150,6 +153,7 @@ def _engine(config: ServerConfig) -> Engine:
 def _journaled_engine(config: ServerConfig) -> tuple[Engine, Journal]:
     """An engine rebuilt from the state folder with the journal attached, then
     ``--rules`` applied (``_deck_at_start``)."""
+    assert config.state_dir is not None  # the caller journals only with --state-dir
     if config.sync not in {p.value for p in SyncPolicy}:
         raise ServeError(f"unknown sync policy {config.sync!r} (always, batch, none)", "sync")
     if not config.sync_interval_ms > 0:
@@ -179,6 +183,7 @@ def _deck_at_start(config: ServerConfig, engine: Engine, held_text: str | None) 
     carried over by layer name). The deck is part of the state: when it differs in
     substance from the recovered one and nets are held, every net would be judged anew
     (other limits, another DBU scale...), so that takes ``--rejudge-held-nets``."""
+    assert config.rules is not None  # applied only when --rules is given
     try:
         text = Path(config.rules).read_text(encoding="utf-8")
     except OSError as exc:
@@ -300,7 +305,7 @@ class EtchguardServer:
         self.journal: Journal | None = None  # set by build_server with a state folder
         self.job_journals: list[Journal] = []  # named jobs' journals (grows as jobs are made)
         self.stream_gate: StreamGate | None = None  # set by build_server
-        self.shard = None  # sharding.ShardRuntime of a shard server (set by build_server)
+        self.shard: ShardRuntime | None = None  # of a shard server (set by build_server)
 
     def start(self) -> None:
         self.grpc_server.start()

@@ -88,7 +88,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--log-level", default=_DEFAULTS.log_level,
                         choices=("debug", "info", "warning", "error"),
                         help="JSON log lines on stderr from this level (default %(default)s)")
-    # durability (issue 5)
+    # durability
     parser.add_argument("--state-dir", type=Path, metavar="DIR",
                         help="keep a journal of every acknowledged change and snapshots in DIR; "
                              "on start the state is rebuilt from them (default: memory only)")
@@ -113,7 +113,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="with --state-dir: let --rules replace the deck the held nets were "
                              "recovered with (every held net is then judged by the new deck; "
                              "logged). Without it a start with another deck is refused")
-    # access (issue 5)
+    # access
     parser.add_argument("--tls-cert", type=Path, metavar="PEM",
                         help="TLS certificate chain; with --tls-key every TCP address is TLS. "
                              "Needed for any address other than loopback or a unix socket")

@@ -17,8 +17,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .. import (EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape,
-                resolve_layer, run_shapes)
+from .. import EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape, resolve_layer, run_shapes
 from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
 from .._names import check_length
 from .._nets import checked_layer_range
@@ -70,7 +69,7 @@ def shape(deck, msg, path: str):
             (expanded,) = run_shapes(deck, step, run.x1, run.y1, run.x2, run.y2,
                                      run.width or None, extension)
         except InputError as exc:
-            raise InputError(exc.message, f"{path}.{_RUN_FIELDS.get(exc.field, 'run')}") from None
+            raise InputError(exc.message, f"{path}.{_RUN_FIELDS.get(exc.field or '', 'run')}") from None
         return make_shape(deck, msg.layer, expanded.rect, f"{path}.run")
     raise InputError("a shape needs a rect or a run", f"{path}.geometry")
 

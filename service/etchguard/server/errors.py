@@ -19,8 +19,7 @@ from google.protobuf import any_pb2
 from google.rpc import error_details_pb2, status_pb2
 from grpc_status import rpc_status
 
-from .. import (AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError,
-                NoDeckError, NotFoundError)
+from .. import AlreadyExistsError, DeckError, EtchguardError, InputError, LimitExceededError, NoDeckError, NotFoundError
 from .._changelog import ChangeLogError
 from .._errors import CancelledError, DeadlineExceededError, PeerUnavailableError, WrongShardError
 
@@ -37,7 +36,7 @@ CODES: dict[type, grpc.StatusCode] = {
     NoDeckError: grpc.StatusCode.FAILED_PRECONDITION,
     LimitExceededError: grpc.StatusCode.RESOURCE_EXHAUSTED,
     AlreadyExistsError: grpc.StatusCode.ALREADY_EXISTS,
-    ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written (issue 5)
+    ChangeLogError: grpc.StatusCode.UNAVAILABLE,  # the journal cannot be written
     WrongShardError: grpc.StatusCode.FAILED_PRECONDITION,  # another shard holds the net
     PeerUnavailableError: grpc.StatusCode.UNAVAILABLE,  # advice needs a shard that is down
     DeadlineExceededError: grpc.StatusCode.DEADLINE_EXCEEDED,  # long work stopped

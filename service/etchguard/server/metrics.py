@@ -68,8 +68,9 @@ class Metrics:
 
     def serve(self, address: str, port: int) -> int:
         """Start the HTTP endpoint; returns the bound port."""
-        self._server, _thread = start_http_server(port, address, registry=self.registry)
-        return self._server.server_address[1]
+        server, _thread = start_http_server(port, address, registry=self.registry)
+        self._server = server
+        return server.server_address[1]
 
     def close(self) -> None:
         if self._server is not None:

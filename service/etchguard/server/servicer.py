@@ -243,7 +243,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
             t0 = perf_counter()
             reply = pb.SessionReply(seq=req.seq)
             op = req.WhichOneof("op")
-            fill = _SESSION_OPS.get(op)  # type: ignore[arg-type]
+            fill = _SESSION_OPS.get(op or "")
             if fill is None:
                 reply.error.code = grpc.StatusCode.INVALID_ARGUMENT.value[0]
                 reply.error.message = "op: a session request needs an operation"

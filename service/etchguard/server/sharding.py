@@ -18,7 +18,6 @@ from __future__ import annotations
 import logging
 import threading
 from collections.abc import Sequence
-from concurrent import futures
 from pathlib import Path
 
 import grpc
@@ -156,8 +155,8 @@ def peer_channel(address: str, token: str | None, tls_roots: bytes | None,
     else:
         channel = grpc.insecure_channel(address, options)
     if token is not None:
-        from ..client import _BearerToken  # the client's interceptor: one way to send a token
-        channel = grpc.intercept_channel(channel, _BearerToken(token))
+        from ..client import _AddHeader  # the client's interceptor: one way to send a token
+        channel = grpc.intercept_channel(channel, _AddHeader("authorization", f"Bearer {token}"))
     return channel
 
 

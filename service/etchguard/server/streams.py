@@ -22,6 +22,7 @@ import logging
 import threading
 import time
 from collections.abc import Iterator
+
 import grpc
 
 log = logging.getLogger("etchguard.server")

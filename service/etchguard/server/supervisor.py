@@ -230,7 +230,7 @@ class Supervisor:
         if not self.config.metrics_port:
             return
         registry = CollectorRegistry()
-        registry.register(self)  # type: ignore[arg-type]
+        registry.register(self)
         self._metrics_server, _ = start_http_server(self.config.metrics_port, self.config.metrics_address,
                                                     registry=registry)
         self.metrics_port = self._metrics_server.server_address[1]
