@@ -97,7 +97,8 @@ const Assessment& Net::State::assess() const {
   a.partial_worst.resize(std::size_t(n));
   a.ranked.resize(std::size_t(n));
   a.best.resize(std::size_t(n));
-  a.feeders.resize(std::size_t(n));
+  a.feeder_start.resize(std::size_t(n));
+  a.feeder_items.resize(std::size_t(n));
   a.step_worst.assign(std::size_t(n), 0.0);
   a.worst_below.assign(std::size_t(n) + 1, 0.0);
   std::vector<Entry> es;
@@ -129,36 +130,40 @@ const Assessment& Net::State::assess() const {
     // Best CAR per component and group, and the feeding step's components under it.
     const std::size_t G = std::size_t(ng);
     auto& best = a.best[std::size_t(s)];
-    auto& feeders = a.feeders[std::size_t(s)];
+    auto& starts = a.feeder_start[std::size_t(s)];
+    auto& items = a.feeder_items[std::size_t(s)];
     best.assign(pool.size() * G, -1.0);
-    feeders.resize(pool.size() * G);
-    for (auto& f : feeders) f.clear();
+    starts.assign(pool.size() * G + 1, 0);
+    items.clear();
+    std::vector<std::pair<double, int>> list;
     for (std::size_t ci = 0; ci < pool.size(); ++ci) {
       const Comp& c = pool[ci];
-      if (!c.alive || c.G <= 0) continue;
-      for (int p : c.gates()) {
-        const int slot = a.slot_of_pin[std::size_t(p)];
-        for (int g = 0; g < ng; ++g) {
+      const bool gated = c.alive && c.G > 0;
+      for (int g = 0; g < ng; ++g) {
+        starts[ci * G + std::size_t(g)] = std::uint32_t(items.size());
+        if (!gated) continue;
+        list.clear();
+        const int f = m.feeding(s, g);
+        for (int p : c.gates()) {
+          const int slot = a.slot_of_pin[std::size_t(p)];
           if (!a.has[std::size_t(slot) * G + std::size_t(g)]) continue;
           const double* row = &a.car[a.row(slot, g)];
           double& b = best[ci * G + std::size_t(g)];
           b = std::max(b, row[s]);
-          const int f = m.feeding(s, g);
           if (f < pins[std::size_t(p)].layer) continue;  // no feeding step, or the pin is not there yet
-          const int y = comp_of[std::size_t(f)][std::size_t(anchor_of_pin[std::size_t(p)])];
-          feeders[ci * G + std::size_t(g)].push_back({row[f], y});
+          list.push_back({row[f], comp_of[std::size_t(f)][std::size_t(anchor_of_pin[std::size_t(p)])]});
         }
-      }
-      for (int g = 0; g < ng; ++g) {  // one entry per feeding component: its largest
-        auto& list = feeders[ci * G + std::size_t(g)];
+        // one entry per feeding component (its largest), largest first
         std::sort(list.begin(), list.end(), [](const auto& x, const auto& y) {
           return x.second != y.second ? x.second < y.second : x.first > y.first;
         });
         list.erase(std::unique(list.begin(), list.end(), [](const auto& x, const auto& y) { return x.second == y.second; }),
                    list.end());
         std::sort(list.begin(), list.end(), [](const auto& x, const auto& y) { return x.first > y.first; });
+        items.insert(items.end(), list.begin(), list.end());
       }
     }
+    starts[pool.size() * G] = std::uint32_t(items.size());
     std::stable_sort(ranked.begin(), ranked.end(),
                      [](const auto& x, const auto& y) { return x.first > y.first; });
     a.step_worst[std::size_t(s)] = ranked.empty() ? 0.0 : ranked[0].first;

@@ -336,6 +336,9 @@ std::size_t Net::memory_bytes() const {
   for (const auto& v : a.ranked) bytes += v.capacity() * 16;
   for (const auto& v : a.comp_worst) bytes += v.capacity() * 8;
   for (const auto& v : a.partial_worst) bytes += v.capacity() * 8;
+  for (const auto& v : a.best) bytes += v.capacity() * 8;
+  for (const auto& v : a.feeder_start) bytes += v.capacity() * 4;
+  for (const auto& v : a.feeder_items) bytes += v.capacity() * 16;
   return bytes;
 }
 

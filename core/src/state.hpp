@@ -133,7 +133,11 @@ struct Assessment {
   // a component's best cumulative ratio from these instead of walking every gate:
   // rounding is monotone, so max_p fl(t + x_p) = fl(t + max_p x_p).
   std::vector<std::vector<double>> best;                                   // [s][X * groups + g]
-  std::vector<std::vector<std::vector<std::pair<double, int>>>> feeders;  // [s][X * groups + g]
+  // feeders of (X, g) at step s: feeder_items[s][feeder_start[s][i] .. feeder_start[s][i + 1]),
+  // i = X * groups + g (one flat list per step: a list per component would cost more
+  // than the figures it holds)
+  std::vector<std::vector<std::uint32_t>> feeder_start;
+  std::vector<std::vector<std::pair<double, int>>> feeder_items;
   std::vector<double> step_worst, worst_below;                 // worst_below[s]: over steps < s
   std::size_t row(int slot, int g) const { return (std::size_t(slot) * std::size_t(groups) + std::size_t(g)) * std::size_t(steps); }
   double worst_untouched(int s, const std::vector<int>& touched) const;

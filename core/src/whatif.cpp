@@ -273,9 +273,12 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
           double below = 0.0;  // a gate not there yet at f adds 0
           const std::vector<int>* touched_f = f >= first ? &sc.touched_at[std::size_t(f)] : nullptr;
           for (int c : group_comps) {
-            for (const auto& vy : a.feeders[std::size_t(s)][std::size_t(c) * G + std::size_t(g)]) {
-              if (touched_f != nullptr && contains(*touched_f, vy.second)) continue;
-              below = std::max(below, vy.first);
+            const std::size_t at = std::size_t(c) * G + std::size_t(g);
+            const auto& starts = a.feeder_start[std::size_t(s)];
+            const auto& items = a.feeder_items[std::size_t(s)];
+            for (std::uint32_t k = starts[at]; k < starts[at + 1]; ++k) {
+              if (touched_f != nullptr && contains(*touched_f, items[k].second)) continue;
+              below = std::max(below, items[k].first);
               break;
             }
           }
