@@ -164,6 +164,17 @@ int Net::State::new_element(const Rect& r, int layer, i64 sid, int pin, bool anc
   return e;
 }
 
+void Net::State::compact() {
+  elems.shrink_to_fit();
+  stamp.shrink_to_fit();
+  part_of.shrink_to_fit();
+  for (auto& a : adj) a.shrink_to_fit();
+  for (auto& v : comp_of) v.shrink_to_fit();
+  for (auto& pool : comps) pool.shrink_to_fit();
+  for (auto& pool : comps)
+    for (Comp& c : pool) c.members.shrink_to_fit();
+}
+
 std::uint32_t Net::State::tick() const {
   if (++clock == 0) {
     std::fill(stamp.begin(), stamp.end(), 0u);

@@ -35,6 +35,7 @@ Status Net::add_many(const i64* ids, const int* layers, const Rect* rects, std::
     st.insert(e, {});
     ++st.shapes;
   }
+  if (n > 1) st.compact();  // a net opened with its shapes: give back what growth left over
   return Status::Ok;
 }
 

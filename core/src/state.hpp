@@ -220,6 +220,7 @@ struct Net::State {
   void entries(int s, const Comp& c, bool partial, const double* const* cars_by_pin,
                const std::uint64_t* gate_oxides, std::vector<Entry>& out) const;
   std::uint32_t tick() const;
+  void compact();  // capacity back to size (after a bulk add)
   // The what-if (whatif.cpp): figures into `out`; changes only with detail.
   void what_if(const Shape* shapes, std::size_t n, const PinSpec* extra, std::size_t n_extra, bool detail,
                Score& out) const;
