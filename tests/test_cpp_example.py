@@ -162,6 +162,18 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     return out
 
 
+def _batch_figures(prefix: str, b) -> dict[str, object]:
+    out: dict[str, object] = {f"{prefix}.size": len(b)}
+    for i in range(len(b)):
+        out[f"{prefix}.{i}.worst_utilization"] = float(b.worst_utilization[i])
+        out[f"{prefix}.{i}.worst_change_utilization"] = float(b.worst_change_utilization[i])
+        out[f"{prefix}.{i}.legal"] = bool(b.legal[i])
+        out[f"{prefix}.{i}.breaks_limit"] = bool(b.breaks_limit[i])
+        out[f"{prefix}.{i}.cost"] = float(b.cost[i])
+        out[f"{prefix}.{i}.added_area_um2"] = float(b.added_area_um2[i])
+    return out
+
+
 def python_figures(c: Client, net: str) -> dict[str, object]:
     """The example's sequence through the Python client, figures under the same keys."""
     deck = c.deck
@@ -187,15 +199,12 @@ def python_figures(c: Client, net: str) -> dict[str, object]:
     rects = np.vstack([singles, pair])
     layers = ["M2"] * len(BATCH_LENGTHS) + ["M2", "M1"]
     counts = [1] * len(BATCH_LENGTHS) + [2]
-    b = c.score_batch(net, rects, layers, counts)
-    f["batch.size"] = len(b)
-    for i in range(len(b)):
-        f[f"batch.{i}.worst_utilization"] = float(b.worst_utilization[i])
-        f[f"batch.{i}.worst_change_utilization"] = float(b.worst_change_utilization[i])
-        f[f"batch.{i}.legal"] = bool(b.legal[i])
-        f[f"batch.{i}.breaks_limit"] = bool(b.breaks_limit[i])
-        f[f"batch.{i}.cost"] = float(b.cost[i])
-        f[f"batch.{i}.added_area_um2"] = float(b.added_area_um2[i])
+    f.update(_batch_figures("batch", c.score_batch(net, rects, layers, counts)))
+    # example.cpp's SharedBatch, sent whole here: the riser part is prepended by hand
+    part = runs_to_rects(4900, 100, 4900, 8100, 140)
+    whole = np.vstack([part, runs_to_rects(5000, 100, 9000, 100, 140), part,
+                       runs_to_rects(4900, 8100, 4900, 20100, 140), runs_to_rects(4900, 100, 4900, 2100, 140)])
+    f.update(_batch_figures("shared", c.score_batch(net, whole, ["M2", "M1", "M2", "M2", "M2"], [2, 2, 1])))
     with pytest.raises(ServiceError) as refused:
         c.score(net, [run("M9", 0, 0, 1000, 0)])
     f["refusal.code"] = refused.value.code.value[0]

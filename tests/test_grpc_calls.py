@@ -101,6 +101,48 @@ def test_score_batch_columnar(client):
                                                      rect("M3", 0, 7860, 5000, 8000)])
 
 
+def test_score_batch_shared_parts(client):
+    """Candidates that start with a shared part sent once get the answers of the same
+    candidates sent whole, columns and details alike; a bad part is refused by field."""
+    name, _ = open_small_net(client)
+    path = runs_to_rects(4900, 100, 4900, 6100, 140)  # an M2 riser from the via
+    lengths = np.arange(1000, 1000 + 40 * 2500, 2500)
+    ends = runs_to_rects(4900, 6100, 4900 + lengths, 6100, 140)  # M3 runs from its end
+    stack = np.array([[4830, 6030, 4970, 6170]])  # a cut on V2 at the riser's end
+    own = np.vstack([stack, ends])
+    layers = ["V2"] + ["M3"] * len(ends)
+    counts = [1] * len(own)
+    part = [-1] + [0] * 20 + [1] * (len(ends) - 20)
+    common = [(path, "M2"), (np.vstack([path, stack]), ["M2", "V2"])]
+    shared = client.score_batch(name, own, layers, counts, common=common, common_part=part)
+    whole_rows, whole_layers, whole_counts = [], [], []
+    for i, k in enumerate(part):
+        rows = [] if k < 0 else list(common[k][0])
+        names = [] if k < 0 else ([common[k][1]] * len(common[k][0]) if isinstance(common[k][1], str)
+                                  else list(common[k][1]))
+        whole_rows += rows + [own[i]]
+        whole_layers += names + [layers[i]]
+        whole_counts.append(len(rows) + 1)
+    whole = client.score_batch(name, np.array(whole_rows), whole_layers, whole_counts)
+    for column in ("cost", "worst_change_utilization", "worst_utilization", "legal", "breaks_limit",
+                   "added_area_um2"):
+        assert np.array_equal(getattr(shared, column), getattr(whole, column)), column
+    assert shared.breaks_limit.any() and not shared.breaks_limit.all()
+    detailed = client.score_batch(name, own[:3], layers[:3], details=True, common=common[:1],
+                                  common_part=[-1, 0, 0])
+    for i in range(3):
+        shapes = ([rect("M2", *map(int, path[0]))] if i else []) + [rect(layers[i], *map(int, own[i]))]
+        assert detailed.details[i] == client.score(name, shapes)
+    with pytest.raises(ServiceError) as err:
+        client.score_batch(name, own[:2], layers[:2], common=common, common_part=[0, 2])
+    assert err.value.code == grpc.StatusCode.INVALID_ARGUMENT
+    assert err.value.field == "candidates.common_part[1]"
+    bad = np.array([[0, 0, 100, 100], [7, 0, 7, 50]])
+    with pytest.raises(ServiceError) as err:
+        client.score_batch(name, own[:2], layers[:2], common=[(bad, "M2")])
+    assert err.value.field == "candidates.common[1].rect"
+
+
 def test_headroom(client):
     name, _ = open_small_net(client)
     h = client.headroom(name, "M1", 100, 100)

@@ -205,6 +205,29 @@ NB_MODULE(_core, m) {
         net.score_batch(shapes.data(), shapes.size(), cs, n, cm, worst_change.data(), worst.data(), legal.data(),
                         breaks.data(), cost.data(), added.data());
       })
+      .def("score_batch_common", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
+                                    const I64Rows& rects, const I64Col& counts,
+                                    const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& common_layers,
+                                    const I64Rows& common_rects, const I64Col& common_counts, const I64Col& part_of,
+                                    std::tuple<double, double, double, double, double> costs,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst_change,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst,
+                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> legal,
+                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> breaks,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> cost,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> added) {
+        std::vector<Shape> shapes = shape_rows(layers, rects);
+        std::vector<Shape> common = shape_rows(common_layers, common_rects);
+        const std::size_t n = counts.shape(0);
+        if (part_of.shape(0) != n || worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n ||
+            breaks.shape(0) != n || cost.shape(0) != n || added.shape(0) != n)
+          throw std::invalid_argument("out: one entry per candidate");
+        CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
+        nb::gil_scoped_release unlocked;
+        net.score_batch_common(shapes.data(), shapes.size(), counts.data(), n, common.data(), common.size(),
+                               common_counts.data(), common_counts.shape(0), part_of.data(), cm, worst_change.data(),
+                               worst.data(), legal.data(), breaks.data(), cost.data(), added.data());
+      })
       .def("check", [](const Net& net) {
         Report r;
         {

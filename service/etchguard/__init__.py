@@ -6,7 +6,7 @@ concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 
 from ._advice import (Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption,
                       PlacedShape)
-from ._columns import BatchScores  # columnar batch scores (Engine.score_columns)
+from ._columns import BatchScores, CommonShapes  # columnar batch scores (Engine.score_columns)
 from ._engine import Engine, Limits
 from ._obstacles import Conflict
 from ._errors import (AlreadyExistsError, DeckError, EtchguardError, InputError,
@@ -23,7 +23,7 @@ __version__ = "0.1.0"
 __all__ = [
     "Advice", "AdviceRequest", "Conflict", "DiodeAdvice", "JumperAdvice", "LayerOption",
     "PlacedShape",
-    "AlreadyExistsError", "BatchScores", "CheckResult", "CostModel", "Deck", "DeckError", "Engine",
+    "AlreadyExistsError", "BatchScores", "CheckResult", "CommonShapes", "CostModel", "Deck", "DeckError", "Engine",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
     "NetReport", "NetSpec", "NoDeckError", "NotFoundError", "Pin", "RatioChange", "Rect",
     "Rule", "Score", "Shape", "load_deck", "load_net_file", "loads_deck", "make_pin",

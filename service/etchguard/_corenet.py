@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _core
-from ._columns import BatchScores
+from ._columns import BatchScores, CheckedCommon
 from ._geometry import Rect
 from ._nets import Pin, Shape
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
@@ -133,6 +133,25 @@ class CoreNet:
                              costs, out.worst_change_utilization, out.worst_utilization,
                              out.legal.view(np.uint8), out.breaks_limit.view(np.uint8), out.cost,
                              out.added_area_um2)
+        return out
+
+    def score_columns_common(self, layers: np.ndarray, rects: np.ndarray, counts: np.ndarray,
+                             common: CheckedCommon, costs: tuple[float, ...]) -> BatchScores:
+        """As score_columns, candidate i being its shared part (common.part[i], -1 none)
+        followed by its own rows."""
+        n = len(counts)
+        out = BatchScores(np.empty(n), np.empty(n), np.empty(n, dtype=bool), np.empty(n, dtype=bool),
+                          np.empty(n), np.empty(n))
+        self.net.score_batch_common(np.ascontiguousarray(layers, dtype=np.int32),
+                                    np.ascontiguousarray(rects, dtype=np.int64),
+                                    np.ascontiguousarray(counts, dtype=np.int64),
+                                    np.ascontiguousarray(common.layers, dtype=np.int32),
+                                    np.ascontiguousarray(common.rects, dtype=np.int64),
+                                    np.ascontiguousarray(common.shape_count, dtype=np.int64),
+                                    np.ascontiguousarray(common.part, dtype=np.int64),
+                                    costs, out.worst_change_utilization, out.worst_utilization,
+                                    out.legal.view(np.uint8), out.breaks_limit.view(np.uint8), out.cost,
+                                    out.added_area_um2)
         return out
 
     def check(self, name: str) -> NetReport:

@@ -21,7 +21,7 @@ import numpy as np
 
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
 from ._assess import Assessment
-from ._columns import BatchScores, checked_columns
+from ._columns import BatchScores, CommonShapes, checked_columns, checked_common
 from ._corenet import CompiledDeck, CoreNet, compile_deck
 from ._costs import CostModel
 from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
@@ -297,20 +297,32 @@ class Engine:
     # -- columnar batch scores (one rectangle per candidate; see _batch) -----------------
 
     def score_columns(self, name: str, layers: Sequence[int] | np.ndarray,
-                      rects: np.ndarray, shape_count: Sequence[int] | np.ndarray | None = None
-                      ) -> BatchScores:
+                      rects: np.ndarray, shape_count: Sequence[int] | np.ndarray | None = None,
+                      common: CommonShapes | None = None) -> BatchScores:
         """Score candidates given as shape rows (``layers[k]``, ``rects[k]`` = xlo, ylo,
         xhi, yhi in DBU) against the same net state: candidate i is the next
         ``shape_count[i]`` rows (default: one row each); entry i equals
-        ``score(name, its shapes, detail=False)``. Validated as a whole before anything
-        is computed; the first bad row is named (``rects[k]``, ``shape_count[i]``)."""
-        layer_arr, rect_arr, counts = checked_columns(len(self.deck.layers), layers, rects, shape_count,
+        ``score(name, its shapes, detail=False)``. With ``common`` each candidate starts
+        with its shared part (see CommonShapes) and equals the candidate sent whole.
+        Validated as a whole before anything is computed; the first bad row is named
+        (``rects[k]``, ``shape_count[i]``, ``common.rects[k]``, ``common.part[i]``)."""
+        steps = len(self.deck.layers)
+        layer_arr, rect_arr, counts = checked_columns(steps, layers, rects, shape_count,
                                                       self.limits.max_candidates,
                                                       self.limits.max_shapes_per_net)
         candidates = rect_arr.shape[0] if counts is None else len(counts)
+        shared = None
+        if common is not None:
+            counts = np.ones(candidates, dtype=np.int64) if counts is None else counts
+            shared = checked_common(steps, common, counts, self.limits.max_candidates,
+                                    self.limits.max_shapes_per_net)
         net = self._net(name)
         with net.lock:
-            result = net.core.score_columns(layer_arr, rect_arr, counts, self._cost_tuple)
+            if shared is None:
+                result = net.core.score_columns(layer_arr, rect_arr, counts, self._cost_tuple)
+            else:
+                result = net.core.score_columns_common(layer_arr, rect_arr, counts, shared,  # type: ignore[arg-type]
+                                                       self._cost_tuple)
         self.counters["scores"] += candidates
         return result
 

@@ -163,21 +163,38 @@ def runs_to_rects(x1: Any, y1: Any, x2: Any, y2: Any, width: Any,
     return out.reshape(-1, 4)
 
 
+def _layer_rows(layers: str | Sequence[str] | np.ndarray, n: int) -> np.ndarray:
+    """One layer name per row, as a numpy array of str."""
+    if isinstance(layers, str):
+        return np.full(n, layers, dtype=object)
+    names = np.asarray(layers, dtype=object)
+    if names.shape != (n,):
+        raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
+    return names
+
+
 def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
-                      counts: Any = None) -> pb.CandidateColumns:
+                      counts: Any = None, *, common: Sequence[tuple[Any, Any]] = (),
+                      common_part: Any = None) -> pb.CandidateColumns:
     """Columnar candidates from numpy: ``rects`` (n, 4) int64 DBU, one row per shape;
     ``layers`` one name for all shapes or a name per shape; ``counts`` shapes per
-    candidate (default: every shape is a candidate of its own)."""
+    candidate (default: every shape is a candidate of its own).
+
+    ``common`` lists shared parts, each ``(rects, layers)`` as above, sent once;
+    ``common_part[j]`` is the part candidate j starts with (-1: none; default: every
+    candidate starts with part 0 when parts are given)."""
     rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
     n = len(rects)
-    if isinstance(layers, str):
+    parts = [(np.asarray(r, dtype=np.int64).reshape(-1, 4), l) for r, l in common]
+    part_names = [_layer_rows(l, len(r)) for r, l in parts]
+    if isinstance(layers, str) and all(isinstance(l, str) and l == layers for _, l in parts):
         table, index = [layers], np.zeros(n, dtype=np.uint32)
+        common_index = np.zeros(sum(len(r) for r, _ in parts), dtype=np.uint32)
     else:
-        names = np.asarray(layers)
-        if names.shape != (n,):
-            raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
-        table_arr, index = np.unique(names, return_inverse=True)
+        names = np.concatenate([_layer_rows(layers, n), *part_names]).astype(str)
+        table_arr, every = np.unique(names, return_inverse=True)
         table = [str(t) for t in table_arr]
+        index, common_index = every[:n], every[n:]
     counts_arr = np.ones(n, dtype=np.uint32) if counts is None else np.asarray(counts, dtype=np.uint32)
     cols = pb.CandidateColumns(layers=table)
     cols.shape_count.extend(counts_arr.tolist())
@@ -186,6 +203,16 @@ def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
     cols.ylo.extend(rects[:, 1].tolist())
     cols.xhi.extend(rects[:, 2].tolist())
     cols.yhi.extend(rects[:, 3].tolist())
+    if parts:
+        shared = np.concatenate([r for r, _ in parts])
+        cols.common_count.extend([len(r) for r, _ in parts])
+        cols.common_layer.extend(np.asarray(common_index).tolist())
+        cols.common_xlo.extend(shared[:, 0].tolist())
+        cols.common_ylo.extend(shared[:, 1].tolist())
+        cols.common_xhi.extend(shared[:, 2].tolist())
+        cols.common_yhi.extend(shared[:, 3].tolist())
+        if common_part is not None:
+            cols.common_part.extend((np.asarray(common_part, dtype=np.int64) + 1).tolist())
     return cols
 
 
@@ -327,9 +354,12 @@ class Client:
                                                            without_changes=without_changes))
 
     def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
-                    counts: Any = None, details: bool = False) -> BatchScores:
-        """Score candidates given as numpy rectangles (see ``candidate_columns``)."""
-        return self.score_columns(net, candidate_columns(rects, layers, counts), details)
+                    counts: Any = None, details: bool = False, *,
+                    common: Sequence[tuple[Any, Any]] = (), common_part: Any = None) -> BatchScores:
+        """Score candidates given as numpy rectangles, optionally starting with shared
+        parts sent once (see ``candidate_columns``)."""
+        columns = candidate_columns(rects, layers, counts, common=common, common_part=common_part)
+        return self.score_columns(net, columns, details)
 
     def score_columns(self, net: str, columns: pb.CandidateColumns, details: bool = False) -> BatchScores:
         request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
@@ -490,9 +520,10 @@ class Session:
                                                  without_changes=without_changes))
 
     def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
-                    counts: Any = None, details: bool = False) -> BatchScores:
-        request = pb.ScoreBatchRequest(net=net, candidates=candidate_columns(rects, layers, counts),
-                                       details=details)
+                    counts: Any = None, details: bool = False, *,
+                    common: Sequence[tuple[Any, Any]] = (), common_part: Any = None) -> BatchScores:
+        columns = candidate_columns(rects, layers, counts, common=common, common_part=common_part)
+        request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
         return BatchScores.from_reply(self.ask("score_batch", request))
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:

@@ -209,6 +209,18 @@ class Net {
                    double* worst, std::uint8_t* legal, std::uint8_t* breaks, double* cost,
                    double* added_um2) const;
 
+  // A batch whose candidates share shapes, such as the partial path a search extends,
+  // sent once: part k is common_counts[k] consecutive rows of `common`, and candidate i
+  // is part part_of[i] (-1: none) followed by its own counts[i] shapes (counts null:
+  // one each). Every figure equals score_batch of the same candidates sent whole.
+  // Throws std::invalid_argument naming the bad count or part (see shared_batch.cpp).
+  void score_batch_common(const Shape* shapes, std::size_t n_shapes, const i64* counts,
+                          std::size_t n_candidates, const Shape* common, std::size_t n_common,
+                          const i64* common_counts, std::size_t n_parts, const i64* part_of,
+                          const CostModel& costs, double* worst_change, double* worst,
+                          std::uint8_t* legal, std::uint8_t* breaks, double* cost,
+                          double* added_um2) const;
+
   Headroom headroom(int layer, i64 x, i64 y) const;
 
   // Queries for repair advice: elements that connect to a rectangle on a layer; whether

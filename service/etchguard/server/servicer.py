@@ -71,8 +71,9 @@ def _score_batch(self, req, out):
     deck = self.engine.deck
     if not req.details:  # the columnar path
         counts, steps, rects = convert.candidate_arrays(deck, req.candidates)
+        common = convert.common_shapes(deck, req.candidates)
         try:
-            scores = self.engine.score_columns(req.net, steps, rects, counts)
+            scores = self.engine.score_columns(req.net, steps, rects, counts, common)
         except EtchguardError as exc:
             raise convert.columns_error(exc) from None
         convert.columns_into(out, scores)

@@ -120,7 +120,7 @@ class LayerRange(_message.Message):
     def __init__(self, lowest: _Optional[str] = ..., highest: _Optional[str] = ...) -> None: ...
 
 class CandidateColumns(_message.Message):
-    __slots__ = ("layers", "shape_count", "layer", "xlo", "ylo", "xhi", "yhi")
+    __slots__ = ("layers", "shape_count", "layer", "xlo", "ylo", "xhi", "yhi", "common_count", "common_layer", "common_xlo", "common_ylo", "common_xhi", "common_yhi", "common_part")
     LAYERS_FIELD_NUMBER: _ClassVar[int]
     SHAPE_COUNT_FIELD_NUMBER: _ClassVar[int]
     LAYER_FIELD_NUMBER: _ClassVar[int]
@@ -128,6 +128,13 @@ class CandidateColumns(_message.Message):
     YLO_FIELD_NUMBER: _ClassVar[int]
     XHI_FIELD_NUMBER: _ClassVar[int]
     YHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_COUNT_FIELD_NUMBER: _ClassVar[int]
+    COMMON_LAYER_FIELD_NUMBER: _ClassVar[int]
+    COMMON_XLO_FIELD_NUMBER: _ClassVar[int]
+    COMMON_YLO_FIELD_NUMBER: _ClassVar[int]
+    COMMON_XHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_YHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_PART_FIELD_NUMBER: _ClassVar[int]
     layers: _containers.RepeatedScalarFieldContainer[str]
     shape_count: _containers.RepeatedScalarFieldContainer[int]
     layer: _containers.RepeatedScalarFieldContainer[int]
@@ -135,7 +142,14 @@ class CandidateColumns(_message.Message):
     ylo: _containers.RepeatedScalarFieldContainer[int]
     xhi: _containers.RepeatedScalarFieldContainer[int]
     yhi: _containers.RepeatedScalarFieldContainer[int]
-    def __init__(self, layers: _Optional[_Iterable[str]] = ..., shape_count: _Optional[_Iterable[int]] = ..., layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ...) -> None: ...
+    common_count: _containers.RepeatedScalarFieldContainer[int]
+    common_layer: _containers.RepeatedScalarFieldContainer[int]
+    common_xlo: _containers.RepeatedScalarFieldContainer[int]
+    common_ylo: _containers.RepeatedScalarFieldContainer[int]
+    common_xhi: _containers.RepeatedScalarFieldContainer[int]
+    common_yhi: _containers.RepeatedScalarFieldContainer[int]
+    common_part: _containers.RepeatedScalarFieldContainer[int]
+    def __init__(self, layers: _Optional[_Iterable[str]] = ..., shape_count: _Optional[_Iterable[int]] = ..., layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ..., common_count: _Optional[_Iterable[int]] = ..., common_layer: _Optional[_Iterable[int]] = ..., common_xlo: _Optional[_Iterable[int]] = ..., common_ylo: _Optional[_Iterable[int]] = ..., common_xhi: _Optional[_Iterable[int]] = ..., common_yhi: _Optional[_Iterable[int]] = ..., common_part: _Optional[_Iterable[int]] = ...) -> None: ...
 
 class LoadDeckRequest(_message.Message):
     __slots__ = ("toml",)
