@@ -14,7 +14,7 @@ from grpc_reflection.v1alpha.proto_reflection_descriptor_database import \
     ProtoReflectionDescriptorDatabase
 
 import etchguard as eg
-from etchguard.client import BatchScores, ServiceError, pb, pin, rect, run, runs_to_rects
+from etchguard.client import BatchScores, LocalBudget, ServiceError, pb, pin, rect, run, runs_to_rects
 from etchguard.server import convert
 from grpc_fixtures import (DEMO_DECK, DRIVER, GATE, candidate, client, net_name,  # noqa: F401
                            open_small_net, server, trunk)
@@ -141,6 +141,38 @@ def test_score_batch_shared_parts(client):
     with pytest.raises(ServiceError) as err:
         client.score_batch(name, own[:2], layers[:2], common=[(bad, "M2")])
     assert err.value.field == "candidates.common[1].rect"
+
+
+def test_budget_evaluated_locally_equals_score(client):
+    """A Budget over the wire (unary and in a session), evaluated by the client's
+    LocalBudget, gives the server's own score of common + extension (1e-9 relative,
+    the contract's tolerance); it declines a via and a jump to another layer; a bad
+    request is refused naming the field."""
+    name, _ = open_small_net(client)
+    common = [rect("M2", 4830, 30, 4970, 6100)]  # a riser from the via, not committed
+    reply = client.budget(name, "M2", 4900, 3000, common)
+    with client.session() as s:
+        assert s.budget(name, "M2", 4900, 3000, common) == reply
+    assert reply.found and reply.ratios and reply.own
+    local = LocalBudget(reply)
+    for length in (1000, 20_000, 90_000, 300_000):
+        ext = ("M2", (4830, 6100, 4970, 6100 + length))
+        got = local.evaluate([ext])
+        want = client.score(name, common + [rect(*ext[:1], *ext[1])], without_changes=True)
+        for a, b in ((got.worst_change_utilization, want.worst_change_utilization),
+                     (got.worst_utilization, want.worst_utilization), (got.cost, want.cost),
+                     (got.added_area_um2, sum(a.area_um2 for a in want.added_area))):
+            assert math.isclose(a, b, rel_tol=1e-9), (length, a, b)
+        assert (got.legal, got.breaks_limit) == (want.legal, want.breaks_limit)
+    assert local.evaluate([("M3", (4830, 6000, 9000, 6140))]) is None
+    assert local.evaluate([("M2", (4830, 6000, 4970, 6140)), ("V2", (4830, 6030, 4970, 6100))]) is None
+    assert not client.budget(name, "M3", 4900, 3000).found  # nothing of the net there
+    with pytest.raises(ServiceError) as err:
+        client.budget(name, "M9", 0, 0)
+    assert err.value.field == "layer"
+    with pytest.raises(ServiceError) as err:
+        client.budget(name, "M2", 0, 0, [rect("M2", 5, 0, 5, 9)])
+    assert err.value.field == "common[0].rect"
 
 
 def test_headroom(client):

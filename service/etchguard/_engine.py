@@ -21,13 +21,14 @@ import numpy as np
 
 from ._advice import Advice, advise as _advise, check_request as _check_advice_request
 from ._assess import Assessment
+from ._budget import Budget
 from ._columns import BatchScores, CommonShapes, checked_columns, checked_common
 from ._corenet import CompiledDeck, CoreNet, compile_deck
 from ._costs import CostModel
 from ._changelog import (BlockageDeclared, BlockageRemoved, ChangeLog, DeckLoaded, EngineImage,
                          NetClosed, NetImage, NetOpened, ShapesCommitted, ShapesRemoved)
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
-from ._geometry import Rect, checked_rect as _checked_rect
+from ._geometry import COORD_LIMIT, Rect, checked_rect as _checked_rect
 from ._netstate import NetState
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
 from ._obstacles import ObstacleIndex, net_items as _net_items, pin_items as _pin_items, shape_key as _shape_key
@@ -36,6 +37,7 @@ from ._reports import Headroom, NetReport, Score
 from ._rules import Deck, loads_deck as _loads_deck
 
 _Mark = TypeVar("_Mark")
+_EVERYWHERE = (-(COORD_LIMIT - 1), -(COORD_LIMIT - 1), COORD_LIMIT - 1, COORD_LIMIT - 1)  # a budget's default window
 
 
 @dataclass(frozen=True)
@@ -350,6 +352,30 @@ class Engine:
         net = self._net(name)
         with net.lock:
             return net.core.headroom(layer, x, y)
+
+    def budget(self, name: str, layer: int, x: int, y: int, common: Sequence[Shape] = (),
+               window: Sequence[int] | None = None) -> Budget:
+        """The budget of the component at (x, y) on ``layer`` with ``common`` taken as
+        committed: the coefficients of every ratio an addition to it on that layer
+        changes, and what a client needs to evaluate candidates itself (see _budget).
+        Rectangles are listed where they meet ``window`` (DBU; None: everywhere)."""
+        deck = self.deck
+        if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
+            raise InputError(f"unknown layer {layer!r}", "layer")
+        for i, s in enumerate(common):
+            check_shape_object(len(deck.layers), s, f"common[{i}]")
+        if len(common) > self.limits.max_shapes_per_net:
+            raise LimitExceededError(f"{len(common)} shapes exceed the limit of "
+                                     f"{self.limits.max_shapes_per_net} per net", "common")
+        for value, field_name in ((x, "x"), (y, "y")):
+            if isinstance(value, bool) or not isinstance(value, int) or not -COORD_LIMIT < value < COORD_LIMIT:
+                raise InputError(f"a point is integer DBU within +-2^62, got {value!r}", field_name)
+        area = _EVERYWHERE if window is None else _checked_rect(list(window), "window")
+        net = self._net(name)
+        with net.lock:
+            result = net.core.budget(layer, x, y, common, area, self.costs)
+        self.counters["scores"] += 1
+        return result
 
     def stats(self) -> dict[str, int]:
         with self._registry:

@@ -36,12 +36,13 @@ from google.rpc import error_details_pb2
 from grpc_health.v1 import health_pb2, health_pb2_grpc
 from grpc_status import rpc_status
 
+from ._budgetlocal import LocalBudget, LocalScore
 from ._geometry import square
 from .v1 import etchguard_pb2 as pb
 from .v1 import etchguard_pb2_grpc as pb_grpc
 
-__all__ = ["BatchScores", "Client", "ServiceError", "Session", "candidate_columns", "path",
-           "pb", "pin", "rect", "run", "runs_to_rects", "via"]
+__all__ = ["BatchScores", "Client", "LocalBudget", "LocalScore", "ServiceError", "Session",
+           "budget_request", "candidate_columns", "path", "pb", "pin", "rect", "run", "runs_to_rects", "via"]
 
 RectLike = Sequence[int]
 
@@ -253,6 +254,16 @@ def advise_request(net: str, layer: str, x1: int, y1: int, x2: int, y2: int, wid
                             allow_non_preferred=allow_non_preferred, want=list(want))
 
 
+def budget_request(net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+                   window: RectLike | None = None) -> pb.BudgetRequest:
+    """A BudgetRequest for the component at (x, y) on ``layer`` (DBU), ``common`` shapes
+    taken as committed, rectangles listed within ``window`` (None: everywhere)."""
+    request = pb.BudgetRequest(net=net, layer=layer, x=x, y=y, common=common)
+    if window is not None:
+        request.window.xlo, request.window.ylo, request.window.xhi, request.window.yhi = window
+    return request
+
+
 class Client:
     """A connection to an etchguard server. Use as a context manager, or call close().
 
@@ -367,6 +378,11 @@ class Client:
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self._call(self.stub.Headroom, pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def budget(self, net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+               window: RectLike | None = None) -> pb.BudgetReply:
+        """The budget of the component at a point; ``LocalBudget(reply)`` evaluates it."""
+        return self._call(self.stub.Budget, budget_request(net, layer, x, y, common, window))
 
     def check(self, net: str) -> pb.NetReport:
         return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
@@ -528,6 +544,10 @@ class Session:
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self.ask("headroom", pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def budget(self, net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+               window: RectLike | None = None) -> pb.BudgetReply:
+        return self.ask("budget", budget_request(net, layer, x, y, common, window))
 
     def check(self, net: str) -> pb.NetReport:
         return self.ask("check", pb.CheckNetRequest(net=net))

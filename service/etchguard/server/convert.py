@@ -277,6 +277,36 @@ def headroom_into(out, h) -> None:
     out.binding = h.binding
 
 
+def budget_into(out, budget, deck) -> None:
+    """Fill a BudgetReply from an engine Budget."""
+    layer_names = [layer.name for layer in deck.layers]
+    out.dbu_per_micron = deck.dbu_per_micron
+    out.found = budget.found
+    out.layer = budget.layer
+    out.step = budget.step
+    for t in budget.terms:
+        out.terms.add(measure=_MEASURE[t.measure], oxide=t.oxide, conductor_um2=t.conductor_um2,
+                      per_area=t.per_area, per_perimeter_um=t.per_perimeter_um, factor=t.factor,
+                      credit_um2=t.credit_um2, gate_um2=t.gate_um2, feeds=t.feeds)
+    for r in budget.ratios:
+        out.ratios.add(layer=r.layer, step=r.step, measure=_MEASURE[r.measure], kind=_KIND[r.kind],
+                       oxide=r.oxide, gate=r.gate, limit=r.limit, term=r.term, spent=r.spent,
+                       floor=r.floor, always=r.always)
+    out.rest_worst_utilization = budget.rest_worst_utilization
+    out.fixed_change_utilization = budget.fixed_change_utilization
+    out.common_added_area_um2 = budget.common_added_area_um2
+    for r in budget.own:
+        _rect_into(out.own.add(), r)
+    for r in budget.own_pins:
+        _rect_into(out.own_pins.add(), r)
+    for step, r in budget.foreign:
+        _rect_into(out.foreign.add(layer=layer_names[step]).rect, r)
+    _rect_into(out.window, budget.window)
+    c = budget.costs
+    out.cost.knee, out.cost.exponent, out.cost.scale = c.knee, c.exponent, c.scale
+    out.cost.violation, out.cost.over_slope = c.violation, c.over_slope
+
+
 def report_into(out, report) -> None:
     out.net = report.name
     out.legal = report.legal
@@ -295,6 +325,10 @@ def stats_into(out, stats: dict, deck_name: str, uptime_s: float, version: str) 
     out.deck = deck_name
     out.uptime_s = uptime_s
     out.version = version
+
+
+def rect_tuple(msg) -> tuple[int, int, int, int]:
+    return (msg.xlo, msg.ylo, msg.xhi, msg.yhi)
 
 
 def _rect_into(out, r) -> None:

@@ -88,6 +88,15 @@ def _headroom(self, req, out):
     convert.headroom_into(out, self.engine.headroom(req.net, layer, req.x, req.y))
 
 
+def _budget(self, req, out):
+    deck = self.engine.deck
+    layer = resolve_layer(deck, req.layer, "layer")
+    common = convert.shapes(deck, req.common, "common")
+    window = convert.rect_tuple(req.window) if req.HasField("window") else None
+    budget = self.engine.budget(req.net, layer, req.x, req.y, common, window)
+    convert.budget_into(out, budget, deck)
+
+
 def _get_net(self, req, out):
     spec, ids = self.engine.spec_with_ids(req.net)
     convert.net_into(out, spec, ids, self.engine.deck)
@@ -137,7 +146,7 @@ def _unary(name: str, fill, reply_type):
 _SESSION_OPS = {
     "commit": _commit, "remove": _remove, "score": _score, "score_batch": _score_batch,
     "headroom": _headroom, "check": _check, "open_net": _open_net, "close_net": _close_net,
-    "advise": _advise,
+    "advise": _advise, "budget": _budget,
 }
 
 
@@ -147,7 +156,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
     METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
-               "ScoreBatch", "Headroom", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
+               "ScoreBatch", "Headroom", "Budget", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
     def __init__(self, engine, metrics) -> None:
@@ -164,6 +173,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     Score = _unary("Score", _score, pb.ScoreReply)
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)
+    Budget = _unary("Budget", _budget, pb.BudgetReply)
     CheckNet = _unary("CheckNet", _check, pb.NetReport)
     GetNet = _unary("GetNet", _get_net, pb.NetContent)
     Advise = _unary("Advise", _advise, pb.AdviseReply)
