@@ -281,3 +281,81 @@ def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
     # The session asked for the jumper and the diode only: no hops were proposed.
     assert cpp["stream.advise.options"] == "0"
     assert int(cpp["unary.advise.options"]) > 0
+
+
+BUDGET_CHECK = BUILD / "etchguard_budget_check"
+
+
+def _random_box(rng) -> tuple[int, int, int, int]:
+    """A rectangle on a 200 DBU grid: random ones touch, abut and overlap often."""
+    x, y = rng.randint(0, 10) * 200, rng.randint(0, 10) * 200
+    return (x, y, x + rng.randint(1, 5) * 200, y + rng.randint(1, 5) * 200)
+
+
+def _random_net(rng, names: list[str]) -> tuple[list, list]:
+    """A random net on the demo deck: a gate and a driver on M1, shapes on M1 to M3."""
+    pins = [pin("g", "M1", [_random_box(rng)], gate_area={"thin": rng.choice([0.01, 0.05, 0.2])}),
+            pin("d", "M1", [_random_box(rng)], diff_area=rng.choice([0.05, 0.1]))]
+    shapes = [rect(rng.choice(names[:5]), *_random_box(rng)) for _ in range(rng.randint(0, 10))]
+    return pins, shapes
+
+
+def test_cpp_local_budget_equals_service(example_binary, live_server):
+    """The C++ LocalBudget (etchguard_budget_check) against the service, on random nets:
+    it covers exactly what the Python LocalBudget covers, each covered candidate's
+    figures equal the server's score of common + candidate to 1e-9 relative (the
+    contract's tolerance), and it declines every candidate that leaves the layer or
+    merges another component (decided with networkx in test_budget.extends_only)."""
+    import random
+
+    import etchguard as eg
+    from etchguard.client import LocalBudget
+    from grpc_fixtures import DEMO_DECK
+    from test_budget import _extensions, extends_only
+
+    assert BUDGET_CHECK.exists()
+    deck = eg.load_deck(DEMO_DECK)
+    rng = random.Random(7)
+    with live_server.client() as c:
+        names = [l.name for l in c.deck.layers]
+        lines, expected = [], []
+        for k in range(12):
+            net = f"blk_b/budget_{uuid.uuid4().hex[:6]}_{k}"
+            pins, shapes = _random_net(rng, names)
+            c.open_net(net, pins, shapes)
+            common = [rect(rng.choice(names[:5]), *_random_box(rng)) for _ in range(rng.randint(0, 3))]
+            elements = ([(names.index(p.layer), (p.rects[0].xlo, p.rects[0].ylo, p.rects[0].xhi, p.rects[0].yhi), i)
+                         for i, p in enumerate(pins)]
+                        + [(names.index(s.layer), (s.rect.xlo, s.rect.ylo, s.rect.xhi, s.rect.yhi), -1)
+                           for s in shapes + common])
+            hit = rng.randrange(len(elements))
+            layer, anchor, _ = elements[hit]
+            reply = c.budget(net, names[layer], anchor[0], anchor[1], common)
+            local = LocalBudget(reply)
+            lines.append(f"budget {net} {names[layer]} {anchor[0]} {anchor[1]}")
+            lines += [f"common {s.layer} {s.rect.xlo} {s.rect.ylo} {s.rect.xhi} {s.rect.yhi}" for s in common]
+            for ext in _extensions(rng, layer, anchor, len(names)):
+                shaped = [(names[l], r) for l, r in ext]
+                lines.append("cand " + " ".join(f"{n} {r[0]} {r[1]} {r[2]} {r[3]}" for n, r in shaped))
+                truth = extends_only(deck, elements, hit, ext)
+                want = c.score(net, common + [rect(n, *r) for n, r in shaped], without_changes=True)
+                expected.append((net, shaped, truth, local.evaluate(shaped), want))
+        done = subprocess.run([str(BUDGET_CHECK), live_server.address], input="\n".join(lines) + "\n",
+                              capture_output=True, text=True, timeout=RUN_TIMEOUT_S)
+        assert done.returncode == 0, done.stderr
+        out = done.stdout.splitlines()
+        assert len(out) == len(expected)
+        covered = 0
+        for line, (net, shaped, truth, python, want) in zip(out, expected):
+            where = (net, shaped, line)
+            assert (line != "declined") == (python is not None), where
+            if line == "declined":
+                continue
+            assert truth, ("covered a candidate that merges or leaves the layer", where)
+            covered += 1
+            _, wc, worst, legal, breaks, cost, added = line.split()
+            for got, ref in ((float(wc), want.worst_change_utilization), (float(worst), want.worst_utilization),
+                             (float(cost), want.cost), (float(added), sum(a.area_um2 for a in want.added_area))):
+                assert got == ref or math.isclose(got, ref, rel_tol=REL_TOL, abs_tol=1e-12), (where, got, ref)
+            assert (legal == "1", breaks == "1") == (want.legal, want.breaks_limit), where
+        assert covered >= len(expected) // 5, (covered, len(expected))
