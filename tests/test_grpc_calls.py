@@ -14,7 +14,7 @@ from grpc_reflection.v1alpha.proto_reflection_descriptor_database import \
     ProtoReflectionDescriptorDatabase
 
 import etchguard as eg
-from etchguard.client import BatchScores, LocalBudget, ServiceError, pb, pin, rect, run, runs_to_rects
+from etchguard.client import BatchScores, LocalBudget, ServiceError, budget_request, pb, pin, rect, run, runs_to_rects
 from etchguard.server import convert
 from grpc_fixtures import (DEMO_DECK, DRIVER, GATE, candidate, client, net_name,  # noqa: F401
                            open_small_net, server, trunk)
@@ -167,6 +167,12 @@ def test_budget_evaluated_locally_equals_score(client):
     assert local.evaluate([("M3", (4830, 6000, 9000, 6140))]) is None
     assert local.evaluate([("M2", (4830, 6000, 4970, 6140)), ("V2", (4830, 6030, 4970, 6100))]) is None
     assert not client.budget(name, "M3", 4900, 3000).found  # nothing of the net there
+    # several in one message, each as the single call answers it; a refusal names which
+    asks = [budget_request(name, "M2", 4900, 3000, common), budget_request(name, "M1", 100, 100)]
+    assert client.budgets(asks) == [reply, client.budget(name, "M1", 100, 100)]
+    with pytest.raises(ServiceError) as err:
+        client.budgets([asks[0], budget_request(name, "M9", 0, 0)])
+    assert err.value.field == "requests[1].layer"
     with pytest.raises(ServiceError) as err:
         client.budget(name, "M9", 0, 0)
     assert err.value.field == "layer"

@@ -384,6 +384,10 @@ class Client:
         """The budget of the component at a point; ``LocalBudget(reply)`` evaluates it."""
         return self._call(self.stub.Budget, budget_request(net, layer, x, y, common, window))
 
+    def budgets(self, requests: Sequence[pb.BudgetRequest]) -> list[pb.BudgetReply]:
+        """Several budgets in one message (see ``budget_request``), in order."""
+        return list(self._call(self.stub.Budgets, pb.BudgetsRequest(requests=requests)).budgets)
+
     def check(self, net: str) -> pb.NetReport:
         return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
 
@@ -548,6 +552,9 @@ class Session:
     def budget(self, net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
                window: RectLike | None = None) -> pb.BudgetReply:
         return self.ask("budget", budget_request(net, layer, x, y, common, window))
+
+    def budgets(self, requests: Sequence[pb.BudgetRequest]) -> list[pb.BudgetReply]:
+        return list(self.ask("budgets", pb.BudgetsRequest(requests=requests)).budgets)
 
     def check(self, net: str) -> pb.NetReport:
         return self.ask("check", pb.CheckNetRequest(net=net))

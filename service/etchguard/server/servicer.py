@@ -97,6 +97,14 @@ def _budget(self, req, out):
     convert.budget_into(out, budget, deck)
 
 
+def _budgets(self, req, out):
+    for i, one in enumerate(req.requests):
+        try:
+            _budget(self, one, out.budgets.add())
+        except EtchguardError as exc:
+            raise type(exc)(exc.message, f"requests[{i}].{exc.field}" if exc.field else f"requests[{i}]") from None
+
+
 def _get_net(self, req, out):
     spec, ids = self.engine.spec_with_ids(req.net)
     convert.net_into(out, spec, ids, self.engine.deck)
@@ -146,7 +154,7 @@ def _unary(name: str, fill, reply_type):
 _SESSION_OPS = {
     "commit": _commit, "remove": _remove, "score": _score, "score_batch": _score_batch,
     "headroom": _headroom, "check": _check, "open_net": _open_net, "close_net": _close_net,
-    "advise": _advise, "budget": _budget,
+    "advise": _advise, "budget": _budget, "budgets": _budgets,
 }
 
 
@@ -156,7 +164,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
     METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
-               "ScoreBatch", "Headroom", "Budget", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
+               "ScoreBatch", "Headroom", "Budget", "Budgets", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
     def __init__(self, engine, metrics) -> None:
@@ -174,6 +182,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)
     Budget = _unary("Budget", _budget, pb.BudgetReply)
+    Budgets = _unary("Budgets", _budgets, pb.BudgetsReply)
     CheckNet = _unary("CheckNet", _check, pb.NetReport)
     GetNet = _unary("GetNet", _get_net, pb.NetContent)
     Advise = _unary("Advise", _advise, pb.AdviseReply)

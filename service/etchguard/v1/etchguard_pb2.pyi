@@ -483,6 +483,18 @@ class BudgetReply(_message.Message):
     dbu_per_micron: int
     def __init__(self, found: _Optional[bool] = ..., layer: _Optional[str] = ..., step: _Optional[int] = ..., terms: _Optional[_Iterable[_Union[BudgetTerm, _Mapping]]] = ..., ratios: _Optional[_Iterable[_Union[BudgetRatio, _Mapping]]] = ..., rest_worst_utilization: _Optional[float] = ..., fixed_change_utilization: _Optional[float] = ..., common_added_area_um2: _Optional[float] = ..., own: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., own_pins: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., foreign: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ..., cost: _Optional[_Union[CostCurve, _Mapping]] = ..., dbu_per_micron: _Optional[int] = ...) -> None: ...
 
+class BudgetsRequest(_message.Message):
+    __slots__ = ("requests",)
+    REQUESTS_FIELD_NUMBER: _ClassVar[int]
+    requests: _containers.RepeatedCompositeFieldContainer[BudgetRequest]
+    def __init__(self, requests: _Optional[_Iterable[_Union[BudgetRequest, _Mapping]]] = ...) -> None: ...
+
+class BudgetsReply(_message.Message):
+    __slots__ = ("budgets",)
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
+    budgets: _containers.RepeatedCompositeFieldContainer[BudgetReply]
+    def __init__(self, budgets: _Optional[_Iterable[_Union[BudgetReply, _Mapping]]] = ...) -> None: ...
+
 class CheckNetRequest(_message.Message):
     __slots__ = ("net",)
     NET_FIELD_NUMBER: _ClassVar[int]
@@ -746,7 +758,7 @@ class Stats(_message.Message):
     def __init__(self, nets: _Optional[int] = ..., shapes: _Optional[int] = ..., hot_nets: _Optional[int] = ..., scores: _Optional[int] = ..., commits: _Optional[int] = ..., removals: _Optional[int] = ..., checks: _Optional[int] = ..., violations_seen: _Optional[int] = ..., deck: _Optional[str] = ..., uptime_s: _Optional[float] = ..., version: _Optional[str] = ...) -> None: ...
 
 class SessionRequest(_message.Message):
-    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget")
+    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget", "budgets")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
     REMOVE_FIELD_NUMBER: _ClassVar[int]
@@ -758,6 +770,7 @@ class SessionRequest(_message.Message):
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
     ADVISE_FIELD_NUMBER: _ClassVar[int]
     BUDGET_FIELD_NUMBER: _ClassVar[int]
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
     seq: int
     commit: CommitRequest
     remove: RemoveRequest
@@ -769,7 +782,8 @@ class SessionRequest(_message.Message):
     close_net: CloseNetRequest
     advise: AdviseRequest
     budget: BudgetRequest
-    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ..., advise: _Optional[_Union[AdviseRequest, _Mapping]] = ..., budget: _Optional[_Union[BudgetRequest, _Mapping]] = ...) -> None: ...
+    budgets: BudgetsRequest
+    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ..., advise: _Optional[_Union[AdviseRequest, _Mapping]] = ..., budget: _Optional[_Union[BudgetRequest, _Mapping]] = ..., budgets: _Optional[_Union[BudgetsRequest, _Mapping]] = ...) -> None: ...
 
 class SessionError(_message.Message):
     __slots__ = ("code", "message", "field")
@@ -782,7 +796,7 @@ class SessionError(_message.Message):
     def __init__(self, code: _Optional[int] = ..., message: _Optional[str] = ..., field: _Optional[str] = ...) -> None: ...
 
 class SessionReply(_message.Message):
-    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget")
+    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget", "budgets")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     ERROR_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
@@ -795,6 +809,7 @@ class SessionReply(_message.Message):
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
     ADVISE_FIELD_NUMBER: _ClassVar[int]
     BUDGET_FIELD_NUMBER: _ClassVar[int]
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
     seq: int
     error: SessionError
     commit: ShapeIds
@@ -807,4 +822,5 @@ class SessionReply(_message.Message):
     close_net: CloseNetReply
     advise: AdviseReply
     budget: BudgetReply
-    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ..., advise: _Optional[_Union[AdviseReply, _Mapping]] = ..., budget: _Optional[_Union[BudgetReply, _Mapping]] = ...) -> None: ...
+    budgets: BudgetsReply
+    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ..., advise: _Optional[_Union[AdviseReply, _Mapping]] = ..., budget: _Optional[_Union[BudgetReply, _Mapping]] = ..., budgets: _Optional[_Union[BudgetsReply, _Mapping]] = ...) -> None: ...

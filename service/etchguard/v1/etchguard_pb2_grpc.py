@@ -85,6 +85,11 @@ class AntennaServiceStub:
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.SerializeToString,
                 response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.FromString,
                 _registered_method=True)
+        self.Budgets = channel.unary_unary(
+                '/etchguard.v1.AntennaService/Budgets',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.FromString,
+                _registered_method=True)
         self.CheckNet = channel.unary_unary(
                 '/etchguard.v1.AntennaService/CheckNet',
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CheckNetRequest.SerializeToString,
@@ -196,6 +201,13 @@ class AntennaServiceServicer:
         context.set_details('Method not implemented!')
         raise NotImplementedError('Method not implemented!')
 
+    def Budgets(self, request, context):
+        """Several budgets in one message (each as Budget would answer it, in order).
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
     def CheckNet(self, request, context):
         """Full check of one net.
         """
@@ -294,6 +306,11 @@ def add_AntennaServiceServicer_to_server(servicer, server):
                     servicer.Budget,
                     request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.FromString,
                     response_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.SerializeToString,
+            ),
+            'Budgets': grpc.unary_unary_rpc_method_handler(
+                    servicer.Budgets,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.SerializeToString,
             ),
             'CheckNet': grpc.unary_unary_rpc_method_handler(
                     servicer.CheckNet,
@@ -597,6 +614,33 @@ class AntennaService:
             '/etchguard.v1.AntennaService/Budget',
             etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.SerializeToString,
             etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def Budgets(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/Budgets',
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.FromString,
             options,
             channel_credentials,
             insecure,
