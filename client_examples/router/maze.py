@@ -84,7 +84,7 @@ class Costs:
     # A run's budget is asked (not waited for) when the run reaches this many steps, a
     # few before its first price: the reply travels while the search goes on. Sooner
     # asks more budgets that are never used; later waits more.
-    prefetch_at: int = 8
+    prefetch_at: int = 11
     # Expansion budgets. A search whose every way to the tree breaks a limit pays the
     # antenna cap on every path, so it expands every node within the cap of the
     # cheapest path: for the cap above that is most of the block, and the search ran

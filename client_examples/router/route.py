@@ -35,6 +35,7 @@ from maze import Costs, Item, SearchResult, expansion_budget, search
 from pricing import Meter, MeteredSession, ServicePricer
 
 TOLERANCE = 1e-9  # the contract's relative tolerance on utilization
+DECK_PATH = Path(__file__).resolve().parents[2] / "service" / "etchguard" / "data" / "lumen-6m.toml"
 
 
 # -- the block ---------------------------------------------------------------------------
@@ -141,7 +142,7 @@ class Stats:
 class Router:
     def __init__(self, client: Client, block: Block, aware: bool, costs: Costs = Costs(),
                  max_ripups: int = 4, log=None, search_scores: bool = True,
-                 repair_after: bool = False) -> None:
+                 repair_after: bool = False, deck_path: Path = DECK_PATH) -> None:
         self.client = client
         # aware mode without scores in the search: only the advice repairs (tests use it
         # to see the repairs at work on their own)
@@ -157,6 +158,7 @@ class Router:
         mode = ("aware" if search_scores else "repair") if aware else ("fixed" if repair_after else "blind")
         self.prefix = f"{mode}:"  # the modes may share a server
         self.repair_after = repair_after and not aware
+        self.deck_path = deck_path  # for the router's own connectivity check (verify.py)
         self.nets = {n.name: NetRoute(n) for n in block.nets}
         title = "antenna-aware" if aware else ("blind + repair" if self.repair_after else "antenna-blind")
         self.stats = Stats(title, len(block.nets))
@@ -510,10 +512,26 @@ class Router:
         return None
 
     def _repair_run(self, route: NetRoute, run: Committed) -> str:
-        """Take the run out and apply the advice on it (see _apply_advice)."""
+        """Take the run out and apply the advice on it (see _apply_advice). A routed
+        run may carry branches along it, not only at its ends, and a hop or jumper
+        reconnects its ends only: when the net is no longer connected, the repair is
+        undone (checked here on the router's shapes, no call) and the run stays."""
+        from verify import connected_nets
+
         self.take_out(route, [run])
+        kept = len(route.shapes)
         line = _centre_line(run.rect, self.width[run.layer])
-        return self._apply_advice(route, run.layer, line, [(run.layer, run.rect)], [])
+        used = self._apply_advice(route, run.layer, line, [(run.layer, run.rect)], [])
+        if used in ("hop", "jumper") and not connected_nets(self.deck_path, [route]):
+            added = route.shapes[kept:]
+            self.take_out(route, added)
+            self.commit(route, [(run.layer, run.rect)])
+            self.stats.hops -= used == "hop"
+            self.stats.jumpers -= used == "jumper"
+            self.stats.added_vias -= sum(1 for s in added if s.layer in self.cut_names)
+            self.log(f"{route.data.name}: {used} undone, it left a branch of the net apart")
+            return "undone"
+        return used
 
     def take_out(self, route: NetRoute, shapes: Sequence[Committed]) -> None:
         """Remove committed shapes from the service, the occupancy and the route."""
