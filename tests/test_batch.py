@@ -105,6 +105,91 @@ def test_columns_equal_scalar_on_random_nets(case) -> None:
     assert_agrees(engine, "n1", shapes, "random")
 
 
+# -- shared parts: candidates that start with shapes sent once -----------------------------
+
+@st.composite
+def shared_cases(draw: st.DrawFn):
+    """A random net and candidates drawn as in batch_cases, cut into shared parts (runs
+    of consecutive picks) and extensions; each candidate takes a random part or none."""
+    deck, net, picks = draw(batch_cases())
+    parts: list[list[dict]] = []
+    rest = list(picks)
+    for _ in range(draw(st.integers(1, 3))):
+        if len(rest) < 2:
+            break
+        take = draw(st.integers(1, len(rest) - 1))
+        parts.append(rest[:take])
+        rest = rest[take:]
+    sizes, at = [], 0
+    while at < len(rest):
+        size = draw(st.integers(1, min(3, len(rest) - at)))
+        sizes.append(size)
+        at += size
+    chosen = [draw(st.integers(-1, len(parts) - 1)) for _ in sizes]
+    return deck, net, parts, rest, sizes, chosen
+
+
+@SETTINGS
+@given(shared_cases())
+def test_shared_parts_equal_whole_candidates_on_random_nets(case) -> None:
+    """Engine.score_columns with common= equals the same candidates sent whole (the
+    columns without shared parts) exactly, and each equals Engine.score of its shapes."""
+    deck, net, parts, rest, sizes, chosen = case
+    engine = engine_with(deck, net)
+    to_shape = lambda p: eg.make_shape(engine.deck, p["layer"], p["rect"])  # noqa: E731
+    part_shapes = [[to_shape(p) for p in part] for part in parts]
+    own = [to_shape(p) for p in rest]
+    flat_common = [s for part in part_shapes for s in part]
+    common = eg.CommonShapes(np.array([s.layer for s in flat_common], dtype=np.int64),
+                             np.array([s.rect for s in flat_common], dtype=np.int64).reshape(-1, 4),
+                             np.array([len(p) for p in part_shapes], dtype=np.int64),
+                             np.array(chosen, dtype=np.int64))
+    got = engine.score_columns("n1", np.array([s.layer for s in own], dtype=np.int64),
+                               np.array([s.rect for s in own], dtype=np.int64).reshape(-1, 4),
+                               np.array(sizes, dtype=np.int64), common=common)
+    whole, at = [], 0
+    for size, k in zip(sizes, chosen):
+        whole.append((part_shapes[k] if k >= 0 else []) + own[at:at + size])
+        at += size
+    flat = [s for c in whole for s in c]
+    sent_whole = engine.score_columns("n1", np.array([s.layer for s in flat], dtype=np.int64),
+                                      np.array([s.rect for s in flat], dtype=np.int64).reshape(-1, 4),
+                                      np.array([len(c) for c in whole], dtype=np.int64))
+    for column in ("worst_change_utilization", "worst_utilization", "legal", "breaks_limit", "cost",
+                   "added_area_um2"):
+        assert np.array_equal(getattr(got, column), getattr(sent_whole, column)), column
+    for i, c in enumerate(whole):
+        want = engine.score("n1", c, detail=False)
+        assert same(got.worst_utilization[i], want.worst_utilization), (i, c)
+        assert same(got.cost[i], want.cost) and bool(got.legal[i]) == want.legal, (i, c)
+
+
+def test_shared_part_refusals(small_engine: eg.Engine) -> None:
+    """Bad shared parts are refused naming the shared field; nothing is scored."""
+    own = np.array([[0, 0, 100, 100]] * 3, dtype=np.int64)
+    layers = np.zeros(3, dtype=np.int64)
+    part = np.array([[0, 0, 200, 100], [100, 0, 300, 100]], dtype=np.int64)
+    cases = ((eg.CommonShapes([0, 0], part, [1, 1], [0, 1, 2]), eg.InputError, "common.part[2]"),
+             (eg.CommonShapes([0, 0], part, [2], [0, -2, 0]), eg.InputError, "common.part[1]"),
+             (eg.CommonShapes([0, 0], part, [1, 2]), eg.InputError, "common.shape_count"),
+             (eg.CommonShapes([0, 0], part, [1, 0, 1]), eg.InputError, "common.shape_count[1]"),
+             (eg.CommonShapes([0, 99], part), eg.InputError, "common.layers[1]"),
+             (eg.CommonShapes([0, 0], np.array([[0, 0, 200, 100], [5, 0, 5, 9]])), eg.InputError,
+              "common.rects[1]"),
+             (eg.CommonShapes([0, 0], part, [2], [0, 0]), eg.InputError, "common.part"))
+    for common, error, field in cases:
+        with pytest.raises(error) as err:
+            small_engine.score_columns("v", layers, own, common=common)
+        assert err.value.field == field, (common, err.value)
+    # limits: a part plus a candidate's own shapes count against the shapes per net
+    small = eg.Engine(small_engine.deck, limits=eg.Limits(max_shapes_per_net=3))
+    small.open_net("s", [], None, [])
+    with pytest.raises(eg.LimitExceededError) as err:
+        small.score_columns("s", np.zeros(2, dtype=np.int64), own[:2], [2],
+                            common=eg.CommonShapes([0, 0], part))
+    assert err.value.field == "common.part[0]"
+
+
 # -- bench-like nets ------------------------------------------------------------------------
 
 def bench_batch(deck: eg.Deck, net, seed: int, count: int) -> list[eg.Shape]:

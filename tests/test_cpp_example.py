@@ -162,6 +162,18 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     return out
 
 
+def _batch_figures(prefix: str, b) -> dict[str, object]:
+    out: dict[str, object] = {f"{prefix}.size": len(b)}
+    for i in range(len(b)):
+        out[f"{prefix}.{i}.worst_utilization"] = float(b.worst_utilization[i])
+        out[f"{prefix}.{i}.worst_change_utilization"] = float(b.worst_change_utilization[i])
+        out[f"{prefix}.{i}.legal"] = bool(b.legal[i])
+        out[f"{prefix}.{i}.breaks_limit"] = bool(b.breaks_limit[i])
+        out[f"{prefix}.{i}.cost"] = float(b.cost[i])
+        out[f"{prefix}.{i}.added_area_um2"] = float(b.added_area_um2[i])
+    return out
+
+
 def python_figures(c: Client, net: str) -> dict[str, object]:
     """The example's sequence through the Python client, figures under the same keys."""
     deck = c.deck
@@ -187,15 +199,12 @@ def python_figures(c: Client, net: str) -> dict[str, object]:
     rects = np.vstack([singles, pair])
     layers = ["M2"] * len(BATCH_LENGTHS) + ["M2", "M1"]
     counts = [1] * len(BATCH_LENGTHS) + [2]
-    b = c.score_batch(net, rects, layers, counts)
-    f["batch.size"] = len(b)
-    for i in range(len(b)):
-        f[f"batch.{i}.worst_utilization"] = float(b.worst_utilization[i])
-        f[f"batch.{i}.worst_change_utilization"] = float(b.worst_change_utilization[i])
-        f[f"batch.{i}.legal"] = bool(b.legal[i])
-        f[f"batch.{i}.breaks_limit"] = bool(b.breaks_limit[i])
-        f[f"batch.{i}.cost"] = float(b.cost[i])
-        f[f"batch.{i}.added_area_um2"] = float(b.added_area_um2[i])
+    f.update(_batch_figures("batch", c.score_batch(net, rects, layers, counts)))
+    # example.cpp's SharedBatch, sent whole here: the riser part is prepended by hand
+    part = runs_to_rects(4900, 100, 4900, 8100, 140)
+    whole = np.vstack([part, runs_to_rects(5000, 100, 9000, 100, 140), part,
+                       runs_to_rects(4900, 8100, 4900, 20100, 140), runs_to_rects(4900, 100, 4900, 2100, 140)])
+    f.update(_batch_figures("shared", c.score_batch(net, whole, ["M2", "M1", "M2", "M2", "M2"], [2, 2, 1])))
     with pytest.raises(ServiceError) as refused:
         c.score(net, [run("M9", 0, 0, 1000, 0)])
     f["refusal.code"] = refused.value.code.value[0]
@@ -272,3 +281,81 @@ def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
     # The session asked for the jumper and the diode only: no hops were proposed.
     assert cpp["stream.advise.options"] == "0"
     assert int(cpp["unary.advise.options"]) > 0
+
+
+BUDGET_CHECK = BUILD / "etchguard_budget_check"
+
+
+def _random_box(rng) -> tuple[int, int, int, int]:
+    """A rectangle on a 200 DBU grid: random ones touch, abut and overlap often."""
+    x, y = rng.randint(0, 10) * 200, rng.randint(0, 10) * 200
+    return (x, y, x + rng.randint(1, 5) * 200, y + rng.randint(1, 5) * 200)
+
+
+def _random_net(rng, names: list[str]) -> tuple[list, list]:
+    """A random net on the demo deck: a gate and a driver on M1, shapes on M1 to M3."""
+    pins = [pin("g", "M1", [_random_box(rng)], gate_area={"thin": rng.choice([0.01, 0.05, 0.2])}),
+            pin("d", "M1", [_random_box(rng)], diff_area=rng.choice([0.05, 0.1]))]
+    shapes = [rect(rng.choice(names[:5]), *_random_box(rng)) for _ in range(rng.randint(0, 10))]
+    return pins, shapes
+
+
+def test_cpp_local_budget_equals_service(example_binary, live_server):
+    """The C++ LocalBudget (etchguard_budget_check) against the service, on random nets:
+    it covers exactly what the Python LocalBudget covers, each covered candidate's
+    figures equal the server's score of common + candidate to 1e-9 relative (the
+    contract's tolerance), and it declines every candidate that leaves the layer or
+    merges another component (decided with networkx in test_budget.extends_only)."""
+    import random
+
+    import etchguard as eg
+    from etchguard.client import LocalBudget
+    from grpc_fixtures import DEMO_DECK
+    from test_budget import _extensions, extends_only
+
+    assert BUDGET_CHECK.exists()
+    deck = eg.load_deck(DEMO_DECK)
+    rng = random.Random(7)
+    with live_server.client() as c:
+        names = [l.name for l in c.deck.layers]
+        lines, expected = [], []
+        for k in range(12):
+            net = f"blk_b/budget_{uuid.uuid4().hex[:6]}_{k}"
+            pins, shapes = _random_net(rng, names)
+            c.open_net(net, pins, shapes)
+            common = [rect(rng.choice(names[:5]), *_random_box(rng)) for _ in range(rng.randint(0, 3))]
+            elements = ([(names.index(p.layer), (p.rects[0].xlo, p.rects[0].ylo, p.rects[0].xhi, p.rects[0].yhi), i)
+                         for i, p in enumerate(pins)]
+                        + [(names.index(s.layer), (s.rect.xlo, s.rect.ylo, s.rect.xhi, s.rect.yhi), -1)
+                           for s in shapes + common])
+            hit = rng.randrange(len(elements))
+            layer, anchor, _ = elements[hit]
+            reply = c.budget(net, names[layer], anchor[0], anchor[1], common)
+            local = LocalBudget(reply)
+            lines.append(f"budget {net} {names[layer]} {anchor[0]} {anchor[1]}")
+            lines += [f"common {s.layer} {s.rect.xlo} {s.rect.ylo} {s.rect.xhi} {s.rect.yhi}" for s in common]
+            for ext in _extensions(rng, layer, anchor, len(names)):
+                shaped = [(names[l], r) for l, r in ext]
+                lines.append("cand " + " ".join(f"{n} {r[0]} {r[1]} {r[2]} {r[3]}" for n, r in shaped))
+                truth = extends_only(deck, elements, hit, ext)
+                want = c.score(net, common + [rect(n, *r) for n, r in shaped], without_changes=True)
+                expected.append((net, shaped, truth, local.evaluate(shaped), want))
+        done = subprocess.run([str(BUDGET_CHECK), live_server.address], input="\n".join(lines) + "\n",
+                              capture_output=True, text=True, timeout=RUN_TIMEOUT_S)
+        assert done.returncode == 0, done.stderr
+        out = done.stdout.splitlines()
+        assert len(out) == len(expected)
+        covered = 0
+        for line, (net, shaped, truth, python, want) in zip(out, expected):
+            where = (net, shaped, line)
+            assert (line != "declined") == (python is not None), where
+            if line == "declined":
+                continue
+            assert truth, ("covered a candidate that merges or leaves the layer", where)
+            covered += 1
+            _, wc, worst, legal, breaks, cost, added = line.split()
+            for got, ref in ((float(wc), want.worst_change_utilization), (float(worst), want.worst_utilization),
+                             (float(cost), want.cost), (float(added), sum(a.area_um2 for a in want.added_area))):
+                assert got == ref or math.isclose(got, ref, rel_tol=REL_TOL, abs_tol=1e-12), (where, got, ref)
+            assert (legal == "1", breaks == "1") == (want.legal, want.breaks_limit), where
+        assert covered >= len(expected) // 5, (covered, len(expected))

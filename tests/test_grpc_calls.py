@@ -14,7 +14,7 @@ from grpc_reflection.v1alpha.proto_reflection_descriptor_database import \
     ProtoReflectionDescriptorDatabase
 
 import etchguard as eg
-from etchguard.client import BatchScores, ServiceError, pb, pin, rect, run, runs_to_rects
+from etchguard.client import BatchScores, LocalBudget, ServiceError, budget_request, pb, pin, rect, run, runs_to_rects
 from etchguard.server import convert
 from grpc_fixtures import (DEMO_DECK, DRIVER, GATE, candidate, client, net_name,  # noqa: F401
                            open_small_net, server, trunk)
@@ -99,6 +99,86 @@ def test_score_batch_columnar(client):
     assert len(detailed) == 2 and len(detailed.details) == 2
     assert detailed.details[1] == client.score(name, [rect("M2", 4830, 30, 4970, 8000),
                                                      rect("M3", 0, 7860, 5000, 8000)])
+
+
+def test_score_batch_shared_parts(client):
+    """Candidates that start with a shared part sent once get the answers of the same
+    candidates sent whole, columns and details alike; a bad part is refused by field."""
+    name, _ = open_small_net(client)
+    path = runs_to_rects(4900, 100, 4900, 6100, 140)  # an M2 riser from the via
+    lengths = np.arange(1000, 1000 + 40 * 2500, 2500)
+    ends = runs_to_rects(4900, 6100, 4900 + lengths, 6100, 140)  # M3 runs from its end
+    stack = np.array([[4830, 6030, 4970, 6170]])  # a cut on V2 at the riser's end
+    own = np.vstack([stack, ends])
+    layers = ["V2"] + ["M3"] * len(ends)
+    counts = [1] * len(own)
+    part = [-1] + [0] * 20 + [1] * (len(ends) - 20)
+    common = [(path, "M2"), (np.vstack([path, stack]), ["M2", "V2"])]
+    shared = client.score_batch(name, own, layers, counts, common=common, common_part=part)
+    whole_rows, whole_layers, whole_counts = [], [], []
+    for i, k in enumerate(part):
+        rows = [] if k < 0 else list(common[k][0])
+        names = [] if k < 0 else ([common[k][1]] * len(common[k][0]) if isinstance(common[k][1], str)
+                                  else list(common[k][1]))
+        whole_rows += rows + [own[i]]
+        whole_layers += names + [layers[i]]
+        whole_counts.append(len(rows) + 1)
+    whole = client.score_batch(name, np.array(whole_rows), whole_layers, whole_counts)
+    for column in ("cost", "worst_change_utilization", "worst_utilization", "legal", "breaks_limit",
+                   "added_area_um2"):
+        assert np.array_equal(getattr(shared, column), getattr(whole, column)), column
+    assert shared.breaks_limit.any() and not shared.breaks_limit.all()
+    detailed = client.score_batch(name, own[:3], layers[:3], details=True, common=common[:1],
+                                  common_part=[-1, 0, 0])
+    for i in range(3):
+        shapes = ([rect("M2", *map(int, path[0]))] if i else []) + [rect(layers[i], *map(int, own[i]))]
+        assert detailed.details[i] == client.score(name, shapes)
+    with pytest.raises(ServiceError) as err:
+        client.score_batch(name, own[:2], layers[:2], common=common, common_part=[0, 2])
+    assert err.value.code == grpc.StatusCode.INVALID_ARGUMENT
+    assert err.value.field == "candidates.common_part[1]"
+    bad = np.array([[0, 0, 100, 100], [7, 0, 7, 50]])
+    with pytest.raises(ServiceError) as err:
+        client.score_batch(name, own[:2], layers[:2], common=[(bad, "M2")])
+    assert err.value.field == "candidates.common[1].rect"
+
+
+def test_budget_evaluated_locally_equals_score(client):
+    """A Budget over the wire (unary and in a session), evaluated by the client's
+    LocalBudget, gives the server's own score of common + extension (1e-9 relative,
+    the contract's tolerance); it declines a via and a jump to another layer; a bad
+    request is refused naming the field."""
+    name, _ = open_small_net(client)
+    common = [rect("M2", 4830, 30, 4970, 6100)]  # a riser from the via, not committed
+    reply = client.budget(name, "M2", 4900, 3000, common)
+    with client.session() as s:
+        assert s.budget(name, "M2", 4900, 3000, common) == reply
+    assert reply.found and reply.ratios and reply.own
+    local = LocalBudget(reply)
+    for length in (1000, 20_000, 90_000, 300_000):
+        ext = ("M2", (4830, 6100, 4970, 6100 + length))
+        got = local.evaluate([ext])
+        want = client.score(name, common + [rect(*ext[:1], *ext[1])], without_changes=True)
+        for a, b in ((got.worst_change_utilization, want.worst_change_utilization),
+                     (got.worst_utilization, want.worst_utilization), (got.cost, want.cost),
+                     (got.added_area_um2, sum(a.area_um2 for a in want.added_area))):
+            assert math.isclose(a, b, rel_tol=1e-9), (length, a, b)
+        assert (got.legal, got.breaks_limit) == (want.legal, want.breaks_limit)
+    assert local.evaluate([("M3", (4830, 6000, 9000, 6140))]) is None
+    assert local.evaluate([("M2", (4830, 6000, 4970, 6140)), ("V2", (4830, 6030, 4970, 6100))]) is None
+    assert not client.budget(name, "M3", 4900, 3000).found  # nothing of the net there
+    # several in one message, each as the single call answers it; a refusal names which
+    asks = [budget_request(name, "M2", 4900, 3000, common), budget_request(name, "M1", 100, 100)]
+    assert client.budgets(asks) == [reply, client.budget(name, "M1", 100, 100)]
+    with pytest.raises(ServiceError) as err:
+        client.budgets([asks[0], budget_request(name, "M9", 0, 0)])
+    assert err.value.field == "requests[1].layer"
+    with pytest.raises(ServiceError) as err:
+        client.budget(name, "M9", 0, 0)
+    assert err.value.field == "layer"
+    with pytest.raises(ServiceError) as err:
+        client.budget(name, "M2", 0, 0, [rect("M2", 5, 0, 5, 9)])
+    assert err.value.field == "common[0].rect"
 
 
 def test_headroom(client):

@@ -7,7 +7,10 @@ What is checked, and against what outside the router's own bookkeeping:
 * the shapes the router believes it committed are the shapes the server holds: the
   server's report of each net equals an in-process engine's report of the router's
   shapes (same figures, so the table's counts are about what the service checked);
-* antenna-blind routing leaves violations, antenna-aware routing leaves none;
+* antenna-blind routing leaves violations; antenna-aware routing, and blind routing
+  followed by the repair from advice, leave none;
+* the service figures the table shows are the router's count of its requests, and the
+  server's own counters over the same routing agree with them;
 * the comparison figures are measured: wirelength and vias recounted here from the
   shapes, and the two modes' runs differ where the modes differ.
 """
@@ -41,15 +44,20 @@ def runs():
         # "repair": aware, but the search scores nothing: only the advice repairs
         # "tight": aware with a scored-search budget too small for most sinks, so the
         # fallback (searched again without scores, then the advice repair) is at work
+        # "fixed": blind routing, then the repair from advice after routing
         tight = Costs(scored_per_node=0.0, scored_floor=3000)
-        for mode, aware, scores, costs in ((False, False, False, Costs()), (True, True, True, Costs()),
-                                           ("repair", True, False, Costs()), ("tight", True, True, tight)):
+        for mode, aware, scores, costs, after in (
+                (False, False, False, Costs(), False), (True, True, True, Costs(), False),
+                ("repair", True, False, Costs(), False), ("tight", True, True, tight, False),
+                ("fixed", False, False, Costs(), True)):
             with server.client(timeout=120.0) as client:
-                router = Router(client, block, aware, costs=costs, search_scores=scores)
+                before = client.stats()
+                router = Router(client, block, aware, costs=costs, search_scores=scores, repair_after=after)
                 router.route_all()
+                served = client.stats()  # the server's own counters over this mode's routing
                 stats = router.finish(DEMO_DECK)
                 reports = {rep.net: rep for rep in client.check_all()}
-                out[mode] = (router, stats, reports)
+                out[mode] = (router, stats, reports, (before, served))
                 router.close()  # the next mode's advice must not see these nets as obstacles
     finally:
         server.stop()
@@ -69,17 +77,17 @@ def _engine_reports(router: Router) -> dict:
     return out
 
 
-@pytest.mark.parametrize("aware", [False, True, "repair", "tight"])
+@pytest.mark.parametrize("aware", [False, True, "repair", "tight", "fixed"])
 def test_every_net_connected(runs, aware):
-    router, stats, _ = runs[aware]
+    router, stats, _, _ = runs[aware]
     names = {n.name for n in router.block.nets}
     assert connected_nets(DEMO_DECK, router.nets.values()) == names
     assert stats.routed == len(names) == stats.nets
 
 
-@pytest.mark.parametrize("aware", [False, True, "repair", "tight"])
+@pytest.mark.parametrize("aware", [False, True, "repair", "tight", "fixed"])
 def test_server_holds_what_the_router_committed(runs, aware):
-    router, _, served = runs[aware]
+    router, _, served, _ = runs[aware]
     local = _engine_reports(router)
     mine = {k: v for k, v in served.items() if k in local}
     assert set(mine) == set(local)
@@ -88,21 +96,54 @@ def test_server_holds_what_the_router_committed(runs, aware):
         assert mine[name].worst_utilization == pytest.approx(rep.worst_utilization, rel=1e-12), name
 
 
-def test_blind_leaves_violations_aware_none(runs):
-    _, blind, blind_reports = runs[False]
-    _, aware, aware_reports = runs[True]
+def test_blind_leaves_violations_aware_and_repaired_none(runs):
+    _, blind, blind_reports, _ = runs[False]
+    _, aware, aware_reports, _ = runs[True]
+    _, fixed, fixed_reports, _ = runs["fixed"]
     blind_bad = [n for n, r in blind_reports.items() if n.startswith("blind:") and not r.legal]
     aware_bad = [n for n, r in aware_reports.items() if n.startswith("aware:") and not r.legal]
+    fixed_bad = [n for n, r in fixed_reports.items() if n.startswith("fixed:") and not r.legal]
     assert blind.violations == len(blind_bad) > 0
     assert aware.violations == len(aware_bad) == 0
-    assert aware.scored > 0 and blind.scored == 0  # only the aware mode asked the service
-    # every blind violation is either priced by a diode answer or counted as needing more
-    assert (blind.fix_diode_um2 > 0) + blind.fix_no_diode >= 1
+    assert fixed.violations == len(fixed_bad) == 0
+    assert fixed.repairs >= 1 and blind.repairs == 0  # the repair after routing did the work
+    # only the aware mode priced candidates while searching
+    assert aware.scored > 0 and blind.scored == 0 and fixed.scored == 0
+    assert not aware.unrepaired and not fixed.unrepaired  # notes only about nets still illegal
 
 
-@pytest.mark.parametrize("aware", [False, True, "repair"])
+@pytest.mark.parametrize("aware", [False, True, "fixed"])
+def test_call_counts_agree_with_the_server(runs, aware):
+    """The table's service figures are the router's own count of its requests; the
+    server's counters over the same routing agree with them: shapes committed, and
+    candidates scored (ScoreBatch candidates, single scores, budgets, advice)."""
+    router, stats, _, (before, served) = runs[aware]
+    m = stats.meter
+    scored = sum(m.batch_sizes) + m.requests.get("score", 0) + m.budgets + m.requests.get("advise", 0)
+    assert served.scores - before.scores == scored
+    assert served.commits - before.commits >= sum(len(r.shapes) for r in router.nets.values())
+    assert m.calls == sum(m.requests.values()) > 0
+    assert m.seconds > 0 and len(m.batch_sizes) == m.requests.get("score_batch", 0)
+
+
+def test_table_shows_the_runs(runs):
+    """demo.table prints each run's own figures (one row per mode)."""
+    import demo
+
+    rows = [runs[mode][1] for mode in (False, True, "fixed")]
+    text = demo.table(rows)
+    lines = text.splitlines()
+    assert len(lines) == 2 + len(rows)
+    for s, line in zip(rows, lines[2:]):
+        assert line.startswith(s.mode)
+        cells = line[len(s.mode):].split()
+        assert cells[0] == f"{s.routed}/{s.nets}" and cells[3] == str(s.violations)
+        assert cells[4] == str(s.repairs) and cells[8] == str(s.meter.calls)
+
+
+@pytest.mark.parametrize("aware", [False, True, "repair", "fixed"])
 def test_figures_are_recounted_from_shapes(runs, aware):
-    router, stats, _ = runs[aware]
+    router, stats, _, _ = runs[aware]
     cuts = {"V1", "V2", "V3", "V4", "V5"}
     vias = sum(1 for r in router.nets.values() for s in r.shapes if s.layer in cuts)
     assert stats.vias == vias > 0
@@ -118,8 +159,8 @@ def test_figures_are_recounted_from_shapes(runs, aware):
 def test_advice_repairs_what_the_search_did_not_avoid(runs):
     """Without scores in the search the paths are the blind ones; every path that would
     break a limit is repaired from the service's advice before it is committed."""
-    _, blind, _ = runs[False]
-    _, repair, reports = runs["repair"]
+    _, blind, _, _ = runs[False]
+    _, repair, reports, _ = runs["repair"]
     used = repair.hops + repair.jumpers + repair.diodes
     assert repair.scored == 0
     assert used >= 1
@@ -132,8 +173,8 @@ def test_scored_search_out_of_budget_falls_back(runs):
     """A sink whose scored search runs out of its budget is searched again without
     scores and still routed (the net is connected: test_every_net_connected); the
     count is the router's, and the violations left are the service's."""
-    _, normal, _ = runs[True]
-    router, tight, reports = runs["tight"]
+    _, normal, _, _ = runs[True]
+    router, tight, reports, _ = runs["tight"]
     assert tight.plain_searches > normal.plain_searches
     assert tight.scored > 0
     assert tight.violations == sum(1 for n, r in reports.items()

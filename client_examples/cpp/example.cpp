@@ -4,7 +4,7 @@
 //
 // Opens one net (a gate on M1 routed to a via up to M2, with its driver not yet
 // joined), streams commits and scores over one Session, scores the same candidate
-// by a unary call, scores a columnar batch, asks for repair advice on a run that
+// by a unary call, scores a columnar batch (and one with a shared part), asks for repair advice on a run that
 // breaks a limit (in the session and by a unary call), shows a refusal naming its
 // field, and closes the net. It prints every figure as one `key value` line (doubles with 17
 // significant digits, so they read back exactly), for people and scripts alike.
@@ -148,6 +148,31 @@ eg::CandidateBatch DemoBatch() {
   return batch;
 }
 
+// A batch with a shared part: the M2 riser to 8100 sent once; an M1 stub and a riser
+// extension start with it, a short riser does not. The answers equal those of the
+// candidates sent whole (the test holds them to the Python client's).
+eg::CandidateBatch SharedBatch() {
+  eg::CandidateBatch batch;
+  const std::size_t riser = batch.AddCommon({eg::RectShape("M2", eg::RunBox(4900, 100, 4900, 8100, 140))});
+  batch.Add({eg::RectShape("M1", eg::RunBox(5000, 100, 9000, 100, 140))}, riser);
+  batch.Add({eg::RectShape("M2", eg::RunBox(4900, 8100, 4900, 20100, 140))}, riser);
+  batch.Add("M2", eg::RunBox(4900, 100, 4900, 2100, 140));
+  return batch;
+}
+
+void PrintBatch(const std::string& prefix, const eg::CandidateBatch& batch, const pb::ScoreBatchReply& scores) {
+  PrintCount(prefix + ".size", batch.size());
+  for (int i = 0; i < scores.cost_size(); ++i) {
+    const std::string at = prefix + "." + std::to_string(i);
+    Print(at + ".worst_utilization", scores.worst_utilization(i));
+    Print(at + ".worst_change_utilization", scores.worst_change_utilization(i));
+    Print(at + ".legal", static_cast<bool>(scores.legal(i)));
+    Print(at + ".breaks_limit", static_cast<bool>(scores.breaks_limit(i)));
+    Print(at + ".cost", scores.cost(i));
+    Print(at + ".added_area_um2", scores.added_area_um2(i));
+  }
+}
+
 int Run(const std::string& address, const std::string& net) {
   eg::Client client(address);
   if (!client.WaitReady(std::chrono::seconds(10))) {
@@ -182,17 +207,9 @@ int Run(const std::string& address, const std::string& net) {
   PrintAdvice("unary.advise", eg::Advise(client, net, WideRiser()));
 
   const eg::CandidateBatch batch = DemoBatch();
-  const pb::ScoreBatchReply scores = client.ScoreBatch(net, batch);
-  PrintCount("batch.size", batch.size());
-  for (int i = 0; i < scores.cost_size(); ++i) {
-    const std::string prefix = "batch." + std::to_string(i);
-    Print(prefix + ".worst_utilization", scores.worst_utilization(i));
-    Print(prefix + ".worst_change_utilization", scores.worst_change_utilization(i));
-    Print(prefix + ".legal", static_cast<bool>(scores.legal(i)));
-    Print(prefix + ".breaks_limit", static_cast<bool>(scores.breaks_limit(i)));
-    Print(prefix + ".cost", scores.cost(i));
-    Print(prefix + ".added_area_um2", scores.added_area_um2(i));
-  }
+  PrintBatch("batch", batch, client.ScoreBatch(net, batch));
+  const eg::CandidateBatch shared = SharedBatch();
+  PrintBatch("shared", shared, client.ScoreBatch(net, shared));
 
   // A refusal: a layer the deck does not have. The call changes nothing.
   try {

@@ -1,10 +1,11 @@
-"""Route an invented block twice through a real etchguard server and compare.
+"""Route an invented block three ways through a real etchguard server and compare.
 
     .venv/bin/python client_examples/router/demo.py [--block FILE] [--server ADDRESS]
 
 Without --server it starts ``etchguard serve`` on the demo deck on a free loopback
-port, and stops it at the end. Both modes route the same block on the same server
-(their nets are named apart); the table's figures come from these two runs.
+port, and stops it at the end. The modes (blind; aware; blind followed by repair from
+advice) route the same block on the same server (their nets are named apart); the
+table's figures come from these runs.
 """
 
 from __future__ import annotations
@@ -67,11 +68,14 @@ def serve(deck: Path):
             proc.wait()
 
 
-def run_mode(address: str, block_path: Path, aware: bool, deck: Path = DECK, verbose: bool = False) -> Stats:
+MODES = {"blind": dict(aware=False), "aware": dict(aware=True), "blind + repair": dict(aware=False, repair_after=True)}
+
+
+def run_mode(address: str, block_path: Path, mode: str, deck: Path = DECK, verbose: bool = False) -> Stats:
     block = load_block(block_path)
     with Client(address, timeout=120.0) as client:
         client.wait_ready(20)
-        router = Router(client, block, aware, log=print if verbose else None)
+        router = Router(client, block, log=print if verbose else None, **MODES[mode])  # type: ignore[arg-type]
         try:
             router.route_all()
             return router.finish(deck)
@@ -80,23 +84,38 @@ def run_mode(address: str, block_path: Path, aware: bool, deck: Path = DECK, ver
 
 
 COLUMNS = (("mode", "{}"), ("nets routed", "{}"), ("wirelength um", "{:.1f}"), ("vias", "{}"),
-           ("antenna violations", "{}"), ("post-route diode um2", "{:.4f}"),
-           ("no diode fixes", "{}"), ("hops", "{}"), ("jumpers", "{}"),
-           ("diodes placed um2", "{:.4f}"), ("rip-ups", "{}"), ("unscored searches", "{}"), ("scored", "{}"), ("time s", "{:.1f}"))
+           ("nets still illegal", "{}"), ("repairs", "{}"), ("added vias", "{}"), ("diode um2", "{:.4f}"),
+           ("rip-ups", "{}"), ("service calls", "{}"), ("cand/call p50", "{:g}"), ("service s", "{:.1f}"),
+           ("client build s", "{:.1f}"), ("time s", "{:.1f}"))
 
 
 def table(rows: list[Stats]) -> str:
     cells = [[c for c, _ in COLUMNS]]
     for s in rows:
-        values = (s.mode, f"{s.routed}/{s.nets}", s.wirelength_um, s.vias, s.violations,
-                  s.fix_diode_um2, s.fix_no_diode, s.hops, s.jumpers, s.diode_um2, s.ripups,
-                  s.plain_searches, s.scored, s.seconds)
+        m = s.meter
+        values = (s.mode, f"{s.routed}/{s.nets}", s.wirelength_um, s.vias, s.violations, s.repairs,
+                  s.added_vias, s.diode_um2, s.ripups, m.calls, m.batch_p50, m.seconds, m.build_seconds,
+                  s.seconds)
         cells.append([fmt.format(v) for (_, fmt), v in zip(COLUMNS, values)])
     widths = [max(len(row[i]) for row in cells) for i in range(len(COLUMNS))]
     lines = ["  ".join(c.rjust(w) if i else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths)))
              for row in cells]
     lines.insert(1, "  ".join("-" * w for w in widths))
     return "\n".join(lines)
+
+
+def details(s: Stats) -> str:
+    """Where a mode's calls went, and what the router priced without one."""
+    m = s.meter
+    ops = ", ".join(f"{op} {n}" for op, n in sorted(m.requests.items()))
+    out = f"  {s.mode}: requests by op: {ops}"
+    if m.batch_sizes:
+        out += (f"; ScoreBatch candidates {sum(m.batch_sizes)} in {len(m.batch_sizes)} calls; budgets "
+                f"{m.budgets}; priced locally from budgets {m.local}")
+    out += f"; hops {s.hops}, jumpers {s.jumpers}, diodes {s.diodes}; search expansions {s.expanded}"
+    if s.plain_searches:
+        out += f"; scored searches out of budget {s.plain_searches}"
+    return out
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -106,19 +125,30 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--verbose", action="store_true", help="print rip-ups and repairs")
     args = parser.parse_args(argv)
 
-    def both(address: str) -> list[Stats]:
-        return [run_mode(address, args.block, aware, verbose=args.verbose) for aware in (False, True)]
+    def every(address: str) -> list[Stats]:
+        return [run_mode(address, args.block, mode, verbose=args.verbose) for mode in MODES]
 
     if args.server:
-        rows = both(args.server)
+        rows = every(args.server)
     else:
         with serve(DECK) as address:
-            rows = both(address)
+            rows = every(address)
     print(f"block {load_block(args.block).name}: {rows[0].nets} nets, deck {DECK.name}")
     print(table(rows))
     for s in rows:
-        for note in s.unrepaired:
-            print(f"  {s.mode}: {note}")
+        print(details(s))
+    blind, aware, fixed = rows
+    print(f"ratios to blind: aware time {aware.seconds / blind.seconds:.2f}x, blind + repair time "
+          f"{fixed.seconds / blind.seconds:.2f}x; aware wirelength {aware.wirelength_um / blind.wirelength_um:.3f}x, "
+          f"vias {aware.vias / blind.vias:.3f}x")
+    for s in rows:
+        for name, why in s.unrepaired:
+            print(f"  {s.mode}: {name}: {why}")
+        for failure in s.advice_failures:
+            print(f"  {s.mode}: advice failed for {failure}")
+        if s.notes_outdated:
+            print(f"  {s.mode}: {s.notes_outdated} net(s) noted illegal after a repair while routing are "
+                  "legal at the end (a later change fixed them)")
     return 0
 
 

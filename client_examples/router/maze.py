@@ -8,30 +8,52 @@ only) a penalty per node another net already uses.
 The search runs from the sink (a gate) towards the tree that already holds the driver,
 so the start of every partial path is the gate side: while a path has only climbed, all
 of it is connected to the gate when its current layer is etched (nothing above exists
-yet). In antenna-aware mode those gate-side wire moves are scored by the service, as
-the whole partial path plus the run being extended, and so is every move that joins
-the tree (the complete path). Nodes are popped in waves; each wave's candidates go to
-the service in one ScoreBatch message. The returned router cost (0 below the deck's
-knee, steep near a limit, >= 1e6 above) is added, as its increase over the partial
-path's cost so far, to the A* cost.
+yet). In antenna-aware mode a ``Pricer`` prices two kinds of moves with the service's
+router cost (0 below the deck's knee, steep near a limit, >= 1e6 above), added to the
+A* cost as its increase over the partial path's cost so far:
+
+* gate-side wire moves: the partial path plus the run being extended, priced from the
+  budget of the path's component on its current layer (one Budget per partial path
+  and layer, then evaluated locally), the service asked only where the budget does not
+  cover the move. A run is sampled, not priced at every step (see Costs.quiet);
+* moves that join the tree (the complete path): priced lazily. Such a move enters the
+  heap at its cost without antenna (a lower bound); when one comes out of the heap
+  unpriced, every unpriced join gathered so far is priced in one ScoreBatch message
+  (each partial path sent once as a shared part), and those that cost more go back at
+  their full cost. A* then still takes the cheapest complete path, and one message
+  carries the joins of many waves.
 """
 
 from __future__ import annotations
 
 import heapq
 import math
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
-
-import numpy as np
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Protocol
 
 from grid import Node, Occupancy, TrackGrid
 
 # A path element: ("run", layer k, x1, y1, x2, y2) on a routing layer, or
 # ("via", cut c, x, y) between routing layers c and c + 1 (both DBU).
 Item = tuple
-# candidates -> (router cost, worst utilization among the ratios they change), per candidate
-Scorer = Callable[[Sequence[tuple[Item, ...]]], tuple[np.ndarray, np.ndarray]]
+
+
+class Pricer(Protocol):
+    """The service's router cost of candidates (the partial path ``before`` followed by
+    ``extension``), and the worst utilization among the ratios they change."""
+
+    def gate_side(self, asks: Sequence[tuple[tuple[Item, ...], int, Item]]) -> list[tuple[float, float]]:
+        """Per ask (before, layer k, run item on k from the path's end): cost, utilization."""
+
+    def joins(self, asks: Sequence[tuple[tuple[Item, ...], tuple[Item, ...]]]) -> list[float]:
+        """Per ask (before, extension items): cost of the complete path."""
+
+    def prefetch(self, before: tuple[Item, ...], k: int, run: Item) -> None:
+        """A gate-side run on layer k starts from ``before``: it will likely be priced."""
+
+    def flush(self) -> None:
+        """Send what ``prefetch`` noted (without waiting for the answer)."""
 
 
 @dataclass(frozen=True)
@@ -45,20 +67,24 @@ class Costs:
     # >= 1e6, which would make the search flood the whole block before it accepts a
     # path it cannot avoid; such a path is repaired from advice before it is committed.
     antenna_cap: float = 400.0
-    wave: int = 48  # nodes popped per expansion wave (one score message)
+    wave: int = 48  # nodes popped per expansion wave
     # Weighted A*: the heuristic times this (> 1 trades a little path cost for far
     # fewer expansions; a found path costs at most this factor more than the cheapest).
     greed: float = 1.4
-    sample: int = 12  # gate-side runs are scored every `sample` base steps of length
-    # Gate-side paths with less metal than this are not scored (a saving of calls: so
-    # little conductor is far below any knee of the demo deck; the complete path is
-    # checked before it is committed whatever the search did).
+    # Gate-side paths with less metal than this are not priced (so little conductor is
+    # far below any knee of the demo deck; the complete path is checked before it is
+    # committed whatever the search did).
     min_scored_um: float = 6.0
+    sample: int = 12  # gate-side runs are priced every `sample` base steps of length
     # Along one gate-side run every ratio the run changes is affine in its length with
     # a non-negative intercept (pads, in-cell area, earlier steps' terms), so after a
     # sample with utilization u at length l no length l' >= l exceeds u * l' / l. The
     # next sample is taken where that bound reaches `quiet` (below the cost knee).
     quiet: float = 0.5
+    # A run's budget is asked (not waited for) when the run reaches this many steps, a
+    # few before its first price: the reply travels while the search goes on. Sooner
+    # asks more budgets that are never used; later waits more.
+    prefetch_at: int = 11
     # Expansion budgets. A search whose every way to the tree breaks a limit pays the
     # antenna cap on every path, so it expands every node within the cap of the
     # cheapest path: for the cap above that is most of the block, and the search ran
@@ -76,13 +102,13 @@ class SearchResult:
     items: tuple[Item, ...] | None  # from the sink to the tree; None: no path found
     cost: float
     expanded: int
-    scored: int  # candidates sent to the service
+    scored: int  # candidates priced (locally from budgets or by the service)
     # No path: True when the expansion budget ran out (a path may exist), False when
     # every reachable node was expanded (none exists at this occupancy).
     out_of_budget: bool = False
-    # Out of budget: antenna cost (um) of the cheapest path to the tree the search had
-    # reached but not yet accepted, None if none. At the cap it means that path breaks
-    # a limit, so the search must first expand everything within the cap of it.
+    # Out of budget: antenna cost (um) of the cheapest priced path to the tree the
+    # search had reached but not yet accepted, None if none. At the cap it means that
+    # path breaks a limit, so the search must first expand everything within the cap.
     best_join_antenna: float | None = None
 
     @property
@@ -115,11 +141,40 @@ class _Labels:
         self.gate_side: dict[Node, bool] = {}
         self.antenna: dict[Node, float] = {}
         self.metal: dict[Node, float] = {}  # um of run in the partial path
-        self.next_sample: dict[Node, int] = {}  # run length (base steps) of the next score
+        self.next_sample: dict[Node, int] = {}  # run length (base steps) of the next price
+
+
+@dataclass
+class _Join:
+    """A move onto the tree: the complete path is ``before + extension``."""
+
+    before: tuple[Item, ...]
+    extension: tuple[Item, ...]
+    g_base: float  # path cost with the antenna cost of the partial path only
+    antenna_before: float  # router cost of the partial path (the max so far)
+    g: float = 0.0  # current key: g_base until priced, then the full cost
+    priced: bool = False
+    cost: float = 0.0  # the complete path's router cost, once priced
+
+
+@dataclass
+class _Heap:
+    """Nodes (>= 0) and joins (-1 - index) in one heap, ordered by (f, -g, seq)."""
+
+    entries: list[tuple[float, float, int, int]] = field(default_factory=list)
+    seq: int = 0
+
+    def push(self, f: float, g: float, key: int) -> None:
+        self.seq += 1
+        heapq.heappush(self.entries, (f, -g, self.seq, key))
+
+    def pop(self) -> tuple[float, float, int]:
+        f, neg_g, _, key = heapq.heappop(self.entries)
+        return f, -neg_g, key
 
 
 def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], targets: set[Node],
-           costs: Costs, scorer: Scorer | None = None, soft: bool = False,
+           costs: Costs, pricer: Pricer | None = None, soft: bool = False,
            max_expansions: int = 400_000) -> SearchResult:
     layers = grid.layers
     pitch_um = grid.pitch / 1000.0
@@ -128,6 +183,8 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
     plane, ny = grid.plane, grid.ny
     wire_tab, pad_tab, history = occ.wire, occ.pad, occ.history
     fixed_wire, fixed_pad = occ.fixed_wire, occ.fixed_pad
+    if sources & targets:
+        return SearchResult((), 0.0, 0, 0)
 
     ti = [(t % plane) // ny for t in targets]
     tj = [t % ny for t in targets]
@@ -152,14 +209,18 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
             return None
         return costs.other_net
 
+    def paid(antenna: float) -> float:
+        return min(costs.antenna * antenna, costs.antenna_cap)
+
     L = _Labels()
-    heap: list[tuple[float, float, Node]] = []
+    heap = _Heap()
     for s in sources:
         L.g[s], L.run_start[s], L.before[s], L.gate_side[s], L.antenna[s] = 0.0, s, (), True, 0.0
         L.metal[s] = 0.0
         L.next_sample[s] = costs.sample
-        heapq.heappush(heap, (h(s), 0.0, s))
-    parent: dict[Node, Node] = {}
+        heap.push(h(s), 0.0, s)
+    joins: list[_Join] = []
+    unpriced: list[int] = []
     expanded = scored = 0
 
     def run_item(a: Node, b: Node) -> tuple[Item, ...]:
@@ -169,27 +230,45 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
         _, ib, jb = grid.split(b)
         return (("run", k, *grid.xy(ia, ja), *grid.xy(ib, jb)),)
 
-    while heap:
+    def price_joins() -> None:
+        nonlocal scored
+        values = pricer.joins([(joins[j].before, joins[j].extension) for j in unpriced])  # type: ignore[union-attr]
+        scored += len(unpriced)
+        for j, value in zip(unpriced, values):
+            join = joins[j]
+            join.priced, join.cost = True, max(join.antenna_before, float(value))
+            full = join.g_base + paid(join.cost) - paid(join.antenna_before)
+            if full > join.g + 1e-9:
+                join.g = full
+                heap.push(full, full, -1 - j)
+        unpriced.clear()
+
+    while heap.entries:
         wave: list[Node] = []
-        while heap and len(wave) < costs.wave:
-            f, neg_g, u = heapq.heappop(heap)
-            if -neg_g > L.g[u] + 1e-9:
+        while heap.entries and len(wave) < costs.wave:
+            f, g_popped, key = heap.pop()
+            if key < 0:  # a join onto the tree
+                join = joins[-1 - key]
+                if g_popped < join.g - 1e-9:
+                    continue  # stale: it went back at its full cost
+                if wave:
+                    heap.push(f, g_popped, key)
+                    break
+                if not join.priced:
+                    price_joins()
+                    if join.g > g_popped + 1e-9:
+                        continue  # it costs more: back in the heap
+                return SearchResult(join.before + join.extension, join.g, expanded, scored)
+            if g_popped < L.g[key] - 1e-9:
                 continue  # stale entry
-            if u in targets:
-                if not wave:
-                    items = L.before[u] + run_item(L.run_start[u], u)
-                    return SearchResult(items, L.g[u], expanded, scored)
-                heapq.heappush(heap, (f, neg_g, u))
-                break
-            wave.append(u)
+            wave.append(key)
         if not wave:
             continue
         expanded += len(wave)
         if expanded > max_expansions:
-            joins = [t for t in targets if t in L.g]
-            best = min(joins, key=L.g.__getitem__) if joins else None
-            paid = None if best is None else min(costs.antenna * L.antenna[best], costs.antenna_cap)
-            return SearchResult(None, math.inf, expanded, scored, True, paid)
+            best = min(joins, key=lambda j: j.g, default=None)
+            spent = None if best is None else paid(best.cost if best.priced else best.antenna_before)
+            return SearchResult(None, math.inf, expanded, scored, True, spent)
         # moves: (u, v, base cost, via between u's and v's layer?)
         moves: list[tuple[Node, Node, float, bool]] = []
         for u in wave:
@@ -213,52 +292,49 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                     b = blocked(pad_tab, fixed_pad, v)
                     if a is not None and b is not None:
                         moves.append((u, v, costs.via + a + b + costs.history * history.get(v, 0.0), True))
-        # the wave's antenna candidates, one message
-        antenna = [0.0] * len(moves)
-        sampled: dict[int, int] = {}  # candidate -> its run length, for gate-side samples
+        # the wave's gate-side wire moves, priced together
+        antenna: dict[int, float] = {}
         sampled_next: dict[int, int] = {}  # move -> the next sample length on its run
-        if scorer is not None:
-            asks: list[int] = []
-            cands: list[tuple[Item, ...]] = []
+        if pricer is not None:
+            asks, which, lengths = [], [], []
             for m, (u, v, _c, is_via) in enumerate(moves):
-                joins = v in targets
-                if is_via:
-                    if not joins:
-                        continue
-                    ku, iu, ju = grid.split(u)
-                    cand = (L.before[u] + run_item(L.run_start[u], u)
-                            + (("via", min(ku, v // plane), *grid.xy(iu, ju)),))
-                else:
-                    if not joins:
-                        if not L.gate_side[u]:
-                            continue
-                        along = ny if layers[u // plane].horizontal else 1  # node-id stride of a step
-                        length = abs(v - L.run_start[u]) // along
-                        if length < L.next_sample[u] or L.metal[u] + pitch_um < costs.min_scored_um:
-                            continue
-                        sampled[len(cands)] = length
-                    cand = L.before[u] + run_item(L.run_start[u], v)
-                if cand:
-                    asks.append(m)
-                    cands.append(cand)
-            if cands:
-                values, utils = scorer(cands)
-                scored += len(cands)
-                for q, (m, c) in enumerate(zip(asks, values)):
-                    antenna[m] = float(c)
-                    if q in sampled:
-                        length, u = sampled[q], float(utils[q])
-                        bound = math.ceil(length * costs.quiet / u) if u > 0 else 1 << 30
-                        sampled_next[m] = max(length + costs.sample, bound)
+                if is_via or v in targets or not L.gate_side[u] or L.metal[u] + pitch_um < costs.min_scored_um:
+                    continue
+                along = ny if layers[u // plane].horizontal else 1  # node-id stride of a step
+                length = abs(v - L.run_start[u]) // along
+                if length < L.next_sample[u]:
+                    if length == costs.prefetch_at:  # the run's first price is near: ask its budget
+                        pricer.prefetch(L.before[u], u // plane, run_item(L.run_start[u], v)[0])
+                    continue
+                asks.append((L.before[u], u // plane, run_item(L.run_start[u], v)[0]))
+                which.append(m)
+                lengths.append(length)
+            pricer.flush()
+            if asks:
+                for m, length, (value, util) in zip(which, lengths, pricer.gate_side(asks)):
+                    antenna[m] = value
+                    bound = math.ceil(length * costs.quiet / util) if util > 0 else 1 << 30
+                    sampled_next[m] = max(length + costs.sample, bound)
+                scored += len(asks)
         for m, (u, v, c, is_via) in enumerate(moves):
             a_u = L.antenna[u]
-            a_v = max(a_u, antenna[m])
-            g = L.g[u] + c + min(costs.antenna * a_v, costs.antenna_cap) - min(costs.antenna * a_u, costs.antenna_cap)
+            if v in targets:  # a join: its antenna cost is priced when it leaves the heap
+                ku, iu, ju = grid.split(u)
+                extension = (run_item(L.run_start[u], u) + (("via", min(ku, v // plane), *grid.xy(iu, ju)),)
+                             if is_via else run_item(L.run_start[u], v))
+                g = L.g[u] + c
+                join = _Join(L.before[u], extension, g, a_u, g, pricer is None)
+                joins.append(join)
+                if pricer is not None:
+                    unpriced.append(len(joins) - 1)
+                heap.push(g, g, -len(joins))
+                continue
+            a_v = max(a_u, antenna.get(m, 0.0))
+            g = L.g[u] + c + paid(a_v) - paid(a_u)
             if g < L.g.get(v, float("inf")) - 1e-9:
                 L.g[v] = g
                 L.antenna[v] = a_v
                 L.metal[v] = L.metal[u] + (0.0 if is_via else pitch_um)
-                parent[v] = u
                 if is_via:
                     ku, iu, ju = grid.split(u)
                     kv = v // plane
@@ -272,5 +348,5 @@ def search(grid: TrackGrid, occ: Occupancy, net: str, sources: set[Node], target
                     L.run_start[v] = L.run_start[u]
                     L.gate_side[v] = L.gate_side[u]
                     L.next_sample[v] = sampled_next.get(m, L.next_sample[u])
-                heapq.heappush(heap, (g + h(v), -g, v))
+                heap.push(g + h(v), g, v)
     return SearchResult(None, math.inf, expanded, scored)

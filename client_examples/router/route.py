@@ -27,14 +27,15 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
 from etchguard import run_rect
-from etchguard.client import Client, Session, candidate_columns, pb, pin, rect, via
+from etchguard.client import Client, ServiceError, pb, pin, rect, via
 
 from grid import Node, Occupancy, Rect, TrackGrid
 from maze import Costs, Item, SearchResult, expansion_budget, search
+from pricing import Meter, MeteredSession, ServicePricer
 
 TOLERANCE = 1e-9  # the contract's relative tolerance on utilization
+DECK_PATH = Path(__file__).resolve().parents[2] / "service" / "etchguard" / "data" / "lumen-6m.toml"
 
 
 # -- the block ---------------------------------------------------------------------------
@@ -115,8 +116,6 @@ class Stats:
     wirelength_um: float = 0.0
     vias: int = 0
     violations: int = 0  # nets the service's check finds not legal after routing
-    fix_diode_um2: float = 0.0  # post-route fix: sum of the smallest diode per violating net
-    fix_no_diode: int = 0  # violating nets no single diode makes legal
     hops: int = 0
     jumpers: int = 0
     diodes: int = 0
@@ -125,14 +124,25 @@ class Stats:
     # aware mode: sink searches whose scored search ran out of budget and were searched
     # again without scores (their paths then go through the advice repair)
     plain_searches: int = 0
-    scored: int = 0  # candidates scored through the service
+    scored: int = 0  # candidates priced while searching (from budgets or by the service)
+    added_vias: int = 0  # cut shapes the repairs added (hops and jumpers)
+    expanded: int = 0  # search nodes expanded
     seconds: float = 0.0
-    unrepaired: list[str] = field(default_factory=list)
+    meter: Meter = field(default_factory=Meter)  # service calls of the run
+    # (net, why) a repair left a net illegal; at the end only nets still illegal
+    unrepaired: list[tuple[str, str]] = field(default_factory=list)
+    notes_outdated: int = 0  # such notes about nets legal at the end (dropped)
+    advice_failures: list[str] = field(default_factory=list)  # advice the service failed to give
+
+    @property
+    def repairs(self) -> int:
+        return self.hops + self.jumpers + self.diodes
 
 
 class Router:
     def __init__(self, client: Client, block: Block, aware: bool, costs: Costs = Costs(),
-                 max_ripups: int = 4, log=None, search_scores: bool = True) -> None:
+                 max_ripups: int = 4, log=None, search_scores: bool = True,
+                 repair_after: bool = False, deck_path: Path = DECK_PATH) -> None:
         self.client = client
         # aware mode without scores in the search: only the advice repairs (tests use it
         # to see the repairs at work on their own)
@@ -145,11 +155,14 @@ class Router:
         self.log = log or (lambda *_: None)
         self.grid = TrackGrid(self.deck, block.size, *block.layer_range)
         self.occ = Occupancy(self.grid)
-        self.session: Session = client.session()
-        mode = ("aware" if search_scores else "repair") if aware else "blind"
+        mode = ("aware" if search_scores else "repair") if aware else ("fixed" if repair_after else "blind")
         self.prefix = f"{mode}:"  # the modes may share a server
+        self.repair_after = repair_after and not aware
+        self.deck_path = deck_path  # for the router's own connectivity check (verify.py)
         self.nets = {n.name: NetRoute(n) for n in block.nets}
-        self.stats = Stats("antenna-aware" if aware else "antenna-blind", len(block.nets))
+        title = "antenna-aware" if aware else ("blind + repair" if self.repair_after else "antenna-blind")
+        self.stats = Stats(title, len(block.nets))
+        self.session = MeteredSession(client.session(), self.stats.meter)
         self._rects: dict[Item, list[tuple[str, Rect]]] = {}
         self.width = {layer.name: layer.width for layer in self.grid.layers}
         self.cut_names = {layer.name for layer in self.deck.layers if layer.kind == pb.LAYER_KIND_CUT}
@@ -239,29 +252,11 @@ class Router:
 
     # -- scoring -------------------------------------------------------------------------
 
-    def scorer_for(self, net: str):
-        service_net = self.service_name(net)
-
-        def score(cands: Sequence[tuple[Item, ...]]) -> tuple[np.ndarray, np.ndarray]:
-            rects: list[Rect] = []
-            layers: list[str] = []
-            counts: list[int] = []
-            for cand in cands:
-                n = 0
-                for item in cand:
-                    for name, r in self.item_rects(item):
-                        layers.append(name)
-                        rects.append(r)
-                        n += 1
-                counts.append(n)
-            request = pb.ScoreBatchRequest(net=service_net, candidates=candidate_columns(
-                np.array(rects, dtype=np.int64), np.array(layers), counts))
-            reply = self.session.ask("score_batch", request)
-            self.stats.scored += len(cands)
-            return (np.asarray(reply.cost, dtype=np.float64),
-                    np.asarray(reply.worst_change_utilization, dtype=np.float64))
-
-        return score
+    def pricer_for(self, net: str) -> ServicePricer:
+        """Prices one sink search's candidates (budgets held for that search only: the
+        net changes when its path is committed)."""
+        return ServicePricer(self.session, self.service_name(net), self.item_rects,
+                             [layer.name for layer in self.grid.layers])
 
     # -- routing ---------------------------------------------------------------------------
 
@@ -289,6 +284,8 @@ class Router:
                 self.stats.ripups += 1
                 queue.append(v)
         self.stats.seconds = time.perf_counter() - start
+        if self.repair_after:
+            self.repair_after_routing()
         return self.stats
 
     def crossed_nets(self, route: NetRoute) -> set[str]:
@@ -317,11 +314,11 @@ class Router:
             for r in p.rects:
                 route.tree.update(g.nodes_inside(g.layer_of_name[p.layer], r))
         sinks = sorted(data.sinks, key=lambda p: _distance(p, data.driver))
-        scorer = self.scorer_for(data.name) if self.aware and self.search_scores else None
         for sink in sinks:
             k = g.layer_of_name[sink.layer]
             sources = {n for r in sink.rects for n in g.nodes_inside(k, r)}
-            found = self._search(route, sources, scorer, soft)
+            pricer = self.pricer_for(data.name) if self.aware and self.search_scores else None
+            found = self._search(route, sources, pricer, soft)
             if not found.found:
                 self.rip_up(route)
                 return False
@@ -333,15 +330,21 @@ class Router:
         route.routed = True
         return True
 
-    def _search(self, route: NetRoute, sources: set[Node], scorer, soft: bool) -> SearchResult:
+    def _search(self, route: NetRoute, sources: set[Node], pricer: ServicePricer | None,
+                soft: bool) -> SearchResult:
         """One sink's search. Scored, within a budget that follows the net's span; if
         that runs out, the same search without scores (the advice repairs the path)."""
         g, c, name = self.grid, self.costs, route.data.name
-        if scorer is None:
-            return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
+        if pricer is None:
+            found = search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
+            self.stats.expanded += found.expanded
+            return found
         budget = expansion_budget(g, sources, route.tree, c.scored_margin_um, c.scored_per_node,
                                   c.scored_floor, c.max_expansions)
-        found = search(g, self.occ, name, sources, route.tree, c, scorer, soft, budget)
+        found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget)
+        pricer.drain()
+        self.stats.scored += found.scored
+        self.stats.expanded += found.expanded
         if found.found or not found.out_of_budget:
             return found
         self.stats.plain_searches += 1
@@ -365,44 +368,69 @@ class Router:
         at = self._offending_run(items, verdict)
         if at is None:
             self.commit(route, rects)
-            self.stats.unrepaired.append(f"{route.data.name}: no run to repair on the violated layer")
+            self.stats.unrepaired.append((route.data.name, "no run to repair on the violated layer"))
             return
         # Commit what comes before the run, so the run's joining end is on the net, then
         # ask where it may go instead.
         self.commit(route, [x for item in items[:at] for x in self.item_rects(item)])
         _, k, x1, y1, x2, y2 = items[at]
         layer = self.grid.layers[k].name
-        advice = self.session.advise(net, layer, x1, y1, x2, y2)
         rest = [x for item in items[at + 1:] for x in self.item_rects(item)]
         run_as_is = self.item_rects(items[at])
-        if advice.legal_as_is:  # the run alone is fine: what breaks comes with the rest
-            self.commit(route, run_as_is + rest)
+        used = self._apply_advice(route, layer, (x1, y1, x2, y2), run_as_is, rest)
+        if used == "legal as is":  # the run alone is fine: what breaks comes with the rest
             self._note_unrepaired(route, "the rest of the path breaks a limit")
-            return
-        if advice.HasField("best_option"):
+        elif used == "none":
+            self._note_unrepaired(route, "no free hop, jumper or diode")
+        elif not self.session.check(net).legal:
+            self._note_unrepaired(route, "still breaks a limit after the repair")
+
+    def _apply_advice(self, route: NetRoute, layer: str, line: tuple[int, int, int, int],
+                      as_is: list[tuple[str, Rect]], rest: list[tuple[str, Rect]]) -> str:
+        """Ask where a run (not committed; its joining end is) may go and commit the
+        first free, legal answer with ``rest``: a layer hop, else a jumper, else the
+        run as it is with the advised diode; else the run as it is. The hop and jumper
+        are asked first and the diode only when neither serves (the diode search is the
+        dearest answer). Returns what was used."""
+        net = self.service_name(route.data.name)
+        advice = self._advise(route, layer, line, ("hop", "jumper"))
+        if advice is not None and advice.legal_as_is:
+            self.commit(route, as_is + rest)
+            return "legal as is"
+        if advice is not None and advice.HasField("best_option"):
             option = advice.options[advice.best_option]
             self.commit(route, [(s.layer, _rect(s.rect)) for s in option.shapes] + rest)
             self.stats.hops += 1
+            self.stats.added_vias += option.cuts
             self.log(f"{route.data.name}: {layer} run hops to {option.layer}")
-        elif (advice.HasField("jumper") and advice.jumper.legal and not advice.jumper.blocked
-              and advice.jumper.hop_layer):
+            return "hop"
+        if (advice is not None and advice.HasField("jumper") and advice.jumper.legal
+                and not advice.jumper.blocked and advice.jumper.hop_layer):
             self.commit(route, [(s.layer, _rect(s.rect)) for s in advice.jumper.shapes] + rest)
             self.stats.jumpers += 1
+            self.stats.added_vias += sum(1 for s in advice.jumper.shapes if s.layer in self.cut_names)
             self.log(f"{route.data.name}: {layer} run keeps {advice.jumper.kept_length_dbu} DBU, "
                      f"jumps to {advice.jumper.hop_layer}")
-        elif advice.HasField("diode") and advice.diode.found:
-            self.commit(route, run_as_is + rest)
-            self.place_diode(route, advice.diode)
-        else:
-            self.commit(route, run_as_is + rest)
-            self._note_unrepaired(route, "no free hop, jumper or diode")
-            return
-        if not self.session.check(net).legal:
-            self._note_unrepaired(route, "still breaks a limit after the repair")
+            return "jumper"
+        diode = self._advise(route, layer, line, ("diode",))
+        self.commit(route, as_is + rest)
+        if diode is not None and diode.HasField("diode") and diode.diode.found:
+            self.place_diode(route, diode.diode)
+            return "diode"
+        return "none"
+
+    def _advise(self, route: NetRoute, layer: str, line: tuple[int, int, int, int],
+                want: tuple[str, ...]) -> pb.AdviseReply | None:
+        """The service's advice, or None (noted) when the service fails to give it."""
+        try:
+            return self.session.advise(self.service_name(route.data.name), layer, *line, want=want)
+        except ServiceError as exc:
+            self.stats.advice_failures.append(f"{route.data.name} ({', '.join(want)}): {exc.message}")
+            return None
 
     def _note_unrepaired(self, route: NetRoute, why: str) -> None:
         if not self.session.check(self.service_name(route.data.name)).legal:
-            self.stats.unrepaired.append(f"{route.data.name}: {why}")
+            self.stats.unrepaired.append((route.data.name, why))
 
     def _offending_run(self, items: list[Item], verdict: pb.ScoreReply) -> int | None:
         """Index of the run to repair: on the lowest layer with a ratio over its limit,
@@ -443,11 +471,84 @@ class Router:
         self.stats.diode_um2 += diode.diff_area_um2
         self.log(f"{route.data.name}: diode of {diode.diff_area_um2:.4f} um^2 at {diode.gate}")
 
+    # -- blind routing's usual follow-up: repair after routing, from advice ---------------------
+
+    def repair_after_routing(self, max_tries: int = 3) -> None:
+        """Check every net once routing is done and repair each violating one from the
+        service's advice, as a flow without antenna awareness would: take out the
+        longest run on the lowest violated routing layer, ask where it may go, apply a
+        free, legal layer hop, else a free, legal jumper, else the advised diode at the
+        gate (else put the run back); check again, up to ``max_tries`` runs per net."""
+        start = time.perf_counter()
+        mine = {self.service_name(n): n for n in self.nets}
+        t0 = time.perf_counter()
+        bad = [rep.net for rep in self.client.check_all(violations_only=True) if rep.net in mine]
+        self.stats.meter.seconds += time.perf_counter() - t0
+        self.stats.meter.count("check_all")
+        for net in bad:
+            route = self.nets[mine[net]]
+            tried: set[Rect] = set()
+            report = self.session.check(net)
+            while not report.legal and len(tried) < max_tries:
+                run = self._run_to_repair(route, report, tried)
+                if run is None:
+                    break
+                tried.add(run.rect)
+                self._repair_run(route, run)
+                report = self.session.check(net)
+            if not report.legal:
+                self.stats.unrepaired.append((route.data.name, "still breaks a limit after the repairs"))
+        self.stats.seconds += time.perf_counter() - start
+
+    def _run_to_repair(self, route: NetRoute, report: pb.NetReport, tried: set[Rect]) -> Committed | None:
+        """The longest run not tried yet on the lowest routing layer with a failing
+        check (for a failing cut layer, the routing layer below it)."""
+        names = [layer.name for layer in self.deck.layers]
+        for check in sorted((c for c in report.checks if not c.legal), key=lambda c: c.step):
+            layer = check.layer if check.layer not in self.cut_names else names[check.step - 1]
+            runs = [s for s in route.shapes if s.layer == layer and s.run_um > 0 and s.rect not in tried]
+            if runs:
+                return max(runs, key=lambda s: s.run_um)
+        return None
+
+    def _repair_run(self, route: NetRoute, run: Committed) -> str:
+        """Take the run out and apply the advice on it (see _apply_advice). A routed
+        run may carry branches along it, not only at its ends, and a hop or jumper
+        reconnects its ends only: when the net is no longer connected, the repair is
+        undone (checked here on the router's shapes, no call) and the run stays."""
+        from verify import connected_nets
+
+        self.take_out(route, [run])
+        kept = len(route.shapes)
+        line = _centre_line(run.rect, self.width[run.layer])
+        used = self._apply_advice(route, run.layer, line, [(run.layer, run.rect)], [])
+        if used in ("hop", "jumper") and not connected_nets(self.deck_path, [route]):
+            added = route.shapes[kept:]
+            self.take_out(route, added)
+            self.commit(route, [(run.layer, run.rect)])
+            self.stats.hops -= used == "hop"
+            self.stats.jumpers -= used == "jumper"
+            self.stats.added_vias -= sum(1 for s in added if s.layer in self.cut_names)
+            self.log(f"{route.data.name}: {used} undone, it left a branch of the net apart")
+            return "undone"
+        return used
+
+    def take_out(self, route: NetRoute, shapes: Sequence[Committed]) -> None:
+        """Remove committed shapes from the service, the occupancy and the route."""
+        self.session.remove(self.service_name(route.data.name), [s.shape_id for s in shapes])
+        for s in shapes:
+            k = self.grid.layer_of_name.get(s.layer)
+            if k is not None:
+                self.occ.remove(route.data.name, k, s.rect)
+            route.shapes.remove(s)
+
     # -- after routing -------------------------------------------------------------------------
 
     def finish(self, deck_path: Path) -> Stats:
         """Figures of the routed block: connectivity by the engine, violations by the
-        service, and what a post-route diode fix would need."""
+        service. Notes written while routing about a net that is legal at the end
+        described a state a later commit changed (a later sink's repair, a rip-up and
+        reroute): they are dropped here, so notes and the violation count agree."""
         from verify import connected_nets
 
         stats = self.stats
@@ -455,42 +556,17 @@ class Router:
         stats.wirelength_um = sum(s.run_um for r in self.nets.values() for s in r.shapes)
         stats.vias = sum(1 for r in self.nets.values() for s in r.shapes if s.layer in self.cut_names)
         mine = {self.service_name(n): n for n in self.nets}
-        bad = [rep for rep in self.client.check_all(violations_only=True) if rep.net in mine]
+        bad = {mine[rep.net] for rep in self.client.check_all(violations_only=True) if rep.net in mine}
         stats.violations = len(bad)
-        for rep in bad:
-            area = self.post_route_diode(self.nets[mine[rep.net]], rep)
-            if area is None:
-                stats.fix_no_diode += 1
-            else:
-                stats.fix_diode_um2 += area
+        stats.notes_outdated = sum(1 for name, _ in stats.unrepaired if name not in bad)
+        stats.unrepaired = [(name, why) for name, why in stats.unrepaired if name in bad]
         return stats
 
-    def post_route_diode(self, route: NetRoute, report: pb.NetReport) -> float | None:
-        """The smallest diode that makes a routed net legal: take out one run on the
-        violated layer, ask the diode answer for it (net + run = the routed net), put
-        the run back."""
-        net = self.service_name(route.data.name)
-        worst = max((c for c in report.checks if not c.legal), key=lambda c: c.utilization)
-        runs = [s for s in route.shapes if s.layer == worst.layer and s.run_um > 0]
-        if not runs:
-            runs = [s for s in route.shapes if s.run_um > 0]
-        if not runs:
-            return None
-        run = max(runs, key=lambda s: s.run_um)
-        line = _centre_line(run.rect, self.width[run.layer])
-        self.session.remove(net, [run.shape_id])
-        try:
-            advice = self.session.advise(net, run.layer, *line, want=["diode"])
-        finally:
-            (run.shape_id,) = self.session.commit(net, [rect(run.layer, *run.rect)])
-        if advice.diode.found:
-            return advice.diode.diff_area_um2
-        return None
-
     def close(self) -> None:
+        """Close this run's nets (not metered: the run is over)."""
         for name in self.nets:
             try:
-                self.session.close_net(self.service_name(name))
+                self.session.session.close_net(self.service_name(name))
             except Exception:  # noqa: BLE001 - a net that never opened
                 pass
         self.session.close()

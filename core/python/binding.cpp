@@ -233,6 +233,29 @@ NB_MODULE(_core, m) {
         net.score_batch(shapes.data(), shapes.size(), cs, n, cm, worst_change.data(), worst.data(), legal.data(),
                         breaks.data(), cost.data(), added.data());
       })
+      .def("score_batch_common", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
+                                    const I64Rows& rects, const I64Col& counts,
+                                    const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& common_layers,
+                                    const I64Rows& common_rects, const I64Col& common_counts, const I64Col& part_of,
+                                    std::tuple<double, double, double, double, double> costs,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst_change,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst,
+                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> legal,
+                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> breaks,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> cost,
+                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> added) {
+        std::vector<Shape> shapes = shape_rows(layers, rects);
+        std::vector<Shape> common = shape_rows(common_layers, common_rects);
+        const std::size_t n = counts.shape(0);
+        if (part_of.shape(0) != n || worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n ||
+            breaks.shape(0) != n || cost.shape(0) != n || added.shape(0) != n)
+          throw std::invalid_argument("out: one entry per candidate");
+        CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
+        nb::gil_scoped_release unlocked;
+        net.score_batch_common(shapes.data(), shapes.size(), counts.data(), n, common.data(), common.size(),
+                               common_counts.data(), common_counts.shape(0), part_of.data(), cm, worst_change.data(),
+                               worst.data(), legal.data(), breaks.data(), cost.data(), added.data());
+      })
       .def("check", [](const Net& net) {
         Report r;
         {
@@ -256,6 +279,37 @@ NB_MODULE(_core, m) {
         Headroom h = net.headroom(layer, x, y);
         return nb::make_tuple(h.found, h.area_um2, h.side_um2, h.length_um, h.bind_step, int(h.bind_kind),
                               int(h.bind_measure), h.bind_oxide, h.bind_gate);
+      })
+      .def("budget", [](const Net& net, int layer, i64 x, i64 y,
+                        const std::vector<std::tuple<int, i64, i64, i64, i64>>& common,
+                        std::tuple<i64, i64, i64, i64> window) {
+        std::vector<Shape> shapes;
+        shapes.reserve(common.size());
+        for (const auto& c : common)
+          shapes.push_back({std::get<0>(c), {std::get<1>(c), std::get<2>(c), std::get<3>(c), std::get<4>(c)}});
+        const Rect w{std::get<0>(window), std::get<1>(window), std::get<2>(window), std::get<3>(window)};
+        Budget b;
+        {
+          nb::gil_scoped_release unlocked;
+          b = net.budget(layer, x, y, shapes.data(), shapes.size(), w);
+        }
+        using R4 = std::tuple<i64, i64, i64, i64>;
+        auto rect4 = [](const Rect& r) { return R4{r.xlo, r.ylo, r.xhi, r.yhi}; };
+        std::vector<std::tuple<int, int, double, double, double, double, double, double, std::vector<int>>> terms;
+        for (const BudgetTerm& t : b.terms)
+          terms.push_back({int(t.measure), t.oxide, t.conductor, t.per_area, t.per_perimeter, t.factor, t.credit,
+                           t.gate, t.feeds});
+        std::vector<std::tuple<int, int, int, int, double, int, double, double, bool, int>> ratios;
+        for (const BudgetRatio& r : b.ratios)
+          ratios.push_back({r.step, int(r.measure), int(r.kind), r.oxide, r.limit, r.term, r.spent, r.floor,
+                            r.always, r.gate});
+        std::vector<R4> own, own_pins;
+        for (const Rect& r : b.own) own.push_back(rect4(r));
+        for (const Rect& r : b.own_pins) own_pins.push_back(rect4(r));
+        std::vector<std::pair<int, R4>> foreign;
+        for (const auto& f : b.foreign) foreign.push_back({f.first, rect4(f.second)});
+        return nb::make_tuple(b.found, terms, ratios, b.rest_worst, b.fixed_change, b.common_added_um2, own,
+                              own_pins, foreign);
       })
       .def("touching", [](const Net& net, int layer, std::tuple<i64, i64, i64, i64> r) {
         std::vector<std::pair<int, int>> out;

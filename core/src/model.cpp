@@ -41,6 +41,8 @@ static double effective_factor(const RuleSpec& r, double diff) {
   return factor;
 }
 
+double RuleSpec::conductor_factor(double diff) const { return effective_factor(*this, diff); }
+
 double RuleSpec::ratio(double conductor, double gate, double diff) const {
   double a_eff = std::max(0.0, effective_factor(*this, diff) * conductor - diode_area_credit * diff);
   return a_eff / (gate + diode_gate_factor * diff);

@@ -49,6 +49,17 @@ struct Comp {
   std::uint64_t oxides = 0;  // oxide classes with gate area here
   bool alive = false;
 
+  Comp() = default;
+  Comp(const Comp& o)  // a whole copy (a trial copy of a net's state)
+      : members(o.members), figures_(o.figures_ ? std::make_unique<PinFigures>(*o.figures_) : nullptr),
+        G(o.G), D(o.D), cell_um2(o.cell_um2), area(o.area), perim(o.perim), oxides(o.oxides), alive(o.alive) {}
+  Comp& operator=(const Comp& o) {
+    if (this != &o) *this = Comp(o);
+    return *this;
+  }
+  Comp(Comp&&) noexcept = default;
+  Comp& operator=(Comp&&) noexcept = default;
+
   const std::vector<int>& gates() const { return figures_ ? figures_->gates : no_pins(); }
   const std::vector<int>& pins() const { return figures_ ? figures_->pins : no_pins(); }
   PinFigures& figures() {

@@ -5,7 +5,7 @@ concept: geometry, rules, nets, net state, ratios, what-if, advice, engine.
 """
 
 from ._advice import Advice, AdviceRequest, DiodeAdvice, JumperAdvice, LayerOption, PlacedShape
-from ._columns import BatchScores  # columnar batch scores (Engine.score_columns)
+from ._columns import BatchScores, CommonShapes  # columnar batch scores (Engine.score_columns)
 from ._costs import CostModel
 from ._engine import Engine, Limits
 from ._errors import (
@@ -43,7 +43,7 @@ __version__ = "0.1.0"
 __all__ = [
     "Advice", "AdviceRequest", "Conflict", "DiodeAdvice", "JumperAdvice", "LayerOption",
     "PlacedShape",
-    "AlreadyExistsError", "BatchScores", "CancelledError", "CheckResult", "CostModel",
+    "AlreadyExistsError", "BatchScores", "CancelledError", "CheckResult", "CommonShapes", "CostModel",
     "DeadlineExceededError", "Deck", "DeckError", "Engine", "StoppedError",
     "EtchguardError", "Headroom", "InputError", "Layer", "LimitExceededError", "Limits",
     "MAX_NAME_BYTES",

@@ -2,7 +2,9 @@
 
 A batch is shape rows (``layers[k]``, ``rects[k]`` = xlo, ylo, xhi, yhi in DBU) with an
 optional ``shape_count`` per candidate; it is checked as a whole, naming the first bad
-row, before the core scores it.
+row, before the core scores it. Shapes several candidates share (``CommonShapes``, such
+as the partial path a search extends) travel once: candidate i is its shared part
+followed by its own rows.
 """
 
 from __future__ import annotations
@@ -12,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._errors import InputError, LimitExceededError
+from ._errors import EtchguardError, InputError, LimitExceededError
 from ._geometry import COORD_LIMIT
 
 
@@ -91,3 +93,64 @@ def checked_columns(steps: int, layers: Sequence[int] | np.ndarray, rects: np.nd
                f"rectangle {rect_arr[i].tolist()} is empty or inverted (need xlo < xhi, ylo < yhi)")
         raise InputError(why, f"rects[{i}]")
     return layer_arr.astype(np.int64, copy=False), rect_arr, counts
+
+
+@dataclass(frozen=True)
+class CommonShapes:
+    """Shapes candidates share, sent once: part k is the next ``shape_count[k]`` rows
+    (default: one part of every row); candidate i starts with part ``part[i]`` (-1:
+    none; default: every candidate starts with part 0)."""
+
+    layers: Sequence[int] | np.ndarray
+    rects: np.ndarray
+    shape_count: Sequence[int] | np.ndarray | None = None
+    part: Sequence[int] | np.ndarray | None = None
+
+
+@dataclass(frozen=True)
+class CheckedCommon:
+    """CommonShapes validated: int64 columns, one part index per candidate."""
+
+    layers: np.ndarray
+    rects: np.ndarray
+    shape_count: np.ndarray
+    part: np.ndarray
+
+
+def checked_common(steps: int, common: CommonShapes, candidate_counts: np.ndarray, max_parts: int,
+                   max_shapes_per_net: int) -> CheckedCommon:
+    """Validate shared parts against the candidates they start (``candidate_counts``:
+    own rows per candidate), naming the first bad row as ``common.rects[k]``,
+    ``common.layers[k]``, ``common.shape_count[k]`` or ``common.part[i]``."""
+    rows = np.asarray(common.rects)
+    counts = common.shape_count
+    if counts is None:
+        counts = np.array([rows.shape[0] if rows.ndim == 2 else 0], dtype=np.int64)
+    try:
+        layers, rects, part_counts = checked_columns(steps, common.layers, rows, counts, max_parts,
+                                                     max_shapes_per_net)
+    except EtchguardError as exc:
+        message = exc.message.replace("a candidate needs", "a shared part needs").replace(
+            "candidates exceed", "shared parts exceed")
+        raise type(exc)(message, f"common.{exc.field}" if exc.field else "common") from None
+    assert part_counts is not None
+    n = len(candidate_counts)
+    if common.part is None:
+        part = np.zeros(n, dtype=np.int64)
+    else:
+        part = np.asarray(common.part)
+        if part.shape != (n,) or (n and part.dtype.kind not in "iu"):
+            raise InputError(f"common.part must give one integer part per candidate ({n}), got shape "
+                             f"{part.shape}", "common.part")
+        part = part.astype(np.int64, copy=False)
+        bad = np.nonzero((part < -1) | (part >= len(part_counts)))[0]
+        if len(bad):
+            raise InputError(f"no shared part {int(part[bad[0]])} (there are {len(part_counts)}; -1 = none)",
+                             f"common.part[{int(bad[0])}]")
+    sizes = np.concatenate([part_counts, [0]])  # part -1 (none) adds nothing
+    whole = candidate_counts + sizes[part]
+    big = np.nonzero(whole > max_shapes_per_net)[0]
+    if len(big):
+        raise LimitExceededError(f"{int(whole[big[0]])} shapes would exceed the limit of "
+                                 f"{max_shapes_per_net} per net", f"common.part[{int(big[0])}]")
+    return CheckedCommon(layers, rects, part_counts, part)

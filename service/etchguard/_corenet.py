@@ -17,7 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _core
-from ._columns import BatchScores
+from ._budget import Budget, BudgetRatio, BudgetTerm
+from ._columns import BatchScores, CheckedCommon
+from ._costs import CostModel
 from ._geometry import Rect
 from ._nets import Pin, Shape
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
@@ -143,6 +145,25 @@ class CoreNet:
                              out.added_area_um2)
         return out
 
+    def score_columns_common(self, layers: np.ndarray, rects: np.ndarray, counts: np.ndarray,
+                             common: CheckedCommon, costs: tuple[float, ...]) -> BatchScores:
+        """As score_columns, candidate i being its shared part (common.part[i], -1 none)
+        followed by its own rows."""
+        n = len(counts)
+        out = BatchScores(np.empty(n), np.empty(n), np.empty(n, dtype=bool), np.empty(n, dtype=bool),
+                          np.empty(n), np.empty(n))
+        self.net.score_batch_common(np.ascontiguousarray(layers, dtype=np.int32),
+                                    np.ascontiguousarray(rects, dtype=np.int64),
+                                    np.ascontiguousarray(counts, dtype=np.int64),
+                                    np.ascontiguousarray(common.layers, dtype=np.int32),
+                                    np.ascontiguousarray(common.rects, dtype=np.int64),
+                                    np.ascontiguousarray(common.shape_count, dtype=np.int64),
+                                    np.ascontiguousarray(common.part, dtype=np.int64),
+                                    costs, out.worst_change_utilization, out.worst_utilization,
+                                    out.legal.view(np.uint8), out.breaks_limit.view(np.uint8), out.cost,
+                                    out.added_area_um2)
+        return out
+
     def check(self, name: str) -> NetReport:
         worst, legal, checks = self.net.check()
         layers = self.deck.layers
@@ -162,6 +183,22 @@ class CoreNet:
             binding = (f"{name} partial {what}" if KINDS[kind] == "partial"
                        else f"{self.deck.layers[step].name} cumulative {what} of {self.pins[gate].name}")
         return Headroom(name, True, area, side, length, binding)
+
+    def budget(self, layer: int, x: int, y: int, common: Sequence[Shape], window: Rect,
+               costs: CostModel) -> Budget:
+        """The budget of the component at (x, y) on ``layer``, ``common`` taken as
+        committed (see _budget)."""
+        raw = self.net.budget(layer, x, y, [(s.layer,) + s.rect for s in common], window)
+        found, terms, ratios, rest, fixed, common_added, own, own_pins, foreign = raw
+        layers, oxides = self.deck.layers, self.compiled.oxides
+        return Budget(
+            found, layers[layer].name, layer,
+            tuple(BudgetTerm(MEASURES[m], oxides[o], a, per_area, per_perimeter, factor, credit, gate, tuple(feeds))
+                  for m, o, a, per_area, per_perimeter, factor, credit, gate, feeds in terms),
+            tuple(BudgetRatio(layers[s].name, s, MEASURES[m], KINDS[k], oxides[o], self.pins[g].name if g >= 0 else "",
+                              limit, term if term >= 0 else None, spent, floor, always)
+                  for s, m, k, o, limit, term, spent, floor, always, g in ratios),
+            rest, fixed, common_added, tuple(own), tuple(own_pins), tuple(foreign), window, costs)
 
     # -- what repair advice asks (see _advice) ----------------------------------------
 

@@ -22,6 +22,7 @@ import numpy as np
 from ._advice import Advice, StopCheck
 from ._advice import advise as _advise
 from ._advice import check_request as _check_advice_request
+from ._budget import Budget
 from ._changelog import (
     BlockageDeclared,
     BlockageRemoved,
@@ -34,11 +35,12 @@ from ._changelog import (
     ShapesCommitted,
     ShapesRemoved,
 )
-from ._columns import BatchScores, checked_columns
+from ._columns import BatchScores, CommonShapes, checked_columns, checked_common
 from ._corenet import CompiledDeck, CoreNet, compile_deck
 from ._coreview import CoreView
 from ._costs import CostModel
 from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckError, NotFoundError
+from ._geometry import COORD_LIMIT
 from ._geometry import checked_rect as _checked_rect
 from ._names import check_name
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
@@ -51,6 +53,7 @@ from ._rules import Deck
 from ._rules import loads_deck as _loads_deck
 
 _Mark = TypeVar("_Mark")
+_EVERYWHERE = (-(COORD_LIMIT - 1), -(COORD_LIMIT - 1), COORD_LIMIT - 1, COORD_LIMIT - 1)  # a budget's default window
 
 
 @dataclass(frozen=True)
@@ -351,20 +354,32 @@ class Engine:
     # -- columnar batch scores (one rectangle per candidate; see _batch) -----------------
 
     def score_columns(self, name: str, layers: Sequence[int] | np.ndarray,
-                      rects: np.ndarray, shape_count: Sequence[int] | np.ndarray | None = None
-                      ) -> BatchScores:
+                      rects: np.ndarray, shape_count: Sequence[int] | np.ndarray | None = None,
+                      common: CommonShapes | None = None) -> BatchScores:
         """Score candidates given as shape rows (``layers[k]``, ``rects[k]`` = xlo, ylo,
         xhi, yhi in DBU) against the same net state: candidate i is the next
         ``shape_count[i]`` rows (default: one row each); entry i equals
-        ``score(name, its shapes, detail=False)``. Validated as a whole before anything
-        is computed; the first bad row is named (``rects[k]``, ``shape_count[i]``)."""
-        layer_arr, rect_arr, counts = checked_columns(len(self.deck.layers), layers, rects, shape_count,
+        ``score(name, its shapes, detail=False)``. With ``common`` each candidate starts
+        with its shared part (see CommonShapes) and equals the candidate sent whole.
+        Validated as a whole before anything is computed; the first bad row is named
+        (``rects[k]``, ``shape_count[i]``, ``common.rects[k]``, ``common.part[i]``)."""
+        steps = len(self.deck.layers)
+        layer_arr, rect_arr, counts = checked_columns(steps, layers, rects, shape_count,
                                                       self.limits.max_candidates,
                                                       self.limits.max_shapes_per_net)
         candidates = rect_arr.shape[0] if counts is None else len(counts)
+        shared = None
+        if common is not None:
+            counts = np.ones(candidates, dtype=np.int64) if counts is None else counts
+            shared = checked_common(steps, common, counts, self.limits.max_candidates,
+                                    self.limits.max_shapes_per_net)
         net = self._net(name)
         with net.lock:
-            result = net.core.score_columns(layer_arr, rect_arr, counts, self._cost_tuple)
+            if shared is None:
+                result = net.core.score_columns(layer_arr, rect_arr, counts, self._cost_tuple)
+            else:
+                result = net.core.score_columns_common(layer_arr, rect_arr, counts, shared,  # type: ignore[arg-type]
+                                                       self._cost_tuple)
         self.counters["scores"] += candidates
         return result
 
@@ -392,6 +407,30 @@ class Engine:
         net = self._net(name)
         with net.lock:
             return net.core.headroom(layer, x, y)
+
+    def budget(self, name: str, layer: int, x: int, y: int, common: Sequence[Shape] = (),
+               window: Sequence[int] | None = None) -> Budget:
+        """The budget of the component at (x, y) on ``layer`` with ``common`` taken as
+        committed: the coefficients of every ratio an addition to it on that layer
+        changes, and what a client needs to evaluate candidates itself (see _budget).
+        Rectangles are listed where they meet ``window`` (DBU; None: everywhere)."""
+        deck = self.deck
+        if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
+            raise InputError(f"unknown layer {layer!r}", "layer")
+        for i, s in enumerate(common):
+            check_shape_object(len(deck.layers), s, f"common[{i}]")
+        if len(common) > self.limits.max_shapes_per_net:
+            raise LimitExceededError(f"{len(common)} shapes exceed the limit of "
+                                     f"{self.limits.max_shapes_per_net} per net", "common")
+        for value, field_name in ((x, "x"), (y, "y")):
+            if isinstance(value, bool) or not isinstance(value, int) or not -COORD_LIMIT < value < COORD_LIMIT:
+                raise InputError(f"a point is integer DBU within +-2^62, got {value!r}", field_name)
+        area = _EVERYWHERE if window is None else _checked_rect(list(window), "window")
+        net = self._net(name)
+        with net.lock:
+            result = net.core.budget(layer, x, y, common, area, self.costs)
+        self.counters["scores"] += 1
+        return result
 
     def stats(self) -> dict[str, int]:
         with self._registry:

@@ -36,12 +36,13 @@ from google.rpc import error_details_pb2
 from grpc_health.v1 import health_pb2, health_pb2_grpc
 from grpc_status import rpc_status
 
+from ._budgetlocal import LocalBudget, LocalScore
 from ._geometry import square
 from .v1 import etchguard_pb2 as pb
 from .v1 import etchguard_pb2_grpc as pb_grpc
 
-__all__ = ["BatchScores", "Client", "ServiceError", "Session", "candidate_columns", "path",
-           "pb", "pin", "rect", "run", "runs_to_rects", "via"]
+__all__ = ["BatchScores", "Client", "LocalBudget", "LocalScore", "ServiceError", "Session",
+           "budget_request", "candidate_columns", "path", "pb", "pin", "rect", "run", "runs_to_rects", "via"]
 
 RectLike = Sequence[int]
 
@@ -163,22 +164,39 @@ def runs_to_rects(x1: Any, y1: Any, x2: Any, y2: Any, width: Any,
     return out.reshape(-1, 4)
 
 
+def _layer_rows(layers: str | Sequence[str] | np.ndarray, n: int) -> np.ndarray:
+    """One layer name per row, as a numpy array of str."""
+    if isinstance(layers, str):
+        return np.full(n, layers, dtype=object)
+    names = np.asarray(layers, dtype=object)
+    if names.shape != (n,):
+        raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
+    return names
+
+
 def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
-                      counts: Any = None) -> pb.CandidateColumns:
+                      counts: Any = None, *, common: Sequence[tuple[Any, Any]] = (),
+                      common_part: Any = None) -> pb.CandidateColumns:
     """Columnar candidates from numpy: ``rects`` (n, 4) int64 DBU, one row per shape;
     ``layers`` one name for all shapes or a name per shape; ``counts`` shapes per
-    candidate (default: every shape is a candidate of its own)."""
+    candidate (default: every shape is a candidate of its own).
+
+    ``common`` lists shared parts, each ``(rects, layers)`` as above, sent once;
+    ``common_part[j]`` is the part candidate j starts with (-1: none; default: every
+    candidate starts with part 0 when parts are given)."""
     rects = np.asarray(rects, dtype=np.int64).reshape(-1, 4)
     n = len(rects)
-    if isinstance(layers, str):
+    parts = [(np.asarray(r, dtype=np.int64).reshape(-1, 4), l) for r, l in common]
+    part_names = [_layer_rows(l, len(r)) for r, l in parts]
+    if isinstance(layers, str) and all(isinstance(l, str) and l == layers for _, l in parts):
         table, index = [layers], np.zeros(n, dtype=np.uint32)
+        common_index = np.zeros(sum(len(r) for r, _ in parts), dtype=np.uint32)
     else:
-        names = np.asarray(layers)
-        if names.shape != (n,):
-            raise ValueError(f"{names.shape[0] if names.ndim else 1} layer names for {n} shapes")
+        names = np.concatenate([_layer_rows(layers, n), *part_names]).astype(str)
         table_arr, inverse = np.unique(names, return_inverse=True)
-        index = inverse.astype(np.uint32)
+        every = inverse.astype(np.uint32)
         table = [str(t) for t in table_arr]
+        index, common_index = every[:n], every[n:]
     counts_arr = np.ones(n, dtype=np.uint32) if counts is None else np.asarray(counts, dtype=np.uint32)
     cols = pb.CandidateColumns(layers=table)
     cols.shape_count.extend(counts_arr.tolist())
@@ -187,6 +205,16 @@ def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
     cols.ylo.extend(rects[:, 1].tolist())
     cols.xhi.extend(rects[:, 2].tolist())
     cols.yhi.extend(rects[:, 3].tolist())
+    if parts:
+        shared = np.concatenate([r for r, _ in parts])
+        cols.common_count.extend([len(r) for r, _ in parts])
+        cols.common_layer.extend(np.asarray(common_index).tolist())
+        cols.common_xlo.extend(shared[:, 0].tolist())
+        cols.common_ylo.extend(shared[:, 1].tolist())
+        cols.common_xhi.extend(shared[:, 2].tolist())
+        cols.common_yhi.extend(shared[:, 3].tolist())
+        if common_part is not None:
+            cols.common_part.extend((np.asarray(common_part, dtype=np.int64) + 1).tolist())
     return cols
 
 
@@ -225,6 +253,16 @@ def advise_request(net: str, layer: str, x1: int, y1: int, x2: int, y2: int, wid
     """An AdviseRequest for a run given by its centre line (width 0: the layer's)."""
     return pb.AdviseRequest(net=net, layer=layer, x1=x1, y1=y1, x2=x2, y2=y2, width=width,
                             allow_non_preferred=allow_non_preferred, want=list(want))
+
+
+def budget_request(net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+                   window: RectLike | None = None) -> pb.BudgetRequest:
+    """A BudgetRequest for the component at (x, y) on ``layer`` (DBU), ``common`` shapes
+    taken as committed, rectangles listed within ``window`` (None: everywhere)."""
+    request = pb.BudgetRequest(net=net, layer=layer, x=x, y=y, common=common)
+    if window is not None:
+        request.window.xlo, request.window.ylo, request.window.xhi, request.window.yhi = window
+    return request
 
 
 class Client:
@@ -332,9 +370,12 @@ class Client:
                                                            without_changes=without_changes))
 
     def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
-                    counts: Any = None, details: bool = False) -> BatchScores:
-        """Score candidates given as numpy rectangles (see ``candidate_columns``)."""
-        return self.score_columns(net, candidate_columns(rects, layers, counts), details)
+                    counts: Any = None, details: bool = False, *,
+                    common: Sequence[tuple[Any, Any]] = (), common_part: Any = None) -> BatchScores:
+        """Score candidates given as numpy rectangles, optionally starting with shared
+        parts sent once (see ``candidate_columns``)."""
+        columns = candidate_columns(rects, layers, counts, common=common, common_part=common_part)
+        return self.score_columns(net, columns, details)
 
     def score_columns(self, net: str, columns: pb.CandidateColumns, details: bool = False) -> BatchScores:
         request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
@@ -342,6 +383,15 @@ class Client:
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self._call(self.stub.Headroom, pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def budget(self, net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+               window: RectLike | None = None) -> pb.BudgetReply:
+        """The budget of the component at a point; ``LocalBudget(reply)`` evaluates it."""
+        return self._call(self.stub.Budget, budget_request(net, layer, x, y, common, window))
+
+    def budgets(self, requests: Sequence[pb.BudgetRequest]) -> list[pb.BudgetReply]:
+        """Several budgets in one message (see ``budget_request``), in order."""
+        return list(self._call(self.stub.Budgets, pb.BudgetsRequest(requests=requests)).budgets)
 
     def check(self, net: str) -> pb.NetReport:
         return self._call(self.stub.CheckNet, pb.CheckNetRequest(net=net))
@@ -495,13 +545,21 @@ class Session:
                                                  without_changes=without_changes))
 
     def score_batch(self, net: str, rects: Any, layers: str | Sequence[str] | np.ndarray,
-                    counts: Any = None, details: bool = False) -> BatchScores:
-        request = pb.ScoreBatchRequest(net=net, candidates=candidate_columns(rects, layers, counts),
-                                       details=details)
+                    counts: Any = None, details: bool = False, *,
+                    common: Sequence[tuple[Any, Any]] = (), common_part: Any = None) -> BatchScores:
+        columns = candidate_columns(rects, layers, counts, common=common, common_part=common_part)
+        request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
         return BatchScores.from_reply(self.ask("score_batch", request))
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self.ask("headroom", pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
+
+    def budget(self, net: str, layer: str, x: int, y: int, common: Sequence[pb.Shape] = (),
+               window: RectLike | None = None) -> pb.BudgetReply:
+        return self.ask("budget", budget_request(net, layer, x, y, common, window))
+
+    def budgets(self, requests: Sequence[pb.BudgetRequest]) -> list[pb.BudgetReply]:
+        return list(self.ask("budgets", pb.BudgetsRequest(requests=requests)).budgets)
 
     def check(self, net: str) -> pb.NetReport:
         return self.ask("check", pb.CheckNetRequest(net=net))

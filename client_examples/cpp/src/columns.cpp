@@ -1,6 +1,7 @@
 // Request builders: shapes, pins, vias and columnar candidate batches.
 #include <algorithm>
 #include <stdexcept>
+#include <string>
 
 #include "etchguard/client.hpp"
 
@@ -105,11 +106,22 @@ std::uint32_t CandidateBatch::LayerIndex(const std::string& layer) {
   return it->second;
 }
 
-std::size_t CandidateBatch::Add(const std::vector<pb::Shape>& candidate) {
-  if (candidate.empty()) throw std::invalid_argument("a candidate needs at least one shape");
-  for (const pb::Shape& s : candidate) {
-    if (!s.has_rect()) throw std::invalid_argument("batch candidates are rectangles (layer " + s.layer() + ")");
+namespace {
+void RequireRectangles(const std::vector<pb::Shape>& shapes, const char* what) {
+  if (shapes.empty()) throw std::invalid_argument(std::string(what) + " needs at least one shape");
+  for (const pb::Shape& s : shapes) {
+    if (!s.has_rect()) throw std::invalid_argument(std::string(what) + " shapes are rectangles (layer " + s.layer() + ")");
   }
+}
+}  // namespace
+
+void CandidateBatch::NotePart(std::uint32_t part_plus_one) {
+  if (columns_.common_count_size() == 0) return;  // no parts: the column stays empty
+  columns_.add_common_part(part_plus_one);
+}
+
+std::size_t CandidateBatch::Add(const std::vector<pb::Shape>& candidate) {
+  RequireRectangles(candidate, "a candidate");
   for (const pb::Shape& s : candidate) {
     columns_.add_layer(LayerIndex(s.layer()));
     columns_.add_xlo(s.rect().xlo());
@@ -118,6 +130,7 @@ std::size_t CandidateBatch::Add(const std::vector<pb::Shape>& candidate) {
     columns_.add_yhi(s.rect().yhi());
   }
   columns_.add_shape_count(static_cast<std::uint32_t>(candidate.size()));
+  NotePart(0);
   return size() - 1;
 }
 
@@ -128,7 +141,34 @@ std::size_t CandidateBatch::Add(const std::string& layer, const Box& box) {
   columns_.add_xhi(box.xhi);
   columns_.add_yhi(box.yhi);
   columns_.add_shape_count(1);
+  NotePart(0);
   return size() - 1;
+}
+
+std::size_t CandidateBatch::AddCommon(const std::vector<pb::Shape>& part) {
+  RequireRectangles(part, "a shared part");
+  if (columns_.common_count_size() == 0) {
+    // From now on every candidate names its part; those before start with none.
+    for (std::size_t i = 0; i < size(); ++i) columns_.add_common_part(0);
+  }
+  for (const pb::Shape& s : part) {
+    columns_.add_common_layer(LayerIndex(s.layer()));
+    columns_.add_common_xlo(s.rect().xlo());
+    columns_.add_common_ylo(s.rect().ylo());
+    columns_.add_common_xhi(s.rect().xhi());
+    columns_.add_common_yhi(s.rect().yhi());
+  }
+  columns_.add_common_count(static_cast<std::uint32_t>(part.size()));
+  return static_cast<std::size_t>(columns_.common_count_size()) - 1;
+}
+
+std::size_t CandidateBatch::Add(const std::vector<pb::Shape>& own, std::size_t part) {
+  if (part >= static_cast<std::size_t>(columns_.common_count_size())) {
+    throw std::invalid_argument("no shared part " + std::to_string(part));
+  }
+  const std::size_t index = Add(own);
+  columns_.set_common_part(static_cast<int>(index), static_cast<std::uint32_t>(part + 1));
+  return index;
 }
 
 void CandidateBatch::Clear() {

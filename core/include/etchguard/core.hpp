@@ -61,6 +61,8 @@ struct RuleSpec {
   double cumulative_limit(double diff_um2) const;
   // max(0, f * r(D) * A - k_credit * D) / (G + k_gate * D)
   double ratio(double conductor, double gate_um2, double diff_um2) const;
+  // f * r(D), the factor on A in ratio() (f = 1 where factor_with_diode_only and D = 0).
+  double conductor_factor(double diff_um2) const;
   // The conductor A' at which spent + ratio(A') reaches limit, minus `conductor`.
   double headroom(double limit, double gate_um2, double diff_um2, double spent,
                   double conductor) const;
@@ -167,6 +169,57 @@ struct Headroom {
   int bind_gate = -1;
 };
 
+// A component's budget (Net::budget): every ratio that an addition to the component on
+// the budget's layer changes, as a function of the added area a (um^2) and the added
+// perimeter p (um) of its union there, exact while the addition extends that one
+// component and touches nothing else of the net. With `common` shapes, the answer is
+// that of common + addition as one candidate (see budget.cpp). Evaluating it:
+//   A' = conductor + per_area * a + per_perimeter * p        per term
+//   term = max(0, factor * A' - credit) / gate                  (affine in a and p above 0)
+//   ratio = max(floor, spent + term)   (a ratio without a term is its floor)
+// A ratio counts as a change when `always`, or when a term that feeds its step (a
+// step in the term's `feeds`) differs from its value at a = p = 0; worst utilization
+// among changes = max(fixed_change, counted ones), of the whole net = max(rest_worst,
+// all of them).
+struct BudgetTerm {
+  Measure measure;
+  int oxide;
+  double conductor;      // A now: um^2 (area) or side-wall um^2 (side)
+  double per_area;       // dA per um^2 of added area (1 for area, else 0)
+  double per_perimeter;  // dA per um of added perimeter (thickness for side, else 0)
+  double factor, credit, gate;
+  std::vector<int> feeds;  // steps above the layer whose cumulative sums this term feeds
+};
+
+struct BudgetRatio {
+  int step;
+  Measure measure;
+  Kind kind;
+  int oxide;
+  double limit;
+  int term;      // index into Budget::terms; -1: the ratio does not depend on the addition
+  double spent;  // added to the term: the sum of the other steps
+  double floor;  // the ratio is at least this (gates the addition does not reach); -inf: none
+  bool always;   // a change of every candidate, whatever its size
+  int gate;      // pin index of the gate with this ratio now
+};
+
+struct Budget {
+  bool found = false;  // false: nothing of the net (or common) lies on the layer at the point
+  int layer = -1;
+  std::vector<BudgetTerm> terms;
+  std::vector<BudgetRatio> ratios;
+  double rest_worst = 0.0;        // worst utilization of every other ratio of the net
+  double fixed_change = 0.0;      // worst utilization among the changes common makes elsewhere
+  double common_added_um2 = 0.0;  // union area common adds, over its layers
+  // What a client needs to tell a covered candidate and its added area and perimeter:
+  // the component's routed and pin rectangles on the layer, and every other element of
+  // the net (layer, rect) a candidate on the layer would touch (so merge with), all
+  // that meet the window.
+  std::vector<Rect> own, own_pins;
+  std::vector<std::pair<int, Rect>> foreign;
+};
+
 // Result codes of calls that can refuse (the Net is unchanged on refusal).
 enum class Status : std::uint8_t { Ok = 0, BadLayer, BadRect, DuplicateId, UnknownId };
 
@@ -209,7 +262,24 @@ class Net {
                    double* worst, std::uint8_t* legal, std::uint8_t* breaks, double* cost,
                    double* added_um2) const;
 
+  // A batch whose candidates share shapes, such as the partial path a search extends,
+  // sent once: part k is common_counts[k] consecutive rows of `common`, and candidate i
+  // is part part_of[i] (-1: none) followed by its own counts[i] shapes (counts null:
+  // one each). Every figure equals score_batch of the same candidates sent whole.
+  // Throws std::invalid_argument naming the bad count or part (see shared_batch.cpp).
+  void score_batch_common(const Shape* shapes, std::size_t n_shapes, const i64* counts,
+                          std::size_t n_candidates, const Shape* common, std::size_t n_common,
+                          const i64* common_counts, std::size_t n_parts, const i64* part_of,
+                          const CostModel& costs, double* worst_change, double* worst,
+                          std::uint8_t* legal, std::uint8_t* breaks, double* cost,
+                          double* added_um2) const;
+
   Headroom headroom(int layer, i64 x, i64 y) const;
+
+  // The budget of the component at (x, y) on `layer`, with `common` shapes taken as
+  // committed; rectangles listed are those meeting `window`. Changes nothing. Throws
+  // std::invalid_argument naming a bad layer, common shape or window.
+  Budget budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_common, const Rect& window) const;
 
   // Queries for repair advice: elements that connect to a rectangle on a layer; whether
   // the component holding an element at a step has gate area; the net's own rectangles

@@ -18,6 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from .. import EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape, resolve_layer, run_shapes
+from .._columns import CommonShapes
 from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
 from .._names import check_length
 from .._nets import checked_layer_range
@@ -144,18 +145,50 @@ def candidate_arrays(deck, cols, path: str = "candidates", max_candidates: int |
     return counts, steps, rects
 
 
+def common_shapes(deck, cols, path: str = "candidates") -> CommonShapes | None:
+    """The shared parts of columnar candidates (None when there are none), in the
+    engine's form: rows, shapes per part, and part index per candidate (-1: none)."""
+    n = len(cols.common_layer)
+    if not (n or len(cols.common_count) or any(cols.common_part)):
+        return None
+    for name in ("common_xlo", "common_ylo", "common_xhi", "common_yhi"):
+        if len(getattr(cols, name)) != n:
+            raise InputError(f"has {len(getattr(cols, name))} values, but `common_layer` has {n}",
+                             f"{path}.{name}")
+    table = np.array([resolve_layer(deck, name, f"{path}.layers[{j}]")
+                      for j, name in enumerate(cols.layers)], dtype=np.int64)
+    index = np.array(cols.common_layer, dtype=np.int64)
+    past = np.flatnonzero(index >= len(table))
+    if len(past):
+        k = past[0]
+        raise InputError(f"index {index[k]} is past the {len(table)} entries of `layers`",
+                         f"{path}.common_layer[{k}]")
+    rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
+                             for name in ("common_xlo", "common_ylo", "common_xhi", "common_yhi")]).reshape(-1, 4)
+    part = np.array(cols.common_part, dtype=np.int64) - 1 if len(cols.common_part) else None
+    if part is not None:
+        past = np.flatnonzero(part >= len(cols.common_count))
+        if len(past):
+            j = past[0]
+            raise InputError(f"part {part[j] + 1} is past the {len(cols.common_count)} shared parts "
+                             "(1-based; 0 = none)", f"{path}.common_part[{j}]")
+    return CommonShapes(table[index] if n else index, rects, np.array(cols.common_count, dtype=np.int64), part)
+
+
+# engine field -> CandidateColumns field, for Engine.score_columns' refusals
+_COLUMN_FIELDS = {"rects": "[{}].rect", "layers": ".layer[{}]", "shape_count": ".shape_count[{}]",
+                  "common.rects": ".common[{}].rect", "common.layers": ".common_layer[{}]",
+                  "common.shape_count": ".common_count[{}]", "common.part": ".common_part[{}]"}
+
+
 def columns_error(exc: EtchguardError, path: str = "candidates") -> EtchguardError:
-    """An error of Engine.score_columns (fields ``rects[i]``, ``layers[i]``, ``rects``)
-    renamed to the CandidateColumns field paths."""
+    """An error of Engine.score_columns (fields ``rects[i]``, ``layers[i]``, ``rects``,
+    ``common.part[i]``, ...) renamed to the CandidateColumns field paths."""
     field = exc.field or ""
-    m = re.fullmatch(r"(rects|layers|shape_count)\[(\d+)\]", field)
-    if m:
-        field = (f"{path}[{m[2]}].rect" if m[1] == "rects" else
-                 f"{path}.layer[{m[2]}]" if m[1] == "layers" else f"{path}.shape_count[{m[2]}]")
-    elif field in ("rects", "layers", "shape_count"):
-        field = path
-    else:
+    m = re.fullmatch(r"((?:common\.)?(?:rects|layers|shape_count|part))(?:\[(\d+)\])?", field)
+    if m is None:
         return exc  # about the request, not the columns ("net", "deck")
+    field = path if m[2] is None else path + _COLUMN_FIELDS[m[1]].format(m[2])
     return type(exc)(exc.message, field)
 
 
@@ -175,6 +208,27 @@ def candidate_columns(deck, cols, path: str = "candidates", max_candidates: int 
         out.append([make_shape(deck, names[layer[k]], (xlo[k], ylo[k], xhi[k], yhi[k]), f"{path}[{k}]")
                     for k in range(i, i + count)])
         i += count
+    common = common_shapes(deck, cols, path)
+    if common is None:
+        return out
+    parts, at = [], 0
+    for k, count in enumerate(np.asarray(common.shape_count).tolist()):
+        if count < 1:
+            raise InputError("a shared part needs at least one shape", f"{path}.common_count[{k}]")
+        parts.append([make_shape(deck, names[int(common.layers[j])], tuple(common.rects[j].tolist()),
+                                 f"{path}.common[{j}]") for j in range(at, at + count)])
+        at += count
+    if at != len(common.rects):
+        raise InputError(f"shared part counts add up to {at}, but there are {len(common.rects)} shared "
+                         "shapes", f"{path}.common_count")
+    chosen = [0] * len(out) if common.part is None else np.asarray(common.part).tolist()
+    if len(chosen) != len(out):
+        raise InputError(f"has {len(chosen)} values for {len(out)} candidates", f"{path}.common_part")
+    for j, k in enumerate(chosen):
+        if not -1 <= k < len(parts):
+            raise InputError(f"no shared part {k + 1} (there are {len(parts)}; 0 = none)", f"{path}.common_part[{j}]")
+        if k >= 0:
+            out[j] = parts[k] + out[j]
     return out
 
 
@@ -268,6 +322,36 @@ def headroom_into(out, h) -> None:
     out.binding = h.binding
 
 
+def budget_into(out, budget, deck) -> None:
+    """Fill a BudgetReply from an engine Budget."""
+    layer_names = [layer.name for layer in deck.layers]
+    out.dbu_per_micron = deck.dbu_per_micron
+    out.found = budget.found
+    out.layer = budget.layer
+    out.step = budget.step
+    for t in budget.terms:
+        out.terms.add(measure=_MEASURE[t.measure], oxide=t.oxide, conductor_um2=t.conductor_um2,
+                      per_area=t.per_area, per_perimeter_um=t.per_perimeter_um, factor=t.factor,
+                      credit_um2=t.credit_um2, gate_um2=t.gate_um2, feeds=t.feeds)
+    for r in budget.ratios:
+        out.ratios.add(layer=r.layer, step=r.step, measure=_MEASURE[r.measure], kind=_KIND[r.kind],
+                       oxide=r.oxide, gate=r.gate, limit=r.limit, term=r.term, spent=r.spent,
+                       floor=r.floor, always=r.always)
+    out.rest_worst_utilization = budget.rest_worst_utilization
+    out.fixed_change_utilization = budget.fixed_change_utilization
+    out.common_added_area_um2 = budget.common_added_area_um2
+    for r in budget.own:
+        _rect_into(out.own.add(), r)
+    for r in budget.own_pins:
+        _rect_into(out.own_pins.add(), r)
+    for step, r in budget.foreign:
+        _rect_into(out.foreign.add(layer=layer_names[step]).rect, r)
+    _rect_into(out.window, budget.window)
+    c = budget.costs
+    out.cost.knee, out.cost.exponent, out.cost.scale = c.knee, c.exponent, c.scale
+    out.cost.violation, out.cost.over_slope = c.violation, c.over_slope
+
+
 def report_into(out, report) -> None:
     out.net = report.name
     out.legal = report.legal
@@ -286,6 +370,10 @@ def stats_into(out, stats: dict, deck_name: str, uptime_s: float, version: str) 
     out.deck = deck_name
     out.uptime_s = uptime_s
     out.version = version
+
+
+def rect_tuple(msg) -> tuple[int, int, int, int]:
+    return (msg.xlo, msg.ylo, msg.xhi, msg.yhi)
 
 
 def _rect_into(out, r) -> None:

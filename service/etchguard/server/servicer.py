@@ -81,8 +81,9 @@ def _score_batch(call, req, out):
     if not req.details:  # the columnar path
         counts, steps, rects = convert.candidate_arrays(deck, req.candidates, "candidates",
                                                         limits.max_candidates)
+        common = convert.common_shapes(deck, req.candidates)
         try:
-            scores = call.engine.score_columns(req.net, steps, rects, counts)
+            scores = call.engine.score_columns(req.net, steps, rects, counts, common)
         except EtchguardError as exc:
             raise convert.columns_error(exc) from None
         convert.columns_into(out, scores)
@@ -96,6 +97,23 @@ def _headroom(call, req, out):
     deck = call.engine.deck
     layer = resolve_layer(deck, req.layer, "layer")
     convert.headroom_into(out, call.engine.headroom(req.net, layer, req.x, req.y))
+
+
+def _budget(call, req, out):
+    deck = call.engine.deck
+    layer = resolve_layer(deck, req.layer, "layer")
+    common = convert.shapes(deck, req.common, "common")
+    window = convert.rect_tuple(req.window) if req.HasField("window") else None
+    budget = call.engine.budget(req.net, layer, req.x, req.y, common, window)
+    convert.budget_into(out, budget, deck)
+
+
+def _budgets(call, req, out):
+    for i, one in enumerate(req.requests):
+        try:
+            _budget(call, one, out.budgets.add())
+        except EtchguardError as exc:
+            raise type(exc)(exc.message, f"requests[{i}].{exc.field}" if exc.field else f"requests[{i}]") from None
 
 
 def _get_net(call, req, out):
@@ -176,7 +194,7 @@ def _unary(name: str, fill, reply_type):
 _SESSION_OPS = {
     "commit": _commit, "remove": _remove, "score": _score, "score_batch": _score_batch,
     "headroom": _headroom, "check": _check, "open_net": _open_net, "close_net": _close_net,
-    "advise": _advise,
+    "advise": _advise, "budget": _budget, "budgets": _budgets,
 }
 
 
@@ -186,7 +204,7 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
     METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
-               "ScoreBatch", "Headroom", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
+               "ScoreBatch", "Headroom", "Budget", "Budgets", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
     def __init__(self, jobs: Jobs, metrics) -> None:
@@ -208,6 +226,8 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     Score = _unary("Score", _score, pb.ScoreReply)
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)
+    Budget = _unary("Budget", _budget, pb.BudgetReply)
+    Budgets = _unary("Budgets", _budgets, pb.BudgetsReply)
     CheckNet = _unary("CheckNet", _check, pb.NetReport)
     GetNet = _unary("GetNet", _get_net, pb.NetContent)
     Advise = _unary("Advise", _advise, pb.AdviseReply)

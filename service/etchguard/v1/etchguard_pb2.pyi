@@ -120,7 +120,7 @@ class LayerRange(_message.Message):
     def __init__(self, lowest: _Optional[str] = ..., highest: _Optional[str] = ...) -> None: ...
 
 class CandidateColumns(_message.Message):
-    __slots__ = ("layers", "shape_count", "layer", "xlo", "ylo", "xhi", "yhi")
+    __slots__ = ("layers", "shape_count", "layer", "xlo", "ylo", "xhi", "yhi", "common_count", "common_layer", "common_xlo", "common_ylo", "common_xhi", "common_yhi", "common_part")
     LAYERS_FIELD_NUMBER: _ClassVar[int]
     SHAPE_COUNT_FIELD_NUMBER: _ClassVar[int]
     LAYER_FIELD_NUMBER: _ClassVar[int]
@@ -128,6 +128,13 @@ class CandidateColumns(_message.Message):
     YLO_FIELD_NUMBER: _ClassVar[int]
     XHI_FIELD_NUMBER: _ClassVar[int]
     YHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_COUNT_FIELD_NUMBER: _ClassVar[int]
+    COMMON_LAYER_FIELD_NUMBER: _ClassVar[int]
+    COMMON_XLO_FIELD_NUMBER: _ClassVar[int]
+    COMMON_YLO_FIELD_NUMBER: _ClassVar[int]
+    COMMON_XHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_YHI_FIELD_NUMBER: _ClassVar[int]
+    COMMON_PART_FIELD_NUMBER: _ClassVar[int]
     layers: _containers.RepeatedScalarFieldContainer[str]
     shape_count: _containers.RepeatedScalarFieldContainer[int]
     layer: _containers.RepeatedScalarFieldContainer[int]
@@ -135,7 +142,14 @@ class CandidateColumns(_message.Message):
     ylo: _containers.RepeatedScalarFieldContainer[int]
     xhi: _containers.RepeatedScalarFieldContainer[int]
     yhi: _containers.RepeatedScalarFieldContainer[int]
-    def __init__(self, layers: _Optional[_Iterable[str]] = ..., shape_count: _Optional[_Iterable[int]] = ..., layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ...) -> None: ...
+    common_count: _containers.RepeatedScalarFieldContainer[int]
+    common_layer: _containers.RepeatedScalarFieldContainer[int]
+    common_xlo: _containers.RepeatedScalarFieldContainer[int]
+    common_ylo: _containers.RepeatedScalarFieldContainer[int]
+    common_xhi: _containers.RepeatedScalarFieldContainer[int]
+    common_yhi: _containers.RepeatedScalarFieldContainer[int]
+    common_part: _containers.RepeatedScalarFieldContainer[int]
+    def __init__(self, layers: _Optional[_Iterable[str]] = ..., shape_count: _Optional[_Iterable[int]] = ..., layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ..., common_count: _Optional[_Iterable[int]] = ..., common_layer: _Optional[_Iterable[int]] = ..., common_xlo: _Optional[_Iterable[int]] = ..., common_ylo: _Optional[_Iterable[int]] = ..., common_xhi: _Optional[_Iterable[int]] = ..., common_yhi: _Optional[_Iterable[int]] = ..., common_part: _Optional[_Iterable[int]] = ...) -> None: ...
 
 class LoadDeckRequest(_message.Message):
     __slots__ = ("toml",)
@@ -358,6 +372,128 @@ class HeadroomReply(_message.Message):
     length_um: float
     binding: str
     def __init__(self, layer: _Optional[str] = ..., found: _Optional[bool] = ..., area_um2: _Optional[float] = ..., side_um2: _Optional[float] = ..., length_um: _Optional[float] = ..., binding: _Optional[str] = ...) -> None: ...
+
+class BudgetRequest(_message.Message):
+    __slots__ = ("net", "layer", "x", "y", "common", "window")
+    NET_FIELD_NUMBER: _ClassVar[int]
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    X_FIELD_NUMBER: _ClassVar[int]
+    Y_FIELD_NUMBER: _ClassVar[int]
+    COMMON_FIELD_NUMBER: _ClassVar[int]
+    WINDOW_FIELD_NUMBER: _ClassVar[int]
+    net: str
+    layer: str
+    x: int
+    y: int
+    common: _containers.RepeatedCompositeFieldContainer[Shape]
+    window: Rect
+    def __init__(self, net: _Optional[str] = ..., layer: _Optional[str] = ..., x: _Optional[int] = ..., y: _Optional[int] = ..., common: _Optional[_Iterable[_Union[Shape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ...) -> None: ...
+
+class BudgetTerm(_message.Message):
+    __slots__ = ("measure", "oxide", "conductor_um2", "per_area", "per_perimeter_um", "factor", "credit_um2", "gate_um2", "feeds")
+    MEASURE_FIELD_NUMBER: _ClassVar[int]
+    OXIDE_FIELD_NUMBER: _ClassVar[int]
+    CONDUCTOR_UM2_FIELD_NUMBER: _ClassVar[int]
+    PER_AREA_FIELD_NUMBER: _ClassVar[int]
+    PER_PERIMETER_UM_FIELD_NUMBER: _ClassVar[int]
+    FACTOR_FIELD_NUMBER: _ClassVar[int]
+    CREDIT_UM2_FIELD_NUMBER: _ClassVar[int]
+    GATE_UM2_FIELD_NUMBER: _ClassVar[int]
+    FEEDS_FIELD_NUMBER: _ClassVar[int]
+    measure: Measure
+    oxide: str
+    conductor_um2: float
+    per_area: float
+    per_perimeter_um: float
+    factor: float
+    credit_um2: float
+    gate_um2: float
+    feeds: _containers.RepeatedScalarFieldContainer[int]
+    def __init__(self, measure: _Optional[_Union[Measure, str]] = ..., oxide: _Optional[str] = ..., conductor_um2: _Optional[float] = ..., per_area: _Optional[float] = ..., per_perimeter_um: _Optional[float] = ..., factor: _Optional[float] = ..., credit_um2: _Optional[float] = ..., gate_um2: _Optional[float] = ..., feeds: _Optional[_Iterable[int]] = ...) -> None: ...
+
+class BudgetRatio(_message.Message):
+    __slots__ = ("layer", "step", "measure", "kind", "oxide", "gate", "limit", "term", "spent", "floor", "always")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    STEP_FIELD_NUMBER: _ClassVar[int]
+    MEASURE_FIELD_NUMBER: _ClassVar[int]
+    KIND_FIELD_NUMBER: _ClassVar[int]
+    OXIDE_FIELD_NUMBER: _ClassVar[int]
+    GATE_FIELD_NUMBER: _ClassVar[int]
+    LIMIT_FIELD_NUMBER: _ClassVar[int]
+    TERM_FIELD_NUMBER: _ClassVar[int]
+    SPENT_FIELD_NUMBER: _ClassVar[int]
+    FLOOR_FIELD_NUMBER: _ClassVar[int]
+    ALWAYS_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    step: int
+    measure: Measure
+    kind: RatioKind
+    oxide: str
+    gate: str
+    limit: float
+    term: int
+    spent: float
+    floor: float
+    always: bool
+    def __init__(self, layer: _Optional[str] = ..., step: _Optional[int] = ..., measure: _Optional[_Union[Measure, str]] = ..., kind: _Optional[_Union[RatioKind, str]] = ..., oxide: _Optional[str] = ..., gate: _Optional[str] = ..., limit: _Optional[float] = ..., term: _Optional[int] = ..., spent: _Optional[float] = ..., floor: _Optional[float] = ..., always: _Optional[bool] = ...) -> None: ...
+
+class CostCurve(_message.Message):
+    __slots__ = ("knee", "exponent", "scale", "violation", "over_slope")
+    KNEE_FIELD_NUMBER: _ClassVar[int]
+    EXPONENT_FIELD_NUMBER: _ClassVar[int]
+    SCALE_FIELD_NUMBER: _ClassVar[int]
+    VIOLATION_FIELD_NUMBER: _ClassVar[int]
+    OVER_SLOPE_FIELD_NUMBER: _ClassVar[int]
+    knee: float
+    exponent: float
+    scale: float
+    violation: float
+    over_slope: float
+    def __init__(self, knee: _Optional[float] = ..., exponent: _Optional[float] = ..., scale: _Optional[float] = ..., violation: _Optional[float] = ..., over_slope: _Optional[float] = ...) -> None: ...
+
+class BudgetReply(_message.Message):
+    __slots__ = ("found", "layer", "step", "terms", "ratios", "rest_worst_utilization", "fixed_change_utilization", "common_added_area_um2", "own", "own_pins", "foreign", "window", "cost", "dbu_per_micron")
+    FOUND_FIELD_NUMBER: _ClassVar[int]
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    STEP_FIELD_NUMBER: _ClassVar[int]
+    TERMS_FIELD_NUMBER: _ClassVar[int]
+    RATIOS_FIELD_NUMBER: _ClassVar[int]
+    REST_WORST_UTILIZATION_FIELD_NUMBER: _ClassVar[int]
+    FIXED_CHANGE_UTILIZATION_FIELD_NUMBER: _ClassVar[int]
+    COMMON_ADDED_AREA_UM2_FIELD_NUMBER: _ClassVar[int]
+    OWN_FIELD_NUMBER: _ClassVar[int]
+    OWN_PINS_FIELD_NUMBER: _ClassVar[int]
+    FOREIGN_FIELD_NUMBER: _ClassVar[int]
+    WINDOW_FIELD_NUMBER: _ClassVar[int]
+    COST_FIELD_NUMBER: _ClassVar[int]
+    DBU_PER_MICRON_FIELD_NUMBER: _ClassVar[int]
+    found: bool
+    layer: str
+    step: int
+    terms: _containers.RepeatedCompositeFieldContainer[BudgetTerm]
+    ratios: _containers.RepeatedCompositeFieldContainer[BudgetRatio]
+    rest_worst_utilization: float
+    fixed_change_utilization: float
+    common_added_area_um2: float
+    own: _containers.RepeatedCompositeFieldContainer[Rect]
+    own_pins: _containers.RepeatedCompositeFieldContainer[Rect]
+    foreign: _containers.RepeatedCompositeFieldContainer[PlacedShape]
+    window: Rect
+    cost: CostCurve
+    dbu_per_micron: int
+    def __init__(self, found: _Optional[bool] = ..., layer: _Optional[str] = ..., step: _Optional[int] = ..., terms: _Optional[_Iterable[_Union[BudgetTerm, _Mapping]]] = ..., ratios: _Optional[_Iterable[_Union[BudgetRatio, _Mapping]]] = ..., rest_worst_utilization: _Optional[float] = ..., fixed_change_utilization: _Optional[float] = ..., common_added_area_um2: _Optional[float] = ..., own: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., own_pins: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., foreign: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ..., cost: _Optional[_Union[CostCurve, _Mapping]] = ..., dbu_per_micron: _Optional[int] = ...) -> None: ...
+
+class BudgetsRequest(_message.Message):
+    __slots__ = ("requests",)
+    REQUESTS_FIELD_NUMBER: _ClassVar[int]
+    requests: _containers.RepeatedCompositeFieldContainer[BudgetRequest]
+    def __init__(self, requests: _Optional[_Iterable[_Union[BudgetRequest, _Mapping]]] = ...) -> None: ...
+
+class BudgetsReply(_message.Message):
+    __slots__ = ("budgets",)
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
+    budgets: _containers.RepeatedCompositeFieldContainer[BudgetReply]
+    def __init__(self, budgets: _Optional[_Iterable[_Union[BudgetReply, _Mapping]]] = ...) -> None: ...
 
 class CheckNetRequest(_message.Message):
     __slots__ = ("net",)
@@ -622,7 +758,7 @@ class Stats(_message.Message):
     def __init__(self, nets: _Optional[int] = ..., shapes: _Optional[int] = ..., hot_nets: _Optional[int] = ..., scores: _Optional[int] = ..., commits: _Optional[int] = ..., removals: _Optional[int] = ..., checks: _Optional[int] = ..., violations_seen: _Optional[int] = ..., deck: _Optional[str] = ..., uptime_s: _Optional[float] = ..., version: _Optional[str] = ...) -> None: ...
 
 class SessionRequest(_message.Message):
-    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise")
+    __slots__ = ("seq", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget", "budgets")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
     REMOVE_FIELD_NUMBER: _ClassVar[int]
@@ -633,6 +769,8 @@ class SessionRequest(_message.Message):
     OPEN_NET_FIELD_NUMBER: _ClassVar[int]
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
     ADVISE_FIELD_NUMBER: _ClassVar[int]
+    BUDGET_FIELD_NUMBER: _ClassVar[int]
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
     seq: int
     commit: CommitRequest
     remove: RemoveRequest
@@ -643,7 +781,9 @@ class SessionRequest(_message.Message):
     open_net: OpenNetRequest
     close_net: CloseNetRequest
     advise: AdviseRequest
-    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ..., advise: _Optional[_Union[AdviseRequest, _Mapping]] = ...) -> None: ...
+    budget: BudgetRequest
+    budgets: BudgetsRequest
+    def __init__(self, seq: _Optional[int] = ..., commit: _Optional[_Union[CommitRequest, _Mapping]] = ..., remove: _Optional[_Union[RemoveRequest, _Mapping]] = ..., score: _Optional[_Union[ScoreRequest, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchRequest, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomRequest, _Mapping]] = ..., check: _Optional[_Union[CheckNetRequest, _Mapping]] = ..., open_net: _Optional[_Union[OpenNetRequest, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetRequest, _Mapping]] = ..., advise: _Optional[_Union[AdviseRequest, _Mapping]] = ..., budget: _Optional[_Union[BudgetRequest, _Mapping]] = ..., budgets: _Optional[_Union[BudgetsRequest, _Mapping]] = ...) -> None: ...
 
 class SessionError(_message.Message):
     __slots__ = ("code", "message", "field")
@@ -656,7 +796,7 @@ class SessionError(_message.Message):
     def __init__(self, code: _Optional[int] = ..., message: _Optional[str] = ..., field: _Optional[str] = ...) -> None: ...
 
 class SessionReply(_message.Message):
-    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise")
+    __slots__ = ("seq", "error", "commit", "remove", "score", "score_batch", "headroom", "check", "open_net", "close_net", "advise", "budget", "budgets")
     SEQ_FIELD_NUMBER: _ClassVar[int]
     ERROR_FIELD_NUMBER: _ClassVar[int]
     COMMIT_FIELD_NUMBER: _ClassVar[int]
@@ -668,6 +808,8 @@ class SessionReply(_message.Message):
     OPEN_NET_FIELD_NUMBER: _ClassVar[int]
     CLOSE_NET_FIELD_NUMBER: _ClassVar[int]
     ADVISE_FIELD_NUMBER: _ClassVar[int]
+    BUDGET_FIELD_NUMBER: _ClassVar[int]
+    BUDGETS_FIELD_NUMBER: _ClassVar[int]
     seq: int
     error: SessionError
     commit: ShapeIds
@@ -679,4 +821,6 @@ class SessionReply(_message.Message):
     open_net: ShapeIds
     close_net: CloseNetReply
     advise: AdviseReply
-    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ..., advise: _Optional[_Union[AdviseReply, _Mapping]] = ...) -> None: ...
+    budget: BudgetReply
+    budgets: BudgetsReply
+    def __init__(self, seq: _Optional[int] = ..., error: _Optional[_Union[SessionError, _Mapping]] = ..., commit: _Optional[_Union[ShapeIds, _Mapping]] = ..., remove: _Optional[_Union[RemoveReply, _Mapping]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., score_batch: _Optional[_Union[ScoreBatchReply, _Mapping]] = ..., headroom: _Optional[_Union[HeadroomReply, _Mapping]] = ..., check: _Optional[_Union[NetReport, _Mapping]] = ..., open_net: _Optional[_Union[ShapeIds, _Mapping]] = ..., close_net: _Optional[_Union[CloseNetReply, _Mapping]] = ..., advise: _Optional[_Union[AdviseReply, _Mapping]] = ..., budget: _Optional[_Union[BudgetReply, _Mapping]] = ..., budgets: _Optional[_Union[BudgetsReply, _Mapping]] = ...) -> None: ...

@@ -80,6 +80,16 @@ class AntennaServiceStub:
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.HeadroomRequest.SerializeToString,
                 response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.HeadroomReply.FromString,
                 _registered_method=True)
+        self.Budget = channel.unary_unary(
+                '/etchguard.v1.AntennaService/Budget',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.FromString,
+                _registered_method=True)
+        self.Budgets = channel.unary_unary(
+                '/etchguard.v1.AntennaService/Budgets',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.FromString,
+                _registered_method=True)
         self.CheckNet = channel.unary_unary(
                 '/etchguard.v1.AntennaService/CheckNet',
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CheckNetRequest.SerializeToString,
@@ -181,6 +191,23 @@ class AntennaServiceServicer:
         context.set_details('Method not implemented!')
         raise NotImplementedError('Method not implemented!')
 
+    def Budget(self, request, context):
+        """The budget of the component at a point: every ratio an addition to it on that
+        layer changes, as coefficients in the added area and perimeter, for a router to
+        evaluate candidates itself (the client libraries do, and say which candidates it
+        does not cover). Changes nothing.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
+    def Budgets(self, request, context):
+        """Several budgets in one message (each as Budget would answer it, in order).
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
     def CheckNet(self, request, context):
         """Full check of one net.
         """
@@ -274,6 +301,16 @@ def add_AntennaServiceServicer_to_server(servicer, server):
                     servicer.Headroom,
                     request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.HeadroomRequest.FromString,
                     response_serializer=etchguard_dot_v1_dot_etchguard__pb2.HeadroomReply.SerializeToString,
+            ),
+            'Budget': grpc.unary_unary_rpc_method_handler(
+                    servicer.Budget,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.SerializeToString,
+            ),
+            'Budgets': grpc.unary_unary_rpc_method_handler(
+                    servicer.Budgets,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.SerializeToString,
             ),
             'CheckNet': grpc.unary_unary_rpc_method_handler(
                     servicer.CheckNet,
@@ -550,6 +587,60 @@ class AntennaService:
             '/etchguard.v1.AntennaService/Headroom',
             etchguard_dot_v1_dot_etchguard__pb2.HeadroomRequest.SerializeToString,
             etchguard_dot_v1_dot_etchguard__pb2.HeadroomReply.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def Budget(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/Budget',
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetReply.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def Budgets(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/Budgets',
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetsRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.BudgetsReply.FromString,
             options,
             channel_credentials,
             insecure,

@@ -86,6 +86,8 @@ pb::Pin DiffusionPin(const std::string& name, const std::string& layer, const Bo
 
 // Candidates in columns for ScoreBatch: each Add() appends one candidate of one or
 // more rectangle shapes; layer names are gathered into the table `layer` indexes.
+// Shapes several candidates start with (a partial path) travel once as a shared part:
+// AddCommon() adds one, Add(own, part) a candidate that starts with it.
 class CandidateBatch {
  public:
   // Appends a candidate; returns its index in the batch. Throws std::invalid_argument
@@ -93,12 +95,20 @@ class CandidateBatch {
   std::size_t Add(const std::vector<pb::Shape>& candidate);
   // Appends a one-rectangle candidate.
   std::size_t Add(const std::string& layer, const Box& box);
+  // Adds a shared part (rectangle shapes, at least one); returns its index.
+  std::size_t AddCommon(const std::vector<pb::Shape>& part);
+  // Appends a candidate that is shared part `part` followed by `own` (at least one
+  // shape); the answer equals that of the candidate sent whole. Throws
+  // std::invalid_argument on an unknown part.
+  std::size_t Add(const std::vector<pb::Shape>& own, std::size_t part);
   std::size_t size() const { return static_cast<std::size_t>(columns_.shape_count_size()); }
   const pb::CandidateColumns& columns() const { return columns_; }
   void Clear();
 
  private:
   std::uint32_t LayerIndex(const std::string& layer);
+  // Records the shared part (index + 1, 0 = none) of the candidate just appended.
+  void NotePart(std::uint32_t part_plus_one);
   pb::CandidateColumns columns_;
   std::map<std::string, std::uint32_t> layer_index_;
 };

@@ -1,0 +1,230 @@
+// A component's budget (Net::budget): what an addition to it on one layer does to every
+// ratio, as coefficients a router evaluates itself (the Budget structs in core.hpp).
+//
+// Why it is exact. Let N' be the net with `common` committed, R_s the component of N'
+// holding the point at step s, and X an addition on layer L that touches nothing of the
+// net but R_L's members (and cuts of R_L, R_L+1 around L). Then at every step the
+// components are those of N', X joining R_s from L on; G and D stay, so every limit
+// stays. Only R_L's conductor on L changes, A' = A + a (area) or A + p * thickness
+// (side), and with it
+//   * R_L's partial ratios at L: term(A');
+//   * for a cumulative group g whose feeding chain from step s passes through L
+//     (Model::in_chain), CAR_s of each gate of R_L: CAR_s - term_L(A) + term_L(A'); gates
+//     of R_s outside R_L keep theirs (the ratio of R_s is the largest over its gates).
+// Every other ratio of N' keeps its value (rest_worst).
+//
+// Which figures the service counts as changes (its what-if walk in whatif.cpp, for the
+// candidate common + X against the held net N): at each step the component of each
+// group of candidates counts when it is a merge (not exactly one of N's components, or
+// a candidate rectangle on that step's layer) or when one of its gates' CAR moved. R_L
+// always counts (X lies on L). R_s above L counts when common alone makes it count
+// (merge, or a CAR that differs from N's), or when X moves a term feeding s. The other
+// components common makes count are fixed: fixed_change.
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <memory>
+#include <stdexcept>
+
+#include "state.hpp"
+
+namespace etchguard {
+
+namespace {
+
+// Ids of common shapes in the trial state (pins have -1 - index, shapes >= 0).
+constexpr i64 kCommonSid = std::numeric_limits<i64>::min() / 2;
+
+bool has_oxide(std::uint64_t oxides, int oxide) { return (oxides >> oxide) & 1u; }
+
+double car_of(const Assessment& a, int pin, int group, int step) {
+  return a.car[a.row(a.slot_of_pin[std::size_t(pin)], group) + std::size_t(step)];
+}
+
+}  // namespace
+
+Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_common, const Rect& window) const {
+  const State& held = *s_;
+  const Model& m = held.m;
+  const int steps = m.steps, ng = m.groups_count(), L = layer;
+  if (L < 0 || L >= steps) throw std::invalid_argument("layer: unknown layer");
+  if (!valid_rect(window)) throw std::invalid_argument("window: empty, inverted or too far");
+  for (std::size_t i = 0; i < n_common; ++i) {
+    if (common[i].layer < 0 || common[i].layer >= steps) throw std::invalid_argument("common.layer: unknown layer");
+    if (!valid_rect(common[i].rect)) throw std::invalid_argument("common.rect: empty, inverted or too far");
+  }
+  // N': the held state copied, common inserted as if committed (the held net is not touched).
+  std::unique_ptr<State> trial;
+  std::vector<int> common_elems;
+  if (n_common > 0) {
+    trial = std::make_unique<State>(held);
+    for (std::size_t i = 0; i < n_common; ++i) {
+      int e = trial->new_element(common[i].rect, common[i].layer, kCommonSid + i64(i), -1, false);
+      trial->insert(e, {});
+      common_elems.push_back(e);
+    }
+  }
+  const State& st = trial ? *trial : held;
+  Budget b;
+  b.layer = L;
+  int hit = -1;
+  const Rect point{x, y, x, y};
+  st.index[std::size_t(L)].near(point, st.elems, st.stamp, st.clock, [&](int e) {
+    const Rect& r = st.elems[std::size_t(e)].r;
+    if (hit < 0 && r.xlo <= x && x <= r.xhi && r.ylo <= y && y <= r.yhi) hit = e;
+  });
+  if (hit < 0) return b;
+  b.found = true;
+  const Assessment& now = st.assess();
+  const Assessment& before = held.assess();
+  auto comp_at = [&](int s) { return st.comp_of[std::size_t(s)][std::size_t(hit)]; };
+  const int cL = comp_at(L);
+  const Comp& RL = st.comps[std::size_t(L)][std::size_t(cL)];
+  auto in_RL = [&](int p) { return st.comp_of[std::size_t(L)][std::size_t(st.anchor_of_pin[std::size_t(p)])] == cL; };
+  const double inf = std::numeric_limits<double>::infinity();
+
+  // The terms at L, one per (measure, oxide) of R_L's gates that a ratio uses.
+  const std::size_t n_ox = m.deck.oxides.size();
+  std::vector<int> term_of(2 * n_ox, -1);
+  auto term_index = [&](Measure meas, int ox) {
+    int& t = term_of[std::size_t(int(meas)) * n_ox + std::size_t(ox)];
+    if (t >= 0) return t;
+    BudgetTerm bt{};
+    bt.measure = meas;
+    bt.oxide = ox;
+    bt.conductor = m.conductor(L, meas, RL.area, RL.cell_um2, RL.perim);
+    const bool side_wall = meas == Measure::Side && !m.is_cut[std::size_t(L)];
+    bt.per_area = meas == Measure::Area ? 1.0 : 0.0;
+    bt.per_perimeter = side_wall ? m.deck.layers[std::size_t(L)].thickness_um : 0.0;
+    const RuleSpec* rule = m.rule(L, meas, ox);
+    bt.factor = rule ? rule->conductor_factor(RL.D) : 1.0;
+    bt.credit = rule ? rule->diode_area_credit * RL.D : 0.0;
+    bt.gate = rule ? RL.G + rule->diode_gate_factor * RL.D : RL.G;
+    for (int g = 0; g < ng; ++g) {
+      if (m.groups[std::size_t(g)].measure != meas || m.groups[std::size_t(g)].oxide != ox) continue;
+      for (int s = L + 1; s < steps; ++s)
+        if (m.in_chain(L, s, g)) bt.feeds.push_back(s);
+    }
+    t = int(b.terms.size());
+    b.terms.push_back(std::move(bt));
+    return t;
+  };
+
+  // What common alone makes count, step by step (see the header comment).
+  std::vector<char> lineage_counts(std::size_t(steps), 0);
+  std::vector<const double*> rows_now(st.pins.size(), nullptr);
+  for (std::size_t p = 0; p < st.pins.size(); ++p)
+    if (now.slot_of_pin[p] >= 0) rows_now[p] = &now.car[now.row(now.slot_of_pin[p], 0)];
+  std::vector<char> is_common(st.elems.size(), 0);
+  for (int e : common_elems) is_common[std::size_t(e)] = 1;
+  std::vector<int> seen, held_comps;
+  std::vector<Entry> es;
+  for (int s = 0; s < steps && !common_elems.empty(); ++s) {
+    seen.clear();
+    for (int e : common_elems) {
+      if (st.elems[std::size_t(e)].layer > s) continue;
+      const int c = st.comp_of[std::size_t(s)][std::size_t(e)];
+      if (std::find(seen.begin(), seen.end(), c) != seen.end()) continue;
+      seen.push_back(c);
+      const Comp& R = st.comps[std::size_t(s)][std::size_t(c)];
+      bool merged = false;
+      held_comps.clear();
+      for (int x_e : R.members) {
+        if (is_common[std::size_t(x_e)]) {
+          merged = merged || st.elems[std::size_t(x_e)].layer == s;
+          continue;
+        }
+        const int hc = held.comp_of[std::size_t(s)][std::size_t(x_e)];
+        if (std::find(held_comps.begin(), held_comps.end(), hc) == held_comps.end()) held_comps.push_back(hc);
+      }
+      merged = merged || held_comps.size() != 1;
+      bool moved = false;
+      for (int p : R.gates())
+        for (int g = 0; g < ng && !merged && !moved; ++g)
+          if (has_oxide(st.pin_oxides[std::size_t(p)], m.groups[std::size_t(g)].oxide))
+            moved = car_of(now, p, g, s) != car_of(before, p, g, s);
+      const bool lineage = s >= L && c == comp_at(s);
+      if (lineage) lineage_counts[std::size_t(s)] = merged || moved;
+      if (R.G <= 0 || !(merged || moved) || (lineage && s == L)) continue;
+      es.clear();
+      st.entries(s, R, merged, rows_now.data(), st.pin_oxides.data(), es);
+      for (const Entry& en : es)
+        if (!lineage || en.kind == Kind::Partial) b.fixed_change = std::max(b.fixed_change, en.utilization);
+    }
+  }
+
+  // The ratios the addition reaches: R_L's partial ones at L, R_s's cumulative ones.
+  if (RL.G > 0) {
+    for (const CheckKey& key : m.partial_checks[std::size_t(L)]) {
+      if (!has_oxide(RL.oxides, key.oxide)) continue;
+      const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
+      int gate = -1;
+      for (int p : RL.gates())
+        if (has_oxide(st.pin_oxides[std::size_t(p)], key.oxide) && (gate < 0 || p < gate)) gate = p;
+      b.ratios.push_back({L, key.measure, Kind::Partial, key.oxide, rule.partial_limit(RL.D),
+                          term_index(key.measure, key.oxide), 0.0, -inf, true, gate});
+    }
+  }
+  for (int s = L; s < steps; ++s) {
+    const Comp& Rs = st.comps[std::size_t(s)][std::size_t(comp_at(s))];
+    if (Rs.G <= 0) continue;
+    for (const CheckKey& key : m.cumulative_checks[std::size_t(s)]) {
+      if (!has_oxide(Rs.oxides, key.oxide)) continue;
+      const int g = key.group;
+      const bool chain = m.in_chain(L, s, g);
+      BudgetRatio r{s, key.measure, Kind::Cumulative, key.oxide,
+                    m.deck.rules[std::size_t(key.rule)].cumulative_limit(Rs.D), -1, -inf, -inf,
+                    s == L || lineage_counts[std::size_t(s)] != 0, -1};
+      double best = -1.0;
+      for (int p : Rs.gates()) {
+        if (!has_oxide(st.pin_oxides[std::size_t(p)], key.oxide)) continue;
+        const double value = car_of(now, p, g, s);
+        if (value > best || (value == best && p < r.gate)) {
+          best = value;
+          r.gate = p;
+        }
+        if (chain && in_RL(p)) {
+          r.term = term_index(key.measure, key.oxide);
+          r.spent = std::max(r.spent, value - now.term[now.row(now.slot_of_pin[std::size_t(p)], g) + std::size_t(L)]);
+        } else {
+          r.floor = std::max(r.floor, value);
+        }
+      }
+      if (r.term < 0) r.spent = 0.0;
+      b.ratios.push_back(r);
+    }
+  }
+
+  // Everything else of N', as it is.
+  std::vector<int> touched(1);
+  for (int s = 0; s < steps; ++s) {
+    if (s < L) {
+      b.rest_worst = std::max(b.rest_worst, now.step_worst[std::size_t(s)]);
+      continue;
+    }
+    touched[0] = comp_at(s);
+    b.rest_worst = std::max(b.rest_worst, now.worst_untouched(s, touched));
+    if (s > L) b.rest_worst = std::max(b.rest_worst, now.partial_worst[std::size_t(s)][std::size_t(touched[0])]);
+  }
+  if (n_common > 0) {
+    const Score alone = score(common, n_common, false, CostModel{});
+    for (double v : alone.added_area_um2) b.common_added_um2 += v;
+  }
+
+  // What a client needs to tell covered candidates: R_L on L, and what would merge.
+  const int cL1 = L + 1 < steps ? comp_at(L + 1) : -1;
+  for (std::size_t e = 0; e < st.elems.size(); ++e) {
+    const Element& el = st.elems[e];
+    if (!el.alive || !meets(el.r, window)) continue;
+    if (el.layer == L) {
+      if (st.comp_of[std::size_t(L)][e] == cL) (el.pin < 0 ? b.own : b.own_pins).push_back(el.r);
+      else b.foreign.push_back({L, el.r});
+    } else if (std::abs(el.layer - L) == 1 && m.is_cut[std::size_t(el.layer)] != m.is_cut[std::size_t(L)]) {
+      const int s = std::max(el.layer, L);
+      if (st.comp_of[std::size_t(s)][e] != (s == L ? cL : cL1)) b.foreign.push_back({el.layer, el.r});
+    }
+  }
+  return b;
+}
+
+}  // namespace etchguard

@@ -1,0 +1,155 @@
+"""A budget evaluated where the router is: no call, and a plain "not covered" for a
+candidate the budget cannot answer, so the router asks the service instead.
+
+A ``LocalBudget`` is built from the service's BudgetReply (see ``_budget`` for what its
+coefficients mean and why they are exact). ``evaluate(shapes)`` takes a candidate
+extension as (layer name, rectangle) pairs and returns what the service's score of
+common + extension would say, or None when the budget does not cover it:
+
+* a shape on another layer than the budget's (a via, a jump to another layer);
+* a shape outside the reply's window (the lists are complete only inside it);
+* a shape that touches a ``foreign`` rectangle (it would merge another component);
+* a shape not connected, on the layer, to the component (own or own_pins rectangles,
+  directly or through the candidate's other shapes): it would start a component.
+
+What a covered candidate adds is the exact union measure against the component's own
+rectangles on the layer (rectangles that do not meet it cannot change its union's area
+or perimeter there).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from ._geometry import Rect, edge_touch, overlap, union_measures
+from .v1 import etchguard_pb2 as pb
+
+TOLERANCE = 1e-9  # the contract's relative tolerance on a limit
+
+
+@dataclass(frozen=True)
+class LocalScore:
+    """The service's ScoreReply figures for common + the candidate (no per-ratio detail)."""
+
+    worst_change_utilization: float
+    worst_utilization: float
+    legal: bool
+    breaks_limit: bool
+    cost: float
+    added_area_um2: float
+
+
+def _rect(msg: pb.Rect) -> Rect:
+    return (msg.xlo, msg.ylo, msg.xhi, msg.yhi)
+
+
+def _utilization(ratio: float, limit: float) -> float:
+    if limit <= 0:
+        return math.inf if ratio > 0 else 0.0
+    return ratio / limit
+
+
+class LocalBudget:
+    """One BudgetReply, ready to evaluate candidate extensions on its layer."""
+
+    def __init__(self, reply: pb.BudgetReply) -> None:
+        if not reply.found:
+            raise ValueError("the budget found no component at the point (reply.found is false)")
+        self.layer = reply.layer
+        self.scale_area = 1.0 / (reply.dbu_per_micron * reply.dbu_per_micron)
+        self.scale_length = 1.0 / reply.dbu_per_micron
+        # (conductor, per_area, per_perimeter, factor, credit, gate) per term
+        self.terms = [(t.conductor_um2, t.per_area, t.per_perimeter_um, t.factor, t.credit_um2, t.gate_um2)
+                      for t in reply.terms]
+        fed_by: dict[int, list[int]] = {}
+        for i, t in enumerate(reply.terms):
+            for step in t.feeds:
+                fed_by.setdefault(step, []).append(i)
+        # (term or -1, spent, floor, limit, always, terms feeding its step)
+        self.ratios = [(r.term if r.HasField("term") else -1, r.spent, r.floor, r.limit, r.always,
+                        tuple(fed_by.get(r.step, ()))) for r in reply.ratios]
+        self.rest = reply.rest_worst_utilization
+        self.fixed = reply.fixed_change_utilization
+        self.common_added = reply.common_added_area_um2
+        self.own = [_rect(r) for r in reply.own]
+        self.connects = self.own + [_rect(r) for r in reply.own_pins]
+        self.same_layer = [_rect(f.rect) for f in reply.foreign if f.layer == reply.layer]
+        self.other_layer = [_rect(f.rect) for f in reply.foreign if f.layer != reply.layer]
+        self.window = _rect(reply.window)
+        c = reply.cost
+        self.curve = (c.knee, c.exponent, c.scale, c.violation, c.over_slope)
+        self._now = [self._term(i, 0.0, 0.0) for i in range(len(self.terms))]
+
+    # -- what the budget covers -------------------------------------------------------------
+
+    def covers(self, shapes: Sequence[tuple[str, Rect]]) -> bool:
+        """True when the budget answers this extension exactly (see the module doc)."""
+        if not shapes:
+            return False
+        wx0, wy0, wx1, wy1 = self.window
+        rects = []
+        for layer, r in shapes:
+            if layer != self.layer or not (wx0 <= r[0] and wy0 <= r[1] and r[2] <= wx1 and r[3] <= wy1):
+                return False
+            if any(edge_touch(r, f) for f in self.same_layer) or any(overlap(r, f) for f in self.other_layer):
+                return False
+            rects.append(r)
+        joined = [any(edge_touch(r, o) for o in self.connects) for r in rects]
+        grew = True
+        while grew and not all(joined):
+            grew = False
+            for i, r in enumerate(rects):
+                if not joined[i] and any(joined[j] and edge_touch(r, rects[j]) for j in range(len(rects))):
+                    joined[i] = grew = True
+        return all(joined)
+
+    def added(self, rects: Sequence[Rect]) -> tuple[int, int]:
+        """(area DBU^2, perimeter DBU) the rectangles add to the component's union on
+        the layer."""
+        near = [o for o in self.own if any(o[0] <= r[2] and r[0] <= o[2] and o[1] <= r[3] and r[1] <= o[3]
+                                           for r in rects)]
+        area_before, perimeter_before = union_measures(near) if near else (0, 0)
+        area_after, perimeter_after = union_measures(near + list(rects))
+        return area_after - area_before, perimeter_after - perimeter_before
+
+    # -- evaluation -------------------------------------------------------------------------
+
+    def evaluate(self, shapes: Sequence[tuple[str, Rect]]) -> LocalScore | None:
+        """The service's figures for common + ``shapes``, or None when not covered."""
+        if not self.covers(shapes):
+            return None
+        area, perimeter = self.added([r for _, r in shapes])
+        return self.evaluate_added(area, perimeter)
+
+    def evaluate_added(self, area_dbu2: int, perimeter_dbu: int) -> LocalScore:
+        """The figures for a covered extension that adds ``area_dbu2`` of union area and
+        ``perimeter_dbu`` of union perimeter on the layer."""
+        a = area_dbu2 * self.scale_area
+        p = perimeter_dbu * self.scale_length
+        values = [self._term(i, a, p) for i in range(len(self.terms))]
+        moved = [v != w for v, w in zip(values, self._now)]
+        change, worst = self.fixed, self.rest
+        for term, spent, floor, limit, always, fed in self.ratios:
+            ratio = floor if term < 0 else max(floor, spent + values[term])
+            u = _utilization(ratio, limit)
+            if u > worst:
+                worst = u
+            if u > change and (always or any(moved[t] for t in fed)):
+                change = u
+        return LocalScore(change, worst, worst <= 1.0 + TOLERANCE, not change <= 1.0 + TOLERANCE,
+                          self.cost(change), self.common_added + a)
+
+    def _term(self, i: int, a: float, p: float) -> float:
+        conductor, per_area, per_perimeter, factor, credit, gate = self.terms[i]
+        return max(0.0, factor * (conductor + per_area * a + per_perimeter * p) - credit) / gate
+
+    def cost(self, u: float) -> float:
+        """The server's router cost at utilization u (its CostCurve)."""
+        knee, exponent, scale, violation, over_slope = self.curve
+        if u <= knee:
+            return 0.0
+        if u <= 1.0:
+            return scale * ((u - knee) / (1.0 - knee)) ** exponent
+        return violation + scale * over_slope * (u - 1.0)
