@@ -76,6 +76,17 @@ class ServerProcess:
         return [e.get("msg", "") for e in self.logs]
 
 
+def spawn(cmd: list[str], wrap):
+    """Start a server command with its log lines read by a thread of ``wrap(proc)``
+    (an object with a ``_read`` method), unbuffered, from the repository's folder."""
+    env = dict(os.environ, PYTHONUNBUFFERED="1")
+    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
+    wrapped = wrap(proc)
+    threading.Thread(target=wrapped._read, daemon=True).start()
+    return wrapped
+
+
 def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = True,
                  listen: str = "127.0.0.1:0", prefix: Sequence[str] = ()) -> ServerProcess:
     """``prefix``: a command the server runs under (e.g. nsenter into a namespace)."""
@@ -83,14 +94,10 @@ def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = Tr
            "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
     if rules is not None:
         cmd += ["--rules", str(rules)]
-    env = dict(os.environ, PYTHONUNBUFFERED="1")
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
-    server = ServerProcess(proc)
-    threading.Thread(target=server._read, daemon=True).start()
+    server = spawn(cmd, ServerProcess)
     if not server._listening.wait(START_TIMEOUT_S) or not server.address:
-        proc.kill()
-        proc.wait()
+        server.proc.kill()
+        server.proc.wait()
         raise RuntimeError(f"etchguard serve did not start: {server.logs}")
     return server
 

@@ -27,7 +27,7 @@ from pathlib import Path
 
 from etchguard.client import Client, pb, pin, rect, run
 from etchguard.sharded_client import ShardedClient
-from grpc_fixtures import DEMO_DECK, REPO, free_port
+from grpc_fixtures import DEMO_DECK, REPO, free_port, spawn
 
 START_TIMEOUT_S = 40.0
 
@@ -104,14 +104,10 @@ def start_farm(shards: int, *extra: str, metrics: bool = True, rules: Path | Non
         cmd += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
     if rules is not None:
         cmd += ["--rules", str(rules)]
-    env = dict(os.environ, PYTHONUNBUFFERED="1")
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
-    farm = FarmProcess(proc)
-    threading.Thread(target=farm._read, daemon=True).start()
+    farm = spawn(cmd, FarmProcess)
     if not farm._ready.wait(START_TIMEOUT_S) or not farm.addresses:
-        proc.kill()
-        proc.wait()
+        farm.proc.kill()
+        farm.proc.wait()
         raise RuntimeError(f"etchguard serve --shards did not start: {farm.logs[-20:]}")
     return farm
 

@@ -20,6 +20,21 @@ namespace {
 
 using I64Rows = nb::ndarray<const i64, nb::shape<-1, 4>, nb::c_contig, nb::device::cpu>;
 using I64Col = nb::ndarray<const i64, nb::shape<-1>, nb::c_contig, nb::device::cpu>;
+using F64Out = nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu>;
+using U8Out = nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu>;
+
+// A batch's result columns, handed in by the caller (numpy arrays it allocated), one
+// entry per candidate.
+struct BatchOut {
+  F64Out worst_change, worst;
+  U8Out legal, breaks;
+  F64Out cost, added;
+  void check(std::size_t n) const {
+    if (worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n || breaks.shape(0) != n ||
+        cost.shape(0) != n || added.shape(0) != n)
+      throw std::invalid_argument("out: one entry per candidate");
+  }
+};
 
 // The compiled deck, held for the nets built on it (Model itself is opaque here).
 struct DeckHandle {
@@ -215,18 +230,12 @@ NB_MODULE(_core, m) {
       })
       .def("score_batch", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
                              const I64Rows& rects, std::optional<I64Col> counts,
-                             std::tuple<double, double, double, double, double> costs,
-                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst_change,
-                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst,
-                             nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> legal,
-                             nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> breaks,
-                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> cost,
-                             nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> added) {
+                             std::tuple<double, double, double, double, double> costs, F64Out worst_change,
+                             F64Out worst, U8Out legal, U8Out breaks, F64Out cost, F64Out added) {
         std::vector<Shape> shapes = shape_rows(layers, rects);
-        std::size_t n = counts ? counts->shape(0) : shapes.size();
-        if (worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n || breaks.shape(0) != n ||
-            cost.shape(0) != n || added.shape(0) != n)
-          throw std::invalid_argument("out: one entry per candidate");
+        const std::size_t n = counts ? counts->shape(0) : shapes.size();
+        const BatchOut out{worst_change, worst, legal, breaks, cost, added};
+        out.check(n);
         const i64* cs = counts ? counts->data() : nullptr;
         CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
         nb::gil_scoped_release unlocked;
@@ -237,19 +246,14 @@ NB_MODULE(_core, m) {
                                     const I64Rows& rects, const I64Col& counts,
                                     const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& common_layers,
                                     const I64Rows& common_rects, const I64Col& common_counts, const I64Col& part_of,
-                                    std::tuple<double, double, double, double, double> costs,
-                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst_change,
-                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> worst,
-                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> legal,
-                                    nb::ndarray<uint8_t, nb::shape<-1>, nb::c_contig, nb::device::cpu> breaks,
-                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> cost,
-                                    nb::ndarray<double, nb::shape<-1>, nb::c_contig, nb::device::cpu> added) {
+                                    std::tuple<double, double, double, double, double> costs, F64Out worst_change,
+                                    F64Out worst, U8Out legal, U8Out breaks, F64Out cost, F64Out added) {
         std::vector<Shape> shapes = shape_rows(layers, rects);
         std::vector<Shape> common = shape_rows(common_layers, common_rects);
         const std::size_t n = counts.shape(0);
-        if (part_of.shape(0) != n || worst_change.shape(0) != n || worst.shape(0) != n || legal.shape(0) != n ||
-            breaks.shape(0) != n || cost.shape(0) != n || added.shape(0) != n)
-          throw std::invalid_argument("out: one entry per candidate");
+        const BatchOut out{worst_change, worst, legal, breaks, cost, added};
+        out.check(n);
+        if (part_of.shape(0) != n) throw std::invalid_argument("common.part: one entry per candidate");
         CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
         nb::gil_scoped_release unlocked;
         net.score_batch_common(shapes.data(), shapes.size(), counts.data(), n, common.data(), common.size(),
