@@ -33,6 +33,7 @@ def assert_exact(engine: eg.Engine, name: str, candidates: list[list[eg.Shape]])
         full = engine.score(name, shapes, detail=True)
         # the face builds Score without its __init__: the same object as one built with it
         assert lean == dataclasses.replace(lean) and full == dataclasses.replace(full)
+        assert all(c == dataclasses.replace(c) for c in full.changes)
         assert (lean.worst_utilization, lean.worst_change_utilization, lean.legal, lean.cost) == \
             (full.worst_utilization, full.worst_change_utilization, full.legal, full.cost), shapes
         ids = engine.commit(name, shapes)

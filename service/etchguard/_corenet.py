@@ -127,10 +127,16 @@ class CoreNet:
     def _change(self, c: tuple, extra_pins: Sequence[Pin]) -> RatioChange:
         (step, measure, kind, oxide, ratio, limit, util, gate, has_before, before_ratio,
          before_util, room, has_length, length) = c
-        return RatioChange(self.deck.layers[step].name, step, MEASURES[measure], KINDS[kind],
-                           self.compiled.oxides[oxide], self._pin_name(gate, extra_pins),
-                           before_ratio if has_before else None, before_util if has_before else None,
-                           ratio, limit, util, room, length if has_length else None)
+        change = _object_new(RatioChange)  # as _new_score: one step, not a field at a time
+        _set_attr(change, "__dict__", {
+            "layer": self.compiled.layer_names[step], "step": step, "measure": MEASURES[measure],
+            "kind": KINDS[kind], "oxide": self.compiled.oxides[oxide],
+            "gate": self._pin_name(gate, extra_pins),
+            "before_ratio": before_ratio if has_before else None,
+            "before_utilization": before_util if has_before else None,
+            "ratio": ratio, "limit": limit, "utilization": util, "headroom_um2": room,
+            "headroom_length_um": length if has_length else None})
+        return change
 
     def score_columns(self, layers: np.ndarray, rects: np.ndarray, counts: np.ndarray | None,
                       costs: tuple[float, ...]) -> BatchScores:
