@@ -9,7 +9,7 @@ fill the obstacle index. Reported, all in one run and paired per call: p50 / p99
 advise; the same with the jumper's bisection search alone (no secant steps: the
 baseline they replace); advise asking only for the hop (``want=("hop",)``);
 the median of a single what-if score of the same run; the ratios advise / score; and
-the exact what-if scores per answer (load-independent). The target (issue 9) is
+the exact what-if scores per answer (load-independent). The target (the compiled core's) is
 p50 <= 300 us. Bounded: a fixed count of calls.
 
     python -m bench.advice_bench

@@ -16,7 +16,7 @@ and batches of 1,024 candidates (ScoreBatch): "mixed" as in bench.grpc_bench (ru
 extensions of one shape and via + run of four), "1 rect" all one-rectangle run
 extensions, which the server scores on its columnar path.
 
-Targets (issue 9): streamed score p50 <= 1.10 x the floor's p50 in the same run;
+Targets (the compiled core's): streamed score p50 <= 1.10 x the floor's p50 in the same run;
 one-rectangle batches >= 1,000,000 candidates per second from this C++ client. The
 other rows are reported without a target. Ratios are reported, nothing fails on them.
 The timed part is bounded to about 75 s; a first build of the C++ client adds about a

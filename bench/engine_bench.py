@@ -8,7 +8,7 @@ cores shared with other workers, so the numbers are noisy: compare ratios and
 medians of one run, not absolute times across runs. The load average is printed at
 the start and the end of the run.
 
-What is measured (targets of issue 9, on this 2-core machine, bench deck lumen-5m):
+What is measured (the compiled core's targets, on this 2-core machine, bench deck lumen-5m):
 
 * what-if of one run, verdict only (``detail=False``): nets of 10, 50, 100 shapes
   (p50 <= 3 us) and 10,000 shapes (p50 <= 10 us); with every changed ratio

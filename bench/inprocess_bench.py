@@ -10,7 +10,7 @@ the example on each, and in the same run times the same what-ifs through the Pyt
 ``Engine.score(..., detail=False)``, so the ratio says what the Python face adds.
 The example's printed verdicts are compared with the Python engine's, exactly.
 
-Target (issue 9): called directly from C++, p50 <= 1 us.
+Target (the compiled core's): called directly from C++, p50 <= 1 us.
 
     python -m bench.inprocess_bench [--quick]
 

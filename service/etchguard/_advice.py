@@ -93,7 +93,7 @@ are not reported; when the jumper needs its hop layer they are scored nearest fi
 only up to the first legal free one (the layer a full advice would pick too).
 ``Advice.exact_scores`` counts the what-if scores an answer took.
 
-Bounds (issue 10). Every exact score goes through ``_Advisor.score``, which checks two
+Bounds. Every exact score goes through ``_Advisor.score``, which checks two
 things first: the caller's ``should_stop`` (its deadline passed, it cancelled: the
 advice is refused with that ``StoppedError``, since nobody waits for it) and the
 advice's budget of exact scores (``max_scores``: the part under way is cut, the parts

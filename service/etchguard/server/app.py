@@ -93,7 +93,7 @@ class ServerConfig:
     tls_key: Path | None = None  # PEM private key
     tls_client_ca: Path | None = None  # PEM CA bundle: require and verify client certificates
     token_file: Path | None = None  # file holding the bearer token every call must carry
-    # sharding (issue 14): see etchguard._shard_engine and server/sharding.py
+    # sharding: see etchguard._shard_engine and server/sharding.py
     topology: Path | None = None  # the farm's topology file; None: one server holds every net
     shard_index: int | None = None  # this server's shard in the topology
     peer_tls_roots: Path | None = None  # PEM CA bundle the other shards' certificates chain to

@@ -123,7 +123,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--token-file", type=Path, metavar="FILE",
                         help="every call must carry 'authorization: Bearer <token>' with the "
                              "token in FILE (health checks stay open); others get UNAUTHENTICATED")
-    # sharding (issue 14): one design's nets over many server processes and hosts
+    # sharding: one design's nets over many server processes and hosts
     parser.add_argument("--shards", type=int, metavar="N",
                         help="run N shard processes under a supervisor that restarts a crashed one: "
                              "--listen HOST:PORT gives shard k port PORT+k, unix:PATH gives "
