@@ -140,6 +140,16 @@ Model::Model(const DeckSpec& d) : deck(d) {
       feed[s * ng + g] = f;
     }
   }
+  chain_below.assign(n * ng, ~std::uint64_t(0));
+  if (n <= 64) {
+    for (std::size_t s = 0; s < n; ++s) {
+      for (std::size_t g = 0; g < ng; ++g) {
+        std::uint64_t bits = 0;
+        for (int t = feed[s * ng + g]; t >= 0; t = feed[std::size_t(t) * ng + g]) bits |= std::uint64_t(1) << t;
+        chain_below[s * ng + g] = bits;
+      }
+    }
+  }
   side_needed.resize(n);
   for (std::size_t s = 0; s < n; ++s) side_needed[s] = !is_cut[s] && (cumulative_side || side_rule[s]);
 }

@@ -33,6 +33,9 @@ class Model {
   std::vector<Group> groups;        // sorted by (measure, oxide name)
   std::vector<int> term_rule;       // [step * groups + g]: rule giving the factors, or -1
   std::vector<int> feed;            // [step * groups + g]: the step feeding the CAR, or -1
+  // [step * groups + g]: the steps below `step` its CAR takes terms from, one bit each
+  // (all bits set when the deck has more than 64 steps: a what-if then looks every time)
+  std::vector<std::uint64_t> chain_below;
   std::vector<int> rule_index;      // [(step * 2 + measure) * oxides + oxide] -> rule or -1
 
   const RuleSpec* rule(int step, Measure m, int oxide) const {

@@ -176,6 +176,7 @@ struct Scratch {
   std::vector<std::vector<double>> fresh;
   std::vector<i128> added;
   std::vector<int> parent, touched, roots, members, group_comps;
+  std::vector<std::uint64_t> changed;  // per candidate group root: steps it changed its component at
   std::vector<std::pair<int, int>> first_toucher, seen;
   std::vector<Rect> local, rects_here, with;
   std::vector<Entry> es, before;

@@ -28,9 +28,13 @@ int find(std::vector<int>& parent, int i) {
   return i;
 }
 
-void join(std::vector<int>& parent, int i, int j) {
+// Joins two candidates' groups; `changed` (per group root) holds the steps at which the
+// group's component changed, and the joined group has both groups' steps.
+void join(std::vector<int>& parent, std::vector<std::uint64_t>& changed, int i, int j) {
   int ri = find(parent, i), rj = find(parent, j);
-  if (ri != rj) parent[std::size_t(ri)] = rj;
+  if (ri == rj) return;
+  parent[std::size_t(ri)] = rj;
+  changed[std::size_t(rj)] |= changed[std::size_t(ri)];
 }
 
 template <class T>
@@ -141,6 +145,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
   auto& parent = sc.parent;
   parent.resize(k);
   for (std::size_t i = 0; i < k; ++i) parent[i] = int(i);
+  sc.changed.assign(k, 0);
   auto &roots = sc.roots, &members = sc.members, &group_comps = sc.group_comps;
   auto &first_toucher = sc.first_toucher, &seen = sc.seen;
   auto &local = sc.local, &rects_here = sc.rects_here;
@@ -154,7 +159,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
   auto& bests = sc.terms;  // per (measure, oxide) group: the group's best CAR at s
   for (int s = first; s < steps; ++s) {
     for (const auto& l : links)
-      if (l.step == s) join(parent, l.i, l.j);
+      if (l.step == s) join(parent, sc.changed, l.i, l.j);
     const auto& cof = comp_of[std::size_t(s)];
     const auto& pool = comps[std::size_t(s)];
     first_toucher.clear();
@@ -166,7 +171,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         int c = cof[std::size_t(t.first)];
         auto it = std::find_if(first_toucher.begin(), first_toucher.end(), [c](const auto& x) { return x.first == c; });
         if (it == first_toucher.end()) first_toucher.push_back({c, int(i)});
-        else join(parent, int(i), it->second);
+        else join(parent, sc.changed, int(i), it->second);
       }
     }
     auto& group_of = sc.group_of_cand[std::size_t(s)];
@@ -257,11 +262,28 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         group = &pool[std::size_t(group_comps[0])];
       }
       if (group->G <= 0) continue;
+      const int only = merged ? -1 : group_comps[0];
+      if (merged) {
+        sc.changed[std::size_t(root)] |= s < 64 ? std::uint64_t(1) << s : ~std::uint64_t(0);
+      } else {
+        // One component as held, no new metal or pin here: its figures at s move only if
+        // a step its sums take terms from changed under this group.
+        bool reaches = false;
+        for (int g = 0; g < ng && !reaches; ++g)
+          reaches = ((group->oxides >> m.groups[std::size_t(g)].oxide) & 1u) &&
+                    (m.chain_below[std::size_t(s) * G + std::size_t(g)] & sc.changed[std::size_t(root)]);
+        if (!reaches) {
+          for (int g = 0; g < ng; ++g)
+            sc.group_best[std::size_t(s)][gi * G + std::size_t(g)] = a.best[std::size_t(s)][std::size_t(only) * G + std::size_t(g)];
+          worst_net = std::max({worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)],
+                                a.comp_worst[std::size_t(s)][std::size_t(only)]});
+          continue;
+        }
+      }
       // The group's best CAR per (measure, oxide) group: this step's term (new where the
       // group changed, else the component's own) plus the largest CAR at the feeding
       // step among its gates: the untouched feeding components' (held, largest first)
       // and the candidate groups' there (computed at that step).
-      const int only = merged ? -1 : group_comps[0];
       bests.assign(G, -1.0);
       bool moved = false;
       for (int g = 0; g < ng; ++g) {
