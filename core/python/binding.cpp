@@ -14,6 +14,7 @@
 #include "etchguard/core.hpp"
 
 namespace nb = nanobind;
+using namespace nb::literals;
 using namespace etchguard;
 
 namespace {
@@ -241,7 +242,12 @@ NB_MODULE(_core, m) {
         nb::gil_scoped_release unlocked;
         net.score_batch(shapes.data(), shapes.size(), cs, n, cm, worst_change.data(), worst.data(), legal.data(),
                         breaks.data(), cost.data(), added.data());
-      })
+      },
+      // No conversion: a float or a narrower column must be refused, not truncated, and a
+      // result column must be the caller's own array, not a converted copy.
+      "layers"_a.noconvert(), "rects"_a.noconvert(), "counts"_a.noconvert().none(), "costs"_a,
+      "worst_change"_a.noconvert(), "worst"_a.noconvert(), "legal"_a.noconvert(), "breaks"_a.noconvert(),
+      "cost"_a.noconvert(), "added"_a.noconvert())
       .def("score_batch_common", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
                                     const I64Rows& rects, const I64Col& counts,
                                     const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& common_layers,
@@ -259,7 +265,11 @@ NB_MODULE(_core, m) {
         net.score_batch_common(shapes.data(), shapes.size(), counts.data(), n, common.data(), common.size(),
                                common_counts.data(), common_counts.shape(0), part_of.data(), cm, worst_change.data(),
                                worst.data(), legal.data(), breaks.data(), cost.data(), added.data());
-      })
+      },
+      "layers"_a.noconvert(), "rects"_a.noconvert(), "counts"_a.noconvert(), "common_layers"_a.noconvert(),
+      "common_rects"_a.noconvert(), "common_counts"_a.noconvert(), "part_of"_a.noconvert(), "costs"_a,
+      "worst_change"_a.noconvert(), "worst"_a.noconvert(), "legal"_a.noconvert(), "breaks"_a.noconvert(),
+      "cost"_a.noconvert(), "added"_a.noconvert())
       .def("check", [](const Net& net) {
         Report r;
         {
