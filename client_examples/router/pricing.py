@@ -84,7 +84,8 @@ class ServicePricer:
     """Prices one sink search's candidates for the net ``net`` (see the module doc)."""
 
     def __init__(self, session: MeteredSession, net: str,
-                 item_rects: Callable[[Item], list[tuple[str, Rect]]], layer_names: Sequence[str]) -> None:
+                 item_rects: Callable[[Item], list[tuple[str, Rect]]], layer_names: Sequence[str],
+                 flush_at: int = 4) -> None:
         self.session = session
         self.meter = session.meter
         self.net = net
@@ -94,6 +95,7 @@ class ServicePricer:
         self.asked: set[tuple[tuple[Item, ...], int]] = set()
         self.in_flight: deque[list[tuple[tuple[Item, ...], int]]] = deque()  # keys per message
         self.to_ask: dict[tuple[tuple[Item, ...], int], Item] = {}
+        self.flush_at = flush_at
 
     # -- gate-side moves: budgets, evaluated here ---------------------------------------------
 
@@ -124,10 +126,12 @@ class ServicePricer:
         if key not in self.asked:
             self.to_ask[key] = run
 
-    def flush(self) -> None:
-        """Ask every noted budget in one Budgets message, without waiting: the reply
-        travels while the search goes on (the session answers in order)."""
-        if not self.to_ask:
+    def flush(self, at_least: int | None = None) -> None:
+        """Ask every noted budget in one Budgets message, without waiting, once at least
+        ``at_least`` are noted (default ``flush_at``; measured on blk_r_small, 4 a
+        message sent a third fewer messages than 1 at the same time): the reply travels
+        while the search goes on (the session answers in order)."""
+        if not self.to_ask or len(self.to_ask) < (self.flush_at if at_least is None else at_least):
             return
         t0 = time.perf_counter()
         keys = list(self.to_ask)
@@ -163,7 +167,8 @@ class ServicePricer:
         for key, run in wanted.items():
             if key not in self.asked:
                 self.to_ask[key] = run
-        self.flush()
+        if any(key not in self.asked for key in wanted):
+            self.flush(at_least=1)
         for key in wanted:
             while key not in self.budgets:
                 self._receive_one()

@@ -224,7 +224,7 @@ class Router:
         if not rects:
             return
         ids = self.session.commit(self.service_name(route.data.name), [rect(n, *r) for n, r in rects])
-        lengths = runs_um or [_run_length(self.width.get(n), r) for n, r in rects]
+        lengths = runs_um or [_run_length(n not in self.cut_names, r) for n, r in rects]
         for sid, (name, r), length in zip(ids, rects, lengths):
             route.shapes.append(Committed(sid, name, r, length))
             k = self.grid.layer_of_name.get(name)
@@ -578,14 +578,14 @@ def _rect(r: pb.Rect) -> Rect:
     return (r.xlo, r.ylo, r.xhi, r.yhi)
 
 
-def _run_length(width: int | None, r: Rect) -> float:
+def _run_length(routing: bool, r: Rect) -> float:
     """Centre-line length (um) of a run rectangle extended width/2 past each end; 0 for
-    a square (a via pad) or a cut."""
-    if width is None:
+    a square (a via pad) or a cut. Any routing layer of the deck counts, also one above
+    the router's own layers (a hop from advice may land there)."""
+    if not routing:
         return 0.0
     w, h = r[2] - r[0], r[3] - r[1]
-    length = max(w, h) - min(w, h)
-    return length / 1000.0 if min(w, h) <= width and length > 0 else 0.0
+    return (max(w, h) - min(w, h)) / 1000.0
 
 
 def _centre_line(r: Rect, width: int) -> tuple[int, int, int, int]:
