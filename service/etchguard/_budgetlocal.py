@@ -110,6 +110,15 @@ class LocalBudget:
         the layer."""
         near = [o for o in self.own if any(o[0] <= r[2] and r[0] <= o[2] and o[1] <= r[3] and r[1] <= o[3]
                                            for r in rects)]
+        if len(rects) == 1 and len(near) <= 1:  # by inclusion-exclusion, as the service does
+            x0, y0, x1, y1 = rects[0]
+            area, perimeter = (x1 - x0) * (y1 - y0), 2 * ((x1 - x0) + (y1 - y0))
+            if not near:
+                return area, perimeter
+            o = near[0]
+            ix, iy = min(x1, o[2]) - max(x0, o[0]), min(y1, o[3]) - max(y0, o[1])
+            inside = ix * iy if ix > 0 and iy > 0 else 0
+            return area - inside, perimeter - 2 * (ix + iy)
         area_before, perimeter_before = union_measures(near) if near else (0, 0)
         area_after, perimeter_after = union_measures(near + list(rects))
         return area_after - area_before, perimeter_after - perimeter_before
