@@ -212,6 +212,7 @@ class GrpcPeers:
             index = self.engine.obstacles
             cells = index.named(index.grid.keys())
         message = cells_message(self.me, self.topology, cells, complete=True)
+        index = self.engine.obstacles
         for k in targets:
             try:
                 self._stubs[k].PublishMetal(message, timeout=PUSH_TIMEOUT_S)
@@ -219,10 +220,21 @@ class GrpcPeers:
                 continue
             with self._lock:
                 self._dirty.discard(k)
+            # Commits between the grid above and this instant skipped k (it was dirty):
+            # the grid as it is now goes once more, after which every commit reaches k.
+            latest = cells_message(self.me, self.topology, index.named(index.grid.keys()), complete=False)
+            try:
+                self._stubs[k].PublishMetal(latest, timeout=PUSH_TIMEOUT_S)
+            except grpc.RpcError as exc:
+                self._mark_dirty(k, exc)
+                continue
             log.info("directory sent to peer shard", extra={"fields": {"peer": k}})
 
     def fetch(self) -> None:
-        """Fetch the whole grid of every peer whose grid has not arrived."""
+        """Fetch the grid of every peer whose grid has not arrived. What is fetched is
+        learnt but does not make the peer known: the peer may not yet push its commits
+        here (this shard may still be owed its full resend), so until that resend
+        arrives the peer stays one every question asks."""
         directory = self.engine.obstacles.directory
         request = spb.GetMetalRequest(expected_fingerprint=self.topology.fingerprint)
         for k in sorted(directory.unknown()):
@@ -230,7 +242,7 @@ class GrpcPeers:
                 reply = self._stubs[k].GetMetal(request, timeout=PUSH_TIMEOUT_S)
             except grpc.RpcError:
                 continue
-            directory.learn(k, cells_of(reply), complete=True)
+            directory.learn(k, cells_of(reply), complete=False)
 
     # -- questions ------------------------------------------------------------------------
 
