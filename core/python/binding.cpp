@@ -12,6 +12,7 @@
 #include <string>
 
 #include "etchguard/core.hpp"
+#include "geometry.hpp"
 
 namespace nb = nanobind;
 using namespace nb::literals;
@@ -105,6 +106,22 @@ std::vector<Shape> shape_objects(nb::handle seq) {
   return out;
 }
 
+// A 128-bit integer as a Python int, through its decimal digits.
+nb::object python_int(i128 v) {
+  const bool negative = v < 0;
+  unsigned __int128 u = negative ? -static_cast<unsigned __int128>(v) : static_cast<unsigned __int128>(v);
+  char digits[48];
+  char* end = digits + sizeof(digits) - 1;
+  char* p = end;
+  *p = '\0';
+  do {
+    *--p = char('0' + int(u % 10));
+    u /= 10;
+  } while (u != 0);
+  if (negative) *--p = '-';
+  return nb::steal(PyLong_FromString(p, nullptr, 10));
+}
+
 void check_status(Status s) {
   switch (s) {
     case Status::Ok: return;
@@ -136,6 +153,15 @@ nb::tuple score_tuple(const Score& sc) {
 NB_MODULE(_core, m) {
   m.doc() = "etchguard's compiled ratio core (see core/include/etchguard/core.hpp)";
   m.def("core_version", &core_version);
+  // Exact (area DBU^2, perimeter DBU) of a union of rectangles, as Python ints (the
+  // figures may pass 64 bits).
+  m.def("union_measures", [](const std::vector<std::tuple<i64, i64, i64, i64>>& rows) {
+    std::vector<Rect> rects;
+    rects.reserve(rows.size());
+    for (const auto& t : rows) rects.push_back({std::get<0>(t), std::get<1>(t), std::get<2>(t), std::get<3>(t)});
+    Measures u = union_measures(rects);
+    return nb::make_tuple(python_int(u.area), python_int(u.perimeter));
+  });
   m.def("cost", [](std::tuple<double, double, double, double, double> c, double u) {
     return CostModel{std::get<0>(c), std::get<1>(c), std::get<2>(c), std::get<3>(c), std::get<4>(c)}.cost(u);
   });

@@ -69,7 +69,7 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
   b.layer = L;
   int hit = -1;
   const Rect point{x, y, x, y};
-  st.index[std::size_t(L)].near(point, st.elems, st.stamp, st.clock, [&](int e) {
+  st.index[std::size_t(L)].near(point, st.stamp, st.clock, [&](int e) {
     const Rect& r = st.elems[std::size_t(e)].r;
     if (hit < 0 && r.xlo <= x && x <= r.xhi && r.ylo <= y && y <= r.yhi) hit = e;
   });

@@ -185,13 +185,13 @@ std::uint32_t Net::State::tick() const {
 
 void Net::State::touching(int layer, const Rect& r, std::vector<std::pair<int, int>>& out) const {
   out.clear();
-  index[std::size_t(layer)].near(r, elems, stamp, clock, [&](int e) {
+  index[std::size_t(layer)].near(r, stamp, clock, [&](int e) {
     if (edge_touch(r, elems[std::size_t(e)].r)) out.push_back({e, layer});
   });
   for (int other : {layer - 1, layer + 1}) {
     if (other < 0 || other >= m.steps || m.is_cut[std::size_t(other)] == m.is_cut[std::size_t(layer)]) continue;
     int step = std::max(layer, other);
-    index[std::size_t(other)].near(r, elems, stamp, clock, [&](int e) {
+    index[std::size_t(other)].near(r, stamp, clock, [&](int e) {
       if (overlap(r, elems[std::size_t(e)].r)) out.push_back({e, step});
     });
   }

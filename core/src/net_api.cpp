@@ -206,7 +206,7 @@ Headroom Net::headroom(int layer, i64 x, i64 y) const {
   if (layer < 0 || layer >= m.steps) throw std::invalid_argument("layer: unknown layer");
   int hit = -1;
   Rect point{x, y, x, y};
-  st.index[std::size_t(layer)].near(point, st.elems, st.stamp, st.clock, [&](int e) {
+  st.index[std::size_t(layer)].near(point, st.stamp, st.clock, [&](int e) {
     const Rect& r = st.elems[std::size_t(e)].r;
     if (hit < 0 && r.xlo <= x && x <= r.xhi && r.ylo <= y && y <= r.yhi) hit = e;
   });
@@ -305,7 +305,7 @@ std::vector<Rect> Net::near(int layer, const Rect& r) const {
   const State& st = *s_;
   if (layer < 0 || layer >= st.m.steps) throw std::invalid_argument("layer: unknown layer");
   std::vector<Rect> out;
-  st.index[std::size_t(layer)].near(r, st.elems, st.stamp, st.clock, [&](int e) {
+  st.index[std::size_t(layer)].near(r, st.stamp, st.clock, [&](int e) {
     if (meets(st.elems[std::size_t(e)].r, r)) out.push_back(st.elems[std::size_t(e)].r);
   });
   return out;

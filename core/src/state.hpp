@@ -94,8 +94,7 @@ class LayerIndex {
   void remove(int e, const std::vector<Element>& elems);
   // Calls f(e) for entries whose closed rectangle may meet r (each once).
   template <class F>
-  void near(const Rect& r, const std::vector<Element>& elems, std::vector<std::uint32_t>& stamp,
-            std::uint32_t& clock, F f) const;
+  void near(const Rect& r, std::vector<std::uint32_t>& stamp, std::uint32_t& clock, F f) const;
   std::size_t size() const { return items_.size(); }
   std::size_t memory() const;
 
@@ -175,12 +174,12 @@ struct Scratch {
   std::vector<int> fresh_pins;          // pins with a fresh row block (to reset fresh_of)
   std::vector<std::vector<double>> fresh;
   std::vector<i128> added;
-  std::vector<int> parent, touched, roots, members, group_comps;
+  std::vector<int> parent, roots, members, group_comps;
   std::vector<std::uint64_t> changed;  // per candidate group root: steps it changed its component at
   std::vector<std::pair<int, int>> first_toucher, seen;
   std::vector<Rect> local, rects_here, with;
   std::vector<Entry> es, before;
-  std::vector<double> terms;
+  std::vector<double> bests;  // per (measure, oxide) group: a group's best CAR at a step
   // per step: the comps the candidates touched, the groups (by root) with their best
   // CAR per (measure, oxide) group, and each candidate's group index
   std::vector<std::vector<int>> touched_at;
@@ -241,9 +240,7 @@ struct Net::State {
 };
 
 template <class F>
-void LayerIndex::near(const Rect& r, const std::vector<Element>& elems, std::vector<std::uint32_t>& stamp,
-                      std::uint32_t& clock, F f) const {
-  (void)elems;
+void LayerIndex::near(const Rect& r, std::vector<std::uint32_t>& stamp, std::uint32_t& clock, F f) const {
   if (!gridded_ || cells(r) > std::max<i64>(kWideCells, i64(items_.size()))) {
     for (int e : items_) f(e);
     return;

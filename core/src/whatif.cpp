@@ -156,7 +156,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
     sc.group_best.resize(std::size_t(steps));
     sc.group_of_cand.resize(std::size_t(steps));
   }
-  auto& bests = sc.terms;  // per (measure, oxide) group: the group's best CAR at s
+  auto& bests = sc.bests;
   for (int s = first; s < steps; ++s) {
     for (const auto& l : links)
       if (l.step == s) join(parent, sc.changed, l.i, l.j);

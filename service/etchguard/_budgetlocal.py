@@ -24,9 +24,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from ._geometry import Rect, edge_touch, overlap, union_measures
+from ._ratios import is_legal
 from .v1 import etchguard_pb2 as pb
-
-TOLERANCE = 1e-9  # the contract's relative tolerance on a limit
 
 
 @dataclass(frozen=True)
@@ -147,7 +146,7 @@ class LocalBudget:
                 worst = u
             if u > change and (always or any(moved[t] for t in fed)):
                 change = u
-        return LocalScore(change, worst, worst <= 1.0 + TOLERANCE, not change <= 1.0 + TOLERANCE,
+        return LocalScore(change, worst, is_legal(worst), not is_legal(change),
                           self.cost(change), self.common_added + a)
 
     def _term(self, i: int, a: float, p: float) -> float:

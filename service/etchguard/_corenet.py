@@ -22,6 +22,7 @@ from ._columns import BatchScores, CheckedCommon
 from ._costs import CostModel
 from ._geometry import Rect
 from ._nets import Pin, Shape
+from ._ratios import is_legal
 from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck
 
@@ -175,7 +176,7 @@ class CoreNet:
         layers = self.deck.layers
         return NetReport(name, legal, worst, tuple(
             CheckResult(layers[s].name, s, MEASURES[m], KINDS[k], self.compiled.oxides[o], ratio, limit, util,
-                        util <= 1.0 + 1e-9, self.pins[g].name)
+                        is_legal(util), self.pins[g].name)
             for s, m, k, o, ratio, limit, util, g in checks))
 
     def headroom(self, layer: int, x: int, y: int) -> Headroom:

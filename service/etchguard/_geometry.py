@@ -4,20 +4,16 @@ A rectangle is a tuple ``(xlo, ylo, xhi, yhi)`` of ints, closed, with ``xlo < xh
 ``ylo < yhi``. Areas come out in DBU^2 and perimeters in DBU, as exact integers, so
 that callers convert to um once, at the edge.
 
-Union measures use a plane sweep over the distinct x coordinates: in every slab the
-covered y intervals are merged; the slab contributes ``width * covered`` to the area and
-``2 * width * intervals`` of horizontal boundary, and between two slabs the vertical
-boundary is the length of the symmetric difference of their covered y sets. Holes are
-therefore counted, and touching rectangles (shared edges) contribute no boundary
-inside. (The sweep is the textbook method for the union-of-rectangles measure; see
-J. L. Bentley's 1977 "Klee's rectangle problem" notes and any computational geometry
-text, e.g. de Berg et al., "Computational Geometry", ch. 10.)
+Union measures are the compiled core's plane sweep (core/src/geometry.cpp, which states
+the method and cites it): holes are counted, and touching rectangles (shared edges)
+contribute no boundary inside.
 """
 
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
 
+from . import _core
 from ._errors import InputError
 from ._names import shown
 
@@ -62,71 +58,10 @@ def overlap(a: Rect, b: Rect) -> bool:
     return min(a[2], b[2]) > max(a[0], b[0]) and min(a[3], b[3]) > max(a[1], b[1])
 
 
-def _merged(intervals: list[tuple[int, int]]) -> list[tuple[int, int]]:
-    """Merge closed intervals; touching ones become one (no boundary between them)."""
-    intervals.sort()
-    out: list[tuple[int, int]] = []
-    for lo, hi in intervals:
-        if out and lo <= out[-1][1]:
-            if hi > out[-1][1]:
-                out[-1] = (out[-1][0], hi)
-        else:
-            out.append((lo, hi))
-    return out
-
-
-def _symmetric_difference_length(a: list[tuple[int, int]], b: list[tuple[int, int]]) -> int:
-    """Length of (A xor B) for two sorted lists of disjoint intervals."""
-    points: list[tuple[int, int]] = []
-    for lo, hi in a:
-        points.append((lo, 1))
-        points.append((hi, -1))
-    for lo, hi in b:
-        points.append((lo, 1))
-        points.append((hi, -1))
-    points.sort()
-    depth = 0
-    total = 0
-    previous = 0
-    for x, step in points:
-        if depth == 1:
-            total += x - previous
-        depth += step
-        previous = x
-    return total
-
-
 def union_measures(rects: Iterable[Rect]) -> tuple[int, int]:
-    """Exact (area DBU^2, perimeter DBU) of the union of closed rectangles."""
-    rects = list(rects)
-    if not rects:
-        return 0, 0
-    if len(rects) == 1:
-        r = rects[0]
-        w, h = r[2] - r[0], r[3] - r[1]
-        return w * h, 2 * (w + h)
-    xs = sorted({r[0] for r in rects} | {r[2] for r in rects})
-    by_start = sorted(rects)
-    area = 0
-    perimeter = 0
-    active: list[Rect] = []
-    cursor = 0
-    previous: list[tuple[int, int]] = []
-    for i in range(len(xs) - 1):
-        x0, x1 = xs[i], xs[i + 1]
-        while cursor < len(by_start) and by_start[cursor][0] <= x0:
-            active.append(by_start[cursor])
-            cursor += 1
-        active = [r for r in active if r[2] > x0]
-        current = _merged([(r[1], r[3]) for r in active])
-        width = x1 - x0
-        covered = sum(hi - lo for lo, hi in current)
-        area += width * covered
-        perimeter += 2 * width * len(current)
-        perimeter += _symmetric_difference_length(previous, current)
-        previous = current
-    perimeter += sum(hi - lo for lo, hi in previous)
-    return area, perimeter
+    """Exact (area DBU^2, perimeter DBU) of the union of closed rectangles (the core's
+    sweep: one implementation of the union measures in the package)."""
+    return _core.union_measures([tuple(r) for r in rects])
 
 
 def run_rect(x1: int, y1: int, x2: int, y2: int, width: int, extension: int | None = None) -> Rect:
