@@ -18,13 +18,12 @@ import re
 import subprocess
 import sys
 import tomllib
-from dataclasses import fields
 from pathlib import Path
 
 import etchguard as eg
 import pytest
 from etchguard._lef import read_lef
-from etchguard._lef_deck import deck_from_lef, deck_toml, require_fields
+from etchguard._lef_deck import deck_from_lef, deck_toml
 from etchguard._lef_model import Measure
 from etchguard._lefdef_tokens import Notes
 
@@ -155,8 +154,7 @@ END UNITS
 
 def lumen_deck(**kwargs: object) -> tuple[eg.Deck, Notes]:
     notes = Notes()
-    deck, extras = deck_from_lef(read_lef([TECH], notes), notes, name="lumen-3m", **kwargs)  # type: ignore[arg-type]
-    require_fields(extras, notes)
+    deck = deck_from_lef(read_lef([TECH], notes), notes, name="lumen-3m", **kwargs)  # type: ignore[arg-type]
     return deck, notes
 
 
@@ -212,7 +210,7 @@ def test_cell_library_pins_and_antenna_cells() -> None:
     assert [m.name for m in lef.antenna_cells] == ["LDIODE"]  # CLASS CORE ANTENNACELL
 
 
-# -- the two mappings this build's deck may lack ---------------------------------------------
+# -- the cumulative chain through cuts and the reduction table -------------------------------
 
 EXTRAS = HEAD + """
 LAYER M1
@@ -240,41 +238,19 @@ END LIBRARY
 
 def test_plus_cut_and_reduction_table_reach_the_toml(tmp_path: Path) -> None:
     notes = Notes()
-    deck, extras = deck_from_lef(read_lef([write(tmp_path, EXTRAS)], notes), notes)
-    data = tomllib.loads(deck_toml(deck, extras))
+    deck = deck_from_lef(read_lef([write(tmp_path, EXTRAS)], notes), notes)
+    data = tomllib.loads(deck_toml(deck))
     v1 = next(l for l in data["layers"] if l["name"] == "V1")
     assert v1["cumulative_plus_cut"] is True
     m1 = next(r for r in data["rules"] if r["layer"] == "M1")
     assert m1["diode_area_reduction"] == [[0.0, 1.0], [0.2, 0.5]]
 
 
-def test_plus_cut_is_never_dropped_silently(tmp_path: Path) -> None:
-    path = write(tmp_path, EXTRAS)
+def test_plus_cut_and_reduction_table_reach_the_deck(tmp_path: Path) -> None:
     notes = Notes()
-    deck, extras = deck_from_lef(read_lef([path], notes), notes)
-    line = 1 + EXTRAS.splitlines().index("  ANTENNACUMROUTINGPLUSCUT ;")
-    if "cumulative_plus_cut" in {f.name for f in fields(eg.Layer)}:
-        assert deck.layer("V1").cumulative_plus_cut is True
-    else:
-        with pytest.raises(eg.DeckError) as info:
-            require_fields(extras, notes)
-        assert info.value.field == f"{path}:{line}: ANTENNACUMROUTINGPLUSCUT"
-
-
-def test_reduction_table_missing_from_the_deck_is_a_warning(tmp_path: Path) -> None:
-    text = EXTRAS.replace("  ANTENNACUMROUTINGPLUSCUT ;\n", "")
-    notes = Notes()
-    deck, extras = deck_from_lef(read_lef([write(tmp_path, text)], notes), notes)
-    if "diode_area_reduction" in {f.name for f in fields(eg.Rule)}:
-        assert deck.rule(0, "area", "thin").diode_area_reduction == ((0.0, 1.0), (0.2, 0.5))
-    else:
-        require_fields(extras, notes)  # factors <= 1: checked without it, never lower
-        assert notes.count("ANTENNAAREADIFFREDUCEPWL") == 1
-        over = text.replace("( 0.2 0.5 )", "( 0.2 1.5 )")
-        notes = Notes()
-        _, extras = deck_from_lef(read_lef([write(tmp_path, over)], notes), notes)
-        with pytest.raises(eg.DeckError):
-            require_fields(extras, notes)
+    deck = deck_from_lef(read_lef([write(tmp_path, EXTRAS)], notes), notes)
+    assert deck.layer("V1").cumulative_plus_cut is True
+    assert deck.rule(0, "area", "thin").diode_area_reduction == ((0.0, 1.0), (0.2, 0.5))
 
 
 # -- refusals name file:line and the keyword ------------------------------------------------

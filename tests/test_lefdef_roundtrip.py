@@ -215,7 +215,7 @@ def test_deck_and_nets_survive_lef_and_def(tmp_path: Path, case: tuple[dict[str,
     want_deck, want_nets = renamed(deck_data, [net], oxides)
     expected = eg.parse_deck(want_deck, "toml")
     notes = Notes()
-    got, _ = deck_from_lef(read_lef([tech], notes), notes)
+    got = deck_from_lef(read_lef([tech], notes), notes)
     assert got.layers == expected.layers
     assert sorted(got.rules, key=repr) == sorted(expected.rules, key=repr)
 

@@ -33,9 +33,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"must be a positive integer, got {args.dbu}", "--dbu")
     notes = Notes()
     lef = read_lef(args.lef, notes)
-    deck, extras = deck_from_lef(lef, notes, dbu=args.dbu, name=args.name)
+    deck = deck_from_lef(lef, notes, dbu=args.dbu, name=args.name)
     sources = ", ".join(Path(p).name for p in args.lef)
-    text = deck_toml(deck, extras, header=f"Rule deck converted from {sources} by etchguard deck-from-lef.")
+    text = deck_toml(deck, header=f"Rule deck converted from {sources} by etchguard deck-from-lef.")
     if args.output:
         try:
             Path(args.output).write_text(text, encoding="utf-8")
@@ -44,8 +44,4 @@ def run(args: argparse.Namespace) -> int:
     else:
         sys.stdout.write(text)
     print_notes(notes, sys.stderr)
-    missing = extras.missing_fields()
-    if missing:
-        print(f"note: the deck carries {' and '.join(missing)}, which the deck loader of this etchguard "
-              "build does not accept yet", file=sys.stderr)
     return 0

@@ -9,13 +9,8 @@ LEF/DEF standard"), per layer and per ANTENNAMODEL oxide class:
 * ANTENNA[SIDE]AREAFACTOR v [DIFFUSEONLY] -> area_factor, factor_with_diode_only.
 * ANTENNAAREAMINUSDIFF -> diode_area_credit, ANTENNAGATEPLUSDIFF -> diode_gate_factor,
   on the area and the side rule of that layer and oxide.
-* ANTENNAAREADIFFREDUCEPWL -> diode_area_reduction; ANTENNACUMROUTINGPLUSCUT ->
-  cumulative_plus_cut on the layer. Where the deck type in this build lacks one of these
-  two fields, they are kept in ``DeckExtras`` (so that the TOML text still carries
-  them) and ``require_fields`` refuses a check that would silently leave them out:
-  without cumulative_plus_cut the cumulative ratios come out too low (an error);
-  without a reduction table whose factors are all <= 1 they come out higher, never
-  lower (a warning); a factor above 1 is an error.
+* ANTENNAAREADIFFREDUCEPWL -> diode_area_reduction (the area and the side rule of that
+  layer and oxide); ANTENNACUMROUTINGPLUSCUT -> cumulative_plus_cut on the layer.
 * THICKNESS -> thickness_um; a side-wall rule on a layer without it is an error.
 
 Layers: the ROUTING and CUT layers in process order; a cut layer below the first routing
@@ -29,55 +24,31 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass, field, fields
 from itertools import pairwise
 from typing import Any
 
 from ._errors import DeckError
-from ._lef_model import AntennaSet, LayerKind, Lef, LefLayer, Located, Measure, Table
+from ._lef_model import AntennaSet, LayerKind, Lef, LefLayer, Located, Measure
 from ._lefdef_geometry import to_dbu
 from ._lefdef_tokens import Notes
 from ._rules import CUT, ROUTING, Deck, Layer, Rule
-
-_LAYER_FIELDS = {f.name for f in fields(Layer)}
-_RULE_FIELDS = {f.name for f in fields(Rule)}
-
-
-@dataclass
-class DeckExtras:
-    """Mappings the Deck type of this build may not hold yet (see the module doc)."""
-
-    cumulative_plus_cut: dict[str, Located] = field(default_factory=dict)  # layer -> where
-    diode_area_reduction: dict[tuple[str, str, str], tuple[Table, Located]] = field(default_factory=dict)
-
-    def missing_fields(self) -> list[str]:
-        out = []
-        if self.cumulative_plus_cut and "cumulative_plus_cut" not in _LAYER_FIELDS:
-            out.append("cumulative_plus_cut")
-        if self.diode_area_reduction and "diode_area_reduction" not in _RULE_FIELDS:
-            out.append("diode_area_reduction")
-        return out
 
 
 def _error(at: Located, keyword: str, message: str) -> DeckError:
     return DeckError(message, f"{at}: {keyword}")
 
 
-def deck_from_lef(lef: Lef, notes: Notes, dbu: int | None = None, name: str | None = None) -> tuple[Deck, DeckExtras]:
+def deck_from_lef(lef: Lef, notes: Notes, dbu: int | None = None, name: str | None = None) -> Deck:
     """The rule deck a technology LEF states, at ``dbu`` per micron (default: its own)."""
     dbu = dbu or lef.dbu
     if not dbu:
         raise DeckError("no UNITS DATABASE MICRONS in the LEF; give the database units", "dbu")
     kept = _process_layers(lef, notes)
-    extras = DeckExtras()
     layers: list[Layer] = []
     for index, info in enumerate(kept):
         extra: dict[str, Any] = {}
-        plus_cut = [s for s in info.antenna.values() if s.cum_routing_plus_cut]
-        if plus_cut:
-            extras.cumulative_plus_cut[info.name] = plus_cut[0].at["ANTENNACUMROUTINGPLUSCUT"]
-            if "cumulative_plus_cut" in _LAYER_FIELDS:
-                extra["cumulative_plus_cut"] = True
+        if any(s.cum_routing_plus_cut for s in info.antenna.values()):
+            extra["cumulative_plus_cut"] = True
         if info.kind is LayerKind.ROUTING:
             layers.append(Layer(info.name, index, ROUTING, direction=_direction(info),
                                 thickness_um=info.thickness,
@@ -90,28 +61,11 @@ def deck_from_lef(lef: Lef, notes: Notes, dbu: int | None = None, name: str | No
     for index, info in enumerate(kept):
         for oxide, antenna in info.antenna.items():
             for measure in Measure:
-                rule = _rule(info, index, oxide, measure, antenna, extras, notes)
+                rule = _rule(info, index, oxide, measure, antenna, notes)
                 if rule is not None:
                     rules.append(rule)
     deck_name = name or (lef.sources[0].rsplit("/", 1)[-1].rsplit(".", 1)[0] if lef.sources else "lef")
-    return Deck(deck_name, dbu, False, tuple(layers), tuple(rules), ", ".join(lef.sources)), extras
-
-
-def require_fields(extras: DeckExtras, notes: Notes) -> None:
-    """Refuse a deck that would check something other than the LEF says (module doc)."""
-    if "cumulative_plus_cut" in extras.missing_fields():
-        name, at = next(iter(extras.cumulative_plus_cut.items()))
-        raise _error(at, "ANTENNACUMROUTINGPLUSCUT", f"layer {name} adds cut steps into its cumulative ratio, "
-                     "and the deck of this etchguard build has no cumulative_plus_cut yet: the cumulative "
-                     "ratios would come out too low")
-    if "diode_area_reduction" in extras.missing_fields():
-        for (layer, measure, oxide), (table, at) in extras.diode_area_reduction.items():
-            if any(factor > 1 for _, factor in table):
-                raise _error(at, "ANTENNAAREADIFFREDUCEPWL", f"a reduction factor above 1 on {layer}, and this "
-                             "build's deck has no diode_area_reduction: ratios would come out too low")
-            notes.warn(at.source, at.line, "ANTENNAAREADIFFREDUCEPWL",
-                       f"this build's deck has no diode_area_reduction: {layer} {measure} ({oxide}) is "
-                       "checked without it, so ratios with diffusion come out higher, never lower")
+    return Deck(deck_name, dbu, False, tuple(layers), tuple(rules), ", ".join(lef.sources))
 
 
 def _process_layers(lef: Lef, notes: Notes) -> list[LefLayer]:
@@ -189,7 +143,7 @@ def _cut_geometry(lef: Lef, kept: list[LefLayer], index: int, dbu: int, notes: N
 
 
 def _rule(info: LefLayer, index: int, oxide: str, measure: Measure, antenna: AntennaSet,
-          extras: DeckExtras, notes: Notes) -> Rule | None:
+          notes: Notes) -> Rule | None:
     side = measure is Measure.SIDE
     prefix = "ANTENNASIDE" if side else "ANTENNA"
     if not antenna.has_limit(measure):
@@ -205,19 +159,14 @@ def _rule(info: LefLayer, index: int, oxide: str, measure: Measure, antenna: Ant
         raise _error(at, keyword, f"a side-wall rule on {info.name}, which has no THICKNESS "
                      "(a silent zero would hide every side-wall violation)")
     factor, diffuse_only = antenna.factor.get(measure, (1.0, False))
-    extra: dict[str, Any] = {}
-    if antenna.diff_reduce:
-        extras.diode_area_reduction[(info.name, measure.value, oxide)] = (
-            antenna.diff_reduce, antenna.at["ANTENNAAREADIFFREDUCEPWL"])
-        if "diode_area_reduction" in _RULE_FIELDS:
-            extra["diode_area_reduction"] = antenna.diff_reduce
     return Rule(layer=info.name, step=index, oxide=oxide, measure=measure.value,
                 partial_max=antenna.ratio.get(measure), cumulative_max=antenna.cum_ratio.get(measure),
                 area_factor=factor, factor_with_diode_only=diffuse_only,
                 diode_partial_max=antenna.diff_ratio.get(measure, ()),
                 diode_cumulative_max=antenna.cum_diff_ratio.get(measure, ()),
                 diode_gate_factor=antenna.gate_plus_diff or 0.0,
-                diode_area_credit=antenna.area_minus_diff or 0.0, **extra)
+                diode_area_credit=antenna.area_minus_diff or 0.0,
+                diode_area_reduction=antenna.diff_reduce or ())
 
 
 # -- TOML text ------------------------------------------------------------------------------
@@ -234,9 +183,8 @@ def _value(v: Any) -> str:
     return "[" + ", ".join(_value(x) for x in v) + "]"
 
 
-def deck_toml(deck: Deck, extras: DeckExtras | None = None, header: str = "") -> str:
-    """The contract's TOML text of a deck (plus the extras' keys where the deck lacks them)."""
-    extras = extras or DeckExtras()
+def deck_toml(deck: Deck, header: str = "") -> str:
+    """The contract's TOML text of a deck."""
     out = [f"# {line}" for line in header.splitlines()]
     out += ["[process]", f"name = {_value(deck.name)}", f"dbu_per_micron = {deck.dbu_per_micron}",
             f"cumulative_includes_cuts = {_value(deck.cumulative_includes_cuts)}"]
@@ -245,7 +193,7 @@ def deck_toml(deck: Deck, extras: DeckExtras | None = None, header: str = "") ->
         keys = (("direction", "thickness_um", "wire_width", "spacing") if layer.is_routing
                 else ("cut_size", "enclosure"))
         out += [f"{k} = {_value(getattr(layer, k))}" for k in keys if getattr(layer, k) is not None]
-        if getattr(layer, "cumulative_plus_cut", False) or layer.name in extras.cumulative_plus_cut:
+        if layer.cumulative_plus_cut:
             out.append("cumulative_plus_cut = true")
     for rule in deck.rules:
         out += ["", "[[rules]]", f"layer = {_value(rule.layer)}", f"oxide = {_value(rule.oxide)}",
@@ -262,8 +210,6 @@ def deck_toml(deck: Deck, extras: DeckExtras | None = None, header: str = "") ->
         for key in ("diode_gate_factor", "diode_area_credit"):
             if getattr(rule, key):
                 out.append(f"{key} = {_value(getattr(rule, key))}")
-        reduction = getattr(rule, "diode_area_reduction", ()) or extras.diode_area_reduction.get(
-            (rule.layer, rule.measure, rule.oxide), ((), None))[0]
-        if reduction:
-            out.append(f"diode_area_reduction = {_value(reduction)}")
+        if rule.diode_area_reduction:
+            out.append(f"diode_area_reduction = {_value(rule.diode_area_reduction)}")
     return "\n".join(out) + "\n"

@@ -2,8 +2,7 @@
 
 ``open_design`` reads the LEF files (technology first, then cells), the DEF up to its
 NETS section, builds the rule deck at the DEF's database units (so coordinates stay
-exact integers), refuses a deck that would quietly drop a LEF rule
-(``_lef_deck.require_fields``) and hands out the nets one at a time.
+exact integers) and hands out the nets one at a time.
 """
 
 from __future__ import annotations
@@ -18,7 +17,7 @@ from ._def_bind import DesignBinder, bound_nets
 from ._def_model import DefHeader
 from ._errors import InputError
 from ._lef import read_lef
-from ._lef_deck import deck_from_lef, deck_toml, require_fields
+from ._lef_deck import deck_from_lef, deck_toml
 from ._lef_model import Lef
 from ._lefdef_tokens import Note, Notes
 from ._nets import NetSpec
@@ -44,19 +43,17 @@ def open_design(lef_paths: Sequence[str | Path], def_path: str | Path, notes: No
     header = reader.read_header()
     if header.dbu is None:
         raise InputError("the DEF has no UNITS DISTANCE MICRONS before its nets", f"{def_path}: UNITS")
-    deck, extras = deck_from_lef(lef, notes, dbu=header.dbu)
-    require_fields(extras, notes)
+    deck = deck_from_lef(lef, notes, dbu=header.dbu)
     binder = DesignBinder(deck, lef, header, notes)
     return Design(deck, lef, header, bound_nets(binder, reader.raw_nets()), reader.nets_declared, notes)
 
 
 def lef_deck_text(lef_paths: Sequence[str | Path], deck: Deck | None = None, notes: Notes | None = None) -> str:
     """The deck TOML of a technology LEF (``deck`` when already built from it, e.g. at a
-    DEF's database units), refusing what the deck would silently leave out."""
+    DEF's database units)."""
     notes = notes if notes is not None else Notes()
     if deck is None:
-        deck, extras = deck_from_lef(read_lef(list(lef_paths), notes), notes)
-        require_fields(extras, notes)
+        deck = deck_from_lef(read_lef(list(lef_paths), notes), notes)
     names = ", ".join(Path(p).name for p in lef_paths)
     return deck_toml(deck, header=f"Rule deck converted from {names} by etchguard.")
 
