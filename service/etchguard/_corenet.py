@@ -109,11 +109,10 @@ class CoreNet:
     def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin],
                costs: tuple[float, ...]) -> tuple[float, Score]:
         """(most ratio - limit over the changed ratios, the score without its changes)."""
-        extra = [_pin_tuple(self.compiled, p) for p in extra_pins]
-        added, worst_change, worst, legal, breaks, cost, changes = self.net.score(shapes, True, costs, extra)
-        names = self.compiled.layer_names
+        raw = self.net.score(shapes, True, costs, [_pin_tuple(self.compiled, p) for p in extra_pins])
+        changes = raw[6]
         over = max((c[4] - c[5] for c in changes), default=-math.inf)  # ratio - limit
-        return over, _new_score({names[s]: a for s, a in added}, (), worst_change, worst, legal, breaks, cost)
+        return over, self._score(raw[:6] + ((),), extra_pins)
 
     def _score(self, raw: tuple, extra_pins: Sequence[Pin]) -> Score:
         added, worst_change, worst, legal, breaks, cost, changes = raw
