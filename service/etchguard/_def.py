@@ -19,10 +19,10 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import TypeVar
 
-from ._def_model import WIRING, DefHeader, Item, RawNet, RawPath, coordinate, split_plus
+from ._def_model import WIRING, DefHeader, RawNet, RawPath, coordinate, split_plus
 from ._def_sections import SectionReader
 from ._errors import InputError
-from ._lefdef_geometry import ORIENTATIONS, bounding_box
+from ._lefdef_geometry import bounding_box
 from ._lefdef_tokens import Notes, TokenStream, fail, line_of
 
 _T = TypeVar("_T")
@@ -247,7 +247,9 @@ class DefReader:
             self._paths(net, group[i + 1:], start + i + 1, marks)
 
     def _paths(self, net: RawNet, words: list[str], start: int, marks: list[tuple[int, int]]) -> None:
-        """``layer [TAPER | TAPERRULE r] [STYLE n] points [NEW layer ...]...``"""
+        """``layer [TAPER | TAPERRULE r] [STYLE n] points [NEW layer ...]...``: one
+        ``RawPath`` per layer switch, its routing points left as words (the binder walks
+        them once, placing shapes as it goes)."""
         source = self.source
         i, n = 0, len(words)
         while i < n:
@@ -258,56 +260,13 @@ class DefReader:
             if i < n and words[i] == "TAPER":
                 taper, i = True, i + 1
             elif i < n and words[i] == "TAPERRULE":
+                if i + 1 >= n:
+                    raise fail(source, line, "TAPERRULE", f"net {net.name}: TAPERRULE needs a rule name")
                 taper_rule, i = words[i + 1], i + 2
             if i < n and words[i] == "STYLE":
                 self.notes.warn(source, line, "STYLE", "a wire style has no term in the model; the "
                                 "segment is taken as a rectangle of the path's width")
                 i += 2
-            items: list[tuple] = []
-            try:
-                i = self._points(net, words, i, items, line)
-            except IndexError:
-                raise fail(source, line_of(marks, start + n - 1), "NETS",
-                           f"net {net.name}: the wiring ends inside a routing point") from None
-            net.paths.append(RawPath(layer, line, taper, taper_rule, items))
-            i += 1  # past NEW
-
-    def _points(self, net: RawNet, words: list[str], i: int, items: list[tuple], line: int) -> int:
-        """Routing points, vias, RECT and VIRTUAL up to NEW or the end; the index after."""
-        n = len(words)
-        point, via = Item.POINT, Item.VIA
-        while i < n:
-            word = words[i]
-            if word == "(":
-                wx, wy, close = words[i + 1], words[i + 2], words[i + 3]
-                try:
-                    x = None if wx == "*" else int(wx)
-                    y = None if wy == "*" else int(wy)
-                except ValueError:
-                    x = None if wx == "*" else coordinate(wx, self.source, line, "NETS")
-                    y = None if wy == "*" else coordinate(wy, self.source, line, "NETS")
-                if close == ")":
-                    items.append((point, x, y, None))
-                    i += 4
-                    continue
-                ext = coordinate(close, self.source, line, "NETS")
-                if ext < 0 or words[i + 4] != ")":
-                    raise fail(self.source, line, "NETS", f"net {net.name}: expected ( x y [extension >= 0] )")
-                items.append((point, x, y, ext))
-                i += 5
-            elif word == "NEW":
-                return i
-            elif word == "MASK":
-                i += 2
-            elif word in ("RECT", "VIRTUAL"):
-                count = 4 if word == "RECT" else 2
-                if words[i + 1] != "(" or words[i + 2 + count] != ")":
-                    raise fail(self.source, line, word, f"net {net.name}: expected {word} ( {count} numbers )")
-                values = tuple(coordinate(w, self.source, line, word) for w in words[i + 2:i + 2 + count])
-                items.append((Item.RECT if word == "RECT" else Item.VIRTUAL, *values))
-                i += 3 + count
-            else:
-                orient = ORIENTATIONS.get(words[i + 1]) if i + 1 < n else None
-                items.append((via, word, orient))
-                i += 2 if orient is not None else 1
-        return i
+            end = words.index("NEW", i) if "NEW" in words[i:] else n  # (a missed index raises: slower)
+            net.paths.append(RawPath(layer, line, taper, taper_rule, words[i:end]))
+            i = end + 1  # past NEW

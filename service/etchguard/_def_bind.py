@@ -25,7 +25,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from ._def_model import DefHeader, DefPin, Item, RawNet, RawPath
+from ._def_model import DefHeader, DefPin, RawNet, RawPath, coordinate
 from ._geometry import Rect
 from ._lef_model import (
     GeneratedVia,
@@ -36,9 +36,9 @@ from ._lef_model import (
     Measure,
     PinAntenna,
 )
-from ._lefdef_geometry import Orientation, cut_array, place, placement_shift, to_dbu
+from ._lefdef_geometry import ORIENTATIONS, Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
-from ._nets import NetSpec, Pin, Shape
+from ._nets import NetSpec, Pin, shapes_of
 from ._rules import Deck
 
 _N = Orientation.N
@@ -329,12 +329,13 @@ class DesignBinder:
             if pin is not None and pin.name not in names:
                 names.add(pin.name)
                 pins.append(pin)
-        shapes: list[Shape] = []
+        rows: list[tuple[int, Rect]] = []
         for path in raw.paths:
-            self._wire(raw, path, shapes)
-        return NetSpec(raw.name, tuple(pins), tuple(shapes))
+            self._wire(raw, path, rows)
+        return NetSpec(raw.name, tuple(pins), shapes_of(rows))
 
-    def _wire(self, raw: RawNet, path: RawPath, shapes: list[Shape]) -> None:
+    def _wire(self, raw: RawNet, path: RawPath, rows: list[tuple[int, Rect]]) -> None:
+        """The path's shapes as (step, rect) rows, its routing points walked once."""
         line = path.line
         layer = path.layer
         step = self._step(layer, line, "NETS")
@@ -344,65 +345,109 @@ class DesignBinder:
             raise fail(self.source, line, "NETS", f"net {raw.name}: wiring on cut layer {layer}")
         rule = None if path.taper else (path.taper_rule or raw.rule)
         width = self._width(rule, layer, line)
+        half = width // 2
         px: int | None = None
         py: int | None = None
         pext: int | None = None
-        for item in path.items:
-            kind = item[0]
-            if kind is Item.POINT:
-                x = px if item[1] is None else item[1]
-                y = py if item[2] is None else item[2]
-                if x is None or y is None:
-                    raise fail(self.source, line, "NETS", f"net {raw.name}: '*' before any point")
-                if px is not None:
-                    shapes.append(Shape(step, self._segment(px, py, pext, x, y, item[3], width, step, raw, line)))  # type: ignore[arg-type]
-                px, py, pext = x, y, item[3]
-            elif kind is Item.VIA:
-                if px is None or py is None:
-                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} before any point")
-                placed, routing = self._via(item[1], item[2] or _N, line)
-                shapes.extend([Shape(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
-                if not routing:
-                    continue  # cuts only: placed, the path stays on its layer
-                if layer not in routing:
-                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} does not land on {layer}")
-                if len(routing) == 2:
-                    layer = routing[1] if routing[0] == layer else routing[0]
-                elif len(routing) != 1:
-                    raise fail(self.source, line, "NETS", f"net {raw.name}: via {item[1]} joins "
-                               f"{', '.join(routing)}: not one layer to another")
-                step_after = self.steps.get(layer)
-                if step_after is None:
-                    step_after = self._step(layer, line, "NETS")
-                if step_after is None:
-                    return  # the rest of the path runs on a layer the deck does not hold
-                step, width, pext = step_after, self._width(rule, layer, line), None
-            elif kind is Item.RECT:
-                if px is None or py is None:
-                    raise fail(self.source, line, "RECT", f"net {raw.name}: RECT before any point")
-                x1, y1, x2, y2 = px + item[1], py + item[2], px + item[3], py + item[4]
-                rect = (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))
-                if rect[0] == rect[2] or rect[1] == rect[3]:
-                    raise fail(self.source, line, "RECT", f"net {raw.name}: the rectangle has no area")
-                shapes.append(Shape(step, rect))
-            else:  # VIRTUAL
-                px, py, pext = item[1], item[2], None
+        words, i, n = path.words, 0, len(path.words)
+        append = rows.append
+        try:
+            while i < n:
+                word = words[i]
+                if word == "(":  # ( x y [extension] ), '*' repeating the previous x or y
+                    wx, wy = words[i + 1], words[i + 2]
+                    try:
+                        x = px if wx == "*" else int(wx)
+                        y = py if wy == "*" else int(wy)
+                    except ValueError:
+                        x, y = self._point(raw, wx, wy, px, py, line)
+                    if words[i + 3] == ")":
+                        ext, i = None, i + 4
+                    else:
+                        ext, i = self._extension(raw, words, i, line), i + 5
+                    if x is None or y is None:
+                        raise fail(self.source, line, "NETS", f"net {raw.name}: '*' before any point")
+                    if px is not None:
+                        # a segment: the path's width, half of it past each end unless the
+                        # point gives its own extension; odd widths lean one DBU up or right
+                        d1 = half if pext is None else pext
+                        d2 = half if ext is None else ext
+                        if py == y and (px != x or self.deck.layers[step].direction == "horizontal"):
+                            append((step, (x - d2, y - half, px + d1, y - half + width) if px > x
+                                    else (px - d1, y - half, x + d2, y - half + width)))
+                        elif px == x:
+                            append((step, (x - half, y - d2, x - half + width, py + d1) if py > y  # type: ignore[operator]
+                                    else (x - half, py - d1, x - half + width, y + d2)))  # type: ignore[operator]
+                        else:
+                            raise fail(self.source, line, "NETS", f"net {raw.name}: segment ({px} {py}) to "
+                                       f"({x} {y}) is neither horizontal nor vertical")
+                    px, py, pext = x, y, ext
+                elif word == "MASK":
+                    i += 2
+                elif word == "RECT" or word == "VIRTUAL":
+                    values, i = self._relative(raw, words, i, line)
+                    if word == "VIRTUAL":
+                        px, py, pext = values[0], values[1], None
+                        continue
+                    if px is None or py is None:
+                        raise fail(self.source, line, "RECT", f"net {raw.name}: RECT before any point")
+                    x1, y1, x2, y2 = px + values[0], py + values[1], px + values[2], py + values[3]
+                    if x1 == x2 or y1 == y2:
+                        raise fail(self.source, line, "RECT", f"net {raw.name}: the rectangle has no area")
+                    append((step, (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))))
+                else:  # a via, placed at the last point; it switches the path's layer
+                    orient = ORIENTATIONS.get(words[i + 1]) if i + 1 < n else None
+                    i += 1 if orient is None else 2
+                    if px is None or py is None:
+                        raise fail(self.source, line, "NETS", f"net {raw.name}: via {word} before any point")
+                    placed, routing = self._via(word, orient or _N, line)
+                    rows.extend([(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
+                    if not routing:
+                        continue  # cuts only: placed, the path stays on its layer
+                    layer = self._next_layer(raw, word, layer, routing, line)
+                    step_after = self.steps.get(layer)
+                    if step_after is None:
+                        step_after = self._step(layer, line, "NETS")
+                    if step_after is None:
+                        return  # the rest of the path runs on a layer the deck does not hold
+                    step, width, pext = step_after, self._width(rule, layer, line), None
+                    half = width // 2
+        except IndexError:
+            raise fail(self.source, line, "NETS", f"net {raw.name}: the wiring ends inside a routing point") from None
 
-    def _segment(self, x1: int, y1: int, e1: int | None, x2: int, y2: int, e2: int | None, width: int,
-                 step: int, raw: RawNet, line: int) -> Rect:
-        half = width // 2
-        d1 = half if e1 is None else e1
-        d2 = half if e2 is None else e2
-        if y1 == y2 and (x1 != x2 or self.deck.layers[step].direction == "horizontal"):
-            if x1 > x2:
-                x1, x2, d1, d2 = x2, x1, d2, d1
-            return (x1 - d1, y1 - half, x2 + d2, y1 - half + width)
-        if x1 == x2:
-            if y1 > y2:
-                y1, y2, d1, d2 = y2, y1, d2, d1
-            return (x1 - half, y1 - d1, x1 - half + width, y2 + d2)
-        raise fail(self.source, line, "NETS", f"net {raw.name}: segment ({x1} {y1}) to ({x2} {y2}) is neither "
-                   "horizontal nor vertical")
+    def _point(self, raw: RawNet, wx: str, wy: str, px: int | None, py: int | None,
+               line: int) -> tuple[int | None, int | None]:
+        """A point whose coordinates are not plain integers (``1.0e3``), or an error."""
+        return (px if wx == "*" else coordinate(wx, self.source, line, "NETS"),
+                py if wy == "*" else coordinate(wy, self.source, line, "NETS"))
+
+    def _extension(self, raw: RawNet, words: list[str], i: int, line: int) -> int:
+        """The extension of ``( x y extension )`` at word i."""
+        ext = coordinate(words[i + 3], self.source, line, "NETS")
+        if ext < 0 or words[i + 4] != ")":
+            raise fail(self.source, line, "NETS", f"net {raw.name}: expected ( x y [extension >= 0] )")
+        return ext
+
+    def _relative(self, raw: RawNet, words: list[str], i: int, line: int) -> tuple[tuple[int, ...], int]:
+        """``RECT ( 4 numbers )`` or ``VIRTUAL ( 2 numbers )`` at word i: the numbers and
+        the index after them."""
+        word = words[i]
+        count = 4 if word == "RECT" else 2
+        if words[i + 1] != "(" or words[i + 2 + count] != ")":
+            raise fail(self.source, line, word, f"net {raw.name}: expected {word} ( {count} numbers )")
+        values = tuple(coordinate(w, self.source, line, word) for w in words[i + 2:i + 2 + count])
+        return values, i + 3 + count
+
+    def _next_layer(self, raw: RawNet, via: str, layer: str, routing: tuple[str, ...], line: int) -> str:
+        """The routing layer a via takes the path to from ``layer``."""
+        if layer not in routing:
+            raise fail(self.source, line, "NETS", f"net {raw.name}: via {via} does not land on {layer}")
+        if len(routing) == 2:
+            return routing[1] if routing[0] == layer else routing[0]
+        if len(routing) != 1:
+            raise fail(self.source, line, "NETS", f"net {raw.name}: via {via} joins "
+                       f"{', '.join(routing)}: not one layer to another")
+        return layer
 
 
 def bound_nets(binder: DesignBinder, raws: Iterator[RawNet]) -> Iterator[NetSpec]:

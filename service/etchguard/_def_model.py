@@ -1,7 +1,7 @@
 """What a DEF reader keeps of a design, as the file states it (DBU, names unresolved).
 
 ``RawNet`` is one net of the NETS section: its connections and its regular wiring as
-written (``RawPath``s of routing ``Item``s); the header records hold the VIAS,
+written (``RawPath``s, their routing points as words); the header records hold the VIAS,
 COMPONENTS and PINS a net needs. ``coordinate`` and ``split_plus`` are the two word
 helpers every DEF statement uses.
 """
@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from enum import Enum
 
 from ._errors import InputError
 from ._geometry import Rect
@@ -22,22 +21,16 @@ WIRING = {"ROUTED", "FIXED", "COVER", "NOSHIELD"}
 PLACEMENT = {"PLACED", "FIXED", "COVER"}
 
 
-class Item(Enum):
-    """A routing point's kind in a wiring path."""
-
-    POINT = 1  # (x, y, extension); x or y None for '*'
-    VIA = 2  # (name, orientation or None)
-    RECT = 3  # (dx1, dy1, dx2, dy2) relative to the last point
-    VIRTUAL = 4  # (x, y): a jump without wire
-
-
 @dataclass(slots=True)
 class RawPath:
     layer: str
     line: int
     taper: bool  # TAPER: the layer's default width whatever the net's rule
     taper_rule: str | None
-    items: list[tuple]
+    # routing points as written, up to the next NEW: "( x y [ext] )" ('*' repeats the
+    # previous coordinate), "via [orientation]", "RECT ( dx1 dy1 dx2 dy2 )" relative to
+    # the last point, "VIRTUAL ( x y )" (a jump without wire), "MASK n"
+    words: list[str]
 
 
 @dataclass(slots=True)
@@ -116,11 +109,10 @@ def split_plus(words: list[str], start: int) -> list[tuple[int, list[str]]]:
         raise InputError(f"expected '+' before {words[start]!r}", "statement")
     groups: list[tuple[int, list[str]]] = []
     at = start
+    left = words[start + 1:].count("+")  # the '+' words after the first
     while at < n:
-        try:
-            following = words.index("+", at + 1)
-        except ValueError:
-            following = n
+        following = words.index("+", at + 1) if left else n  # (a missed index would raise: slower)
+        left -= 1
         groups.append((at + 1, words[at + 1:following]))
         at = following
     return groups

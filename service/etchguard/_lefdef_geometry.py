@@ -33,6 +33,11 @@ class Orientation(Enum):
     FS = (1, 0, 0, -1)
     FE = (0, 1, 1, 0)
 
+    # Members are singletons compared by identity, so identity hashing is the same
+    # equality; Enum's own __hash__ runs in Python, and a DEF read looks up a cache
+    # keyed by orientation for every pin and via it places.
+    __hash__ = object.__hash__
+
     def point(self, x: int, y: int) -> tuple[int, int]:
         a, b, c, d = self.value
         return a * x + b * y, c * x + d * y

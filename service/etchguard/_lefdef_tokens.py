@@ -5,8 +5,10 @@ bracket points, ``"..."`` is one word that may hold blanks, and ``#`` at the sta
 word comments out the rest of its line. Writers do not always leave blanks around the
 punctuation, so ``;``, ``(`` and ``)`` are split off words here.
 
-The stream reads the file line by line (memory stays flat however long it is), decodes
-each line as UTF-8 on its own so that a bad byte is reported with its line, and hands
+The stream reads the file a block of whole lines at a time (memory stays flat however
+long it is), decodes and splits a block at once, and goes line by line through a block
+that holds a quote, a comment or a byte that is not UTF-8 (so that a bad byte is
+reported with its line); it hands
 out words one at a time (``next``/``peek``, for the LEF reader and DEF headers) or a
 whole statement up to its ``;`` (``statement``, the fast path for DEF's big sections).
 
@@ -69,25 +71,49 @@ def lines_of(path: Path, source: str, notes: Notes | None = None) -> Iterator[tu
 
 
 def _decoded_lines(handle: BinaryIO, source: str, notes: Notes | None) -> Iterator[tuple[int, list[str]]]:
-    for number, raw in enumerate(handle, 1):
+    number = 0
+    while True:
+        chunk = handle.readlines(_CHUNK)
+        if not chunk:
+            return
         try:
-            text = raw.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            # A stray byte inside a comment harms nothing (the standard's own example
-            # files have one); anywhere else it is refused.
-            words = _split_careful(raw.decode("utf-8", errors="replace"), source, number)
-            if any("\ufffd" in word for word in words):
-                raise fail(source, number, "encoding", f"not UTF-8 text (byte {exc.start + 1} of the "
-                           f"line is {raw[exc.start]:#04x})") from exc
-            if notes is not None:
-                notes.warn(source, number, "encoding", "a byte that is not UTF-8 in a comment; ignored")
+            text = b"".join(chunk).decode("utf-8")
+        except UnicodeDecodeError:
             text = ""
-        if "#" in text or '"' in text:
-            words = _split_careful(text, source, number)
-        elif text:
-            words = _spaced(text).split()
-        if words:
-            yield number, words
+        if text and "#" not in text and '"' not in text:
+            # the common case: a block of plain lines decoded and spaced at once
+            lines = _spaced(text).split("\n")
+            for words in map(str.split, lines[:len(chunk)]):
+                number += 1
+                if words:
+                    yield number, words
+            continue
+        for raw in chunk:
+            number += 1
+            words = _careful_line(raw, source, number, notes)
+            if words:
+                yield number, words
+
+
+_CHUNK = 1 << 18  # bytes of whole lines decoded at once
+
+
+def _careful_line(raw: bytes, source: str, number: int, notes: Notes | None) -> list[str]:
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        # A stray byte inside a comment harms nothing (the standard's own example
+        # files have one); anywhere else it is refused.
+        words = _split_careful(raw.decode("utf-8", errors="replace"), source, number)
+        if any("\ufffd" in word for word in words):
+            raise fail(source, number, "encoding", f"not UTF-8 text (byte {exc.start + 1} of the "
+                       f"line is {raw[exc.start]:#04x})") from exc
+        if notes is not None:
+            notes.warn(source, number, "encoding", "a byte that is not UTF-8 in a comment; ignored")
+        return words  # those before the comment
+    if "#" in text or '"' in text:
+        return _split_careful(text, source, number)
+    return _spaced(text).split()
 
 
 @dataclass
@@ -197,20 +223,24 @@ class TokenStream:
         of where each line of the statement starts, for error messages."""
         out: list[str] = []
         marks: list[tuple[int, int]] = []
+        words, pos, line = self._words, self._pos, self.line
+        lines = self._lines
         while True:
-            if self._pos >= len(self._words) and not self._fill():
-                raise self.error(keyword, "the file ends inside a statement (a ';' is missing)")
-            words, pos = self._words, self._pos
-            marks.append((len(out), self.line))
-            try:
-                end = words.index(";", pos)
-            except ValueError:
-                out.extend(words[pos:])
-                self._pos = len(words)
-                continue
-            out.extend(words[pos:end])
-            self._pos = end + 1
-            return out, marks
+            if pos >= len(words):
+                following = next(lines, None)  # the next line with words
+                if following is None:
+                    self._words, self._pos, self.line = words, pos, line
+                    raise self.error(keyword, "the file ends inside a statement (a ';' is missing)")
+                (line, words), pos = following, 0
+            marks.append((len(out), line))
+            # most lines hold no ';' or end with it; a missed index would raise, which costs more
+            end = words.index(";", pos) if ";" in words and (words[-1] == ";" or ";" in words[pos:]) else -1
+            if end >= 0:
+                out.extend(words[pos:end])
+                self._words, self._pos, self.line = words, end + 1, line
+                return out, marks
+            out.extend(words[pos:] if pos else words)
+            pos = len(words)
 
     def skip_statement(self, keyword: str) -> None:
         self.statement(keyword)

@@ -7,7 +7,7 @@ Layers are resolved to process-step indices of the loaded deck.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -41,6 +41,24 @@ class Shape:
 
     layer: int
     rect: Rect
+
+
+_object_new = object.__new__
+
+
+def shapes_of(rows: Iterable[tuple[int, Rect]]) -> tuple[Shape, ...]:
+    """Shapes of (layer, rect) rows a reader has already checked, equal to
+    ``Shape(layer, rect)`` each but built without the frozen dataclass's
+    field-at-a-time ``__init__`` (half the cost of a shape, and a DEF read makes
+    millions)."""
+    out = []
+    for layer, rect in rows:
+        shape = _object_new(Shape)
+        fields = shape.__dict__
+        fields["layer"] = layer
+        fields["rect"] = rect
+        out.append(shape)
+    return tuple(out)
 
 
 @dataclass(frozen=True)
