@@ -13,8 +13,7 @@ from pathlib import Path
 
 from ._errors import InputError
 from ._lef import read_lef
-from ._lef_deck import deck_from_lef, deck_toml
-from ._lefdef import print_notes
+from ._lefdef import lef_rules, print_notes
 from ._lefdef_tokens import Notes
 
 HELP = "convert a technology LEF's layers and antenna rules into a rule deck (TOML)"
@@ -32,10 +31,8 @@ def run(args: argparse.Namespace) -> int:
     if args.dbu is not None and args.dbu <= 0:
         raise InputError(f"must be a positive integer, got {args.dbu}", "--dbu")
     notes = Notes()
-    lef = read_lef(args.lef, notes)
-    deck = deck_from_lef(lef, notes, dbu=args.dbu, name=args.name)
-    sources = ", ".join(Path(p).name for p in args.lef)
-    text = deck_toml(deck, header=f"Rule deck converted from {sources} by etchguard deck-from-lef.")
+    _, text = lef_rules(read_lef(args.lef, notes), notes, name=args.name, dbu=args.dbu,
+                        by="etchguard deck-from-lef")
     if args.output:
         try:
             Path(args.output).write_text(text, encoding="utf-8")

@@ -15,6 +15,7 @@ diffusion areas do not increase, a non-UTF-8 byte.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 
 from ._lef_layer import read_layer
@@ -30,12 +31,22 @@ _NAMED_BLOCKS = {"SITE", "ARRAY"}  # NAME ... END NAME, skipped
 _KEYWORD_BLOCKS = {"PROPERTYDEFINITIONS", "SPACING", "IRDROP", "NOISETABLE", "CORRECTIONTABLE"}
 
 
-def read_lef(paths: list[str | Path], notes: Notes | None = None) -> Lef:
+def read_lef(paths: Sequence[str | Path], notes: Notes | None = None) -> Lef:
     """Read LEF files in order (technology first) into one ``Lef``."""
     lef = Lef()
     notes = notes if notes is not None else Notes()
     for path in paths:
         _read_file(lef, TokenStream(path, notes))
+    return lef
+
+
+def read_lef_texts(texts: Sequence[tuple[str, str]], notes: Notes | None = None) -> Lef:
+    """As ``read_lef``, of (name, LEF text) pairs handed over whole (LoadDeck); the name
+    stands for the file in errors and warnings."""
+    lef = Lef()
+    notes = notes if notes is not None else Notes()
+    for name, text in texts:
+        _read_file(lef, TokenStream(name, notes, text=text))
     return lef
 
 

@@ -19,6 +19,7 @@ so only the first few of each (keyword, message) are kept, with a count of the r
 
 from __future__ import annotations
 
+import io
 import math
 import re
 from collections.abc import Iterator
@@ -165,11 +166,13 @@ class Notes:
 class TokenStream:
     """Words of one file with their line numbers; nothing is read ahead of a line."""
 
-    def __init__(self, path: str | Path, notes: Notes | None = None) -> None:
+    def __init__(self, path: str | Path, notes: Notes | None = None, text: str | None = None) -> None:
+        """The words of the file at ``path``, or of ``text`` (then ``path`` only names it)."""
         self.path = Path(path)
         self.source = str(path)
         self.notes = notes if notes is not None else Notes()
-        self._lines = lines_of(self.path, self.source, self.notes)
+        self._lines = (lines_of(self.path, self.source, self.notes) if text is None else
+                       _decoded_lines(io.BytesIO(text.encode("utf-8")), self.source, self.notes))
         self._words: list[str] = []
         self._pos = 0
         self.line = 0  # line of the word last handed out (or of the current line)

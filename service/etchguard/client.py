@@ -335,9 +335,26 @@ class Client:
         self._deck = self._call(self.stub.LoadDeck, pb.LoadDeckRequest(toml=text))
         return self._deck
 
+    def load_deck_lef(self, lef: Sequence[str | Path | tuple[str, str]], process_name: str = "",
+                      dbu_per_micron: int = 0) -> pb.DeckInfo:
+        """Load or replace the rule deck with the rules technology LEF states (mapped as
+        ``etchguard deck-from-lef`` maps them): local files read here, or (name, text)
+        pairs, the technology LEF first; the name (a file's own) is what errors and the
+        reply's ``warnings`` cite. The reply's ``toml`` is the deck the server keeps."""
+        files = []
+        for item in lef:
+            if isinstance(item, tuple):
+                files.append(pb.LefText(name=item[0], text=item[1]))
+            else:
+                files.append(pb.LefText(name=Path(item).name, text=Path(item).read_text(encoding="utf-8")))
+        request = pb.LoadDeckRequest(lef=pb.LefRules(files=files, process_name=process_name,
+                                                     dbu_per_micron=dbu_per_micron))
+        self._deck = self._call(self.stub.LoadDeck, request)
+        return self._deck
+
     @property
     def deck(self) -> pb.DeckInfo:
-        """The server's deck (fetched once, refreshed by load_deck)."""
+        """The server's deck (fetched once, refreshed by load_deck and load_deck_lef)."""
         if self._deck is None:
             self._deck = self._call(self.stub.GetDeck, pb.GetDeckRequest())
         return self._deck

@@ -110,6 +110,11 @@ class ShardedClient:
         infos = [client.load_deck(toml) for client in self.shards]
         return infos[0]
 
+    def load_deck_lef(self, lef: Sequence[str | Path | tuple[str, str]], process_name: str = "",
+                      dbu_per_micron: int = 0) -> pb.DeckInfo:
+        infos = [client.load_deck_lef(lef, process_name, dbu_per_micron) for client in self.shards]
+        return infos[0]
+
     @property
     def deck(self) -> pb.DeckInfo:
         return self.shards[0].deck

@@ -99,6 +99,23 @@ pb::DeckInfo Client::LoadDeck(const std::string& toml) {
   return reply;
 }
 
+pb::DeckInfo Client::LoadDeckLef(const std::vector<std::pair<std::string, std::string>>& files,
+                                 const std::string& process_name, std::int64_t dbu_per_micron) {
+  pb::LoadDeckRequest request;
+  pb::LefRules* lef = request.mutable_lef();
+  for (const auto& [name, text] : files) {
+    pb::LefText* file = lef->add_files();
+    file->set_name(name);
+    file->set_text(text);
+  }
+  lef->set_process_name(process_name);
+  lef->set_dbu_per_micron(dbu_per_micron);
+  pb::DeckInfo reply;
+  ETCHGUARD_UNARY(LoadDeck, request, reply);
+  deck_ = reply;
+  return reply;
+}
+
 const pb::DeckInfo& Client::Deck() {
   if (!deck_) {
     pb::DeckInfo reply;

@@ -23,6 +23,7 @@ import grpc
 from .. import EtchguardError, InputError, NoDeckError, __version__, loads_deck, resolve_layer
 from .._errors import CancelledError, DeadlineExceededError, StoppedError
 from .._jobs import Jobs
+from .._lefdef import lef_text_rules
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from . import convert, errors
@@ -33,12 +34,21 @@ log = logging.getLogger("etchguard.server")
 # -- fill functions: (servicer, request, out) -----------------------------------------
 
 def _load_deck(call, req, out):
-    deck = loads_deck(req.toml, "toml")
-    call.own_engine().load_deck(deck, req.toml)  # the text: a journal replays it
+    warnings: list[str] = []
+    if req.WhichOneof("rules") == "lef":
+        # the deck the LEF states, held and journaled as its TOML text (replayed as any deck)
+        deck, text, warnings = lef_text_rules([(f.name, f.text) for f in req.lef.files],
+                                              req.lef.process_name or None, req.lef.dbu_per_micron or None)
+    else:
+        text = req.toml
+        deck = loads_deck(text, "toml")
+    call.own_engine().load_deck(deck, text)  # the text: a journal replays it
     convert.deck_into(out, deck)
-    out.toml = req.toml
+    out.toml = text
+    out.warnings.extend(warnings)
     log.info("deck loaded", extra={"fields": {"deck": deck.name, "layers": len(deck.layers),
-                                              "rules": len(deck.rules)}})
+                                              "rules": len(deck.rules), "from": req.WhichOneof("rules") or "toml",
+                                              "warnings": len(warnings)}})
 
 
 def _get_deck(call, req, out):

@@ -152,10 +152,30 @@ class CandidateColumns(_message.Message):
     def __init__(self, layers: _Optional[_Iterable[str]] = ..., shape_count: _Optional[_Iterable[int]] = ..., layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ..., common_count: _Optional[_Iterable[int]] = ..., common_layer: _Optional[_Iterable[int]] = ..., common_xlo: _Optional[_Iterable[int]] = ..., common_ylo: _Optional[_Iterable[int]] = ..., common_xhi: _Optional[_Iterable[int]] = ..., common_yhi: _Optional[_Iterable[int]] = ..., common_part: _Optional[_Iterable[int]] = ...) -> None: ...
 
 class LoadDeckRequest(_message.Message):
-    __slots__ = ("toml",)
+    __slots__ = ("toml", "lef")
     TOML_FIELD_NUMBER: _ClassVar[int]
+    LEF_FIELD_NUMBER: _ClassVar[int]
     toml: str
-    def __init__(self, toml: _Optional[str] = ...) -> None: ...
+    lef: LefRules
+    def __init__(self, toml: _Optional[str] = ..., lef: _Optional[_Union[LefRules, _Mapping]] = ...) -> None: ...
+
+class LefRules(_message.Message):
+    __slots__ = ("files", "process_name", "dbu_per_micron")
+    FILES_FIELD_NUMBER: _ClassVar[int]
+    PROCESS_NAME_FIELD_NUMBER: _ClassVar[int]
+    DBU_PER_MICRON_FIELD_NUMBER: _ClassVar[int]
+    files: _containers.RepeatedCompositeFieldContainer[LefText]
+    process_name: str
+    dbu_per_micron: int
+    def __init__(self, files: _Optional[_Iterable[_Union[LefText, _Mapping]]] = ..., process_name: _Optional[str] = ..., dbu_per_micron: _Optional[int] = ...) -> None: ...
+
+class LefText(_message.Message):
+    __slots__ = ("name", "text")
+    NAME_FIELD_NUMBER: _ClassVar[int]
+    TEXT_FIELD_NUMBER: _ClassVar[int]
+    name: str
+    text: str
+    def __init__(self, name: _Optional[str] = ..., text: _Optional[str] = ...) -> None: ...
 
 class GetDeckRequest(_message.Message):
     __slots__ = ()
@@ -184,7 +204,7 @@ class LayerInfo(_message.Message):
     def __init__(self, name: _Optional[str] = ..., step: _Optional[int] = ..., kind: _Optional[_Union[LayerKind, str]] = ..., direction: _Optional[_Union[Direction, str]] = ..., thickness_um: _Optional[float] = ..., wire_width: _Optional[int] = ..., spacing: _Optional[int] = ..., cut_size: _Optional[int] = ..., enclosure: _Optional[int] = ...) -> None: ...
 
 class DeckInfo(_message.Message):
-    __slots__ = ("name", "dbu_per_micron", "cumulative_includes_cuts", "layers", "oxides", "rule_count", "toml")
+    __slots__ = ("name", "dbu_per_micron", "cumulative_includes_cuts", "layers", "oxides", "rule_count", "toml", "warnings")
     NAME_FIELD_NUMBER: _ClassVar[int]
     DBU_PER_MICRON_FIELD_NUMBER: _ClassVar[int]
     CUMULATIVE_INCLUDES_CUTS_FIELD_NUMBER: _ClassVar[int]
@@ -192,6 +212,7 @@ class DeckInfo(_message.Message):
     OXIDES_FIELD_NUMBER: _ClassVar[int]
     RULE_COUNT_FIELD_NUMBER: _ClassVar[int]
     TOML_FIELD_NUMBER: _ClassVar[int]
+    WARNINGS_FIELD_NUMBER: _ClassVar[int]
     name: str
     dbu_per_micron: int
     cumulative_includes_cuts: bool
@@ -199,7 +220,8 @@ class DeckInfo(_message.Message):
     oxides: _containers.RepeatedScalarFieldContainer[str]
     rule_count: int
     toml: str
-    def __init__(self, name: _Optional[str] = ..., dbu_per_micron: _Optional[int] = ..., cumulative_includes_cuts: _Optional[bool] = ..., layers: _Optional[_Iterable[_Union[LayerInfo, _Mapping]]] = ..., oxides: _Optional[_Iterable[str]] = ..., rule_count: _Optional[int] = ..., toml: _Optional[str] = ...) -> None: ...
+    warnings: _containers.RepeatedScalarFieldContainer[str]
+    def __init__(self, name: _Optional[str] = ..., dbu_per_micron: _Optional[int] = ..., cumulative_includes_cuts: _Optional[bool] = ..., layers: _Optional[_Iterable[_Union[LayerInfo, _Mapping]]] = ..., oxides: _Optional[_Iterable[str]] = ..., rule_count: _Optional[int] = ..., toml: _Optional[str] = ..., warnings: _Optional[_Iterable[str]] = ...) -> None: ...
 
 class OpenNetRequest(_message.Message):
     __slots__ = ("net", "pins", "layer_range", "shapes")

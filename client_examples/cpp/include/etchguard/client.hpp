@@ -23,6 +23,7 @@
 #include <optional>
 #include <stdexcept>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include <grpcpp/grpcpp.h>
@@ -172,6 +173,12 @@ class Client {
   bool WaitReady(std::chrono::milliseconds wait);
 
   pb::DeckInfo LoadDeck(const std::string& toml);
+  // The rules technology LEF states, mapped as `etchguard deck-from-lef` maps them:
+  // (name, LEF text) pairs, the technology LEF first; the name is what errors and the
+  // reply's warnings cite. `process_name` empty: the first name without its extension;
+  // `dbu_per_micron` 0: the LEF's own.
+  pb::DeckInfo LoadDeckLef(const std::vector<std::pair<std::string, std::string>>& files,
+                           const std::string& process_name = "", std::int64_t dbu_per_micron = 0);
   // The server's deck (fetched once and kept).
   const pb::DeckInfo& Deck();
 
