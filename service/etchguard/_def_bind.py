@@ -67,6 +67,8 @@ class DesignBinder:
         self._oriented: dict[tuple[str, str, Orientation], list[Rect]] = {}
         self._vias: dict[tuple[str, Orientation], tuple[list[tuple[int, Rect]], tuple[str, ...]]] = {}
         self._widths: dict[tuple[str | None, str], int] = {}
+        self._via_moves: dict[tuple[str, str, str, str | None],
+                              tuple[list[tuple[int, Rect]], bool, str, tuple[int, int] | None]] = {}
         self._seen: set[str] = set()
         for name, component in header.components.items():
             if component.macro not in lef.macros:
@@ -396,24 +398,42 @@ class DesignBinder:
                         raise fail(self.source, line, "RECT", f"net {raw.name}: the rectangle has no area")
                     append((step, (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))))
                 else:  # a via, placed at the last point; it switches the path's layer
-                    orient = ORIENTATIONS.get(words[i + 1]) if i + 1 < n else None
-                    i += 1 if orient is None else 2
+                    orient = words[i + 1] if i + 1 < n and words[i + 1] in ORIENTATIONS else ""
+                    i += 2 if orient else 1
                     if px is None or py is None:
                         raise fail(self.source, line, "NETS", f"net {raw.name}: via {word} before any point")
-                    placed, routing = self._via(word, orient or _N, line)
+                    move = self._via_moves.get((word, orient, layer, rule))
+                    if move is None:
+                        move = self._via_move(raw, word, orient, layer, rule, line)
+                    placed, moves, layer, after = move
                     rows.extend([(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
-                    if not routing:
+                    if not moves:
                         continue  # cuts only: placed, the path stays on its layer
-                    layer = self._next_layer(raw, word, layer, routing, line)
-                    step_after = self.steps.get(layer)
-                    if step_after is None:
-                        step_after = self._step(layer, line, "NETS")
-                    if step_after is None:
+                    if after is None:
                         return  # the rest of the path runs on a layer the deck does not hold
-                    step, width, pext = step_after, self._width(rule, layer, line), None
-                    half = width // 2
+                    step, width = after
+                    half, pext = width // 2, None
         except IndexError:
             raise fail(self.source, line, "NETS", f"net {raw.name}: the wiring ends inside a routing point") from None
+
+    def _via_move(self, raw: RawNet, via: str, orient: str, layer: str, rule: str | None, line: int
+                  ) -> tuple[list[tuple[int, Rect]], bool, str, tuple[int, int] | None]:
+        """What via ``via`` (``orient`` its DEF orientation word, or "") does to a path on
+        ``layer``: its shapes about the point, whether it moves the path, the layer after
+        it and (step, width) there (None: not a deck step). Kept per via, orientation,
+        layer and rule, except when the layer after is not a deck step (so that its
+        warning counts every time, as any other)."""
+        placed, routing = self._via(via, ORIENTATIONS[orient] if orient else _N, line)
+        move: tuple[list[tuple[int, Rect]], bool, str, tuple[int, int] | None]
+        if not routing:
+            move = (placed, False, layer, None)
+        else:
+            after = self._next_layer(raw, via, layer, routing, line)
+            step = self._step(after, line, "NETS")
+            move = (placed, True, after, None if step is None else (step, self._width(rule, after, line)))
+        if not move[1] or move[3] is not None:
+            self._via_moves[(via, orient, layer, rule)] = move
+        return move
 
     def _point(self, raw: RawNet, wx: str, wy: str, px: int | None, py: int | None,
                line: int) -> tuple[int | None, int | None]:
@@ -452,5 +472,4 @@ class DesignBinder:
 
 def bound_nets(binder: DesignBinder, raws: Iterator[RawNet]) -> Iterator[NetSpec]:
     """One NetSpec per DEF net, as the reader streams them."""
-    for raw in raws:
-        yield binder.spec(raw)
+    return map(binder.spec, raws)  # (a generator of its own would cost a frame switch per net)
