@@ -334,6 +334,27 @@ def test_truncated_design(tmp_path: Path) -> None:
     assert "ends" in err.message and str(err.field).startswith(f"{path}:{len(cut.splitlines())}: NETS")
 
 
+@pytest.mark.parametrize("newline", ["\n", "\r\n"])
+def test_lines_are_counted_right_far_into_a_big_file(tmp_path: Path, newline: str) -> None:
+    """The reader decodes blocks of lines at once; a refusal past several blocks (and a
+    comment and a quoted string read line by line among them) still names its line."""
+    lines = ["VERSION 5.8 ;", "DESIGN lumen_far ;", "UNITS DISTANCE MICRONS 1000 ;", "COMPONENTS 2 ;",
+             "- c0 LINV + PLACED ( 0 0 ) N ;", "- c1 LINV + PLACED ( 2800 0 ) N ;", "END COMPONENTS",
+             "NETS 6001 ;"]
+    for n in range(6000):
+        lines += [f"- net_{n} ( c0 A ) ( c1 Y )", f"  + ROUTED M1 ( 300 900 ) ( {4000 + n} * ) V1_DEF ( * 5000 )"]
+        if n == 3000:
+            lines += ['# a comment, "quoted"', '  + PROPERTY "a b"']
+        lines.append("  + USE SIGNAL ;")
+    lines += ["- far ( c0 A )", "  + ROUTED M1 ( 300 900 ) V9_NOPE ( * 5000 ) ;", "END NETS", "END DESIGN"]
+    path = tmp_path / "far.def"
+    path.write_bytes(newline.join(lines).encode("utf-8") + newline.encode())
+    assert path.stat().st_size > 2 * (1 << 18)  # more than two of the reader's blocks
+    err = read_error(path)
+    assert err.field == f"{path}:{lines.index('  + ROUTED M1 ( 300 900 ) V9_NOPE ( * 5000 ) ;') + 1}: NETS", err.field
+    assert "unknown via V9_NOPE" in err.message
+
+
 def test_byte_that_is_not_utf8(tmp_path: Path) -> None:
     path = tmp_path / "lumen-latin.def"
     text = BLOCK.read_text(encoding="utf-8").replace("- n6 ( b1 IN )", "- n\xe96 ( b1 IN )")
