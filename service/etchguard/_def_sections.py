@@ -113,16 +113,21 @@ class SectionReader:
 
     def component(self, words: list[str], marks: list[tuple[int, int]]) -> None:
         line = marks[0][1]
+        if len(words) == 10:  # the common form, "- name macro + PLACED ( x y ) orient", without the walk
+            _, name, macro, plus, kind, left, x, y, right, orient = words
+            components = self.header.components
+            if (plus == "+" and kind in PLACEMENT and left == "(" and right == ")" and orient in ORIENTATIONS
+                    and name not in components):
+                try:
+                    at = (int(x), int(y), ORIENTATIONS[orient])
+                except ValueError:
+                    at = (coordinate(x, self.source, line, "COMPONENTS"),
+                          coordinate(y, self.source, line, "COMPONENTS"), ORIENTATIONS[orient])
+                components[name] = DefComponent(macro, line, at)
+                return
         if len(words) < 3:
             raise fail(self.source, line, "COMPONENTS", "expected - name macro")
         name, macro = words[1], words[2]
-        if (len(words) == 10 and words[3] == "+" and words[4] in PLACEMENT and words[5] == "("
-                and words[8] == ")" and words[9] in ORIENTATIONS and name not in self.header.components):
-            # the common form, "- name macro + PLACED ( x y ) orient", without the general walk
-            self.header.components[name] = DefComponent(macro, line, (
-                coordinate(words[6], self.source, line, "COMPONENTS"),
-                coordinate(words[7], self.source, line, "COMPONENTS"), ORIENTATIONS[words[9]]))
-            return
         placement = None
         i = 3
         while i < len(words) and words[i] != "+":

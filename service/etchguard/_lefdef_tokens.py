@@ -224,9 +224,12 @@ class TokenStream:
     def statement(self, keyword: str) -> tuple[list[str], list[tuple[int, int]]]:
         """Every word up to the next ``;`` (not included), and (word index, line) marks
         of where each line of the statement starts, for error messages."""
+        words, pos, line = self._words, self._pos, self.line
+        if not pos and words and words[-1] == ";" and words.index(";") == len(words) - 1:
+            self._pos = len(words)  # a statement that is its line, the common case
+            return words[:-1], [(0, line)]
         out: list[str] = []
         marks: list[tuple[int, int]] = []
-        words, pos, line = self._words, self._pos, self.line
         lines = self._lines
         while True:
             if pos >= len(words):

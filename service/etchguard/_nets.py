@@ -35,28 +35,30 @@ class Pin:
         return sum(self.gate_area.values())
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Shape:
-    """A routed (or candidate) rectangle on one layer."""
+    """A routed (or candidate) rectangle on one layer (slots: no dict per shape, a DEF
+    read or a big net makes millions)."""
 
     layer: int
     rect: Rect
 
 
 _object_new = object.__new__
+_set_layer = Shape.__dict__["layer"].__set__  # the slots' own setters
+_set_rect = Shape.__dict__["rect"].__set__
 
 
 def shapes_of(rows: Iterable[tuple[int, Rect]]) -> tuple[Shape, ...]:
     """Shapes of (layer, rect) rows a reader has already checked, equal to
-    ``Shape(layer, rect)`` each but built without the frozen dataclass's
-    field-at-a-time ``__init__`` (half the cost of a shape, and a DEF read makes
+    ``Shape(layer, rect)`` each but built without the frozen dataclass's ``__init__``
+    (``object.__setattr__`` per field: half the cost of a shape, and a DEF read makes
     millions)."""
     out = []
     for layer, rect in rows:
         shape = _object_new(Shape)
-        fields = shape.__dict__
-        fields["layer"] = layer
-        fields["rect"] = rect
+        _set_layer(shape, layer)
+        _set_rect(shape, rect)
         out.append(shape)
     return tuple(out)
 
