@@ -362,7 +362,7 @@ class DesignBinder:
                         x = px if wx == "*" else int(wx)
                         y = py if wy == "*" else int(wy)
                     except ValueError:
-                        x, y = self._point(raw, wx, wy, px, py, line)
+                        x, y = self._point(wx, wy, px, py, line)
                     if words[i + 3] == ")":
                         ext, i = None, i + 4
                     else:
@@ -435,8 +435,7 @@ class DesignBinder:
             self._via_moves[(via, orient, layer, rule)] = move
         return move
 
-    def _point(self, raw: RawNet, wx: str, wy: str, px: int | None, py: int | None,
-               line: int) -> tuple[int | None, int | None]:
+    def _point(self, wx: str, wy: str, px: int | None, py: int | None, line: int) -> tuple[int | None, int | None]:
         """A point whose coordinates are not plain integers (``1.0e3``), or an error."""
         return (px if wx == "*" else coordinate(wx, self.source, line, "NETS"),
                 py if wy == "*" else coordinate(wy, self.source, line, "NETS"))
