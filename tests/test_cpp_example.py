@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from etchguard.client import Client, ServiceError, pin, rect, run, runs_to_rects, via
+from etchguard.client import Client, ServiceError, pb, pin, rect, run, runs_to_rects, via
 from grpc_fixtures import REPO, start_server
 
 SOURCE = REPO / "client_examples" / "cpp"
@@ -137,7 +137,7 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     }
     for i, o in enumerate(a.options):
         out[f"{prefix}.option.{i}.layer"] = o.layer
-        out[f"{prefix}.option.{i}.status"] = o.status
+        out[f"{prefix}.option.{i}.status"] = pb.OptionStatus.Name(o.status)
         out[f"{prefix}.option.{i}.cuts"] = o.cuts
         out[f"{prefix}.option.{i}.worst_utilization"] = o.score.worst_utilization
     out[f"{prefix}.best_option.layer"] = a.options[a.best_option].layer if a.HasField("best_option") else "none"
@@ -148,7 +148,7 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
         out[f"{prefix}.jumper.kept_length_dbu"] = j.kept_length_dbu if j.HasField("kept_length_dbu") else "none"
         out[f"{prefix}.jumper.hop_layer"] = j.hop_layer
         out[f"{prefix}.jumper.hop_point"] = (j.hop_point.x, j.hop_point.y) if j.HasField("hop_point") else "none"
-        out[f"{prefix}.jumper.limited_by"] = j.limited_by
+        out[f"{prefix}.jumper.limited_by"] = pb.LimitedBy.Name(j.limited_by)
         out[f"{prefix}.jumper.legal"] = j.legal
     out[f"{prefix}.diode.present"] = a.HasField("diode")
     if a.HasField("diode"):

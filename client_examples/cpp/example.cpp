@@ -63,7 +63,7 @@ void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
     const pb::LayerOption& o = a.options(i);
     const std::string p = prefix + ".option." + std::to_string(i);
     Print(p + ".layer", o.layer());
-    Print(p + ".status", o.status());
+    Print(p + ".status", pb::OptionStatus_Name(o.status()));
     PrintCount(p + ".cuts", o.cuts());
     Print(p + ".worst_utilization", o.score().worst_utilization());
   }
@@ -84,7 +84,7 @@ void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
     } else {
       Print(prefix + ".jumper.hop_point", std::string("none"));
     }
-    Print(prefix + ".jumper.limited_by", j.limited_by());
+    Print(prefix + ".jumper.limited_by", pb::LimitedBy_Name(j.limited_by()));
     Print(prefix + ".jumper.legal", j.legal());
   }
   Print(prefix + ".diode.present", a.has_diode());

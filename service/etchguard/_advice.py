@@ -112,6 +112,7 @@ from dataclasses import dataclass, field
 
 from ._errors import InputError, StoppedError
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
+from ._kinds import LimitedBy, OptionStatus
 from ._nets import Pin, Shape, via_shapes
 from ._netview import NetView
 from ._obstacles import Conflict, ObstacleIndex
@@ -147,7 +148,7 @@ class LayerOption:
     layer: str
     step: int
     preferred: bool  # the layer's preferred direction is the run's
-    status: str  # "legal" | "illegal" | "blocked"
+    status: OptionStatus
     legal: bool  # antenna-legal at every step (whether blocked or not)
     blocked: bool
     shapes: tuple[PlacedShape, ...]
@@ -165,7 +166,7 @@ class JumperAdvice:
     run_length: int = 0  # DBU, centre line
     kept_length: int | None = None  # DBU from the joining end; None: not even 0 is legal
     hop_room: int = 0  # the largest kept length that still leaves room for a hop
-    limited_by: str = ""  # "limit" (l + 1 is illegal) | "hop room" | "run" (no hop needed)
+    limited_by: LimitedBy = LimitedBy.NONE
     hop_point: Point | None = None
     hop_layer: str | None = None
     shapes: tuple[PlacedShape, ...] = ()
@@ -431,7 +432,8 @@ class _Advisor:
         result = self.score(shapes)
         conflicts = self.conflicts(shapes)
         blocked = bool(conflicts)
-        status = "blocked" if blocked else ("legal" if result.legal else "illegal")
+        status = (OptionStatus.BLOCKED if blocked else
+                  OptionStatus.LEGAL if result.legal else OptionStatus.ILLEGAL)
         info = deck.layers[target]
         return LayerOption(info.name, target, info.direction == deck.layers[self.req.layer].direction,
                            status, result.legal, blocked, _placed(deck, shapes),
@@ -510,7 +512,7 @@ class _Advisor:
             return JumperAdvice(False, "the run has no length to split", 0)
         if as_is.legal:
             return JumperAdvice(True, "the whole run may stay", run.length, run.length, run.length - 1,
-                                "run", None, None, (), as_is, True)
+                                LimitedBy.RUN, None, None, (), as_is, True)
         room = self.hop_room(run, target)
         tname = deck.layers[target].name if target is not None else None
         if room < 0:
@@ -544,13 +546,14 @@ class _Advisor:
         if best is None:
             why = (f"even hopping to {tname} right at the joining end leaves the net over a limit"
                    if target is not None else "no part of the run can stay on it, and no layer to hop to")
-            return JumperAdvice(True, why, run.length, None, room, "limit", None, tname)
+            return JumperAdvice(True, why, run.length, None, room, LimitedBy.LIMIT, None, tname)
         shapes = self.jumper_shapes(run, best, target)
         result = at_detail(best)
         conflicts = self.conflicts(shapes[1:]) if target is not None else ()
-        limited = "hop room" if best == room and not (best + 1 < run.length and not at(best + 1).legal) else "limit"
+        limited = (LimitedBy.HOP_ROOM if best == room and not (best + 1 < run.length and not at(best + 1).legal)
+                   else LimitedBy.LIMIT)
         if best == room and best + 1 == run.length:
-            limited = "limit"  # l + 1 is the run as is, which is illegal
+            limited = LimitedBy.LIMIT  # l + 1 is the run as is, which is illegal
         return JumperAdvice(True, "", run.length, best, room, limited, run.at(best), tname,
                             _placed(deck, shapes), result, result.legal, bool(conflicts), conflicts)
 
@@ -621,12 +624,12 @@ class _Advisor:
                         notes.append(opt)
                         continue
                     options.append(opt)
-                    if lazy and opt.status == "legal":
+                    if lazy and opt.status is OptionStatus.LEGAL:
                         break
             except _BudgetSpent:
                 cut.append("hop")  # the layers scored so far stand; the rest were not tried
                 notes.append(f"later layers were not tried: {self._budget_words()}")
-            best = next((o for o in options if o.status == "legal"), None)
+            best = next((o for o in options if o.status is OptionStatus.LEGAL), None)
             free = [o for o in options if not o.blocked]
             target_opt = best or (free[0] if free else None)
             if lazy:

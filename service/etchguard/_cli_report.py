@@ -21,6 +21,7 @@ from typing import Any
 
 from ._cli_check import add_lefdef_arguments, specs_from_args
 from ._errors import InputError
+from ._kinds import Measure, RatioKind
 from ._lefdef import print_notes
 from ._nets import NetSpec
 from ._progress import progress
@@ -77,8 +78,8 @@ def records_from_server(address: str, timeout: float,
         from .client import Client, ServiceError, pb
     except ImportError as exc:  # the gRPC client is not in this tree or not installed
         raise InputError(f"--server needs the gRPC client: {exc}", "--server") from exc
-    measure = {pb.MEASURE_AREA: "area", pb.MEASURE_SIDE: "side"}
-    kind = {pb.RATIO_KIND_PARTIAL: "partial", pb.RATIO_KIND_CUMULATIVE: "cumulative"}
+    measure = {pb.MEASURE_AREA: Measure.AREA, pb.MEASURE_SIDE: Measure.SIDE}
+    kind = {pb.RATIO_KIND_PARTIAL: RatioKind.PARTIAL, pb.RATIO_KIND_CUMULATIVE: RatioKind.CUMULATIVE}
     with Client(address, timeout=timeout) as client:
         try:
             # A call that does not wait for the channel: a refused connection answers at

@@ -33,6 +33,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TextIO
 
+from ._kinds import Measure, RatioKind
 from ._nets import NetSpec
 from ._netview import NetView
 from ._ratios import is_legal
@@ -63,8 +64,8 @@ class Offender:
 
     layer: str
     step: int
-    measure: str
-    kind: str
+    measure: Measure
+    kind: RatioKind
     oxide: str
     ratio: float
     limit: float

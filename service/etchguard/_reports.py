@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from ._kinds import Measure, RatioKind
+
 
 def json_number(value: float) -> float | str:
     """A float as JSON can hold it: finite numbers as they are, the others as the strings
@@ -23,8 +25,8 @@ class CheckResult:
 
     layer: str
     step: int
-    measure: str  # "area" | "side"
-    kind: str  # "partial" | "cumulative"
+    measure: Measure
+    kind: RatioKind
     oxide: str
     ratio: float
     limit: float
@@ -61,8 +63,8 @@ class RatioChange:
 
     layer: str
     step: int
-    measure: str
-    kind: str
+    measure: Measure
+    kind: RatioKind
     oxide: str
     gate: str  # the gate pin with the worst ratio after
     before_ratio: float | None  # None when no gate-connected component was there
