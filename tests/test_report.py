@@ -18,7 +18,7 @@ from shapely.ops import unary_union
 
 import etchguard as eg
 from etchguard._progress import progress, render
-from etchguard._report import (CAUTION, NetRecord, OffenderFinder, check_records, render_html,
+from etchguard._design_report import (CAUTION, NetRecord, OffenderFinder, check_records, render_html,
                                report_json, summarize, write_csv)
 from etchguard.cli import main
 

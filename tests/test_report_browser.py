@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 import etchguard as eg
-from etchguard._report import check_records, render_html, summarize
+from etchguard._design_report import check_records, render_html, summarize
 
 DATA = Path(__file__).resolve().parent.parent / "service" / "etchguard" / "data"
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")

@@ -117,7 +117,7 @@ from ._nets import Pin, Shape, via_shapes
 from ._netview import NetView
 from ._obstacles import Conflict, ObstacleIndex
 from ._ratios import TOLERANCE, is_legal
-from ._reports import RatioChange, Score
+from ._results import RatioChange, Score
 
 MAX_DIODE_UM2 = 1.0e6  # a square millimetre: beyond any cell diode, the search stops there
 DIODE_REL_PRECISION = 1e-9  # relative width of the final bisection bracket

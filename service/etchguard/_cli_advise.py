@@ -19,7 +19,7 @@ from ._advice import ANSWERS, Advice
 from ._engine import Engine
 from ._errors import InputError
 from ._nets import load_net_file, resolve_layer
-from ._reports import json_number
+from ._results import json_number
 from ._rules import load_deck
 
 HELP = "advise on a candidate run of one net: nearest legal layer hop, jumper point, diode"

@@ -16,7 +16,7 @@ from ._lefdef_tokens import Notes
 from ._names import shown
 from ._nets import NetSpec, iter_net_file
 from ._progress import progress
-from ._reports import NetReport
+from ._results import NetReport
 from ._rules import Deck, load_deck
 
 HELP = "check every net of a net file against a rule deck, or of a LEF/DEF design (offline)"

@@ -1,6 +1,6 @@
 """``etchguard report``: a design report as HTML, CSV and/or JSON.
 
-Two sources of nets, one builder (``etchguard._report``):
+Two sources of nets, one builder (``etchguard._design_report``):
 * a net file, checked offline against ``--rules`` (the same engine as ``check``);
   the page then draws each violating net with its offending components;
 * ``--server ADDRESS``: every net a running server holds, as its CheckAll reports
@@ -20,13 +20,13 @@ from pathlib import Path
 from typing import Any
 
 from ._cli_check import add_lefdef_arguments, specs_from_args
+from ._design_report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
 from ._errors import InputError
 from ._kinds import Measure, RatioKind
 from ._lefdef import print_notes
 from ._nets import NetSpec
 from ._progress import progress
-from ._report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
-from ._reports import CheckResult, NetReport
+from ._results import CheckResult, NetReport
 from ._rules import Deck, loads_deck
 
 HELP = "write a design report of a net file: an HTML page, and CSV or JSON for scripts"

@@ -24,7 +24,7 @@ from ._geometry import Rect
 from ._kinds import Measure, RatioKind
 from ._nets import Pin, Shape
 from ._ratios import is_legal
-from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
+from ._results import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck
 
 MEASURES = tuple(Measure)  # the core's Measure values, in order

@@ -21,7 +21,7 @@ from typing import Protocol
 from ._geometry import Rect
 from ._kinds import Measure, RatioKind
 from ._nets import Pin, Shape
-from ._reports import NetReport, Score
+from ._results import NetReport, Score
 from ._rules import Deck
 
 

@@ -36,3 +36,11 @@ def read_text(path: str | Path, what: str, error: type[EtchguardError]) -> str:
         hint = " (a gzip-compressed file? decompress it first)" if data.startswith(_GZIP_MAGIC) else ""
         raise error(f"{what} is not UTF-8 text: byte 0x{data[start]:02x} at column {column}{hint}",
                     f"{source}: encoding", line) from None
+
+
+def write_whole(path: Path, text: str) -> None:
+    """Write ``text`` as UTF-8 through a temporary file beside ``path``, then rename it
+    over ``path``: a reader sees the old file or the new one, never half of one."""
+    tmp = path.with_name(path.name + ".tmp")
+    tmp.write_text(text, encoding="utf-8")
+    tmp.replace(path)

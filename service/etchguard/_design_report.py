@@ -37,7 +37,7 @@ from ._kinds import Measure, RatioKind
 from ._nets import NetSpec
 from ._netview import NetView
 from ._ratios import is_legal
-from ._reports import CheckResult, NetReport
+from ._results import CheckResult, NetReport
 from ._rules import Deck
 
 CAUTION = ("etchguard advises; the foundry's rule deck and sign-off verification decide. "
