@@ -107,9 +107,9 @@ def test_json_nets_equal_engine_check(deck: eg.Deck, records: list[NetRecord],
                                       engine_reports: dict[str, eg.NetReport]) -> None:
     data = json.loads(json.dumps(report_json(records, deck.name, OffenderFinder(deck))))
     assert data["deck"] == "lumen-6m"
-    assert [n["name"] for n in data["nets"]] == list(engine_reports)
+    assert [n["net"] for n in data["nets"]] == list(engine_reports)
     for entry in data["nets"]:
-        expected = engine_reports[entry["name"]].as_dict()
+        expected = engine_reports[entry["net"]].as_dict()
         # the contract's offline-check fields, exactly
         assert entry["legal"] == expected["legal"]
         assert entry["worst_utilization"] == expected["worst_utilization"]
@@ -119,7 +119,7 @@ def test_json_nets_equal_engine_check(deck: eg.Deck, records: list[NetRecord],
     summary = data["summary"]
     reports = list(engine_reports.values())
     assert summary["nets"] == len(reports)
-    assert summary["violating"] == sum(not r.legal for r in reports)
+    assert summary["illegal"] == sum(not r.legal for r in reports)
     assert summary["legal"] == sum(r.legal for r in reports)
     assert summary["worst_utilization"] == max(r.worst_utilization for r in reports)
 
@@ -237,7 +237,7 @@ def test_page_summary_and_tables(page: str, records: list[NetRecord]) -> None:
     s = summarize(records, "lumen-6m")
     assert f'data-key="nets">{s.nets}<' in page
     assert f'data-key="legal">{s.legal}<' in page
-    assert f'data-key="violating">{s.violating}<' in page
+    assert f'data-key="illegal">{s.illegal}<' in page
     assert 'data-key="deck">lumen-6m<' in page
     assert f"{s.worst_utilization * 100:.1f}%" in page
     table = page[page.index('id="worst-table"'):page.index("</table>", page.index('id="worst-table"'))]
@@ -331,16 +331,28 @@ def test_progress_render() -> None:
 
 def test_cli_writes_all_three(tmp_path: Path, engine_reports: dict[str, eg.NetReport],
                               capsys: pytest.CaptureFixture[str]) -> None:
-    out, csv_path, json_path = tmp_path / "r.html", tmp_path / "r.csv", tmp_path / "r.json"
+    out, csv_path = tmp_path / "r.html", tmp_path / "r.csv"
     rc = main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "-o", str(out),
-               "--csv", str(csv_path), "--json", str(json_path), "--max-drawings", "0",
-               "--progress", "never"])
+               "--csv", str(csv_path), "--json", "--max-drawings", "0", "--progress", "never"])
     assert rc == 1  # the demo block has violations
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
-    assert {n["name"]: n["legal"] for n in data["nets"]} == {k: v.legal for k, v in engine_reports.items()}
+    printed = capsys.readouterr()
+    data = json.loads(printed.out)  # --json prints, as in check and advise
+    assert {n["net"]: n["legal"] for n in data["nets"]} == {k: v.legal for k, v in engine_reports.items()}
     assert csv_path.read_text(encoding="utf-8").splitlines()[0].startswith("net,net_legal,")
-    assert "200 nets" in capsys.readouterr().err
+    assert "200 nets" in printed.err
+
+
+def test_cli_json_is_a_flag_as_in_check_and_advise(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # the net file may follow the flag
+    assert main(["report", "--rules", str(DECK_PATH), "--json", str(NETS_PATH), "--progress", "never"]) == 1
+    assert len(json.loads(capsys.readouterr().out)["nets"]) == 200
+    # the old form, a file after --json, is refused with the new one, before any work
+    old = tmp_path / "r.json"
+    assert main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "--json", str(old)]) == 2
+    err = capsys.readouterr().err
+    assert "--json takes no file: it prints the JSON on stdout" in err and f"> {old}" in err
+    assert not old.exists()
 
 
 def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:
@@ -353,7 +365,7 @@ def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:
             legal.append(raw)
     nets = tmp_path / "legal.json"
     nets.write_text(json.dumps({"nets": legal[:5]}), encoding="utf-8")
-    rc = main(["report", "--rules", str(DECK_PATH), str(nets), "--json", str(tmp_path / "o.json")])
+    rc = main(["report", "--rules", str(DECK_PATH), str(nets), "--json"])
     assert rc == 0
 
 

@@ -6,7 +6,7 @@ check of a net file, or a running server. Without a spec a net still counts in t
 summary, the tables and the histograms; it only gets no drawing.
 
 Page content:
-* summary: nets, legal and violating counts, worst utilization, deck name;
+* summary: nets, legal and illegal counts, worst utilization, deck name;
 * worst nets: the nets with the highest utilization, with their binding check;
 * per-layer histograms: for every layer with checks, each net's worst utilization
   on that layer (one value per net that has a gate-connected component there);
@@ -33,11 +33,11 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TextIO
 
-from ._kinds import Measure, RatioKind
+from ._kinds import Measure, RatioKind, Verdict
 from ._nets import NetSpec
 from ._netview import NetView
 from ._ratios import is_legal
-from ._results import CheckResult, NetReport
+from ._results import CHECK_FIELDS, CheckResult, NetReport, json_number
 from ._rules import Deck
 
 CAUTION = ("etchguard advises; the foundry's rule deck and sign-off verification decide. "
@@ -80,9 +80,9 @@ class Summary:
     deck: str
     nets: int
     legal: int
-    violating: int
+    illegal: int
     checks: int
-    violating_checks: int
+    illegal_checks: int
     worst_utilization: float
     worst_net: str  # "" when no net has a check
 
@@ -149,9 +149,9 @@ def summarize(records: Sequence[NetRecord], deck_name: str) -> Summary:
         deck=deck_name,
         nets=len(reports),
         legal=sum(r.legal for r in reports),
-        violating=sum(not r.legal for r in reports),
+        illegal=sum(not r.legal for r in reports),
         checks=sum(len(r.checks) for r in reports),
-        violating_checks=sum(not c.legal for r in reports for c in r.checks),
+        illegal_checks=sum(not c.legal for r in reports for c in r.checks),
         worst_utilization=worst.worst_utilization if worst is not None else 0.0,
         worst_net=worst.name if has_checks and worst is not None else "",
     )
@@ -176,20 +176,9 @@ def layer_utilizations(records: Sequence[NetRecord], layer_order: Sequence[str])
     return dict(sorted(per_layer.items(), key=lambda kv: (rank.get(kv[0], len(rank)), kv[0])))
 
 
-def _finite(value: float) -> float | None:
-    """JSON has no infinity: a limit of 0 gives one; it is written as null."""
-    return value if math.isfinite(value) else None
-
-
-def check_dict(c: CheckResult) -> dict[str, Any]:
-    return {"layer": c.layer, "step": c.step, "measure": c.measure, "kind": c.kind,
-            "oxide": c.oxide, "ratio": _finite(c.ratio), "limit": _finite(c.limit),
-            "utilization": _finite(c.utilization), "legal": c.legal, "gate": c.gate}
-
-
 def offender_dict(o: Offender, spec: NetSpec) -> dict[str, Any]:
     return {"layer": o.layer, "measure": o.measure, "kind": o.kind, "oxide": o.oxide,
-            "utilization": _finite(o.utilization), "gate": o.gate,
+            "utilization": json_number(o.utilization), "gate": o.gate,
             "shapes": list(o.shape_indices), "pins": [spec.pins[p].name for p in o.pin_indices]}
 
 
@@ -203,21 +192,18 @@ def report_json(records: Sequence[NetRecord], deck_name: str,
     nets = []
     for record in records:
         r = record.report
-        entry: dict[str, Any] = {"name": r.name, "legal": r.legal,
-                                 "worst_utilization": _finite(r.worst_utilization),
-                                 "checks": [check_dict(c) for c in r.checks]}
+        entry: dict[str, Any] = r.as_dict()
         if finder is not None and record.spec is not None and not r.legal:
             entry["offenders"] = [offender_dict(o, record.spec) for o in finder.find(record.spec)]
         nets.append(entry)
     return {"deck": deck_name,
-            "summary": {"nets": s.nets, "legal": s.legal, "violating": s.violating,
-                        "checks": s.checks, "violating_checks": s.violating_checks,
-                        "worst_utilization": _finite(s.worst_utilization), "worst_net": s.worst_net},
+            "summary": {"nets": s.nets, "legal": s.legal, "illegal": s.illegal,
+                        "checks": s.checks, "illegal_checks": s.illegal_checks,
+                        "worst_utilization": json_number(s.worst_utilization), "worst_net": s.worst_net},
             "nets": nets}
 
 
-CSV_COLUMNS = ("net", "net_legal", "net_worst_utilization", "layer", "step", "measure", "kind",
-               "oxide", "ratio", "limit", "utilization", "legal", "gate")
+CSV_COLUMNS = ("net", "net_legal", "net_worst_utilization", *CHECK_FIELDS)
 
 
 def write_csv(records: Sequence[NetRecord], out: TextIO) -> None:
@@ -231,8 +217,12 @@ def write_csv(records: Sequence[NetRecord], out: TextIO) -> None:
         if not r.checks:
             writer.writerow(head + [""] * (len(CSV_COLUMNS) - len(head)))
         for c in r.checks:
-            writer.writerow(head + [c.layer, c.step, c.measure, c.kind, c.oxide, repr(c.ratio),
-                                    repr(c.limit), repr(c.utilization), int(c.legal), c.gate])
+            writer.writerow(head + [_csv_value(getattr(c, name)) for name in CHECK_FIELDS])
+
+
+def _csv_value(value: Any) -> Any:
+    """Floats as repr (round-trips exactly), booleans as 1/0."""
+    return repr(value) if isinstance(value, float) else int(value) if isinstance(value, bool) else value
 
 
 # -- SVG figures ----------------------------------------------------------------------
@@ -297,7 +287,7 @@ def histogram_svg(layer: str, values: Sequence[float], prefix: str) -> str:
         ax.set_xlabel("utilization (ratio / limit)")
         ax.set_ylabel("nets (log scale)")
         over = sum(not is_legal(v) for v in values)
-        ax.set_title(f"{layer}: {len(values)} nets, {over} over", fontsize=9)
+        ax.set_title(f"{layer}: {len(values)} nets, {over} {Verdict.ILLEGAL}", fontsize=9)
         ax.spines[["top", "right"]].set_visible(False)
         fig.subplots_adjust(left=0.19, right=0.94, bottom=0.2, top=0.88)
         return svg_of(fig, prefix, "eg-fig eg-hist", f"histogram of utilization on {layer}")
@@ -504,7 +494,7 @@ def _meter(u: float) -> str:
 
 
 def _check_cells(c: CheckResult) -> str:
-    state = '<span class="ok">ok</span>' if c.legal else '<span class="over">over</span>'
+    state = f'<span class="{"ok" if c.legal else "over"}">{Verdict.of(c.legal)}</span>'
     return (f"<td>{_e(c.layer)}</td><td>{_e(c.kind)}</td><td>{_e(c.measure)}</td><td>{_e(c.oxide)}</td>"
             f'<td class="num">{_fmt(c.ratio)}</td><td class="num">{_fmt(c.limit)}</td>'
             f'<td class="num">{_pct(c.utilization)}{_meter(c.utilization)}</td><td>{state}</td>'
@@ -536,15 +526,15 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     add('<section id="summary"><h2>Summary</h2><div class="cards">')
     add(f'<div class="card"><div class="v" data-key="nets">{summary.nets}</div><div class="k">nets</div></div>')
     add(f'<div class="card good"><div class="v" data-key="legal">{summary.legal}</div><div class="k">legal</div></div>')
-    add(f'<div class="card {"bad" if summary.violating else "good"}"><div class="v" data-key="violating">'
-        f'{summary.violating}</div><div class="k">violating</div></div>')
+    add(f'<div class="card {"bad" if summary.illegal else "good"}"><div class="v" data-key="illegal">'
+        f'{summary.illegal}</div><div class="k">illegal</div></div>')
     worst_net = f'<div class="w">{_e(summary.worst_net)}</div>' if summary.worst_net else ""
     add(f'<div class="card {"bad" if summary.worst_utilization > 1 else ""}"><div class="v" '
         f'data-key="worst">{worst_text}</div><div class="k">worst utilization</div>'
         f'{worst_net}</div>')
     add(f'<div class="card"><div class="v" data-key="deck">{_e(deck_name)}</div><div class="k">rule deck</div></div>')
     add(f'<div class="card"><div class="v">{summary.checks}</div><div class="k">checks · '
-        f'{summary.violating_checks} over</div></div>')
+        f'{summary.illegal_checks} illegal</div></div>')
     add("</div></section>\n")
 
     # worst nets
@@ -582,7 +572,7 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     # violating nets
     violating = [r for r in records if not r.report.legal]
     violating.sort(key=lambda r: -r.report.worst_utilization)
-    add(f'<section id="violations"><h2>Violating nets ({len(violating)})</h2>')
+    add(f'<section id="violations"><h2>Illegal nets ({len(violating)})</h2>')
     if not violating:
         add('<p class="note">Every net is within its limits.</p>')
     finder = OffenderFinder(deck) if deck is not None else None

@@ -29,7 +29,23 @@ class RatioKind(StrEnum):
     CUMULATIVE = "cumulative"  # the sum over the steps that feed it
 
 
+class Verdict(StrEnum):
+    """A net's, a check's or a candidate's verdict, in every output (text, JSON, CSV,
+    HTML): the words of the JSON's ``legal`` field, said as a word."""
+
+    LEGAL = "legal"  # every utilization within its limit
+    ILLEGAL = "illegal"  # some utilization over its limit
+
+    @classmethod
+    def of(cls, legal: bool) -> Verdict:
+        return cls.LEGAL if legal else cls.ILLEGAL
+
+
 class OptionStatus(StrEnum):
+    """A layer option's verdict: the net's verdict words, or ``blocked`` when it is
+    legal but another net or a blockage is in the way."""
+
+
     LEGAL = "legal"  # antenna-legal and nothing in the way
     ILLEGAL = "illegal"  # breaks a limit
     BLOCKED = "blocked"  # another net or a blockage is in the way
