@@ -37,4 +37,4 @@ def test_package_records_carry_enum_members():
     checks = engine.check("n").checks
     assert checks and all(isinstance(c.measure, Measure) and isinstance(c.kind, RatioKind) for c in checks)
     # The members are the words users read: JSON and text output are unchanged.
-    assert OptionStatus.LEGAL == "legal" and LimitedBy.HOP_ROOM == "hop room" and Measure.SIDE == "side"
+    assert OptionStatus.LEGAL == "legal" and LimitedBy.HOP_ROOM == "hop_room" and Measure.SIDE == "side"

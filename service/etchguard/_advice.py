@@ -207,6 +207,9 @@ class Advice:
     explanation: tuple[str, ...] = field(default_factory=tuple)
     exact_scores: int = 0  # what-if scores this answer took (a load-independent cost)
     cut: tuple[str, ...] = ()  # parts left unsettled when the budget ran out ("hop", ...)
+    # what the caller may not have meant: the net over a limit before the run, a run
+    # against its layer's preferred direction, a run that touches the net nowhere
+    warnings: tuple[str, ...] = ()
 
     @property
     def found(self) -> bool:
@@ -600,11 +603,12 @@ class _Advisor:
         join_point = run.P if joins is not None else None
         far_point = run.F if joins is not None else None
         run_info = (req.x1, req.y1, req.x2, req.y2)
+        warnings = self._warnings(lname)
         if as_is.legal:
             text = (f"{lname} run is legal as is: worst {_pct(as_is.worst_utilization)} "
                     f"of the limit at any step",)
             return Advice(self.net, lname, run_info, req.width, self.rect, as_is, True, join_point,
-                          far_point, (), None, None, None, text, self.scores)
+                          far_point, (), None, None, None, text, self.scores, warnings=warnings)
         want = req.want
         explanation = [self._violation_sentence(lname, as_is)]
         options: list[LayerOption] = []
@@ -657,7 +661,26 @@ class _Advisor:
             explanation.append(f"cut: {self._budget_words()}; left unsettled: {', '.join(cut)}")
         return Advice(self.net, lname, run_info, req.width, self.rect, as_is, False, join_point,
                       far_point, tuple(options), best, jumper, diode, tuple(explanation),
-                      self.scores, tuple(cut))
+                      self.scores, tuple(cut), warnings)
+
+    def _warnings(self, lname: str) -> tuple[str, ...]:
+        """What the caller may not have meant, said whatever the run's length: the net
+        over a limit before the run (no choice for the run fixes that), a run against
+        its layer's preferred direction, a run that touches the net nowhere."""
+        req, out = self.req, []
+        before = max((self.view.worst_at(s) for s in range(self.steps)), default=0.0)
+        if not is_legal(before):
+            out.append(f"the net is over a limit already, before this run (worst {_pct(before)}); "
+                       "no choice for the run can fix that")
+        direction = self.deck.layers[req.layer].direction
+        along = "horizontal" if req.y1 == req.y2 and req.x1 != req.x2 else (
+            "vertical" if req.x1 == req.x2 and req.y1 != req.y2 else None)
+        if direction is not None and along is not None and along != direction:
+            out.append(f"the run is {along}, against {lname}'s preferred direction ({direction})")
+        if not self.view.touching(req.layer, self.rect):
+            out.append(f"the run touches none of the net's shapes or pins on {lname} or the cut layers "
+                       "next to it: it would be metal of its own, not part of the net")
+        return tuple(out)
 
     def _budget_words(self) -> str:
         return f"the advice's budget of {self.max_scores} exact scores ran out"

@@ -56,5 +56,5 @@ class LimitedBy(StrEnum):
 
     NONE = ""  # no jumper answer
     LIMIT = "limit"  # 1 DBU more breaks a limit
-    HOP_ROOM = "hop room"  # 1 DBU more leaves no room for the hop's via stacks
+    HOP_ROOM = "hop_room"  # 1 DBU more leaves no room for the hop's via stacks
     RUN = "run"  # the whole run stays: no hop needed

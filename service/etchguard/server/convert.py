@@ -448,4 +448,5 @@ def advice_into(out, advice, layer_names) -> None:
             msg.worst_utilization = d.worst_utilization
     out.explanation.extend(advice.explanation)
     out.exact_scores = advice.exact_scores
+    out.warnings.extend(advice.warnings)
 

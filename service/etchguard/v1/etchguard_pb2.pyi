@@ -720,7 +720,7 @@ class DiodeAdvice(_message.Message):
     def __init__(self, found: _Optional[bool] = ..., reason: _Optional[str] = ..., gate: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., diff_area_um2: _Optional[float] = ..., worst_utilization: _Optional[float] = ...) -> None: ...
 
 class AdviseReply(_message.Message):
-    __slots__ = ("score", "legal_as_is", "found", "rect", "width", "join_end", "far_end", "options", "best_option", "jumper", "diode", "explanation", "exact_scores")
+    __slots__ = ("score", "legal_as_is", "found", "rect", "width", "join_end", "far_end", "options", "best_option", "jumper", "diode", "explanation", "exact_scores", "warnings")
     SCORE_FIELD_NUMBER: _ClassVar[int]
     LEGAL_AS_IS_FIELD_NUMBER: _ClassVar[int]
     FOUND_FIELD_NUMBER: _ClassVar[int]
@@ -734,6 +734,7 @@ class AdviseReply(_message.Message):
     DIODE_FIELD_NUMBER: _ClassVar[int]
     EXPLANATION_FIELD_NUMBER: _ClassVar[int]
     EXACT_SCORES_FIELD_NUMBER: _ClassVar[int]
+    WARNINGS_FIELD_NUMBER: _ClassVar[int]
     score: ScoreReply
     legal_as_is: bool
     found: bool
@@ -747,7 +748,8 @@ class AdviseReply(_message.Message):
     diode: DiodeAdvice
     explanation: _containers.RepeatedScalarFieldContainer[str]
     exact_scores: int
-    def __init__(self, score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal_as_is: _Optional[bool] = ..., found: _Optional[bool] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., width: _Optional[int] = ..., join_end: _Optional[_Union[Point, _Mapping]] = ..., far_end: _Optional[_Union[Point, _Mapping]] = ..., options: _Optional[_Iterable[_Union[LayerOption, _Mapping]]] = ..., best_option: _Optional[int] = ..., jumper: _Optional[_Union[JumperAdvice, _Mapping]] = ..., diode: _Optional[_Union[DiodeAdvice, _Mapping]] = ..., explanation: _Optional[_Iterable[str]] = ..., exact_scores: _Optional[int] = ...) -> None: ...
+    warnings: _containers.RepeatedScalarFieldContainer[str]
+    def __init__(self, score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal_as_is: _Optional[bool] = ..., found: _Optional[bool] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., width: _Optional[int] = ..., join_end: _Optional[_Union[Point, _Mapping]] = ..., far_end: _Optional[_Union[Point, _Mapping]] = ..., options: _Optional[_Iterable[_Union[LayerOption, _Mapping]]] = ..., best_option: _Optional[int] = ..., jumper: _Optional[_Union[JumperAdvice, _Mapping]] = ..., diode: _Optional[_Union[DiodeAdvice, _Mapping]] = ..., explanation: _Optional[_Iterable[str]] = ..., exact_scores: _Optional[int] = ..., warnings: _Optional[_Iterable[str]] = ...) -> None: ...
 
 class GetStatsRequest(_message.Message):
     __slots__ = ()
