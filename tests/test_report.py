@@ -225,6 +225,39 @@ def test_offender_of_a_hand_made_net(deck: eg.Deck) -> None:
     assert o.pin_indices == (2,)
 
 
+@pytest.mark.parametrize("routing_layers", [1, 2, 3, 5])
+def test_drawing_legend_lies_inside_the_figure(deck: eg.Deck, routing_layers: int,
+                                               monkeypatch: pytest.MonkeyPatch) -> None:
+    """The legend under a net's drawing is laid out for the figure's width: whole for a
+    net on one routing layer, two (one panel each, the narrowest page) or more."""
+    pytest.importorskip("matplotlib")
+    from etchguard import _design_report
+
+    figures = []
+    real = _design_report.svg_of
+    monkeypatch.setattr(_design_report, "svg_of", lambda fig, *a: figures.append(fig) or real(fig, *a))
+    m1 = deck.layer_index["M1"]
+    # over the limit on M1 only (60 um x 0.14 um over 0.02 um^2: 420 of 400)
+    gate = eg.make_pin(deck, "u1.a", "M1", [[0, 0, 140, 140]], gate_area={"thin": 0.02})
+    shapes = list(eg.run_shapes(deck, m1, 70, 70, 60000, 70))
+    for k in range(1, routing_layers):  # climb one routing layer at a time, a wire on each
+        shapes += eg.via_shapes(deck, 2 * k - 1, 1000 * k, 70)
+        shapes += eg.run_shapes(deck, 2 * k, 1000 * k, 70, 1000 * k + 3000 if k % 2 == 0 else 1000 * k,
+                                70 if k % 2 == 0 else 3070)
+    spec = eg.NetSpec("blk_t/legend", (gate,), tuple(shapes))
+    finder = OffenderFinder(deck)
+    _design_report.net_drawing_svg(deck, spec, finder.find(spec), "t")
+    (fig,) = figures
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()  # the legend's extent is known once drawn
+    box_ = fig.legends[0].get_window_extent(canvas.get_renderer())
+    inside = fig.bbox
+    assert inside.x0 - 0.5 <= box_.x0 and box_.x1 <= inside.x1 + 0.5, (routing_layers, box_, inside)
+    assert inside.y0 - 0.5 <= box_.y0 and box_.y1 <= inside.y1 + 0.5, (routing_layers, box_, inside)
+
+
 # -- the page --------------------------------------------------------------------------
 
 

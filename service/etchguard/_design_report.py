@@ -293,6 +293,19 @@ def histogram_svg(layer: str, values: Sequence[float], prefix: str) -> str:
         return svg_of(fig, prefix, "eg-fig eg-hist", f"histogram of utilization on {layer}")
 
 
+_LEGEND = ("net shapes", "over a limit at this layer's step", "part of a component over a limit higher up",
+           "cuts to the layer above", "gate pin", "driver / diffusion pin")
+
+
+def _legend_width(ncol: int) -> float:
+    """Inches the drawing's legend takes in ``ncol`` columns (filled column by column,
+    as matplotlib does), at its 6.5 pt: ~0.055 in a character (a generous mean for the
+    sans-serif face), 0.45 in for the handle and the gap of each column."""
+    per_col = math.ceil(len(_LEGEND) / ncol)
+    columns = [_LEGEND[k:k + per_col] for k in range(0, len(_LEGEND), per_col)]
+    return sum(0.055 * max(len(label) for label in col) + 0.45 for col in columns)
+
+
 def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], prefix: str) -> str:
     """The net's shapes, one panel per routing layer it uses, offenders highlighted.
 
@@ -351,10 +364,15 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
         pw, ph = 2.5, 2.5 * height_um / width_um
     else:
         pw, ph = 2.3 * width_um / height_um, 2.3
-    left, right, gap_x, top_m, gap_y, legend = 0.5, 0.15, 0.3, 0.42, 0.7, 0.45  # inches
+    left, right, gap_x, top_m, gap_y = 0.5, 0.15, 0.3, 0.42, 0.7  # inches
     cols = max(1, min(len(panels), int((11.0 - left - right + gap_x) // (pw + gap_x))))
     rows = max(1, math.ceil(len(panels) / cols))
     fig_w = left + right + cols * pw + (cols - 1) * gap_x
+    # the legend's columns as many as the figure is wide enough for (a net on one or two
+    # layers makes a narrow figure), its rows given the room they take
+    ncol = next(n for n in (3, 2, 1) if _legend_width(n) <= fig_w - 0.1 or n == 1)
+    fig_w = max(fig_w, _legend_width(ncol) + 0.1)
+    legend = max(0.45, 0.16 * math.ceil(len(_LEGEND) / ncol) + 0.1)
     fig_h = top_m + rows * ph + (rows - 1) * gap_y + legend + 0.35
     with mpl.rc_context({"font.size": 7, "font.family": "sans-serif"}):
         fig = Figure(figsize=(fig_w, fig_h))
@@ -416,14 +434,12 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
                 ax.set_ylabel("y (µm)", fontsize=6)
             else:  # every panel has the same y range: its neighbour on the left labels it
                 ax.tick_params(labelleft=False)
-        handles = [Patch(color=C_WIRE, label="net shapes"),
-                   Patch(color=C_OVER, label="over a limit at this layer's step"),
-                   Patch(facecolor="none", edgecolor=C_OVER, linestyle="--",
-                         label="part of a component over a limit higher up"),
-                   Patch(color=C_CUT, label="cuts to the layer above"),
-                   Line2D([], [], marker="^", color=C_GATE, linestyle="none", label="gate pin"),
-                   Line2D([], [], marker="s", color=C_DRIVER, linestyle="none", label="driver / diffusion pin")]
-        fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=6.5, frameon=False)
+        handles = [Patch(color=C_WIRE, label=_LEGEND[0]), Patch(color=C_OVER, label=_LEGEND[1]),
+                   Patch(facecolor="none", edgecolor=C_OVER, linestyle="--", label=_LEGEND[2]),
+                   Patch(color=C_CUT, label=_LEGEND[3]),
+                   Line2D([], [], marker="^", color=C_GATE, linestyle="none", label=_LEGEND[4]),
+                   Line2D([], [], marker="s", color=C_DRIVER, linestyle="none", label=_LEGEND[5])]
+        fig.legend(handles=handles, loc="lower center", ncol=ncol, fontsize=6.5, frameon=False)
         return svg_of(fig, prefix, "eg-fig eg-net", f"shapes of net {spec.name} per layer")
 
 
