@@ -3,7 +3,7 @@
 ``start_server()`` runs the server through the package's ``launch`` with ``--listen
 127.0.0.1:0`` (the kernel picks a free port) and reads the bound address from its JSON
 "listening" log line; the metrics endpoint gets a free port (``free_port``). ``stop()``
-sends SIGTERM and waits.
+sends SIGTERM and waits. The ``server`` and ``client`` fixtures are in conftest.py.
 """
 
 from __future__ import annotations
@@ -41,20 +41,6 @@ def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = Tr
     if rules is not None:
         args += ["--rules", str(rules)]
     return launch(args, prefix=prefix, cwd=REPO, timeout_s=START_TIMEOUT_S, kind=ServerProcess)
-
-
-@pytest.fixture(scope="module")
-def server():
-    """A server on the demo deck with metrics on, shared by a test module."""
-    s = start_server()
-    yield s
-    s.stop()
-
-
-@pytest.fixture
-def client(server):
-    with server.client() as c:
-        yield c
 
 
 _names = iter(range(1_000_000))

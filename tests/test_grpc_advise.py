@@ -11,7 +11,7 @@ import pytest
 import etchguard as eg
 from etchguard.client import ServiceError, pb, pin, rect
 from etchguard.server import convert
-from grpc_fixtures import DEMO_DECK, client, net_name, server  # noqa: F401
+from grpc_fixtures import DEMO_DECK, net_name
 
 # A gate on M1 whose only metal so far is a short stub; the candidate is a long M1
 # run from the gate side: 160 um x 0.14 um = 22.4 um^2 over a 0.05 um^2 gate is a
