@@ -172,13 +172,6 @@ class Tally:
         return "\n".join(lines + [summary])
 
 
-def format_table(reports: Iterable[NetReport], show_all: bool) -> str:
-    tally = Tally(show_all)
-    for report in reports:
-        tally.add(report)
-    return tally.table()
-
-
 def write_json_array(items: Iterable[dict[str, Any]], out: TextIO) -> None:
     """A JSON array written one item at a time, as ``json.dump(list, indent=1)`` would."""
     out.write("[")
