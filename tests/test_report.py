@@ -386,6 +386,9 @@ def test_cli_json_is_a_flag_as_in_check_and_advise(tmp_path: Path, capsys: pytes
     err = capsys.readouterr().err
     assert "--json takes no file: it prints the JSON on stdout" in err and f"> {old}" in err
     assert not old.exists()
+    with pytest.raises(SystemExit):
+        main(["report", "--help"])
+    assert "[--json]" in capsys.readouterr().out.replace("\n", " ")
 
 
 def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:

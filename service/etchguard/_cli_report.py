@@ -44,8 +44,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--csv", metavar="FILE", help="write one row per check here")
     # A flag, as in check and advise; nargs="?" only to recognise the old `--json FILE`
     # (refused in run, naming the new form) and to take a net file written right after it.
-    parser.add_argument("--json", nargs="?", const=True, default=False, metavar="",
+    parser.add_argument("--json", nargs="?", const=True, default=False,
                         help="print the report as JSON on stdout (docs/formats.md describes it)")
+    parser.formatter_class = _FlagFormatter
     parser.add_argument("--top", type=int, default=25, metavar="N",
                         help="rows of the worst-nets table (default 25)")
     parser.add_argument("--max-drawings", type=int, default=40, metavar="N",
@@ -53,6 +54,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--title", default="", help="page title (default: from the deck name)")
     parser.add_argument("--progress", choices=("auto", "always", "never"), default="auto",
                         help="progress bar on stderr: auto draws it on a terminal only")
+
+
+class _FlagFormatter(argparse.HelpFormatter):
+    """Shows ``--json`` as the flag it is (its optional word is only the old form's)."""
+
+    def _format_args(self, action: argparse.Action, default_metavar: str) -> str:
+        return "" if action.dest == "json" else super()._format_args(action, default_metavar)
+
+    def _format_action_invocation(self, action: argparse.Action) -> str:
+        return "--json" if action.dest == "json" else super()._format_action_invocation(action)
 
 
 def _check_folders(args: argparse.Namespace) -> None:
