@@ -125,6 +125,8 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     out[f"{prefix}.exact_scores"] = a.exact_scores
     out[f"{prefix}.explanations"] = len(a.explanation)
     out[f"{prefix}.explanation.0"] = a.explanation[0] if a.explanation else "none"
+    out[f"{prefix}.warnings"] = len(a.warnings)
+    out[f"{prefix}.warning.0"] = a.warnings[0] if a.warnings else "none"
     return out
 
 
