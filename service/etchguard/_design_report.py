@@ -33,7 +33,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TextIO
 
-from ._kinds import Measure, RatioKind, Verdict
+from ._kinds import Verdict
 from ._nets import NetSpec
 from ._netview import NetView
 from ._ratios import is_legal
@@ -59,20 +59,12 @@ class NetRecord:
 
 
 @dataclass(frozen=True)
-class Offender:
-    """A component over a limit: the shapes and pins that form it at the check's step."""
+class Offender(CheckResult):
+    """A component over a limit: the check's figures for it (``gate``: the gate pin with
+    the worst ratio in it) and the shapes and pins that form it at the check's step."""
 
-    layer: str
-    step: int
-    measure: Measure
-    kind: RatioKind
-    oxide: str
-    ratio: float
-    limit: float
-    utilization: float
-    gate: str  # the gate pin with the worst ratio in the component
-    shape_indices: tuple[int, ...]  # into NetSpec.shapes
-    pin_indices: tuple[int, ...]  # into NetSpec.pins
+    shape_indices: tuple[int, ...] = ()  # into NetSpec.shapes
+    pin_indices: tuple[int, ...] = ()  # into NetSpec.pins
 
 
 @dataclass(frozen=True)
@@ -113,8 +105,8 @@ class OffenderFinder:
             if check is not None and (o.step, o.measure, o.kind, o.oxide) != (
                     check.step, check.measure, check.kind, check.oxide):
                 continue
-            out.append(Offender(layers[o.step].name, o.step, o.measure, o.kind, o.oxide, o.ratio,
-                                o.limit, o.utilization, spec.pins[o.gate].name, o.shapes, o.pins))
+            out.append(Offender(layers[o.step].name, o.step, o.measure, o.kind, o.oxide, o.ratio, o.limit,
+                                o.utilization, False, spec.pins[o.gate].name, o.shapes, o.pins))
         out.sort(key=lambda o: (o.step, -o.utilization, o.measure, o.kind, o.oxide,
                                 o.shape_indices, o.pin_indices))
         return out
