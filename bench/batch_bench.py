@@ -43,9 +43,10 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from bench.netgen import RUN_LENGTH, GeneratedNet, bench_deck, extension_candidates, generate_net, mixed_candidates  # noqa: E402
 from etchguard import Deck, Engine, Shape, run_shapes  # noqa: E402
 from etchguard._geometry import square  # noqa: E402
+
+from bench.netgen import RUN_LENGTH, GeneratedNet, bench_deck, extension_candidates, generate_net, mixed_candidates  # noqa: E402
 
 SIZES = (10, 50, 100)
 BATCH = 1024

@@ -43,12 +43,11 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 
 import grpc
-
 from etchguard.client import Client, candidate_columns, pb
 
 from .native import cmake, cmake_build
-from .rounds import echo_ready, free_port, ours_ready, round_arguments, start_process, stop_process
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
+from .rounds import echo_ready, free_port, round_arguments, start_ours, start_process, stop_process
 
 REPO = Path(__file__).resolve().parents[1]
 SOURCE = REPO / "bench" / "cpp"
@@ -230,9 +229,9 @@ def main(argv: list[str] | None = None) -> int:
                         + [pb.SessionRequest(seq=len(scores) + 1 + i, score_batch=b)
                            for i, b in enumerate(batch_requests)])
         try:
-            ours, ours_address = start_process([sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
-                                         "--listen", "127.0.0.1:0", "--metrics-port", str(free_port())],
-                                        ours_ready, on_stderr=True)
+            ours, ready = start_ours(["--rules", str(BENCH_DECK), "--listen", "127.0.0.1:0",
+                                      "--metrics-port", str(free_port())])
+            ours_address = ready["addresses"][0]
             with Client(ours_address, timeout=60) as setup:
                 setup.open_net(NET, _pb_pins(names, net.pins), _pb_shapes(names, net.shapes))
                 replies_file.write_text(json.dumps(capture(setup, scores, batch_requests)))

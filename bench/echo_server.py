@@ -25,7 +25,6 @@ import sys
 import threading
 
 import grpc
-
 from etchguard.server.app import ServerConfig, grpc_server
 
 SERVICE = "etchguard.v1.AntennaService"

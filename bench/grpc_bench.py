@@ -45,15 +45,14 @@ from pathlib import Path
 
 import grpc
 import numpy as np
-
 from etchguard import Engine
 from etchguard._jobs import Jobs
 from etchguard.client import Client, candidate_columns, pb
 from etchguard.server.metrics import Metrics
 from etchguard.server.servicer import AntennaServicer
 
-from .rounds import echo_ready, free_port, ours_ready, round_arguments, start_process, stop_process
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
+from .rounds import echo_ready, free_port, round_arguments, start_ours, start_process, stop_process
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
@@ -251,9 +250,9 @@ def main(argv: list[str] | None = None) -> int:
              lambda i: engine.score_columns(NET, mixed_steps, mixed_rects, mixed_counts), per_call=BATCH_SIZE),
     ]
 
-    ours_cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(BENCH_DECK),
-                "--listen", "127.0.0.1:0", "--metrics-port", str(free_port())]
-    ours, ours_addr = start_process(ours_cmd, ours_ready, on_stderr=True)
+    ours, ready = start_ours(["--rules", str(BENCH_DECK), "--listen", "127.0.0.1:0",
+                              "--metrics-port", str(free_port())])
+    ours_addr = ready["addresses"][0]
     echo = None
     try:
         with Client(ours_addr, timeout=60) as setup:

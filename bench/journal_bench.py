@@ -27,10 +27,9 @@ import time
 from pathlib import Path
 
 import numpy as np
-
 from etchguard.client import Client, pin, rect
 
-from .rounds import ours_ready, start_process
+from .rounds import start_ours
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
@@ -40,9 +39,8 @@ GATE = pin("u1.a", "M1", [(0, 0, 200, 200)], gate_area={"thin": 0.05})
 
 
 def start(extra: list[str]) -> tuple[subprocess.Popen, str]:
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", "127.0.0.1:0",
-           "--rules", str(DECK), *extra]
-    return start_process(cmd, ours_ready, on_stderr=True)
+    proc, ready = start_ours(["--listen", "127.0.0.1:0", "--rules", str(DECK), *extra])
+    return proc, ready["addresses"][0]
 
 
 def round_of_commits(session, net: str, commits: int, x0: int) -> list[float]:

@@ -24,7 +24,6 @@ from dataclasses import dataclass
 import networkx as nx
 import numpy as np
 import shapely
-
 from etchguard import Deck, Pin, Shape
 
 TOLERANCE = 1e-9  # the contract: 1e-9 relative for the legality comparison

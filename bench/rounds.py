@@ -84,9 +84,13 @@ def _json_field(line: str, pick: Callable[[dict], str | None]) -> str | None:
     return pick(entry) if isinstance(entry, dict) else None
 
 
-def ours_ready(line: str) -> str | None:
-    """The address in `etchguard serve`'s JSON "listening" log line."""
-    return _json_field(line, lambda e: e["addresses"][0] if e.get("msg") == "listening" else None)
+def start_ours(args: list[str], ready_message: str = "listening") -> tuple[subprocess.Popen, dict]:
+    """``etchguard serve ARGS`` through the package's launcher: the process and its
+    ready log line (``addresses``, ``metrics_port``, ...)."""
+    from etchguard.server.launch import launch
+
+    server = launch(args, cwd=REPO, ready_message=ready_message)
+    return server.proc, server.ready
 
 
 def echo_ready(line: str) -> str | None:

@@ -31,34 +31,21 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.rounds import REPO, free_port, ours_ready, start_process, stop_process
+from bench.rounds import REPO, start_ours, stop_process
 
 DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
 JSON_PATH = REPO / "bench" / "out" / "shard_bench.json"
 
 
-def _farm_ready(line: str) -> str | None:
-    try:
-        entry = json.loads(line)
-    except json.JSONDecodeError:
-        return None
-    if isinstance(entry, dict) and entry.get("msg") == "shards listening":
-        return entry["topology"] + "|" + json.dumps(entry["pids"])
-    return None
-
-
 def start_farm(shards: int, run_dir: Path):
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--shards", str(shards),
-           "--listen", "127.0.0.1:0", "--rules", str(DECK), "--topology-out", str(run_dir / f"topology-{shards}")]
-    proc, ready = start_process(cmd, _farm_ready, on_stderr=True)
-    topology, pids = ready.split("|", 1)
-    return proc, Path(topology), json.loads(pids)
+    proc, ready = start_ours(["--shards", str(shards), "--listen", "127.0.0.1:0", "--rules", str(DECK),
+                              "--topology-out", str(run_dir / f"topology-{shards}")], "shards listening")
+    return proc, Path(ready["topology"]), ready["pids"]
 
 
 def start_single():
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", "127.0.0.1:0", "--rules", str(DECK)]
-    proc, address = start_process(cmd, ours_ready, on_stderr=True)
-    return proc, address
+    proc, ready = start_ours(["--listen", "127.0.0.1:0", "--rules", str(DECK)])
+    return proc, ready["addresses"][0]
 
 
 def net_names(count: int) -> list[str]:

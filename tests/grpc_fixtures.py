@@ -1,27 +1,20 @@
 """A real ``etchguard serve`` process on a loopback port, for the gRPC tests.
 
-``start_server()`` runs the server as a subprocess with ``--listen 127.0.0.1:0`` (the
-kernel picks a free port) and reads the bound address from its JSON "listening" log
-line; the metrics endpoint gets a free port found the same way. ``stop()`` sends
-SIGTERM and waits. Test modules import the fixtures they use from here.
+``start_server()`` runs the server through the package's ``launch`` with ``--listen
+127.0.0.1:0`` (the kernel picks a free port) and reads the bound address from its JSON
+"listening" log line; the metrics endpoint gets a free port (``free_port``). ``stop()``
+sends SIGTERM and waits. The ``server`` and ``client`` fixtures are in conftest.py.
 """
 
 from __future__ import annotations
 
-import json
-import os
-import signal
 import socket
-import subprocess
-import sys
-import threading
 from collections.abc import Sequence
-from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
-
 from etchguard.client import Client, pin, rect, run
+from etchguard.server.launch import Launched, launch
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO_DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
@@ -34,86 +27,20 @@ def free_port() -> int:
         return s.getsockname()[1]
 
 
-@dataclass
-class ServerProcess:
-    proc: subprocess.Popen
-    address: str = ""
-    metrics_port: int = 0
-    logs: list[dict] = field(default_factory=list)
-    _listening: threading.Event = field(default_factory=threading.Event)
-
-    def _read(self) -> None:
-        assert self.proc.stderr is not None
-        for line in self.proc.stderr:
-            try:
-                entry = json.loads(line)
-            except json.JSONDecodeError:
-                entry = {"msg": line.rstrip("\n"), "level": "raw"}
-            self.logs.append(entry)
-            if entry.get("msg") == "listening":
-                self.address = entry["addresses"][0]
-                self.metrics_port = entry.get("metrics_port", 0)
-                self._listening.set()
-        self._listening.set()  # the process ended: stop waiting
+class ServerProcess(Launched):
+    """A test's server: the package's launched process, with a client at hand."""
 
     def client(self, **kwargs) -> Client:
         return Client(self.address, timeout=kwargs.pop("timeout", 20.0), **kwargs)
-
-    def signal(self, signum: int = signal.SIGTERM) -> None:
-        self.proc.send_signal(signum)
-
-    def stop(self, timeout: float = 15.0) -> int:
-        if self.proc.poll() is None:
-            self.proc.send_signal(signal.SIGTERM)
-        try:
-            return self.proc.wait(timeout)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait()
-            raise
-
-    def messages(self) -> list[str]:
-        return [e.get("msg", "") for e in self.logs]
-
-
-def spawn(cmd: list[str], wrap):
-    """Start a server command with its log lines read by a thread of ``wrap(proc)``
-    (an object with a ``_read`` method), unbuffered, from the repository's folder."""
-    env = dict(os.environ, PYTHONUNBUFFERED="1")
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, env=env, cwd=REPO)
-    wrapped = wrap(proc)
-    threading.Thread(target=wrapped._read, daemon=True).start()
-    return wrapped
 
 
 def start_server(*extra: str, rules: Path | None = DEMO_DECK, metrics: bool = True,
                  listen: str = "127.0.0.1:0", prefix: Sequence[str] = ()) -> ServerProcess:
     """``prefix``: a command the server runs under (e.g. nsenter into a namespace)."""
-    cmd = [*prefix, sys.executable, "-m", "etchguard.cli", "serve", "--listen", listen,
-           "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+    args = ["--listen", listen, "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
     if rules is not None:
-        cmd += ["--rules", str(rules)]
-    server = spawn(cmd, ServerProcess)
-    if not server._listening.wait(START_TIMEOUT_S) or not server.address:
-        server.proc.kill()
-        server.proc.wait()
-        raise RuntimeError(f"etchguard serve did not start: {server.logs}")
-    return server
-
-
-@pytest.fixture(scope="module")
-def server():
-    """A server on the demo deck with metrics on, shared by a test module."""
-    s = start_server()
-    yield s
-    s.stop()
-
-
-@pytest.fixture
-def client(server):
-    with server.client() as c:
-        yield c
+        args += ["--rules", str(rules)]
+    return launch(args, prefix=prefix, cwd=REPO, timeout_s=START_TIMEOUT_S, kind=ServerProcess)
 
 
 _names = iter(range(1_000_000))

@@ -15,6 +15,11 @@ import pytest
 
 REPO = Path(__file__).resolve().parents[1]
 BUILD_TIMEOUT_S = 1200  # the core built with sanitizers on 2 shared cores takes minutes
+# The C++ client example (client_examples/cpp), built by conftest's example_binary.
+CPP_SOURCE = REPO / "client_examples" / "cpp"
+CPP_BUILD = REPO / "build" / "cpp-example"
+CPP_EXAMPLE = CPP_BUILD / "etchguard_example"
+CPP_BUILD_TIMEOUT_S = 600  # a first build on 2 cores takes about 1.5 minutes; later ones seconds
 
 
 def cmake() -> str:

@@ -1,7 +1,7 @@
 """A real ``etchguard serve --shards N`` farm on loopback, and nets that crowd each other.
 
-``start_farm(n)`` runs the supervisor as a subprocess with ``--listen 127.0.0.1:0``
-(a free port per shard) and reads its JSON log lines: the ``shards listening`` line
+``start_farm(n)`` runs the supervisor through the package's ``launch`` with ``--listen
+127.0.0.1:0`` (a free port per shard) and reads its JSON log lines: the ``shards listening`` line
 gives the addresses, the topology file and the metrics port; each shard's own
 ``listening`` line (relayed with ``"shard": k``) gives that shard's pid, so a test
 can kill one shard and wait for the supervisor to bring it back.
@@ -13,12 +13,9 @@ which the farm holds on other shards.
 
 from __future__ import annotations
 
-import json
 import os
 import random
 import signal
-import subprocess
-import sys
 import tempfile
 import threading
 import time
@@ -26,41 +23,35 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from etchguard.client import Client, pb, pin, rect, run
+from etchguard.server.launch import Launched, launch
 from etchguard.sharded_client import ShardedClient
-from grpc_fixtures import DEMO_DECK, REPO, free_port, spawn
+from grpc_fixtures import DEMO_DECK, REPO, free_port
 
 START_TIMEOUT_S = 40.0
 
 
 @dataclass
-class FarmProcess:
-    proc: subprocess.Popen
-    topology: Path | None = None
-    addresses: list[str] = field(default_factory=list)
-    metrics_port: int = 0
-    logs: list[dict] = field(default_factory=list)
+class FarmProcess(Launched):
+    """A supervised farm: ready on "shards listening"; each shard's relayed "listening"
+    line gives its latest pid."""
+
     pids: dict[int, int] = field(default_factory=dict)  # shard -> pid of its latest start
-    _ready: threading.Event = field(default_factory=threading.Event)
     _changed: threading.Condition = field(default_factory=threading.Condition)
 
-    def _read(self) -> None:
-        assert self.proc.stderr is not None
-        for line in self.proc.stderr:
-            try:
-                entry = json.loads(line)
-            except json.JSONDecodeError:
-                entry = {"msg": line.rstrip("\n"), "level": "raw"}
-            with self._changed:
-                self.logs.append(entry)
-                if entry.get("msg") == "listening" and "shard" in entry:
-                    self.pids[entry["shard"]] = entry["pid"]
-                if entry.get("msg") == "shards listening":
-                    self.topology = Path(entry["topology"])
-                    self.addresses = entry["addresses"]
-                    self.metrics_port = entry["metrics_port"]
-                    self._ready.set()
-                self._changed.notify_all()
-        self._ready.set()
+    @property
+    def topology(self) -> Path | None:
+        return Path(self.ready["topology"]) if self.ready else None
+
+    @property
+    def addresses(self) -> list[str]:
+        return list(self.ready.get("addresses", []))
+
+    def _seen(self, entry: dict) -> None:
+        with self._changed:
+            super()._seen(entry)
+            if entry.get("msg") == "listening" and "shard" in entry:
+                self.pids[entry["shard"]] = entry["pid"]
+            self._changed.notify_all()
 
     def client(self, **kwargs) -> ShardedClient:
         assert self.topology is not None
@@ -86,30 +77,18 @@ class FarmProcess:
             return self.pids[k]
 
     def stop(self, timeout: float = 30.0) -> int:
-        if self.proc.poll() is None:
-            self.proc.send_signal(signal.SIGTERM)
-        try:
-            return self.proc.wait(timeout)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait()
-            raise
+        return super().stop(timeout)
 
 
 def start_farm(shards: int, *extra: str, metrics: bool = True, rules: Path | None = DEMO_DECK,
                listen: str = "127.0.0.1:0") -> FarmProcess:
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--shards", str(shards), "--listen", listen,
-           "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+    args = ["--shards", str(shards), "--listen", listen,
+            "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
     if "--topology-out" not in extra and "--state-dir" not in extra:  # not into the work tree
-        cmd += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
+        args += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
     if rules is not None:
-        cmd += ["--rules", str(rules)]
-    farm = spawn(cmd, FarmProcess)
-    if not farm._ready.wait(START_TIMEOUT_S) or not farm.addresses:
-        farm.proc.kill()
-        farm.proc.wait()
-        raise RuntimeError(f"etchguard serve --shards did not start: {farm.logs[-20:]}")
-    return farm
+        args += ["--rules", str(rules)]
+    return launch(args, cwd=REPO, timeout_s=START_TIMEOUT_S, ready_message="shards listening", kind=FarmProcess)
 
 
 # -- crowded nets ------------------------------------------------------------------------------

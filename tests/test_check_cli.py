@@ -8,6 +8,7 @@ alone in the whole-file run.
 from __future__ import annotations
 
 import fnmatch
+import re
 import json
 from pathlib import Path
 
@@ -63,3 +64,47 @@ def test_progress_on_demand(capsys: pytest.CaptureFixture[str]) -> None:
     assert err.replace("\r", "\n").split()[-1] == str(len(NAMES))  # the last count: every net
     assert cli.main(["check", "--rules", str(DECK), str(NETS), "--progress", "never"]) == 1
     assert capsys.readouterr().err == ""
+
+
+def test_text_has_a_per_layer_summary_agreeing_with_the_json(capsys: pytest.CaptureFixture[str]) -> None:
+    """One line per process step: the highest utilization of any net there and how many
+    nets are illegal there, as the JSON's checks give them."""
+    _, reports = check_json(capsys)
+    assert cli.main(["check", "--rules", str(DECK), str(NETS)]) == 1
+    lines = capsys.readouterr().out.splitlines()
+    head = lines.index(next(line for line in lines if line.startswith("layer  step")))
+    got = {}
+    for line in lines[head + 1:]:
+        if not line.strip():
+            break
+        layer, step, use, illegal, worst_net = line.split()
+        got[int(step)] = (layer, use, int(illegal), worst_net)
+    expected: dict[int, tuple[str, float, set[str], str]] = {}
+    for r in reports:
+        for c in r["checks"]:  # type: ignore[union-attr]
+            layer, top, bad, net = expected.get(c["step"], (c["layer"], -1.0, set(), ""))
+            if c["utilization"] > top:
+                top, net = c["utilization"], r["net"]
+            if not c["legal"]:
+                bad = bad | {r["net"]}
+            expected[c["step"]] = (layer, top, bad, net)
+    assert got == {s: (layer, f"{top:.1%}", len(bad), net) for s, (layer, top, bad, net) in expected.items()}
+    assert sum(n for _, _, n, _ in got.values()) >= 1
+
+
+def test_one_verdict_vocabulary(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """check's table, report's page and summary, and advise's options say a verdict
+    with the same words, ``legal`` / ``illegal`` (the JSON's ``legal`` field as a word)."""
+    assert cli.main(["check", "--rules", str(DECK), str(NETS), "--all"]) == 1
+    words = {line.split()[1] for line in capsys.readouterr().out.splitlines()[1:] if line.startswith("blk_a/")}
+    assert words == {"legal", "illegal"}
+    page = tmp_path / "r.html"
+    assert cli.main(["report", "--rules", str(DECK), str(NETS), "-o", str(page), "--json",
+                     "--max-drawings", "0", "--progress", "never"]) == 1
+    summary = json.loads(capsys.readouterr().out)["summary"]
+    assert {"legal", "illegal", "illegal_checks"} <= set(summary) and "violating" not in summary
+    text = page.read_text(encoding="utf-8")
+    states = set(re.findall(r'<span class="(?:ok|over)">([a-z]+)</span>', text))
+    assert states == {"legal", "illegal"}
+    for old in (">OVER<", ">ok<", ">over<", "violating</div>"):
+        assert old not in text, old

@@ -151,10 +151,10 @@ def test_net_files_and_advise_share_the_coordinate_limit(tmp_path: Path,
     assert code != 2, err
     # at the limit: both refuse, naming the field
     refused(["advise", "--rules", DECK, nets, "--net", "n1", "--run", "M1", near, 70, LIMIT, 70],
-            capsys, "run.x2", "2^62")
+            capsys, "--run X2: ", "2^62")
     # a run whose proposals (via pads, other layers' widths) would pass the limit
     refused(["advise", "--rules", DECK, nets, "--net", "n1", "--run", "M1", near, 70, LIMIT - 80, 70],
-            capsys, "error: run: ", "2^62")
+            capsys, "error: --run: ", "2^62")
     data["nets"][0]["shapes"] = [{"layer": "M1", "rect": [near, 0, LIMIT, 140]}]
     nets.write_text(json.dumps(data), encoding="utf-8")
     refused(["check", "--rules", DECK, nets], capsys, "nets[0].shapes[0].rect", "2^62")

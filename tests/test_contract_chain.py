@@ -225,7 +225,7 @@ def test_late_pin_engine() -> None:
 
 
 # -- a what-if and a headroom on the M2-flagged chain --------------------------------------
-# The deck of case "M2". The project's headroom (_reports: RatioChange.headroom_um2,
+# The deck of case "M2". The project's headroom (_results: RatioChange.headroom_um2,
 # Headroom.area_um2) is the conductor A' on the layer at which the binding ratio reaches
 # its limit, minus what is there: with plain terms (f = r = 1, no diode) a term is
 # A / G, so A' = (limit - rest of the sum) * G.

@@ -17,10 +17,7 @@ what is missing, unless ETCHGUARD_SKIP_CPP=1, when it skips saying why.
 
 from __future__ import annotations
 
-import fcntl
 import math
-import os
-import shutil
 import subprocess
 import uuid
 from pathlib import Path
@@ -28,14 +25,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from etchguard.client import Client, ServiceError, pin, rect, run, runs_to_rects, via
-from grpc_fixtures import REPO, start_server
+from etchguard.client import Client, ServiceError, pb, pin, rect, run, runs_to_rects, via
+from grpc_fixtures import start_server
+from native_build import CPP_BUILD, CPP_SOURCE
 
-SOURCE = REPO / "client_examples" / "cpp"
-BUILD = REPO / "build" / "cpp-example"
-EXAMPLE = BUILD / "etchguard_example"
+SOURCE = CPP_SOURCE
+BUILD = CPP_BUILD
 REL_TOL = 1e-9
-BUILD_TIMEOUT_S = 600  # a first build on 2 cores takes about 1.5 minutes; later ones seconds
 RUN_TIMEOUT_S = 60
 
 # The demo net and candidates of client_examples/cpp/example.cpp, built with the Python
@@ -55,36 +51,6 @@ def riser(length: int) -> list:
 
 def trunk(deck) -> list:
     return [rect("M1", 0, 30, 5000, 170)] + via(deck, "V1", 4900, 100)
-
-
-def _missing_prerequisites() -> list[str]:
-    missing = [tool for tool in ("cmake", "protoc", "grpc_cpp_plugin") if shutil.which(tool) is None]
-    if shutil.which("c++") is None and shutil.which("g++") is None:
-        missing.append("a C++ compiler (g++)")
-    if not any(Path(p, "grpcpp", "grpcpp.h").exists() for p in ("/usr/include", "/usr/local/include")):
-        missing.append("gRPC C++ headers (libgrpc++-dev)")
-    return missing
-
-
-@pytest.fixture(scope="module")
-def example_binary() -> Path:
-    missing = _missing_prerequisites()
-    if missing:
-        why = (f"the C++ example cannot be built: missing {', '.join(missing)}; "
-               "run `bash .ci/install-cpp-deps.sh` as root")
-        if os.environ.get("ETCHGUARD_SKIP_CPP") == "1":
-            pytest.skip(f"ETCHGUARD_SKIP_CPP=1: {why}")
-        pytest.fail(f"{why}, or set ETCHGUARD_SKIP_CPP=1 to skip this test", pytrace=False)
-    BUILD.mkdir(parents=True, exist_ok=True)
-    # One build at a time in the shared tree (a parallel `make cpp-example`, say).
-    with open(BUILD.parent / ".cpp-example.lock", "w") as lock:
-        fcntl.flock(lock, fcntl.LOCK_EX)
-        for cmd in (["cmake", "-S", str(SOURCE), "-B", str(BUILD)],
-                    ["cmake", "--build", str(BUILD), "-j", str(os.cpu_count() or 2)]):
-            done = subprocess.run(cmd, capture_output=True, text=True, timeout=BUILD_TIMEOUT_S)
-            assert done.returncode == 0, f"{' '.join(cmd)} failed:\n{done.stdout[-4000:]}\n{done.stderr[-4000:]}"
-    assert EXAMPLE.exists()
-    return EXAMPLE
 
 
 @pytest.fixture(scope="module")
@@ -137,7 +103,7 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     }
     for i, o in enumerate(a.options):
         out[f"{prefix}.option.{i}.layer"] = o.layer
-        out[f"{prefix}.option.{i}.status"] = o.status
+        out[f"{prefix}.option.{i}.status"] = pb.OptionStatus.Name(o.status)
         out[f"{prefix}.option.{i}.cuts"] = o.cuts
         out[f"{prefix}.option.{i}.worst_utilization"] = o.score.worst_utilization
     out[f"{prefix}.best_option.layer"] = a.options[a.best_option].layer if a.HasField("best_option") else "none"
@@ -148,7 +114,7 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
         out[f"{prefix}.jumper.kept_length_dbu"] = j.kept_length_dbu if j.HasField("kept_length_dbu") else "none"
         out[f"{prefix}.jumper.hop_layer"] = j.hop_layer
         out[f"{prefix}.jumper.hop_point"] = (j.hop_point.x, j.hop_point.y) if j.HasField("hop_point") else "none"
-        out[f"{prefix}.jumper.limited_by"] = j.limited_by
+        out[f"{prefix}.jumper.limited_by"] = pb.LimitedBy.Name(j.limited_by)
         out[f"{prefix}.jumper.legal"] = j.legal
     out[f"{prefix}.diode.present"] = a.HasField("diode")
     if a.HasField("diode"):
@@ -159,6 +125,8 @@ def _advice_figures(prefix: str, a) -> dict[str, object]:
     out[f"{prefix}.exact_scores"] = a.exact_scores
     out[f"{prefix}.explanations"] = len(a.explanation)
     out[f"{prefix}.explanation.0"] = a.explanation[0] if a.explanation else "none"
+    out[f"{prefix}.warnings"] = len(a.warnings)
+    out[f"{prefix}.warning.0"] = a.warnings[0] if a.warnings else "none"
     return out
 
 

@@ -21,7 +21,8 @@ from etchguard._shards import shard_of
 from etchguard.client import pin, rect, run, runs_to_rects, via
 from grpc_fixtures import start_server
 from shard_fixtures import start_farm
-from test_cpp_example import BUILD, example_binary, parse_figures  # noqa: F401 - shared C++ build
+from native_build import CPP_BUILD as BUILD
+from test_cpp_example import parse_figures
 
 SHARDS, NETS, PREFIX = 2, 6, "blk_s"
 
@@ -33,7 +34,7 @@ def farm():
     assert f.stop() == 0
 
 
-def test_cpp_sharding_client_equals_one_server(example_binary, farm):  # noqa: F811
+def test_cpp_sharding_client_equals_one_server(example_binary, farm):
     done = subprocess.run([str(BUILD / "etchguard_sharded_example"), str(farm.topology), PREFIX],
                           capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr[-3000:]

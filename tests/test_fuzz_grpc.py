@@ -22,7 +22,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from etchguard.client import ServiceError, pb
+from etchguard.client import ServiceError, pb, service_error
 from grpc_fixtures import DRIVER, GATE, start_server
 
 EXAMPLES = int(os.environ.get("ETCHGUARD_EXAMPLES", "150"))
@@ -165,7 +165,7 @@ def test_bytes_that_are_no_message_are_refused_as_the_request(fuzz_server, metho
             else:
                 c.channel.unary_unary(path, request_serializer=None, response_deserializer=None)(raw, timeout=10)
         except grpc.RpcError as exc:
-            error = ServiceError.from_rpc_error(exc)
+            error = service_error(exc)
             assert_proper(error)
         assert checksum(c) == before
 

@@ -9,9 +9,9 @@ import grpc
 import pytest
 
 import etchguard as eg
-from etchguard.client import ServiceError, pin, rect
+from etchguard.client import ServiceError, pb, pin, rect
 from etchguard.server import convert
-from grpc_fixtures import DEMO_DECK, client, net_name, server  # noqa: F401
+from grpc_fixtures import DEMO_DECK, net_name
 
 # A gate on M1 whose only metal so far is a short stub; the candidate is a long M1
 # run from the gate side: 160 um x 0.14 um = 22.4 um^2 over a 0.05 um^2 gate is a
@@ -42,7 +42,8 @@ def test_advise_reply_equals_the_engine(client):
     assert reply.legal_as_is == expected.legal_as_is and reply.found == expected.found
     assert reply.score.worst_utilization == expected.score.worst_utilization
     assert [o.layer for o in reply.options] == [o.layer for o in expected.options]
-    assert [o.status for o in reply.options] == [o.status for o in expected.options]
+    assert [pb.OptionStatus.Name(o.status) for o in reply.options] == \
+        [f"OPTION_STATUS_{o.status.name}" for o in expected.options]
     for got, want in zip(reply.options, expected.options):
         assert [(s.layer, (s.rect.xlo, s.rect.ylo, s.rect.xhi, s.rect.yhi)) for s in got.shapes] == \
             [(s.layer, s.rect) for s in want.shapes]

@@ -16,8 +16,7 @@ from grpc_reflection.v1alpha.proto_reflection_descriptor_database import \
 import etchguard as eg
 from etchguard.client import BatchScores, LocalBudget, ServiceError, budget_request, pb, pin, rect, run, runs_to_rects
 from etchguard.server import convert
-from grpc_fixtures import (DEMO_DECK, DRIVER, GATE, candidate, client, net_name,  # noqa: F401
-                           open_small_net, server, trunk)
+from grpc_fixtures import DEMO_DECK, DRIVER, GATE, candidate, net_name, open_small_net, trunk
 
 
 @pytest.fixture(scope="module")

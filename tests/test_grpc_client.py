@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import random
 
+import grpc
+
 import numpy as np
 import pytest
 
@@ -76,3 +78,17 @@ def test_candidate_columns_convert_to_engine_shapes(deck):
     assert got == [[eg.make_shape(deck, "M2", rects[0].tolist())],
                    [eg.make_shape(deck, "M1", rects[1].tolist()), eg.make_shape(deck, "M2", rects[2].tolist())]]
     assert convert.shapes(deck, [rect("M1", 0, 0, 10, 10)], "s") == [eg.make_shape(deck, "M1", [0, 0, 10, 10])]
+
+
+def test_client_names_are_the_packages():
+    """A client's refusal is in the package's one error tree (one ``except
+    EtchguardError`` catches a local refusal and a server's alike), and a server's batch
+    scores are the engine's ``BatchScores``: one record, one name."""
+    import etchguard
+    from etchguard.client import BatchScores, ServiceError
+
+    assert issubclass(ServiceError, etchguard.EtchguardError)
+    assert BatchScores is etchguard.BatchScores
+    err = ServiceError(grpc.StatusCode.NOT_FOUND, "unknown net 'x'", "net")
+    assert (str(err), err.message, err.field, err.code) == (
+        "NOT_FOUND: unknown net 'x'", "unknown net 'x'", "net", grpc.StatusCode.NOT_FOUND)

@@ -9,8 +9,7 @@ from google.rpc import error_details_pb2
 from grpc_status import rpc_status
 
 from etchguard.client import ServiceError, pb, pin, rect, run
-from grpc_fixtures import (DEMO_DECK, GATE, candidate, client, net_name,  # noqa: F401
-                           open_small_net, server, start_server)
+from grpc_fixtures import DEMO_DECK, GATE, candidate, net_name, open_small_net, start_server
 
 INVALID = grpc.StatusCode.INVALID_ARGUMENT
 NOT_FOUND = grpc.StatusCode.NOT_FOUND

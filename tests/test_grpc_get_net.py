@@ -8,7 +8,7 @@ import pytest
 
 import etchguard as eg
 from etchguard.client import ServiceError, rect
-from grpc_fixtures import DEMO_DECK, DRIVER, GATE, client, net_name, server, trunk  # noqa: F401
+from grpc_fixtures import DEMO_DECK, DRIVER, GATE, net_name, trunk
 
 
 def test_get_net_returns_pins_and_held_shapes_with_ids(client):

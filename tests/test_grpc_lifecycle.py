@@ -91,3 +91,37 @@ def test_listening_log_line_is_structured():
         assert line["limits"]["max_nets"] == 7 and line["metrics_port"] == srv.metrics_port > 0
     finally:
         srv.stop()
+
+
+def test_address_file_names_the_bound_port(tmp_path):
+    """``--listen 127.0.0.1:0 --address-file F``: the server writes the address it bound
+    (the kernel's pick), so a script starting it needs no port chosen beforehand (a port
+    found free and released can be taken by another process before the server binds)."""
+    where = tmp_path / "address"
+    srv = start_server("--address-file", str(where), metrics=False)
+    try:
+        written = where.read_text(encoding="utf-8").splitlines()
+        assert written == [srv.address] and not srv.address.endswith(":0")
+        with Client(written[0], timeout=20.0) as c:
+            assert c.health() == "SERVING"
+    finally:
+        srv.stop()
+
+
+def test_settings_and_options_map_one_to_one(tmp_path):
+    """Every server setting is an option stored under the setting's own name, and a
+    config written back as options (what the supervisor hands each shard) reads back
+    equal: no setting is copied by hand, so none is dropped on the way to a shard."""
+    import argparse
+    from dataclasses import fields
+
+    from etchguard.server.app import ServerConfig
+    from etchguard.server.cli import add_arguments, config_from_args, options_of
+
+    parser = argparse.ArgumentParser()
+    add_arguments(parser)
+    assert {f.name for f in fields(ServerConfig)} <= set(vars(parser.parse_args([])))
+    config = ServerConfig(listen=["127.0.0.1:0"], rules=tmp_path / "deck.toml", max_advice_scores=77, max_jobs=5,
+                          max_sessions=9, session_idle_s=12.5, keep_journal_before_damage=True,
+                          address_file=tmp_path / "address", cost_knee=0.5)
+    assert config_from_args(parser.parse_args(options_of(config))) == config

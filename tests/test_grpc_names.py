@@ -16,7 +16,7 @@ import pytest
 from etchguard import MAX_NAME_BYTES
 from etchguard.client import ServiceError, pb, pin, rect
 from etchguard.server.errors import MAX_MESSAGE_BYTES
-from grpc_fixtures import DRIVER, GATE, client, net_name, server  # noqa: F401
+from grpc_fixtures import DRIVER, GATE, net_name
 
 # 3 bytes each in UTF-8 (9 once percent-encoded in a trailer), 4 bytes each
 LONG_NAMES = ["路" * 3000, "\U0001d518" * 4000, "é" * 200_000]

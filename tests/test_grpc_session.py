@@ -11,7 +11,7 @@ import pytest
 import etchguard as eg
 from etchguard.client import ServiceError, pb, rect, run
 from etchguard.server import convert
-from grpc_fixtures import DEMO_DECK, DRIVER, GATE, client, net_name, server  # noqa: F401
+from grpc_fixtures import DEMO_DECK, DRIVER, GATE, net_name
 
 
 def _random_shape(rng: random.Random) -> pb.Shape:

@@ -18,7 +18,7 @@ from shapely.ops import unary_union
 
 import etchguard as eg
 from etchguard._progress import progress, render
-from etchguard._report import (CAUTION, NetRecord, OffenderFinder, check_records, render_html,
+from etchguard._design_report import (CAUTION, NetRecord, OffenderFinder, check_records, render_html,
                                report_json, summarize, write_csv)
 from etchguard.cli import main
 
@@ -107,9 +107,9 @@ def test_json_nets_equal_engine_check(deck: eg.Deck, records: list[NetRecord],
                                       engine_reports: dict[str, eg.NetReport]) -> None:
     data = json.loads(json.dumps(report_json(records, deck.name, OffenderFinder(deck))))
     assert data["deck"] == "lumen-6m"
-    assert [n["name"] for n in data["nets"]] == list(engine_reports)
+    assert [n["net"] for n in data["nets"]] == list(engine_reports)
     for entry in data["nets"]:
-        expected = engine_reports[entry["name"]].as_dict()
+        expected = engine_reports[entry["net"]].as_dict()
         # the contract's offline-check fields, exactly
         assert entry["legal"] == expected["legal"]
         assert entry["worst_utilization"] == expected["worst_utilization"]
@@ -119,7 +119,7 @@ def test_json_nets_equal_engine_check(deck: eg.Deck, records: list[NetRecord],
     summary = data["summary"]
     reports = list(engine_reports.values())
     assert summary["nets"] == len(reports)
-    assert summary["violating"] == sum(not r.legal for r in reports)
+    assert summary["illegal"] == sum(not r.legal for r in reports)
     assert summary["legal"] == sum(r.legal for r in reports)
     assert summary["worst_utilization"] == max(r.worst_utilization for r in reports)
 
@@ -225,6 +225,39 @@ def test_offender_of_a_hand_made_net(deck: eg.Deck) -> None:
     assert o.pin_indices == (2,)
 
 
+@pytest.mark.parametrize("routing_layers", [1, 2, 3, 5])
+def test_drawing_legend_lies_inside_the_figure(deck: eg.Deck, routing_layers: int,
+                                               monkeypatch: pytest.MonkeyPatch) -> None:
+    """The legend under a net's drawing is laid out for the figure's width: whole for a
+    net on one routing layer, two (one panel each, the narrowest page) or more."""
+    pytest.importorskip("matplotlib")
+    from etchguard import _design_report
+
+    figures = []
+    real = _design_report.svg_of
+    monkeypatch.setattr(_design_report, "svg_of", lambda fig, *a: figures.append(fig) or real(fig, *a))
+    m1 = deck.layer_index["M1"]
+    # over the limit on M1 only (60 um x 0.14 um over 0.02 um^2: 420 of 400)
+    gate = eg.make_pin(deck, "u1.a", "M1", [[0, 0, 140, 140]], gate_area={"thin": 0.02})
+    shapes = list(eg.run_shapes(deck, m1, 70, 70, 60000, 70))
+    for k in range(1, routing_layers):  # climb one routing layer at a time, a wire on each
+        shapes += eg.via_shapes(deck, 2 * k - 1, 1000 * k, 70)
+        shapes += eg.run_shapes(deck, 2 * k, 1000 * k, 70, 1000 * k + 3000 if k % 2 == 0 else 1000 * k,
+                                70 if k % 2 == 0 else 3070)
+    spec = eg.NetSpec("blk_t/legend", (gate,), tuple(shapes))
+    finder = OffenderFinder(deck)
+    _design_report.net_drawing_svg(deck, spec, finder.find(spec), "t")
+    (fig,) = figures
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()  # the legend's extent is known once drawn
+    box_ = fig.legends[0].get_window_extent(canvas.get_renderer())
+    inside = fig.bbox
+    assert inside.x0 - 0.5 <= box_.x0 and box_.x1 <= inside.x1 + 0.5, (routing_layers, box_, inside)
+    assert inside.y0 - 0.5 <= box_.y0 and box_.y1 <= inside.y1 + 0.5, (routing_layers, box_, inside)
+
+
 # -- the page --------------------------------------------------------------------------
 
 
@@ -237,7 +270,7 @@ def test_page_summary_and_tables(page: str, records: list[NetRecord]) -> None:
     s = summarize(records, "lumen-6m")
     assert f'data-key="nets">{s.nets}<' in page
     assert f'data-key="legal">{s.legal}<' in page
-    assert f'data-key="violating">{s.violating}<' in page
+    assert f'data-key="illegal">{s.illegal}<' in page
     assert 'data-key="deck">lumen-6m<' in page
     assert f"{s.worst_utilization * 100:.1f}%" in page
     table = page[page.index('id="worst-table"'):page.index("</table>", page.index('id="worst-table"'))]
@@ -331,16 +364,31 @@ def test_progress_render() -> None:
 
 def test_cli_writes_all_three(tmp_path: Path, engine_reports: dict[str, eg.NetReport],
                               capsys: pytest.CaptureFixture[str]) -> None:
-    out, csv_path, json_path = tmp_path / "r.html", tmp_path / "r.csv", tmp_path / "r.json"
+    out, csv_path = tmp_path / "r.html", tmp_path / "r.csv"
     rc = main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "-o", str(out),
-               "--csv", str(csv_path), "--json", str(json_path), "--max-drawings", "0",
-               "--progress", "never"])
+               "--csv", str(csv_path), "--json", "--max-drawings", "0", "--progress", "never"])
     assert rc == 1  # the demo block has violations
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
-    assert {n["name"]: n["legal"] for n in data["nets"]} == {k: v.legal for k, v in engine_reports.items()}
+    printed = capsys.readouterr()
+    data = json.loads(printed.out)  # --json prints, as in check and advise
+    assert {n["net"]: n["legal"] for n in data["nets"]} == {k: v.legal for k, v in engine_reports.items()}
     assert csv_path.read_text(encoding="utf-8").splitlines()[0].startswith("net,net_legal,")
-    assert "200 nets" in capsys.readouterr().err
+    assert "200 nets" in printed.err
+
+
+def test_cli_json_is_a_flag_as_in_check_and_advise(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # the net file may follow the flag
+    assert main(["report", "--rules", str(DECK_PATH), "--json", str(NETS_PATH), "--progress", "never"]) == 1
+    assert len(json.loads(capsys.readouterr().out)["nets"]) == 200
+    # the old form, a file after --json, is refused with the new one, before any work
+    old = tmp_path / "r.json"
+    assert main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "--json", str(old)]) == 2
+    err = capsys.readouterr().err
+    assert "--json takes no file: it prints the JSON on stdout" in err and f"> {old}" in err
+    assert not old.exists()
+    with pytest.raises(SystemExit):
+        main(["report", "--help"])
+    assert "[--json]" in capsys.readouterr().out.replace("\n", " ")
 
 
 def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:
@@ -353,7 +401,7 @@ def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:
             legal.append(raw)
     nets = tmp_path / "legal.json"
     nets.write_text(json.dumps({"nets": legal[:5]}), encoding="utf-8")
-    rc = main(["report", "--rules", str(DECK_PATH), str(nets), "--json", str(tmp_path / "o.json")])
+    rc = main(["report", "--rules", str(DECK_PATH), str(nets), "--json"])
     assert rc == 0
 
 

@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 import etchguard as eg
-from etchguard._report import check_records, render_html, summarize
+from etchguard._design_report import check_records, render_html, summarize
 
 DATA = Path(__file__).resolve().parent.parent / "service" / "etchguard" / "data"
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
@@ -70,12 +70,12 @@ def test_report_page_loads_with_its_figures(tmp_path: Path) -> None:
 
     s = summarize(records, deck.name)
     assert re.search(rf'data-key="nets"[^>]*>{s.nets}<', dom)
-    assert re.search(rf'data-key="violating"[^>]*>{s.violating}<', dom)
+    assert re.search(rf'data-key="illegal"[^>]*>{s.illegal}<', dom)
     assert re.search(r'data-key="deck"[^>]*>lumen-6m<', dom)
     layers = {c.layer for r in records for c in r.report.checks}
     # the browser parsed every inline figure into an svg element
     assert len(re.findall(r'<svg class="eg-fig eg-hist"', dom)) == len(layers)
-    assert len(re.findall(r'<svg class="eg-fig eg-net"', dom)) == s.violating
-    assert len(re.findall(r"<svg\b", dom)) == len(layers) + s.violating
+    assert len(re.findall(r'<svg class="eg-fig eg-net"', dom)) == s.illegal
+    assert len(re.findall(r"<svg\b", dom)) == len(layers) + s.illegal
     assert 'id="caution"' in dom and "sign-off verification decide" in dom
     assert console_errors(stderr) == [], console_errors(stderr)

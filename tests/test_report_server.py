@@ -49,11 +49,12 @@ def served() -> tuple[str, list[dict]]:
         server.stop()
 
 
-def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_path: Path) -> None:
+def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_path: Path,
+                                            capsys: pytest.CaptureFixture[str]) -> None:
     address, nets = served
-    out_json, out_html = tmp_path / "s.json", tmp_path / "s.html"
-    rc = main(["report", "--server", address, "--json", str(out_json), "-o", str(out_html),
-               "--progress", "never"])
+    out_html = tmp_path / "s.html"
+    rc = main(["report", "--server", address, "--json", "-o", str(out_html), "--progress", "never"])
+    printed = capsys.readouterr().out
     deck = eg.load_deck(DEMO_DECK)
     engine = eg.Engine(deck)
     expected = {}
@@ -61,9 +62,9 @@ def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_
         engine.open_net(spec.name, spec.pins, spec.layer_range, spec.shapes)
         expected[spec.name] = engine.check(spec.name).as_dict()
     assert rc == (0 if all(e["legal"] for e in expected.values()) else 1)
-    data = json.loads(out_json.read_text(encoding="utf-8"))
+    data = json.loads(printed)
     assert data["deck"] == deck.name
-    got = {n["name"]: n for n in data["nets"]}
+    got = {n["net"]: n for n in data["nets"]}
     assert set(got) == set(expected)
     for name, exp in expected.items():
         g = got[name]
@@ -79,19 +80,17 @@ def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_
     assert violating > 0 and page.count('<svg class="eg-fig eg-net"') == violating
     assert "No geometry for this net: not drawn." not in page
     assert f"server {address}" in page
-    net_file, offline_json = tmp_path / "nets.json", tmp_path / "o.json"
+    net_file = tmp_path / "nets.json"
     net_file.write_text(json.dumps({"nets": nets}), encoding="utf-8")
-    main(["report", "--rules", str(DEMO_DECK), str(net_file), "--json", str(offline_json),
-          "--progress", "never"])
-    offline = {n["name"]: n for n in json.loads(offline_json.read_text(encoding="utf-8"))["nets"]}
+    main(["report", "--rules", str(DEMO_DECK), str(net_file), "--json", "--progress", "never"])
+    offline = {n["net"]: n for n in json.loads(capsys.readouterr().out)["nets"]}
     for name in (n for n, e in expected.items() if not e["legal"]):
         assert got[name]["offenders"] and got[name]["offenders"] == offline[name]["offenders"]
 
 
 def test_server_unreachable_is_bad_input(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     port = free_port()  # nothing listens there
-    rc = main(["report", "--server", f"127.0.0.1:{port}", "--timeout", "1",
-               "--json", str(tmp_path / "x.json")])
+    rc = main(["report", "--server", f"127.0.0.1:{port}", "--timeout", "1", "--json"])
     assert rc == 2
     # the refused connection is the answer (was: a wait for the whole --timeout, then
     # "no server answered ... within")
@@ -109,5 +108,5 @@ def test_output_into_a_missing_folder_is_refused_before_any_work(tmp_path: Path,
 
 
 def test_server_with_a_net_file_is_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
-    rc = main(["report", "--server", "127.0.0.1:1", str(NETS_PATH), "--json", str(tmp_path / "x.json")])
+    rc = main(["report", "--server", "127.0.0.1:1", str(NETS_PATH), "--json"])
     assert rc == 2 and "--server reports the server's own nets" in capsys.readouterr().err

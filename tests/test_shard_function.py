@@ -24,7 +24,7 @@ from etchguard import InputError
 from etchguard._shards import (Topology, fnv1a_64, jump_hash, load_topology, parse_topology,
                                shard_of)
 from grpc_fixtures import REPO
-from test_cpp_example import BUILD, example_binary  # noqa: F401 - the shared C++ build fixture
+from native_build import CPP_BUILD as BUILD
 
 VECTORS = REPO / "tests" / "data" / "shard_vectors.tsv"
 
@@ -77,7 +77,7 @@ def test_vector_file_agrees():
         assert shard_of(name, shards) == shard, (name, shards)
 
 
-def test_cpp_shard_function_agrees_with_the_vector_file(example_binary):  # noqa: F811
+def test_cpp_shard_function_agrees_with_the_vector_file(example_binary):
     check = BUILD / "etchguard_shard_vectors_check"
     done = subprocess.run([str(check), str(VECTORS)], capture_output=True, text=True, timeout=60)
     assert done.returncode == 0, done.stdout[-3000:] + done.stderr[-2000:]

@@ -52,7 +52,8 @@ void PrintScore(const std::string& prefix, const pb::ScoreReply& s) {
 
 // The advice figures under `prefix`: the verdict, the layer hops in the server's
 // order, the jumper and the diode (each only when asked for), the cost in exact
-// scores and the first sentence of the explanation. An absent optional is "none".
+// scores, the first sentence of the explanation and of the warnings. An absent optional
+// is "none".
 void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
   Print(prefix + ".legal_as_is", a.legal_as_is());
   Print(prefix + ".found", a.found());
@@ -63,7 +64,7 @@ void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
     const pb::LayerOption& o = a.options(i);
     const std::string p = prefix + ".option." + std::to_string(i);
     Print(p + ".layer", o.layer());
-    Print(p + ".status", o.status());
+    Print(p + ".status", pb::OptionStatus_Name(o.status()));
     PrintCount(p + ".cuts", o.cuts());
     Print(p + ".worst_utilization", o.score().worst_utilization());
   }
@@ -84,7 +85,7 @@ void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
     } else {
       Print(prefix + ".jumper.hop_point", std::string("none"));
     }
-    Print(prefix + ".jumper.limited_by", j.limited_by());
+    Print(prefix + ".jumper.limited_by", pb::LimitedBy_Name(j.limited_by()));
     Print(prefix + ".jumper.legal", j.legal());
   }
   Print(prefix + ".diode.present", a.has_diode());
@@ -101,6 +102,8 @@ void PrintAdvice(const std::string& prefix, const pb::AdviseReply& a) {
   PrintCount(prefix + ".exact_scores", a.exact_scores());
   PrintCount(prefix + ".explanations", static_cast<std::uint64_t>(a.explanation_size()));
   Print(prefix + ".explanation.0", a.explanation_size() > 0 ? a.explanation(0) : std::string("none"));
+  PrintCount(prefix + ".warnings", static_cast<std::uint64_t>(a.warnings_size()));
+  Print(prefix + ".warning.0", a.warnings_size() > 0 ? a.warnings(0) : std::string("none"));
 }
 
 // The demo net: gate u1.a on M1 at the origin, driver u0.y 20 um away on M1, not yet

@@ -11,12 +11,7 @@ table's figures come from these runs.
 from __future__ import annotations
 
 import argparse
-import json
-import os
-import signal
-import subprocess
 import sys
-import threading
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -27,45 +22,18 @@ DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
 BLOCK = HERE / "data" / "blk_r.json"
 
 from etchguard.client import Client  # noqa: E402
-
+from etchguard.server.launch import launch  # noqa: E402
 from route import Router, Stats, load_block  # noqa: E402
 
 
 @contextmanager
 def serve(deck: Path):
     """A real ``etchguard serve`` on 127.0.0.1 with a port the kernel picks."""
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--rules", str(deck),
-           "--listen", "127.0.0.1:0", "--metrics-port", "0"]
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, cwd=REPO,
-                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
-    address: list[str] = []
-    ready = threading.Event()
-
-    def read() -> None:
-        assert proc.stderr is not None
-        for line in proc.stderr:
-            try:
-                entry = json.loads(line)
-            except json.JSONDecodeError:
-                continue
-            if entry.get("msg") == "listening" and not address:
-                address.append(entry["addresses"][0])
-                ready.set()
-        ready.set()
-
-    threading.Thread(target=read, daemon=True).start()
+    server = launch(["--rules", str(deck), "--listen", "127.0.0.1:0", "--metrics-port", "0"], cwd=REPO)
     try:
-        if not ready.wait(30) or not address:
-            raise RuntimeError("etchguard serve did not start")
-        yield address[0]
+        yield server.address
     finally:
-        proc.send_signal(signal.SIGTERM)
-        try:
-            proc.wait(15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
+        server.stop()
 
 
 MODES = {"blind": dict(aware=False), "aware": dict(aware=True), "blind + repair": dict(aware=False, repair_after=True)}

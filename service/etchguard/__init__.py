@@ -35,7 +35,7 @@ from ._nets import (
                       via_shapes,
 )
 from ._obstacles import Conflict
-from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
+from ._results import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck, Layer, Rule, load_deck, loads_deck, parse_deck
 
 __version__ = "0.1.0"

@@ -112,11 +112,12 @@ from dataclasses import dataclass, field
 
 from ._errors import InputError, StoppedError
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
+from ._kinds import LimitedBy, OptionStatus
 from ._nets import Pin, Shape, via_shapes
 from ._netview import NetView
 from ._obstacles import Conflict, ObstacleIndex
 from ._ratios import TOLERANCE, is_legal
-from ._reports import RatioChange, Score
+from ._results import RatioChange, Score
 
 MAX_DIODE_UM2 = 1.0e6  # a square millimetre: beyond any cell diode, the search stops there
 DIODE_REL_PRECISION = 1e-9  # relative width of the final bisection bracket
@@ -147,7 +148,7 @@ class LayerOption:
     layer: str
     step: int
     preferred: bool  # the layer's preferred direction is the run's
-    status: str  # "legal" | "illegal" | "blocked"
+    status: OptionStatus
     legal: bool  # antenna-legal at every step (whether blocked or not)
     blocked: bool
     shapes: tuple[PlacedShape, ...]
@@ -165,7 +166,7 @@ class JumperAdvice:
     run_length: int = 0  # DBU, centre line
     kept_length: int | None = None  # DBU from the joining end; None: not even 0 is legal
     hop_room: int = 0  # the largest kept length that still leaves room for a hop
-    limited_by: str = ""  # "limit" (l + 1 is illegal) | "hop room" | "run" (no hop needed)
+    limited_by: LimitedBy = LimitedBy.NONE
     hop_point: Point | None = None
     hop_layer: str | None = None
     shapes: tuple[PlacedShape, ...] = ()
@@ -206,6 +207,9 @@ class Advice:
     explanation: tuple[str, ...] = field(default_factory=tuple)
     exact_scores: int = 0  # what-if scores this answer took (a load-independent cost)
     cut: tuple[str, ...] = ()  # parts left unsettled when the budget ran out ("hop", ...)
+    # what the caller may not have meant: the net over a limit before the run, a run
+    # against its layer's preferred direction, a run that touches the net nowhere
+    warnings: tuple[str, ...] = ()
 
     @property
     def found(self) -> bool:
@@ -431,7 +435,8 @@ class _Advisor:
         result = self.score(shapes)
         conflicts = self.conflicts(shapes)
         blocked = bool(conflicts)
-        status = "blocked" if blocked else ("legal" if result.legal else "illegal")
+        status = (OptionStatus.BLOCKED if blocked else
+                  OptionStatus.LEGAL if result.legal else OptionStatus.ILLEGAL)
         info = deck.layers[target]
         return LayerOption(info.name, target, info.direction == deck.layers[self.req.layer].direction,
                            status, result.legal, blocked, _placed(deck, shapes),
@@ -510,7 +515,7 @@ class _Advisor:
             return JumperAdvice(False, "the run has no length to split", 0)
         if as_is.legal:
             return JumperAdvice(True, "the whole run may stay", run.length, run.length, run.length - 1,
-                                "run", None, None, (), as_is, True)
+                                LimitedBy.RUN, None, None, (), as_is, True)
         room = self.hop_room(run, target)
         tname = deck.layers[target].name if target is not None else None
         if room < 0:
@@ -544,13 +549,14 @@ class _Advisor:
         if best is None:
             why = (f"even hopping to {tname} right at the joining end leaves the net over a limit"
                    if target is not None else "no part of the run can stay on it, and no layer to hop to")
-            return JumperAdvice(True, why, run.length, None, room, "limit", None, tname)
+            return JumperAdvice(True, why, run.length, None, room, LimitedBy.LIMIT, None, tname)
         shapes = self.jumper_shapes(run, best, target)
         result = at_detail(best)
         conflicts = self.conflicts(shapes[1:]) if target is not None else ()
-        limited = "hop room" if best == room and not (best + 1 < run.length and not at(best + 1).legal) else "limit"
+        limited = (LimitedBy.HOP_ROOM if best == room and not (best + 1 < run.length and not at(best + 1).legal)
+                   else LimitedBy.LIMIT)
         if best == room and best + 1 == run.length:
-            limited = "limit"  # l + 1 is the run as is, which is illegal
+            limited = LimitedBy.LIMIT  # l + 1 is the run as is, which is illegal
         return JumperAdvice(True, "", run.length, best, room, limited, run.at(best), tname,
                             _placed(deck, shapes), result, result.legal, bool(conflicts), conflicts)
 
@@ -597,11 +603,12 @@ class _Advisor:
         join_point = run.P if joins is not None else None
         far_point = run.F if joins is not None else None
         run_info = (req.x1, req.y1, req.x2, req.y2)
+        warnings = self._warnings(lname)
         if as_is.legal:
             text = (f"{lname} run is legal as is: worst {_pct(as_is.worst_utilization)} "
                     f"of the limit at any step",)
             return Advice(self.net, lname, run_info, req.width, self.rect, as_is, True, join_point,
-                          far_point, (), None, None, None, text, self.scores)
+                          far_point, (), None, None, None, text, self.scores, warnings=warnings)
         want = req.want
         explanation = [self._violation_sentence(lname, as_is)]
         options: list[LayerOption] = []
@@ -621,12 +628,12 @@ class _Advisor:
                         notes.append(opt)
                         continue
                     options.append(opt)
-                    if lazy and opt.status == "legal":
+                    if lazy and opt.status is OptionStatus.LEGAL:
                         break
             except _BudgetSpent:
                 cut.append("hop")  # the layers scored so far stand; the rest were not tried
                 notes.append(f"later layers were not tried: {self._budget_words()}")
-            best = next((o for o in options if o.status == "legal"), None)
+            best = next((o for o in options if o.status is OptionStatus.LEGAL), None)
             free = [o for o in options if not o.blocked]
             target_opt = best or (free[0] if free else None)
             if lazy:
@@ -654,7 +661,26 @@ class _Advisor:
             explanation.append(f"cut: {self._budget_words()}; left unsettled: {', '.join(cut)}")
         return Advice(self.net, lname, run_info, req.width, self.rect, as_is, False, join_point,
                       far_point, tuple(options), best, jumper, diode, tuple(explanation),
-                      self.scores, tuple(cut))
+                      self.scores, tuple(cut), warnings)
+
+    def _warnings(self, lname: str) -> tuple[str, ...]:
+        """What the caller may not have meant, said whatever the run's length: the net
+        over a limit before the run (no choice for the run fixes that), a run against
+        its layer's preferred direction, a run that touches the net nowhere."""
+        req, out = self.req, []
+        before = max((self.view.worst_at(s) for s in range(self.steps)), default=0.0)
+        if not is_legal(before):
+            out.append(f"the net is over a limit already, before this run (worst {_pct(before)}); "
+                       "no choice for the run can fix that")
+        direction = self.deck.layers[req.layer].direction
+        along = "horizontal" if req.y1 == req.y2 and req.x1 != req.x2 else (
+            "vertical" if req.x1 == req.x2 and req.y1 != req.y2 else None)
+        if direction is not None and along is not None and along != direction:
+            out.append(f"the run is {along}, against {lname}'s preferred direction ({direction})")
+        if not self.view.touching(req.layer, self.rect):
+            out.append(f"the run touches none of the net's shapes or pins on {lname} or the cut layers "
+                       "next to it: it would be metal of its own, not part of the net")
+        return tuple(out)
 
     def _budget_words(self) -> str:
         return f"the advice's budget of {self.max_scores} exact scores ran out"

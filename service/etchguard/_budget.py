@@ -28,13 +28,14 @@ from dataclasses import dataclass
 
 from ._costs import CostModel
 from ._geometry import Rect
+from ._kinds import Measure, RatioKind
 
 
 @dataclass(frozen=True)
 class BudgetTerm:
     """R's term at the budget's layer for one (measure, oxide)."""
 
-    measure: str  # "area" | "side"
+    measure: Measure
     oxide: str
     conductor_um2: float  # A now (side: side-wall um^2)
     per_area: float  # dA per um^2 of added area
@@ -55,8 +56,8 @@ class BudgetRatio:
 
     layer: str
     step: int
-    measure: str
-    kind: str  # "partial" | "cumulative"
+    measure: Measure
+    kind: RatioKind
     oxide: str
     gate: str  # the gate with this ratio now
     limit: float

@@ -9,7 +9,6 @@ bad input.
 from __future__ import annotations
 
 import argparse
-import dataclasses
 import json
 import math
 import sys
@@ -19,8 +18,8 @@ from ._advice import ANSWERS, Advice
 from ._engine import Engine
 from ._errors import InputError
 from ._nets import load_net_file, resolve_layer
-from ._reports import json_number
-from ._rules import load_deck
+from ._protojson import message_dict
+from ._rules import Deck, load_deck
 
 HELP = "advise on a candidate run of one net: nearest legal layer hop, jumper point, diode"
 
@@ -40,46 +39,26 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the whole advice as JSON")
 
 
-# Record fields whose JSON name is the API's (AdviseReply and its parts): lengths carry
-# their unit, as in the proto.
-_JSON_NAMES = {"run_length": "run_length_dbu", "kept_length": "kept_length_dbu",
-               "hop_room": "hop_room_dbu", "distance": "distance_dbu", "spacing": "spacing_dbu",
-               "net": "other_net"}
+def advice_dict(advice: Advice, deck: Deck) -> dict[str, Any]:
+    """The advice as the API's ``AdviseReply`` says it (its field names and units), in
+    the command line's one JSON form of a message (``_protojson``)."""
+    from .server import convert
+    from .v1 import etchguard_pb2 as pb
+
+    reply = pb.AdviseReply()
+    convert.advice_into(reply, advice, [layer.name for layer in deck.layers])
+    return message_dict(reply)
 
 
-def _plain(value: Any, renames: dict[str, str] | None = None) -> Any:
-    """JSON values: non-finite floats as the protobuf JSON mapping writes them, tuples as
-    lists, record fields under their API names."""
-    if isinstance(value, float):
-        return json_number(value)
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        names = _JSON_NAMES if renames is None else renames
-        return {names.get(f.name, f.name): _plain(getattr(value, f.name))
-                for f in dataclasses.fields(value)}
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    return value
-
-
-def advice_as_dict(advice: Advice) -> dict[str, Any]:
-    """The advice as JSON with the field names of the API's ``AdviseReply``: ``best_option``
-    is the index of the best option in ``options`` (the record itself is listed there)."""
-    out: dict[str, Any] = _plain(advice, renames={})
-    out.pop("best")
-    out["best_option"] = None if advice.best is None else advice.options.index(advice.best)
-    out["found"] = advice.found
-    return out
-
-
-# The engine's field names (AdviseRequest's) -> this command's options.
-_OPTION_FIELDS = {"layer": "run.layer", "x1": "run.x1", "y1": "run.y1", "x2": "run.x2", "y2": "run.y2",
-                  "width": "--width", "want": "--only", "net": "--net"}
+# The engine's field names (AdviseRequest's) -> what the user typed: every field an
+# error names is an option, the parts of --run by its metavar.
+_OPTION_FIELDS = {"layer": "--run LAYER", "x1": "--run X1", "y1": "--run Y1", "x2": "--run X2",
+                  "y2": "--run Y2", "run": "--run", "width": "--width", "want": "--only", "net": "--net"}
 
 
 def format_text(advice: Advice) -> str:
     lines = [f"net {advice.net}: {advice.layer} run {advice.run} width {advice.width}"]
+    lines += [f"  warning: {w}" for w in advice.warnings]
     lines += [f"  {sentence}" for sentence in advice.explanation]
     if advice.options:
         lines.append("  layer  state    use      cuts  blocked by")
@@ -97,13 +76,13 @@ def format_text(advice: Advice) -> str:
 def run(args: argparse.Namespace) -> int:
     deck = load_deck(args.rules)
     specs = load_net_file(deck, args.nets)
-    layer = resolve_layer(deck, args.run[0], "run.layer")
+    layer = resolve_layer(deck, args.run[0], _OPTION_FIELDS["layer"])
     coords = []
     for name, text in zip(("x1", "y1", "x2", "y2"), args.run[1:]):
         try:
             coords.append(int(text))
         except ValueError:
-            raise InputError(f"coordinates are integer DBU, got {text!r}", f"run.{name}") from None
+            raise InputError(f"coordinates are integer DBU, got {text!r}", _OPTION_FIELDS[name]) from None
     if not any(s.name == args.net for s in specs):
         raise InputError(f"the net file has no net {args.net!r}", "--net")
     engine = Engine(deck)
@@ -116,7 +95,7 @@ def run(args: argparse.Namespace) -> int:
     except InputError as exc:  # the engine names the API's fields; this command's are options
         raise InputError(exc.message, _OPTION_FIELDS.get(exc.field or "", exc.field)) from None
     if args.json:
-        json.dump(advice_as_dict(advice), sys.stdout, indent=1, allow_nan=False)
+        json.dump(advice_dict(advice, deck), sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
     else:
         print(format_text(advice))

@@ -8,15 +8,18 @@ import fnmatch
 import json
 import sys
 from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
+from typing import Any, TextIO
 
 from ._engine import Engine
 from ._errors import InputError
+from ._kinds import Verdict
 from ._lefdef import open_design, print_notes
 from ._lefdef_tokens import Notes
 from ._names import shown
 from ._nets import NetSpec, iter_net_file
 from ._progress import progress
-from ._reports import NetReport
+from ._results import NetReport
 from ._rules import Deck, load_deck
 
 HELP = "check every net of a net file against a rule deck, or of a LEF/DEF design (offline)"
@@ -111,22 +114,73 @@ def _worst(report: NetReport) -> str:
     return f"{c.layer} {c.kind} {c.measure} {c.oxide}: {c.ratio:.4g} of {c.limit:.4g} at {c.gate}"
 
 
-def format_table(reports: list[NetReport], show_all: bool) -> str:
-    rows = [r for r in reports if show_all or not r.legal]
-    rows.sort(key=lambda r: -r.worst_utilization)
-    width = max([len(r.name) for r in rows] + [3])
-    lines = [f"{'net':<{width}}  {'state':<5}  {'use':>7}  worst check"]
-    for r in rows:
-        state = "ok" if r.legal else "OVER"
-        lines.append(f"{r.name:<{width}}  {state:<5}  {r.worst_utilization:>6.1%}  {_worst(r)}")
-    bad = sum(not r.legal for r in reports)
-    worst = max(reports, key=lambda r: r.worst_utilization, default=None)
-    summary = f"{len(reports)} nets checked, {bad} over a limit"
-    if worst is not None:
-        summary += f"; highest use {worst.worst_utilization:.1%} on {worst.name}"
-    if not rows:
+@dataclass
+class _Layer:
+    name: str
+    worst: float = 0.0  # the highest utilization of any net at the step
+    worst_net: str = ""
+    illegal_nets: int = 0  # nets with an illegal check at the step
+
+
+class Tally:
+    """What the table says, gathered one report at a time (the reports are not kept:
+    only the rows the table shows): nets, illegal nets, the worst, and per process step
+    the worst utilization and the illegal nets there."""
+
+    def __init__(self, show_all: bool) -> None:
+        self.show_all = show_all
+        self.rows: list[NetReport] = []
+        self.nets = self.illegal = 0
+        self.worst: NetReport | None = None
+        self.layers: dict[int, _Layer] = {}
+
+    def add(self, report: NetReport) -> None:
+        self.nets += 1
+        self.illegal += not report.legal
+        if self.worst is None or report.worst_utilization > self.worst.worst_utilization:
+            self.worst = report
+        if self.show_all or not report.legal:
+            self.rows.append(report)
+        illegal_steps = set()
+        for c in report.checks:
+            layer = self.layers.setdefault(c.step, _Layer(c.layer))
+            if c.utilization > layer.worst or not layer.worst_net:
+                layer.worst, layer.worst_net = c.utilization, report.name
+            if not c.legal:
+                illegal_steps.add(c.step)
+        for step in illegal_steps:
+            self.layers[step].illegal_nets += 1
+
+    def table(self) -> str:
         lines = []
-    return "\n".join(lines + [summary])
+        if self.rows:
+            rows = sorted(self.rows, key=lambda r: -r.worst_utilization)
+            width = max([len(r.name) for r in rows] + [3])
+            lines.append(f"{'net':<{width}}  {'verdict':<7}  {'use':>7}  worst check")
+            lines += [f"{r.name:<{width}}  {Verdict.of(r.legal):<7}  {r.worst_utilization:>6.1%}  {_worst(r)}"
+                      for r in rows]
+            lines.append("")
+        if self.layers:
+            width = max(len(layer.name) for layer in self.layers.values())
+            lines.append(f"{'layer':<{max(width, 5)}}  step  {'worst use':>9}  illegal nets  worst net")
+            lines += [f"{layer.name:<{max(width, 5)}}  {step:>4}  {layer.worst:>9.1%}  {layer.illegal_nets:>12}  "
+                      f"{layer.worst_net}" for step, layer in sorted(self.layers.items())]
+            lines.append("")
+        summary = f"{self.nets} nets checked, {self.illegal} {Verdict.ILLEGAL}"
+        if self.worst is not None:
+            summary += f"; highest use {self.worst.worst_utilization:.1%} on {self.worst.name}"
+        return "\n".join(lines + [summary])
+
+
+def write_json_array(items: Iterable[dict[str, Any]], out: TextIO) -> None:
+    """A JSON array written one item at a time, as ``json.dump(list, indent=1)`` would."""
+    out.write("[")
+    count = 0
+    for item in items:
+        out.write(",\n " if count else "\n ")
+        out.write(json.dumps(item, indent=1, allow_nan=False).replace("\n", "\n "))
+        count += 1
+    out.write("\n]\n" if count else "]\n")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -134,12 +188,21 @@ def run(args: argparse.Namespace) -> int:
     engine = Engine(deck)
     if args.select_names or args.select_patterns:
         specs, total = selected(specs, args.select_names, args.select_patterns), None
-    reports = list(check_specs(engine, _with_progress(specs, total, "checking", args.progress)))
+    reports = check_specs(engine, _with_progress(specs, total, "checking", args.progress))
+    legal = True
+    if args.json:
+        def dicts() -> Iterator[dict[str, Any]]:
+            nonlocal legal
+            for r in reports:
+                legal &= r.legal
+                yield r.as_dict()
+        write_json_array(dicts(), sys.stdout)
+    else:
+        tally = Tally(args.all)
+        for r in reports:
+            tally.add(r)
+        legal = tally.illegal == 0
+        print(tally.table())
     if notes is not None:
         print_notes(notes, sys.stderr)
-    if args.json:
-        json.dump([r.as_dict() for r in reports], sys.stdout, indent=1, allow_nan=False)
-        sys.stdout.write("\n")
-    else:
-        print(format_table(reports, args.all))
-    return 0 if all(r.legal for r in reports) else 1
+    return 0 if legal else 1

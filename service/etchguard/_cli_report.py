@@ -1,6 +1,6 @@
 """``etchguard report``: a design report as HTML, CSV and/or JSON.
 
-Two sources of nets, one builder (``etchguard._report``):
+Two sources of nets, one builder (``etchguard._design_report``):
 * a net file, checked offline against ``--rules`` (the same engine as ``check``);
   the page then draws each violating net with its offending components;
 * ``--server ADDRESS``: every net a running server holds, as its CheckAll reports
@@ -20,12 +20,13 @@ from pathlib import Path
 from typing import Any
 
 from ._cli_check import add_lefdef_arguments, specs_from_args
+from ._design_report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
 from ._errors import InputError
+from ._kinds import Measure, RatioKind
 from ._lefdef import print_notes
 from ._nets import NetSpec
 from ._progress import progress
-from ._report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
-from ._reports import CheckResult, NetReport
+from ._results import CheckResult, NetReport
 from ._rules import Deck, loads_deck
 
 HELP = "write a design report of a net file: an HTML page, and CSV or JSON for scripts"
@@ -41,7 +42,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="with --server: seconds to wait for the server (default 60)")
     parser.add_argument("-o", "--output", metavar="FILE", help="write the HTML page here")
     parser.add_argument("--csv", metavar="FILE", help="write one row per check here")
-    parser.add_argument("--json", metavar="FILE", help="write the report as JSON here")
+    # A flag, as in check and advise; nargs="?" only to recognise the old `--json FILE`
+    # (refused in run, naming the new form) and to take a net file written right after it.
+    parser.add_argument("--json", nargs="?", const=True, default=False,
+                        help="print the report as JSON on stdout (docs/formats.md describes it)")
+    parser.formatter_class = _FlagFormatter
     parser.add_argument("--top", type=int, default=25, metavar="N",
                         help="rows of the worst-nets table (default 25)")
     parser.add_argument("--max-drawings", type=int, default=40, metavar="N",
@@ -51,10 +56,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="progress bar on stderr: auto draws it on a terminal only")
 
 
+class _FlagFormatter(argparse.HelpFormatter):
+    """Shows ``--json`` as the flag it is (its optional word is only the old form's)."""
+
+    def _format_args(self, action: argparse.Action, default_metavar: str) -> str:
+        return "" if action.dest == "json" else super()._format_args(action, default_metavar)
+
+    def _format_action_invocation(self, action: argparse.Action) -> str:
+        return "--json" if action.dest == "json" else super()._format_action_invocation(action)
+
+
 def _check_folders(args: argparse.Namespace) -> None:
     """Refuse an output whose folder does not exist before any work is done (the page of
     a large design takes minutes)."""
-    for option, path in (("--output", args.output), ("--csv", args.csv), ("--json", args.json)):
+    for option, path in (("--output", args.output), ("--csv", args.csv)):
         if path and not Path(path).resolve().parent.is_dir():
             raise InputError(f"the folder {Path(path).parent} does not exist", option)
 
@@ -77,8 +92,8 @@ def records_from_server(address: str, timeout: float,
         from .client import Client, ServiceError, pb
     except ImportError as exc:  # the gRPC client is not in this tree or not installed
         raise InputError(f"--server needs the gRPC client: {exc}", "--server") from exc
-    measure = {pb.MEASURE_AREA: "area", pb.MEASURE_SIDE: "side"}
-    kind = {pb.RATIO_KIND_PARTIAL: "partial", pb.RATIO_KIND_CUMULATIVE: "cumulative"}
+    measure = {pb.MEASURE_AREA: Measure.AREA, pb.MEASURE_SIDE: Measure.SIDE}
+    kind = {pb.RATIO_KIND_PARTIAL: RatioKind.PARTIAL, pb.RATIO_KIND_CUMULATIVE: RatioKind.CUMULATIVE}
     with Client(address, timeout=timeout) as client:
         try:
             # A call that does not wait for the channel: a refused connection answers at
@@ -116,9 +131,22 @@ def _spec_of(deck: Deck, content: Any) -> NetSpec:
                    tuple(convert.shapes(deck, [h.shape for h in content.shapes], "shapes")), layer_range)
 
 
+def _json_flag(args: argparse.Namespace) -> None:
+    """``--json`` is a flag; a word after it is the net file, unless one is given too: then
+    it is the old ``--json FILE`` form, refused with the new one."""
+    if isinstance(args.json, str):
+        if args.nets is None and not args.server:
+            args.nets, args.json = args.json, True
+        else:
+            raise InputError(f"--json takes no file: it prints the JSON on stdout (etchguard report ... "
+                             f"--json > {args.json})", "--json")
+
+
 def run(args: argparse.Namespace) -> int:
+    _json_flag(args)
     if not (args.output or args.csv or args.json):
-        raise InputError("nothing to write: give -o FILE, --csv FILE and/or --json FILE", "output")
+        raise InputError("nothing to write: give -o FILE (the HTML page), --csv FILE and/or --json (stdout)",
+                         "output")
     if args.top < 0 or args.max_drawings < 0:
         raise InputError("must be >= 0", "--top" if args.top < 0 else "--max-drawings")
     _check_folders(args)
@@ -161,8 +189,9 @@ def run(args: argparse.Namespace) -> int:
         _write(args.csv, buf.getvalue(), "CSV file")
     if args.json:
         data = report_json(records, deck_name, OffenderFinder(deck) if deck is not None else None)
-        _write(args.json, json.dumps(data, indent=1) + "\n", "JSON file")
+        json.dump(data, sys.stdout, indent=1, allow_nan=False)
+        sys.stdout.write("\n")
     violating = sum(not r.report.legal for r in records)
-    print(f"{len(records)} nets, {violating} violating; wrote "
-          + ", ".join(p for p in (args.output, args.csv, args.json) if p), file=sys.stderr)
+    written = [p for p in (args.output, args.csv) if p] + (["JSON on stdout"] if args.json else [])
+    print(f"{len(records)} nets, {violating} illegal; wrote " + ", ".join(written), file=sys.stderr)
     return 0 if violating == 0 else 1

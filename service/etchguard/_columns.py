@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -20,7 +21,7 @@ from ._geometry import COORD_LIMIT
 
 @dataclass(frozen=True)
 class BatchScores:
-    """One entry per candidate, in the order given (see ``_reports.Score``)."""
+    """One entry per candidate, in the order given (see ``_results.Score``)."""
 
     worst_change_utilization: np.ndarray  # float64
     worst_utilization: np.ndarray  # float64, the whole net after the candidate
@@ -28,6 +29,8 @@ class BatchScores:
     breaks_limit: np.ndarray  # bool
     cost: np.ndarray  # float64
     added_area_um2: np.ndarray  # float64, union area the candidate adds, over its layers
+    # From a server, when asked for: each candidate's full ScoreReply (protobuf), in order.
+    details: tuple[Any, ...] = ()
 
     def __len__(self) -> int:
         return len(self.cost)

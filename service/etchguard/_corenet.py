@@ -21,13 +21,14 @@ from ._budget import Budget, BudgetRatio, BudgetTerm
 from ._columns import BatchScores, CheckedCommon
 from ._costs import CostModel
 from ._geometry import Rect
+from ._kinds import Measure, RatioKind
 from ._nets import Pin, Shape
 from ._ratios import is_legal
-from ._reports import CheckResult, Headroom, NetReport, RatioChange, Score
+from ._results import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck
 
-MEASURES = ("area", "side")  # the core's Measure values, in order
-KINDS = ("partial", "cumulative")  # the core's Kind values, in order
+MEASURES = tuple(Measure)  # the core's Measure values, in order
+KINDS = tuple(RatioKind)  # the core's Kind values, in order
 
 
 @dataclass(frozen=True)
@@ -186,7 +187,7 @@ class CoreNet:
         binding = ""
         if step >= 0:
             what = f"{MEASURES[measure]} {self.compiled.oxides[oxide]}"
-            binding = (f"{name} partial {what}" if KINDS[kind] == "partial"
+            binding = (f"{name} partial {what}" if KINDS[kind] is RatioKind.PARTIAL
                        else f"{self.deck.layers[step].name} cumulative {what} of {self.pins[gate].name}")
         return Headroom(name, True, area, side, length, binding)
 

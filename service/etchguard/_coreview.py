@@ -16,7 +16,7 @@ from ._errors import InputError
 from ._geometry import Rect
 from ._nets import NetSpec, Pin, Shape
 from ._netview import Offence
-from ._reports import NetReport, Score
+from ._results import NetReport, Score
 from ._rules import Deck
 
 # Ids for shapes committed only for the length of one question (pin_diffusion): far

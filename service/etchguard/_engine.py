@@ -48,7 +48,7 @@ from ._obstacles import ObstacleIndex
 from ._obstacles import net_items as _net_items
 from ._obstacles import pin_items as _pin_items
 from ._obstacles import shape_key as _shape_key
-from ._reports import Headroom, NetReport, Score
+from ._results import Headroom, NetReport, Score
 from ._rules import Deck
 from ._rules import loads_deck as _loads_deck
 

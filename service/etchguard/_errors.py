@@ -6,6 +6,8 @@ map it to a status code and a ``BadRequest`` field violation without parsing tex
 
 from __future__ import annotations
 
+from typing import Any
+
 
 class EtchguardError(Exception):
     """Base of all errors raised on purpose by etchguard."""
@@ -79,3 +81,20 @@ class DeadlineExceededError(StoppedError):
 
 class CancelledError(StoppedError):
     """The caller cancelled the call (or went away) while its work was under way."""
+
+
+class ServiceError(EtchguardError):
+    """A call a server refused, as the clients raise it: ``code`` (the gRPC status code,
+    a ``grpc.StatusCode``), ``message`` and the ``field`` its details name ("" if none).
+    The server's own refusals are the classes above; this is how they arrive."""
+
+    def __init__(self, code: Any, message: str, field: str = "") -> None:
+        super().__init__(message, field)
+        self.args = (f"{code.name}: {message}",)
+        self.code = code
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+    def at_line(self, line: int | None) -> ServiceError:
+        return self  # a server's answer has no line of a local file

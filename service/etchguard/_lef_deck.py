@@ -159,7 +159,7 @@ def _rule(info: LefLayer, index: int, oxide: str, measure: Measure, antenna: Ant
         raise _error(at, keyword, f"a side-wall rule on {info.name}, which has no THICKNESS "
                      "(a silent zero would hide every side-wall violation)")
     factor, diffuse_only = antenna.factor.get(measure, (1.0, False))
-    return Rule(layer=info.name, step=index, oxide=oxide, measure=measure.value,
+    return Rule(layer=info.name, step=index, oxide=oxide, measure=measure,
                 partial_max=antenna.ratio.get(measure), cumulative_max=antenna.cum_ratio.get(measure),
                 area_factor=factor, factor_with_diode_only=diffuse_only,
                 diode_partial_max=antenna.diff_ratio.get(measure, ()),

@@ -13,24 +13,14 @@ when none is named) is the deck's default class ``thin``; OXIDE2..4 are ``oxide2
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from enum import Enum
 
+from ._kinds import LayerKind, Measure
 from ._rules import DEFAULT_OXIDE
 
 Table = tuple[tuple[float, float], ...]
 RectUm = tuple[float, float, float, float]
 
 OXIDES = {"OXIDE1": DEFAULT_OXIDE, "OXIDE2": "oxide2", "OXIDE3": "oxide3", "OXIDE4": "oxide4"}
-
-
-class LayerKind(Enum):
-    ROUTING = "routing"
-    CUT = "cut"
-
-
-class Measure(Enum):
-    AREA = "area"
-    SIDE = "side"
 
 
 @dataclass

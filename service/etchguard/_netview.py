@@ -19,8 +19,9 @@ from dataclasses import dataclass
 from typing import Protocol
 
 from ._geometry import Rect
+from ._kinds import Measure, RatioKind
 from ._nets import Pin, Shape
-from ._reports import NetReport, Score
+from ._results import NetReport, Score
 from ._rules import Deck
 
 
@@ -29,8 +30,8 @@ class Offence:
     """One failing check on one component at one step, with what the component holds."""
 
     step: int
-    measure: str  # "area" | "side"
-    kind: str  # "partial" | "cumulative"
+    measure: Measure
+    kind: RatioKind
     oxide: str
     ratio: float
     limit: float

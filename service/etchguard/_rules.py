@@ -22,12 +22,13 @@ from pathlib import Path
 from typing import Any, NoReturn
 
 from ._errors import DeckError
+from ._kinds import LayerKind, Measure
 from ._names import MAX_NAME_BYTES, byte_length, shown
 from ._textfile import read_text
 
-ROUTING = "routing"
-CUT = "cut"
-MEASURES = ("area", "side")
+ROUTING = LayerKind.ROUTING
+CUT = LayerKind.CUT
+MEASURES = tuple(Measure)
 DEFAULT_OXIDE = "thin"
 
 _PROCESS_KEYS = {"name", "dbu_per_micron", "cumulative_includes_cuts"}
@@ -52,7 +53,7 @@ class Layer:
 
     name: str
     index: int
-    kind: str
+    kind: LayerKind
     direction: str | None = None
     thickness_um: float | None = None
     wire_width: int | None = None
@@ -83,7 +84,7 @@ class Rule:
     layer: str
     step: int
     oxide: str
-    measure: str
+    measure: Measure
     partial_max: float | None
     cumulative_max: float | None
     area_factor: float = 1.0
@@ -135,7 +136,7 @@ class Deck:
         object.__setattr__(self, "layer_index", {l.name: l.index for l in self.layers})
         object.__setattr__(self, "_by_key", {(r.step, r.measure, r.oxide): r for r in self.rules})
 
-    def rule(self, step: int, measure: str, oxide: str) -> Rule | None:
+    def rule(self, step: int, measure: Measure, oxide: str) -> Rule | None:
         return self._by_key.get((step, measure, oxide))
 
     @property
@@ -146,7 +147,7 @@ class Deck:
         """Whether the step directly below feeds ``step``'s area sum, whatever its kind."""
         return self.cumulative_includes_cuts or self.layers[step].cumulative_plus_cut
 
-    def feeding_step(self, step: int, measure: str) -> int | None:
+    def feeding_step(self, step: int, measure: Measure) -> int | None:
         """The step p with CAR_step = PAR_step + CAR_p (the contract), None below the first.
 
         Side measure: the nearest lower routing step. Area measure: the step directly
@@ -154,7 +155,7 @@ class Deck:
         """
         if measure not in MEASURES:
             raise ValueError(f"unknown measure {measure!r} (one of {', '.join(MEASURES)})")
-        if measure == "side":
+        if measure == Measure.SIDE:
             wanted = ROUTING
         elif self.plus_cut(step):
             return step - 1 if step > 0 else None
@@ -316,7 +317,7 @@ def _layer(source: str, i: int, raw: Any, seen: set[str]) -> Layer:
     if layer_name in seen:
         r.fail("name", f"layer {layer_name!r} is listed twice")
     seen.add(layer_name)
-    kind = r.text("kind", choices=(ROUTING, CUT))
+    kind = LayerKind(r.text("kind", choices=tuple(LayerKind)))
     wrong = (_CUT_ONLY if kind == ROUTING else _ROUTING_ONLY) & set(raw)
     if wrong:
         r.fail(sorted(wrong)[0], f"does not apply to a {kind} layer")
@@ -360,8 +361,8 @@ def _rule(source: str, i: int, raw: Any, layers: list[Layer], index: dict[str, i
     if layer_name not in index:
         r.fail("layer", f"unknown layer {shown(layer_name)} (deck has {', '.join(index)})")
     step = index[layer_name]
-    measure = r.text("measure", default="area", choices=MEASURES)
-    if measure == "side":
+    measure = Measure(r.text("measure", default=Measure.AREA, choices=MEASURES))
+    if measure == Measure.SIDE:
         if layers[step].kind == CUT:
             r.fail("measure", f"a side-wall rule needs a routing layer; {layer_name} is a cut layer")
         if layers[step].thickness_um is None:

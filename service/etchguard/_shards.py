@@ -49,6 +49,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ._errors import InputError
+from ._textfile import write_whole
 
 FNV64_OFFSET_BASIS = 0xCBF29CE484222325
 FNV64_PRIME = 0x100000001B3
@@ -126,9 +127,7 @@ class Topology:
     def write(self, path: Path) -> None:
         """Write the canonical text (through a temporary file, so a reader never
         sees half a topology)."""
-        tmp = path.with_name(path.name + ".tmp")
-        tmp.write_text(self.canonical_text(), encoding="utf-8")
-        tmp.replace(path)
+        write_whole(path, self.canonical_text())
 
 
 def parse_topology(text: str, source: str = "<topology>") -> Topology:

@@ -26,7 +26,7 @@ import itertools
 import queue
 import threading
 from collections.abc import Iterable, Iterator, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -37,6 +37,8 @@ from grpc_health.v1 import health_pb2, health_pb2_grpc
 from grpc_status import rpc_status
 
 from ._budgetlocal import LocalBudget, LocalScore
+from ._columns import BatchScores
+from ._errors import ServiceError
 from ._geometry import square
 from .v1 import etchguard_pb2 as pb
 from .v1 import etchguard_pb2_grpc as pb_grpc
@@ -47,40 +49,33 @@ __all__ = ["BatchScores", "Client", "LocalBudget", "LocalScore", "ServiceError",
 RectLike = Sequence[int]
 
 
-class ServiceError(Exception):
-    """A call the server refused: ``code`` (grpc.StatusCode), ``message``, ``field``."""
+def service_error(exc: grpc.RpcError) -> ServiceError:
+    """The ``ServiceError`` of a failed call: its code, message and the field its
+    ``BadRequest`` (else ``ErrorInfo``) detail names."""
+    code = exc.code() if hasattr(exc, "code") else grpc.StatusCode.UNKNOWN
+    message = exc.details() if hasattr(exc, "details") else str(exc)
+    field_name = ""
+    try:
+        status = rpc_status.from_call(exc) if hasattr(exc, "trailing_metadata") else None
+    except ValueError:  # details disagreeing with the code (a transport-level failure)
+        status = None
+    if status is not None:
+        for detail in status.details:
+            if detail.Is(error_details_pb2.BadRequest.DESCRIPTOR):
+                bad = error_details_pb2.BadRequest()
+                detail.Unpack(bad)
+                if bad.field_violations:
+                    field_name = bad.field_violations[0].field
+            elif detail.Is(error_details_pb2.ErrorInfo.DESCRIPTOR) and not field_name:
+                info = error_details_pb2.ErrorInfo()
+                detail.Unpack(info)
+                field_name = info.metadata.get("field", "")
+    return ServiceError(code, message or "", field_name)
 
-    def __init__(self, code: grpc.StatusCode, message: str, field: str = "") -> None:
-        super().__init__(f"{code.name}: {message}")
-        self.code = code
-        self.message = message
-        self.field = field
 
-    @classmethod
-    def from_rpc_error(cls, exc: grpc.RpcError) -> ServiceError:
-        code = exc.code() if hasattr(exc, "code") else grpc.StatusCode.UNKNOWN
-        message = exc.details() if hasattr(exc, "details") else str(exc)
-        field_name = ""
-        try:
-            status = rpc_status.from_call(exc) if hasattr(exc, "trailing_metadata") else None
-        except ValueError:  # details disagreeing with the code (a transport-level failure)
-            status = None
-        if status is not None:
-            for detail in status.details:
-                if detail.Is(error_details_pb2.BadRequest.DESCRIPTOR):
-                    bad = error_details_pb2.BadRequest()
-                    detail.Unpack(bad)
-                    if bad.field_violations:
-                        field_name = bad.field_violations[0].field
-                elif detail.Is(error_details_pb2.ErrorInfo.DESCRIPTOR) and not field_name:
-                    info = error_details_pb2.ErrorInfo()
-                    detail.Unpack(info)
-                    field_name = info.metadata.get("field", "")
-        return cls(code, message or "", field_name)
-
-    @classmethod
-    def from_session(cls, error: pb.SessionError) -> ServiceError:
-        return cls(_CODES.get(error.code, grpc.StatusCode.UNKNOWN), error.message, error.field)
+def session_error(error: pb.SessionError) -> ServiceError:
+    """The ``ServiceError`` of a request a session stream refused."""
+    return ServiceError(_CODES.get(error.code, grpc.StatusCode.UNKNOWN), error.message, error.field)
 
 
 _CODES = {c.value[0]: c for c in grpc.StatusCode}
@@ -218,25 +213,13 @@ def candidate_columns(rects: Any, layers: str | Sequence[str] | np.ndarray,
     return cols
 
 
-@dataclass(frozen=True)
-class BatchScores:
-    """Scores of a batch, one array entry per candidate in request order."""
-
-    cost: np.ndarray  # router cost
-    worst_change_utilization: np.ndarray
-    worst_utilization: np.ndarray  # the whole net after the candidate
-    legal: np.ndarray  # bool: the whole net legal after
-    breaks_limit: np.ndarray  # bool: a changed ratio over its limit
-    added_area_um2: np.ndarray  # um^2 over all layers
-    details: list[pb.ScoreReply] = field(default_factory=list)  # when asked for
-
-    @classmethod
-    def from_reply(cls, reply: pb.ScoreBatchReply) -> BatchScores:
-        return cls(np.array(reply.cost, dtype=np.float64),
-                   np.array(reply.worst_change_utilization, dtype=np.float64),
-                   np.array(reply.worst_utilization, dtype=np.float64),
-                   np.array(reply.legal, dtype=bool), np.array(reply.breaks_limit, dtype=bool),
-                   np.array(reply.added_area_um2, dtype=np.float64), list(reply.details))
+def batch_scores(reply: pb.ScoreBatchReply) -> BatchScores:
+    """A ScoreBatchReply as the engine's ``BatchScores`` (numpy columns, ``details`` kept)."""
+    return BatchScores(worst_change_utilization=np.array(reply.worst_change_utilization, dtype=np.float64),
+                       worst_utilization=np.array(reply.worst_utilization, dtype=np.float64),
+                       legal=np.array(reply.legal, dtype=bool), breaks_limit=np.array(reply.breaks_limit, dtype=bool),
+                       cost=np.array(reply.cost, dtype=np.float64),
+                       added_area_um2=np.array(reply.added_area_um2, dtype=np.float64), details=tuple(reply.details))
 
     def __len__(self) -> int:
         return len(self.cost)
@@ -316,7 +299,7 @@ class Client:
         try:
             return method(request, timeout=self.timeout)
         except grpc.RpcError as exc:
-            raise ServiceError.from_rpc_error(exc) from None
+            raise service_error(exc) from None
 
     def wait_ready(self, timeout: float = 10.0) -> None:
         """Block until the channel is connected (grpc.FutureTimeoutError otherwise)."""
@@ -396,7 +379,7 @@ class Client:
 
     def score_columns(self, net: str, columns: pb.CandidateColumns, details: bool = False) -> BatchScores:
         request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
-        return BatchScores.from_reply(self._call(self.stub.ScoreBatch, request))
+        return batch_scores(self._call(self.stub.ScoreBatch, request))
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self._call(self.stub.Headroom, pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))
@@ -428,7 +411,7 @@ class Client:
         try:
             yield from self.stub.CheckAll(pb.CheckAllRequest(violations_only=violations_only))
         except grpc.RpcError as exc:
-            raise ServiceError.from_rpc_error(exc) from None
+            raise service_error(exc) from None
 
     def stats(self) -> pb.Stats:
         return self._call(self.stub.GetStats, pb.GetStatsRequest())
@@ -532,7 +515,7 @@ class Session:
         try:
             reply = next(self._replies)
         except grpc.RpcError as exc:
-            raise ServiceError.from_rpc_error(exc) from None
+            raise service_error(exc) from None
         self._pending -= 1
         return reply
 
@@ -544,7 +527,7 @@ class Session:
             self.send(op, message)
             reply = self.receive()
         if reply.HasField("error"):
-            raise ServiceError.from_session(reply.error)
+            raise session_error(reply.error)
         return getattr(reply, op)
 
     def open_net(self, net: str, pins: Sequence[pb.Pin], shapes: Sequence[pb.Shape] = ()) -> list[int]:
@@ -566,7 +549,7 @@ class Session:
                     common: Sequence[tuple[Any, Any]] = (), common_part: Any = None) -> BatchScores:
         columns = candidate_columns(rects, layers, counts, common=common, common_part=common_part)
         request = pb.ScoreBatchRequest(net=net, candidates=columns, details=details)
-        return BatchScores.from_reply(self.ask("score_batch", request))
+        return batch_scores(self.ask("score_batch", request))
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self.ask("headroom", pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))

@@ -39,7 +39,7 @@ from typing import Any
 import grpc
 
 from ._shards import Topology, load_topology, shard_of
-from .client import BatchScores, Client, ServiceError, Session, advise_request, candidate_columns, pb
+from .client import Client, ServiceError, Session, advise_request, batch_scores, candidate_columns, pb
 from .v1 import shards_pb2 as spb
 from .v1 import shards_pb2_grpc as spb_grpc
 
@@ -242,7 +242,7 @@ class ShardedSession:
                     details: bool = False):
         request = pb.ScoreBatchRequest(net=net, candidates=candidate_columns(rects, layers, counts),
                                        details=details)
-        return BatchScores.from_reply(self.ask(net, "score_batch", request))
+        return batch_scores(self.ask(net, "score_batch", request))
 
     def headroom(self, net: str, layer: str, x: int, y: int) -> pb.HeadroomReply:
         return self.ask(net, "headroom", pb.HeadroomRequest(net=net, layer=layer, x=x, y=y))

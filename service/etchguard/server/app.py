@@ -33,6 +33,7 @@ from .. import CostModel, DeckError, Engine, EtchguardError, Limits, __version__
 from .._changelog import ChangeLogError
 from .._jobs import JOB_NAME, Jobs
 from .._journal import DIR_MODE, Journal, JournalError, SyncPolicy
+from .._textfile import write_whole
 from ..v1 import etchguard_pb2 as pb
 from ..v1 import etchguard_pb2_grpc as pb_grpc
 from . import security
@@ -61,6 +62,7 @@ class ServerConfig:
     """Everything ``etchguard serve`` can be told; defaults are a safe local server."""
 
     listen: list[str] = field(default_factory=lambda: ["127.0.0.1:50051"])  # host:port | unix:/path
+    address_file: Path | None = None  # written with the bound addresses once listening
     rules: Path | None = None  # rule deck loaded at start; None: wait for LoadDeck
     metrics_port: int = 0  # Prometheus endpoint port; 0 = off
     metrics_address: str = "127.0.0.1"  # another than loopback needs metrics_beyond_loopback
@@ -317,6 +319,8 @@ class EtchguardServer:
             deck = self.engine.deck.name
         except EtchguardError:
             deck = None
+        if self.config.address_file is not None:
+            write_whole(self.config.address_file, "".join(a + "\n" for a in self.addresses))
         log.info("listening", extra={"fields": {
             "addresses": self.addresses, "metrics_port": self.metrics_port, "deck": deck,
             "pid": os.getpid(), "version": __version__, "workers": self.config.workers,

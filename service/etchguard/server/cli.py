@@ -5,7 +5,9 @@ from __future__ import annotations
 import argparse
 import logging
 import tempfile
+from dataclasses import fields
 from pathlib import Path
+from typing import Any
 
 from .._engine import Engine
 from .._errors import EtchguardError, InputError
@@ -32,6 +34,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--listen", action="append", metavar="ADDR",
                         help="address to serve on: HOST:PORT (port 0 picks a free one) or "
                              "unix:/path; repeat for several (default 127.0.0.1:50051)")
+    parser.add_argument("--address-file", type=Path, metavar="FILE",
+                        help="once listening, write the addresses as bound (port 0 resolved), one "
+                             "a line, to FILE (replaced whole: a reader never sees half)")
     parser.add_argument("--metrics-port", type=int, default=_DEFAULTS.metrics_port, metavar="N",
                         help="port of the Prometheus metrics endpoint; 0 = off (default)")
     parser.add_argument("--metrics-address", default=_DEFAULTS.metrics_address, metavar="HOST",
@@ -82,7 +87,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--connection-idle-s", type=float, default=_DEFAULTS.connection_idle_s,
                         metavar="SECONDS", help="a connection without any call this long is "
                         "closed (default %(default)s)")
-    parser.add_argument("--grace", type=float, default=_DEFAULTS.grace_s, metavar="SECONDS",
+    parser.add_argument("--grace", dest="grace_s", type=float, default=_DEFAULTS.grace_s, metavar="SECONDS",
                         help="on SIGTERM/SIGINT, time calls in flight get to finish "
                              "(default %(default)s)")
     parser.add_argument("--log-level", default=_DEFAULTS.log_level,
@@ -143,25 +148,35 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def config_from_args(args: argparse.Namespace) -> ServerConfig:
-    return ServerConfig(
-        listen=args.listen or list(_DEFAULTS.listen), rules=args.rules,
-        metrics_port=args.metrics_port, metrics_address=args.metrics_address,
-        metrics_beyond_loopback=args.metrics_beyond_loopback,
-        max_message_bytes=args.max_message_bytes, max_nets=args.max_nets,
-        max_shapes_per_net=args.max_shapes_per_net, max_pins_per_net=args.max_pins_per_net,
-        max_candidates=args.max_candidates, max_advice_scores=args.max_advice_scores,
-        max_jobs=args.max_jobs, workers=args.workers,
-        max_sessions=args.max_sessions, session_idle_s=args.session_idle_s,
-        connection_idle_s=args.connection_idle_s,
-        grace_s=args.grace, log_level=args.log_level,
-        state_dir=args.state_dir, sync=args.sync, sync_interval_ms=args.sync_interval_ms,
-        snapshot_every=args.snapshot_every,
-        keep_journal_before_damage=args.keep_journal_before_damage,
-        rejudge_held_nets=args.rejudge_held_nets, tls_cert=args.tls_cert, tls_key=args.tls_key,
-        tls_client_ca=args.tls_client_ca, token_file=args.token_file,
-        cost_knee=args.cost_knee, cost_exponent=args.cost_exponent, cost_scale=args.cost_scale,
-        cost_violation=args.cost_violation, topology=args.topology, shard_index=args.shard_index,
-        peer_tls_roots=args.peer_tls_roots)
+    """The settings the options give: each option is stored under its setting's name
+    (``dest``), so a new setting needs its field and its option, nothing in between."""
+    given = vars(args)
+    config = ServerConfig(**{f.name: given[f.name] for f in fields(ServerConfig) if f.name in given})
+    config.listen = args.listen or list(_DEFAULTS.listen)
+    return config
+
+
+def options_of(config: ServerConfig, **override: Any) -> list[str]:
+    """The ``etchguard serve`` options that give ``config`` (with ``override``'s fields
+    in place of its own; a None value leaves the option out): the inverse of
+    ``config_from_args``, so a supervisor hands each shard every setting it was given."""
+    parser = argparse.ArgumentParser(add_help=False)
+    add_arguments(parser)
+    values = {f.name: getattr(config, f.name) for f in fields(ServerConfig)} | override
+    out: list[str] = []
+    for action in parser._actions:
+        value = values.get(action.dest)
+        if value is None or value is False or not action.option_strings:
+            continue
+        flag = action.option_strings[0]
+        if isinstance(action, argparse._StoreTrueAction):
+            out.append(flag)
+        elif isinstance(value, list):
+            for item in value:
+                out += [flag, str(item)]
+        else:
+            out += [flag, repr(value) if isinstance(value, float) else str(value)]
+    return out
 
 
 def run(args: argparse.Namespace) -> int:

@@ -20,13 +20,18 @@ import numpy as np
 from .. import EtchguardError, InputError, LimitExceededError, Limits, make_pin, make_shape, resolve_layer, run_shapes
 from .._columns import CommonShapes
 from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
+from .._kinds import LayerKind, LimitedBy, Measure, OptionStatus, RatioKind
 from .._names import check_length
 from .._nets import checked_layer_range
 from ..v1 import etchguard_pb2 as pb
 
-_MEASURE = {"area": pb.MEASURE_AREA, "side": pb.MEASURE_SIDE}
-_KIND = {"partial": pb.RATIO_KIND_PARTIAL, "cumulative": pb.RATIO_KIND_CUMULATIVE}
-_LAYER_KIND = {"routing": pb.LAYER_KIND_ROUTING, "cut": pb.LAYER_KIND_CUT}
+_MEASURE = {Measure.AREA: pb.MEASURE_AREA, Measure.SIDE: pb.MEASURE_SIDE}
+_KIND = {RatioKind.PARTIAL: pb.RATIO_KIND_PARTIAL, RatioKind.CUMULATIVE: pb.RATIO_KIND_CUMULATIVE}
+_LAYER_KIND = {LayerKind.ROUTING: pb.LAYER_KIND_ROUTING, LayerKind.CUT: pb.LAYER_KIND_CUT}
+_STATUS = {OptionStatus.LEGAL: pb.OPTION_STATUS_LEGAL, OptionStatus.ILLEGAL: pb.OPTION_STATUS_ILLEGAL,
+           OptionStatus.BLOCKED: pb.OPTION_STATUS_BLOCKED}
+_LIMITED_BY = {LimitedBy.NONE: pb.LIMITED_BY_UNSPECIFIED, LimitedBy.LIMIT: pb.LIMITED_BY_LIMIT,
+               LimitedBy.HOP_ROOM: pb.LIMITED_BY_HOP_ROOM, LimitedBy.RUN: pb.LIMITED_BY_RUN}
 _DIRECTION = {"horizontal": pb.DIRECTION_HORIZONTAL, "vertical": pb.DIRECTION_VERTICAL, None: 0}
 # fields run_shapes / run_rect name, as paths under the Shape message
 _RUN_FIELDS = {"layer": "layer", "run": "run", "width": "run.width", "extension": "run.extension"}
@@ -407,7 +412,7 @@ def advice_into(out, advice, layer_names) -> None:
     if advice.far_end is not None:
         out.far_end.x, out.far_end.y = advice.far_end
     for i, option in enumerate(advice.options):
-        msg = out.options.add(layer=option.layer, preferred=option.preferred, status=option.status,
+        msg = out.options.add(layer=option.layer, preferred=option.preferred, status=_STATUS[option.status],
                               legal=option.legal, blocked=option.blocked, cuts=option.cuts)
         _placed_into(msg.shapes, option.shapes)
         score_into(msg.score, option.score)
@@ -418,7 +423,8 @@ def advice_into(out, advice, layer_names) -> None:
     if j is not None:
         msg = out.jumper
         msg.applicable, msg.reason = j.applicable, j.reason
-        msg.run_length_dbu, msg.hop_room_dbu, msg.limited_by = j.run_length, j.hop_room, j.limited_by
+        msg.run_length_dbu, msg.hop_room_dbu, msg.limited_by = (j.run_length, j.hop_room,
+                                                                 _LIMITED_BY[j.limited_by])
         if j.kept_length is not None:
             msg.kept_length_dbu = j.kept_length
         if j.hop_point is not None:
@@ -442,4 +448,5 @@ def advice_into(out, advice, layer_names) -> None:
             msg.worst_utilization = d.worst_utilization
     out.explanation.extend(advice.explanation)
     out.exact_scores = advice.exact_scores
+    out.warnings.extend(advice.warnings)
 

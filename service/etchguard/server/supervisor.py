@@ -111,25 +111,12 @@ def plan(config: ServerConfig, shards: int, topology_out: Path | None) -> Plan:
 
 def shard_command(config: ServerConfig, shard: ShardPlan, topology_path: Path) -> list[str]:
     """The ``etchguard serve`` command line of one shard: the supervisor's options."""
-    c = config
-    cmd = [sys.executable, "-m", "etchguard.cli", "serve", "--listen", shard.listen,
-           "--topology", str(topology_path), "--shard-index", str(shard.index),
-           "--metrics-port", str(shard.metrics_port), "--metrics-address", "127.0.0.1",
-           "--max-message-bytes", str(c.max_message_bytes), "--max-nets", str(c.max_nets),
-           "--max-shapes-per-net", str(c.max_shapes_per_net),
-           "--max-pins-per-net", str(c.max_pins_per_net), "--max-candidates", str(c.max_candidates),
-           "--workers", str(c.workers), "--grace", repr(c.grace_s), "--log-level", c.log_level,
-           "--sync", c.sync, "--sync-interval-ms", repr(c.sync_interval_ms),
-           "--snapshot-every", str(c.snapshot_every),
-           "--cost-knee", repr(c.cost_knee), "--cost-exponent", repr(c.cost_exponent),
-           "--cost-scale", repr(c.cost_scale), "--cost-violation", repr(c.cost_violation)]
-    for flag, value in (("--rules", c.rules), ("--state-dir", shard.state_dir),
-                        ("--tls-cert", c.tls_cert), ("--tls-key", c.tls_key),
-                        ("--tls-client-ca", c.tls_client_ca), ("--token-file", c.token_file),
-                        ("--peer-tls-roots", c.peer_tls_roots)):
-        if value is not None:
-            cmd += [flag, str(value)]
-    return cmd
+    from .cli import options_of  # cli starts the supervisor: imported when it runs
+
+    return [sys.executable, "-m", "etchguard.cli", "serve", *options_of(
+        config, listen=[shard.listen], topology=topology_path, shard_index=shard.index,
+        metrics_port=shard.metrics_port, metrics_address="127.0.0.1", metrics_beyond_loopback=False,
+        state_dir=shard.state_dir, address_file=None)]
 
 
 @dataclass

@@ -30,6 +30,20 @@ class RatioKind(int, metaclass=_enum_type_wrapper.EnumTypeWrapper):
     RATIO_KIND_UNSPECIFIED: _ClassVar[RatioKind]
     RATIO_KIND_PARTIAL: _ClassVar[RatioKind]
     RATIO_KIND_CUMULATIVE: _ClassVar[RatioKind]
+
+class OptionStatus(int, metaclass=_enum_type_wrapper.EnumTypeWrapper):
+    __slots__ = ()
+    OPTION_STATUS_UNSPECIFIED: _ClassVar[OptionStatus]
+    OPTION_STATUS_LEGAL: _ClassVar[OptionStatus]
+    OPTION_STATUS_ILLEGAL: _ClassVar[OptionStatus]
+    OPTION_STATUS_BLOCKED: _ClassVar[OptionStatus]
+
+class LimitedBy(int, metaclass=_enum_type_wrapper.EnumTypeWrapper):
+    __slots__ = ()
+    LIMITED_BY_UNSPECIFIED: _ClassVar[LimitedBy]
+    LIMITED_BY_LIMIT: _ClassVar[LimitedBy]
+    LIMITED_BY_HOP_ROOM: _ClassVar[LimitedBy]
+    LIMITED_BY_RUN: _ClassVar[LimitedBy]
 LAYER_KIND_UNSPECIFIED: LayerKind
 LAYER_KIND_ROUTING: LayerKind
 LAYER_KIND_CUT: LayerKind
@@ -42,6 +56,14 @@ MEASURE_SIDE: Measure
 RATIO_KIND_UNSPECIFIED: RatioKind
 RATIO_KIND_PARTIAL: RatioKind
 RATIO_KIND_CUMULATIVE: RatioKind
+OPTION_STATUS_UNSPECIFIED: OptionStatus
+OPTION_STATUS_LEGAL: OptionStatus
+OPTION_STATUS_ILLEGAL: OptionStatus
+OPTION_STATUS_BLOCKED: OptionStatus
+LIMITED_BY_UNSPECIFIED: LimitedBy
+LIMITED_BY_LIMIT: LimitedBy
+LIMITED_BY_HOP_ROOM: LimitedBy
+LIMITED_BY_RUN: LimitedBy
 
 class Rect(_message.Message):
     __slots__ = ("xlo", "ylo", "xhi", "yhi")
@@ -662,14 +684,14 @@ class LayerOption(_message.Message):
     CONFLICTS_FIELD_NUMBER: _ClassVar[int]
     layer: str
     preferred: bool
-    status: str
+    status: OptionStatus
     legal: bool
     blocked: bool
     shapes: _containers.RepeatedCompositeFieldContainer[PlacedShape]
     cuts: int
     score: ScoreReply
     conflicts: _containers.RepeatedCompositeFieldContainer[Conflict]
-    def __init__(self, layer: _Optional[str] = ..., preferred: _Optional[bool] = ..., status: _Optional[str] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., cuts: _Optional[int] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
+    def __init__(self, layer: _Optional[str] = ..., preferred: _Optional[bool] = ..., status: _Optional[_Union[OptionStatus, str]] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., cuts: _Optional[int] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
 
 class JumperAdvice(_message.Message):
     __slots__ = ("applicable", "reason", "run_length_dbu", "kept_length_dbu", "hop_room_dbu", "limited_by", "hop_point", "hop_layer", "shapes", "score", "legal", "blocked", "conflicts")
@@ -691,7 +713,7 @@ class JumperAdvice(_message.Message):
     run_length_dbu: int
     kept_length_dbu: int
     hop_room_dbu: int
-    limited_by: str
+    limited_by: LimitedBy
     hop_point: Point
     hop_layer: str
     shapes: _containers.RepeatedCompositeFieldContainer[PlacedShape]
@@ -699,7 +721,7 @@ class JumperAdvice(_message.Message):
     legal: bool
     blocked: bool
     conflicts: _containers.RepeatedCompositeFieldContainer[Conflict]
-    def __init__(self, applicable: _Optional[bool] = ..., reason: _Optional[str] = ..., run_length_dbu: _Optional[int] = ..., kept_length_dbu: _Optional[int] = ..., hop_room_dbu: _Optional[int] = ..., limited_by: _Optional[str] = ..., hop_point: _Optional[_Union[Point, _Mapping]] = ..., hop_layer: _Optional[str] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
+    def __init__(self, applicable: _Optional[bool] = ..., reason: _Optional[str] = ..., run_length_dbu: _Optional[int] = ..., kept_length_dbu: _Optional[int] = ..., hop_room_dbu: _Optional[int] = ..., limited_by: _Optional[_Union[LimitedBy, str]] = ..., hop_point: _Optional[_Union[Point, _Mapping]] = ..., hop_layer: _Optional[str] = ..., shapes: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal: _Optional[bool] = ..., blocked: _Optional[bool] = ..., conflicts: _Optional[_Iterable[_Union[Conflict, _Mapping]]] = ...) -> None: ...
 
 class DiodeAdvice(_message.Message):
     __slots__ = ("found", "reason", "gate", "layer", "rects", "diff_area_um2", "worst_utilization")
@@ -720,7 +742,7 @@ class DiodeAdvice(_message.Message):
     def __init__(self, found: _Optional[bool] = ..., reason: _Optional[str] = ..., gate: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., diff_area_um2: _Optional[float] = ..., worst_utilization: _Optional[float] = ...) -> None: ...
 
 class AdviseReply(_message.Message):
-    __slots__ = ("score", "legal_as_is", "found", "rect", "width", "join_end", "far_end", "options", "best_option", "jumper", "diode", "explanation", "exact_scores")
+    __slots__ = ("score", "legal_as_is", "found", "rect", "width", "join_end", "far_end", "options", "best_option", "jumper", "diode", "explanation", "exact_scores", "warnings")
     SCORE_FIELD_NUMBER: _ClassVar[int]
     LEGAL_AS_IS_FIELD_NUMBER: _ClassVar[int]
     FOUND_FIELD_NUMBER: _ClassVar[int]
@@ -734,6 +756,7 @@ class AdviseReply(_message.Message):
     DIODE_FIELD_NUMBER: _ClassVar[int]
     EXPLANATION_FIELD_NUMBER: _ClassVar[int]
     EXACT_SCORES_FIELD_NUMBER: _ClassVar[int]
+    WARNINGS_FIELD_NUMBER: _ClassVar[int]
     score: ScoreReply
     legal_as_is: bool
     found: bool
@@ -747,7 +770,8 @@ class AdviseReply(_message.Message):
     diode: DiodeAdvice
     explanation: _containers.RepeatedScalarFieldContainer[str]
     exact_scores: int
-    def __init__(self, score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal_as_is: _Optional[bool] = ..., found: _Optional[bool] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., width: _Optional[int] = ..., join_end: _Optional[_Union[Point, _Mapping]] = ..., far_end: _Optional[_Union[Point, _Mapping]] = ..., options: _Optional[_Iterable[_Union[LayerOption, _Mapping]]] = ..., best_option: _Optional[int] = ..., jumper: _Optional[_Union[JumperAdvice, _Mapping]] = ..., diode: _Optional[_Union[DiodeAdvice, _Mapping]] = ..., explanation: _Optional[_Iterable[str]] = ..., exact_scores: _Optional[int] = ...) -> None: ...
+    warnings: _containers.RepeatedScalarFieldContainer[str]
+    def __init__(self, score: _Optional[_Union[ScoreReply, _Mapping]] = ..., legal_as_is: _Optional[bool] = ..., found: _Optional[bool] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., width: _Optional[int] = ..., join_end: _Optional[_Union[Point, _Mapping]] = ..., far_end: _Optional[_Union[Point, _Mapping]] = ..., options: _Optional[_Iterable[_Union[LayerOption, _Mapping]]] = ..., best_option: _Optional[int] = ..., jumper: _Optional[_Union[JumperAdvice, _Mapping]] = ..., diode: _Optional[_Union[DiodeAdvice, _Mapping]] = ..., explanation: _Optional[_Iterable[str]] = ..., exact_scores: _Optional[int] = ..., warnings: _Optional[_Iterable[str]] = ...) -> None: ...
 
 class GetStatsRequest(_message.Message):
     __slots__ = ()

@@ -6,7 +6,7 @@ check of a net file, or a running server. Without a spec a net still counts in t
 summary, the tables and the histograms; it only gets no drawing.
 
 Page content:
-* summary: nets, legal and violating counts, worst utilization, deck name;
+* summary: nets, legal and illegal counts, worst utilization, deck name;
 * worst nets: the nets with the highest utilization, with their binding check;
 * per-layer histograms: for every layer with checks, each net's worst utilization
   on that layer (one value per net that has a gate-connected component there);
@@ -33,10 +33,11 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TextIO
 
+from ._kinds import Verdict
 from ._nets import NetSpec
 from ._netview import NetView
 from ._ratios import is_legal
-from ._reports import CheckResult, NetReport
+from ._results import CHECK_FIELDS, CheckResult, NetReport, json_number
 from ._rules import Deck
 
 CAUTION = ("etchguard advises; the foundry's rule deck and sign-off verification decide. "
@@ -58,20 +59,12 @@ class NetRecord:
 
 
 @dataclass(frozen=True)
-class Offender:
-    """A component over a limit: the shapes and pins that form it at the check's step."""
+class Offender(CheckResult):
+    """A component over a limit: the check's figures for it (``gate``: the gate pin with
+    the worst ratio in it) and the shapes and pins that form it at the check's step."""
 
-    layer: str
-    step: int
-    measure: str
-    kind: str
-    oxide: str
-    ratio: float
-    limit: float
-    utilization: float
-    gate: str  # the gate pin with the worst ratio in the component
-    shape_indices: tuple[int, ...]  # into NetSpec.shapes
-    pin_indices: tuple[int, ...]  # into NetSpec.pins
+    shape_indices: tuple[int, ...] = ()  # into NetSpec.shapes
+    pin_indices: tuple[int, ...] = ()  # into NetSpec.pins
 
 
 @dataclass(frozen=True)
@@ -79,9 +72,9 @@ class Summary:
     deck: str
     nets: int
     legal: int
-    violating: int
+    illegal: int
     checks: int
-    violating_checks: int
+    illegal_checks: int
     worst_utilization: float
     worst_net: str  # "" when no net has a check
 
@@ -112,8 +105,8 @@ class OffenderFinder:
             if check is not None and (o.step, o.measure, o.kind, o.oxide) != (
                     check.step, check.measure, check.kind, check.oxide):
                 continue
-            out.append(Offender(layers[o.step].name, o.step, o.measure, o.kind, o.oxide, o.ratio,
-                                o.limit, o.utilization, spec.pins[o.gate].name, o.shapes, o.pins))
+            out.append(Offender(layers[o.step].name, o.step, o.measure, o.kind, o.oxide, o.ratio, o.limit,
+                                o.utilization, False, spec.pins[o.gate].name, o.shapes, o.pins))
         out.sort(key=lambda o: (o.step, -o.utilization, o.measure, o.kind, o.oxide,
                                 o.shape_indices, o.pin_indices))
         return out
@@ -148,9 +141,9 @@ def summarize(records: Sequence[NetRecord], deck_name: str) -> Summary:
         deck=deck_name,
         nets=len(reports),
         legal=sum(r.legal for r in reports),
-        violating=sum(not r.legal for r in reports),
+        illegal=sum(not r.legal for r in reports),
         checks=sum(len(r.checks) for r in reports),
-        violating_checks=sum(not c.legal for r in reports for c in r.checks),
+        illegal_checks=sum(not c.legal for r in reports for c in r.checks),
         worst_utilization=worst.worst_utilization if worst is not None else 0.0,
         worst_net=worst.name if has_checks and worst is not None else "",
     )
@@ -175,20 +168,9 @@ def layer_utilizations(records: Sequence[NetRecord], layer_order: Sequence[str])
     return dict(sorted(per_layer.items(), key=lambda kv: (rank.get(kv[0], len(rank)), kv[0])))
 
 
-def _finite(value: float) -> float | None:
-    """JSON has no infinity: a limit of 0 gives one; it is written as null."""
-    return value if math.isfinite(value) else None
-
-
-def check_dict(c: CheckResult) -> dict[str, Any]:
-    return {"layer": c.layer, "step": c.step, "measure": c.measure, "kind": c.kind,
-            "oxide": c.oxide, "ratio": _finite(c.ratio), "limit": _finite(c.limit),
-            "utilization": _finite(c.utilization), "legal": c.legal, "gate": c.gate}
-
-
 def offender_dict(o: Offender, spec: NetSpec) -> dict[str, Any]:
     return {"layer": o.layer, "measure": o.measure, "kind": o.kind, "oxide": o.oxide,
-            "utilization": _finite(o.utilization), "gate": o.gate,
+            "utilization": json_number(o.utilization), "gate": o.gate,
             "shapes": list(o.shape_indices), "pins": [spec.pins[p].name for p in o.pin_indices]}
 
 
@@ -202,21 +184,18 @@ def report_json(records: Sequence[NetRecord], deck_name: str,
     nets = []
     for record in records:
         r = record.report
-        entry: dict[str, Any] = {"name": r.name, "legal": r.legal,
-                                 "worst_utilization": _finite(r.worst_utilization),
-                                 "checks": [check_dict(c) for c in r.checks]}
+        entry: dict[str, Any] = r.as_dict()
         if finder is not None and record.spec is not None and not r.legal:
             entry["offenders"] = [offender_dict(o, record.spec) for o in finder.find(record.spec)]
         nets.append(entry)
     return {"deck": deck_name,
-            "summary": {"nets": s.nets, "legal": s.legal, "violating": s.violating,
-                        "checks": s.checks, "violating_checks": s.violating_checks,
-                        "worst_utilization": _finite(s.worst_utilization), "worst_net": s.worst_net},
+            "summary": {"nets": s.nets, "legal": s.legal, "illegal": s.illegal,
+                        "checks": s.checks, "illegal_checks": s.illegal_checks,
+                        "worst_utilization": json_number(s.worst_utilization), "worst_net": s.worst_net},
             "nets": nets}
 
 
-CSV_COLUMNS = ("net", "net_legal", "net_worst_utilization", "layer", "step", "measure", "kind",
-               "oxide", "ratio", "limit", "utilization", "legal", "gate")
+CSV_COLUMNS = ("net", "net_legal", "net_worst_utilization", *CHECK_FIELDS)
 
 
 def write_csv(records: Sequence[NetRecord], out: TextIO) -> None:
@@ -230,8 +209,12 @@ def write_csv(records: Sequence[NetRecord], out: TextIO) -> None:
         if not r.checks:
             writer.writerow(head + [""] * (len(CSV_COLUMNS) - len(head)))
         for c in r.checks:
-            writer.writerow(head + [c.layer, c.step, c.measure, c.kind, c.oxide, repr(c.ratio),
-                                    repr(c.limit), repr(c.utilization), int(c.legal), c.gate])
+            writer.writerow(head + [_csv_value(getattr(c, name)) for name in CHECK_FIELDS])
+
+
+def _csv_value(value: Any) -> Any:
+    """Floats as repr (round-trips exactly), booleans as 1/0."""
+    return repr(value) if isinstance(value, float) else int(value) if isinstance(value, bool) else value
 
 
 # -- SVG figures ----------------------------------------------------------------------
@@ -296,10 +279,23 @@ def histogram_svg(layer: str, values: Sequence[float], prefix: str) -> str:
         ax.set_xlabel("utilization (ratio / limit)")
         ax.set_ylabel("nets (log scale)")
         over = sum(not is_legal(v) for v in values)
-        ax.set_title(f"{layer}: {len(values)} nets, {over} over", fontsize=9)
+        ax.set_title(f"{layer}: {len(values)} nets, {over} {Verdict.ILLEGAL}", fontsize=9)
         ax.spines[["top", "right"]].set_visible(False)
         fig.subplots_adjust(left=0.19, right=0.94, bottom=0.2, top=0.88)
         return svg_of(fig, prefix, "eg-fig eg-hist", f"histogram of utilization on {layer}")
+
+
+_LEGEND = ("net shapes", "over a limit at this layer's step", "part of a component over a limit higher up",
+           "cuts to the layer above", "gate pin", "driver / diffusion pin")
+
+
+def _legend_width(ncol: int) -> float:
+    """Inches the drawing's legend takes in ``ncol`` columns (filled column by column,
+    as matplotlib does), at its 6.5 pt: ~0.055 in a character (a generous mean for the
+    sans-serif face), 0.45 in for the handle and the gap of each column."""
+    per_col = math.ceil(len(_LEGEND) / ncol)
+    columns = [_LEGEND[k:k + per_col] for k in range(0, len(_LEGEND), per_col)]
+    return sum(0.055 * max(len(label) for label in col) + 0.45 for col in columns)
 
 
 def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], prefix: str) -> str:
@@ -360,10 +356,15 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
         pw, ph = 2.5, 2.5 * height_um / width_um
     else:
         pw, ph = 2.3 * width_um / height_um, 2.3
-    left, right, gap_x, top_m, gap_y, legend = 0.5, 0.15, 0.3, 0.42, 0.7, 0.45  # inches
+    left, right, gap_x, top_m, gap_y = 0.5, 0.15, 0.3, 0.42, 0.7  # inches
     cols = max(1, min(len(panels), int((11.0 - left - right + gap_x) // (pw + gap_x))))
     rows = max(1, math.ceil(len(panels) / cols))
     fig_w = left + right + cols * pw + (cols - 1) * gap_x
+    # the legend's columns as many as the figure is wide enough for (a net on one or two
+    # layers makes a narrow figure), its rows given the room they take
+    ncol = next(n for n in (3, 2, 1) if _legend_width(n) <= fig_w - 0.1 or n == 1)
+    fig_w = max(fig_w, _legend_width(ncol) + 0.1)
+    legend = max(0.45, 0.16 * math.ceil(len(_LEGEND) / ncol) + 0.1)
     fig_h = top_m + rows * ph + (rows - 1) * gap_y + legend + 0.35
     with mpl.rc_context({"font.size": 7, "font.family": "sans-serif"}):
         fig = Figure(figsize=(fig_w, fig_h))
@@ -425,14 +426,12 @@ def net_drawing_svg(deck: Deck, spec: NetSpec, offenders: Sequence[Offender], pr
                 ax.set_ylabel("y (µm)", fontsize=6)
             else:  # every panel has the same y range: its neighbour on the left labels it
                 ax.tick_params(labelleft=False)
-        handles = [Patch(color=C_WIRE, label="net shapes"),
-                   Patch(color=C_OVER, label="over a limit at this layer's step"),
-                   Patch(facecolor="none", edgecolor=C_OVER, linestyle="--",
-                         label="part of a component over a limit higher up"),
-                   Patch(color=C_CUT, label="cuts to the layer above"),
-                   Line2D([], [], marker="^", color=C_GATE, linestyle="none", label="gate pin"),
-                   Line2D([], [], marker="s", color=C_DRIVER, linestyle="none", label="driver / diffusion pin")]
-        fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=6.5, frameon=False)
+        handles = [Patch(color=C_WIRE, label=_LEGEND[0]), Patch(color=C_OVER, label=_LEGEND[1]),
+                   Patch(facecolor="none", edgecolor=C_OVER, linestyle="--", label=_LEGEND[2]),
+                   Patch(color=C_CUT, label=_LEGEND[3]),
+                   Line2D([], [], marker="^", color=C_GATE, linestyle="none", label=_LEGEND[4]),
+                   Line2D([], [], marker="s", color=C_DRIVER, linestyle="none", label=_LEGEND[5])]
+        fig.legend(handles=handles, loc="lower center", ncol=ncol, fontsize=6.5, frameon=False)
         return svg_of(fig, prefix, "eg-fig eg-net", f"shapes of net {spec.name} per layer")
 
 
@@ -503,7 +502,7 @@ def _meter(u: float) -> str:
 
 
 def _check_cells(c: CheckResult) -> str:
-    state = '<span class="ok">ok</span>' if c.legal else '<span class="over">over</span>'
+    state = f'<span class="{"ok" if c.legal else "over"}">{Verdict.of(c.legal)}</span>'
     return (f"<td>{_e(c.layer)}</td><td>{_e(c.kind)}</td><td>{_e(c.measure)}</td><td>{_e(c.oxide)}</td>"
             f'<td class="num">{_fmt(c.ratio)}</td><td class="num">{_fmt(c.limit)}</td>'
             f'<td class="num">{_pct(c.utilization)}{_meter(c.utilization)}</td><td>{state}</td>'
@@ -535,15 +534,15 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     add('<section id="summary"><h2>Summary</h2><div class="cards">')
     add(f'<div class="card"><div class="v" data-key="nets">{summary.nets}</div><div class="k">nets</div></div>')
     add(f'<div class="card good"><div class="v" data-key="legal">{summary.legal}</div><div class="k">legal</div></div>')
-    add(f'<div class="card {"bad" if summary.violating else "good"}"><div class="v" data-key="violating">'
-        f'{summary.violating}</div><div class="k">violating</div></div>')
+    add(f'<div class="card {"bad" if summary.illegal else "good"}"><div class="v" data-key="illegal">'
+        f'{summary.illegal}</div><div class="k">illegal</div></div>')
     worst_net = f'<div class="w">{_e(summary.worst_net)}</div>' if summary.worst_net else ""
     add(f'<div class="card {"bad" if summary.worst_utilization > 1 else ""}"><div class="v" '
         f'data-key="worst">{worst_text}</div><div class="k">worst utilization</div>'
         f'{worst_net}</div>')
     add(f'<div class="card"><div class="v" data-key="deck">{_e(deck_name)}</div><div class="k">rule deck</div></div>')
     add(f'<div class="card"><div class="v">{summary.checks}</div><div class="k">checks · '
-        f'{summary.violating_checks} over</div></div>')
+        f'{summary.illegal_checks} illegal</div></div>')
     add("</div></section>\n")
 
     # worst nets
@@ -581,7 +580,7 @@ def render_html(records: Sequence[NetRecord], deck_name: str, *, deck: Deck | No
     # violating nets
     violating = [r for r in records if not r.report.legal]
     violating.sort(key=lambda r: -r.report.worst_utilization)
-    add(f'<section id="violations"><h2>Violating nets ({len(violating)})</h2>')
+    add(f'<section id="violations"><h2>Illegal nets ({len(violating)})</h2>')
     if not violating:
         add('<p class="note">Every net is within its limits.</p>')
     finder = OffenderFinder(deck) if deck is not None else None

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
+
+from ._kinds import Measure, RatioKind
 
 
 def json_number(value: float) -> float | str:
@@ -23,8 +25,8 @@ class CheckResult:
 
     layer: str
     step: int
-    measure: str  # "area" | "side"
-    kind: str  # "partial" | "cumulative"
+    measure: Measure
+    kind: RatioKind
     oxide: str
     ratio: float
     limit: float
@@ -42,17 +44,19 @@ class NetReport:
 
     def as_dict(self) -> dict[str, object]:
         """The report as JSON values, with the field names of the API's ``NetReport``."""
-        return {
-            "net": self.name,
-            "legal": self.legal,
-            "worst_utilization": json_number(self.worst_utilization),
-            "checks": [
-                {"layer": c.layer, "step": c.step, "measure": c.measure, "kind": c.kind,
-                 "oxide": c.oxide, "ratio": json_number(c.ratio), "limit": json_number(c.limit),
-                 "utilization": json_number(c.utilization), "legal": c.legal, "gate": c.gate}
-                for c in self.checks
-            ],
-        }
+        return {"net": self.name, "legal": self.legal, "worst_utilization": json_number(self.worst_utilization),
+                "checks": [check_dict(c) for c in self.checks]}
+
+
+# The API's ``Check`` fields, in its order: every output of a check (check --json,
+# report JSON and CSV) writes these names.
+CHECK_FIELDS = tuple(f.name for f in fields(CheckResult))
+
+
+def check_dict(c: CheckResult) -> dict[str, object]:
+    """One check as JSON values (the one serializer of a check record)."""
+    return {name: json_number(v) if isinstance(v, float) else v
+            for name, v in ((name, getattr(c, name)) for name in CHECK_FIELDS)}
 
 
 @dataclass(frozen=True)
@@ -61,8 +65,8 @@ class RatioChange:
 
     layer: str
     step: int
-    measure: str
-    kind: str
+    measure: Measure
+    kind: RatioKind
     oxide: str
     gate: str  # the gate pin with the worst ratio after
     before_ratio: float | None  # None when no gate-connected component was there
