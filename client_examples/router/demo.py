@@ -113,6 +113,9 @@ def details(s: Stats) -> str:
         out += (f"; ScoreBatch candidates {sum(m.batch_sizes)} in {len(m.batch_sizes)} calls; budgets "
                 f"{m.budgets}; priced locally from budgets {m.local}")
     out += f"; hops {s.hops}, jumpers {s.jumpers}, diodes {s.diodes}; search expansions {s.expanded}"
+    if s.sinks_screened:
+        out += (f"; sink paths searched unpriced and scored whole {s.sinks_screened}, of them searched "
+                f"again with prices {s.sinks_repriced}")
     if s.plain_searches:
         out += f"; scored searches out of budget {s.plain_searches}"
     return out
