@@ -12,10 +12,12 @@ deck's default via (pads and cut). Two modes:
 
 * blind: antenna ratios are not looked at while routing; the service's check after
   routing tells how many nets break a limit;
-* aware: the search scores its gate-side candidates through ScoreBatch, and a path
-  that would still break a limit is repaired from the service's advice before it is
-  committed: a free, legal layer hop first, else a jumper (part of the run kept, the
-  rest hopped), else the suggested diode at the gate.
+* aware: each sink's path is searched as in the blind mode and scored whole; only a
+  sink whose path would break a limit is searched again with prices (gate-side
+  candidates from the service's budgets, joins onto the tree through ScoreBatch), and
+  a path that would still break a limit is repaired from the service's advice before
+  it is committed: a free, legal layer hop first, else a jumper (part of the run kept,
+  the rest hopped), else the suggested diode at the gate.
 """
 
 from __future__ import annotations
@@ -133,6 +135,9 @@ class Stats:
     added_vias: int = 0  # cut shapes the repairs added (hops and jumpers)
     expanded: int = 0  # search nodes expanded
     seconds: float = 0.0
+    # CPU seconds of the router's own process over the same span: other jobs on a shared
+    # machine stretch wall time much more than this (the server's work is not in it)
+    cpu_seconds: float = 0.0
     meter: Meter = field(default_factory=Meter)  # service calls of the run
     # (net, why) a repair left a net illegal; at the end only nets still illegal
     unrepaired: list[tuple[str, str]] = field(default_factory=list)
@@ -270,7 +275,7 @@ class Router:
     # -- routing ---------------------------------------------------------------------------
 
     def route_all(self) -> Stats:
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         self.open_all()
         order = sorted(self.nets.values(), key=lambda r: _half_perimeter(r.data))
         queue = deque(r.data.name for r in order)
@@ -293,6 +298,7 @@ class Router:
                 self.stats.ripups += 1
                 queue.append(v)
         self.stats.seconds = time.perf_counter() - start
+        self.stats.cpu_seconds = time.process_time() - cpu
         if self.repair_after:
             self.repair_after_routing()
         return self.stats
@@ -529,7 +535,7 @@ class Router:
         a violated layer (see _run_to_repair), ask where it may go, apply a free, legal
         layer hop, else a free, legal jumper, else the advised diode at the gate (else
         put the run back); check again, up to ``max_tries`` runs per net."""
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         mine = {self.service_name(n): n for n in self.nets}
         t0 = time.perf_counter()
         bad = [rep.net for rep in self.client.check_all(violations_only=True) if rep.net in mine]
@@ -549,6 +555,7 @@ class Router:
             if not report.legal:
                 self.stats.unrepaired.append((route.data.name, "still breaks a limit after the repairs"))
         self.stats.seconds += time.perf_counter() - start
+        self.stats.cpu_seconds += time.process_time() - cpu
 
     def _run_to_repair(self, route: NetRoute, report: pb.NetReport, tried: set[Rect]) -> Committed | None:
         """A run not tried yet for the failing checks, lowest step first, each on its
