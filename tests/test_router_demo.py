@@ -2,6 +2,7 @@
 against a real ``etchguard serve`` on loopback.
 
 What is checked, and against what outside the router's own bookkeeping:
+* the aware mode prices only the sinks whose plain path would break a limit;
 * every net is connected in both modes: all pins in one component at the top step, by
   the engine's net state built here from the router's final shapes (verify.py);
 * the shapes the router believes it committed are the shapes the server holds: the
@@ -42,17 +43,19 @@ def runs():
     try:
         block = load_block(SMALL)
         # "repair": aware, but the search scores nothing: only the advice repairs
-        # "tight": aware with a scored-search budget too small for most sinks, so the
-        # fallback (searched again without scores, then the advice repair) is at work
+        # "tight": aware, every sink's search priced (not screened) with a budget too
+        # small for most sinks, so the fallback (searched again without scores, then
+        # the advice repair) is at work
         # "fixed": blind routing, then the repair from advice after routing
         tight = Costs(scored_per_node=0.0, scored_floor=3000)
-        for mode, aware, scores, costs, after in (
-                (False, False, False, Costs(), False), (True, True, True, Costs(), False),
-                ("repair", True, False, Costs(), False), ("tight", True, True, tight, False),
-                ("fixed", False, False, Costs(), True)):
+        for mode, aware, scores, costs, after, screen in (
+                (False, False, False, Costs(), False, True), (True, True, True, Costs(), False, True),
+                ("repair", True, False, Costs(), False, True), ("tight", True, True, tight, False, False),
+                ("fixed", False, False, Costs(), True, True)):
             with server.client(timeout=120.0) as client:
                 before = client.stats()
-                router = Router(client, block, aware, costs=costs, search_scores=scores, repair_after=after)
+                router = Router(client, block, aware, costs=costs, search_scores=scores, repair_after=after,
+                                screen=screen)
                 router.route_all()
                 served = client.stats()  # the server's own counters over this mode's routing
                 stats = router.finish(DEMO_DECK)
@@ -153,7 +156,23 @@ def test_figures_are_recounted_from_shapes(runs, aware):
                  - min(s.rect[2] - s.rect[0], s.rect[3] - s.rect[1])
                  for r in router.nets.values() for s in r.shapes if s.run_um > 0) / 1000.0
     assert stats.wirelength_um == pytest.approx(length)
-    assert stats.seconds > 0
+    assert stats.seconds > 0 and stats.cpu_seconds > 0
+
+
+def test_screened_aware_mode_prices_only_paths_that_break_a_limit(runs):
+    """The aware mode searches each sink without prices, scores the path whole, and
+    searches again with prices only the sinks whose path would break a limit: on this
+    block (where blind routing leaves violations) some but not all sinks; every path
+    committed was scored (one Score per screened sink, plus one per priced path)."""
+    router, aware, _, _ = runs[True]
+    sinks = sum(len(n.sinks) for n in router.block.nets)
+    assert aware.sinks_screened >= sinks  # rip-ups route some sinks again
+    assert 0 < aware.sinks_repriced < aware.sinks_screened
+    m = aware.meter
+    assert m.requests.get("score", 0) >= aware.sinks_screened
+    # the not-screened run priced every sink's search, so it priced far more candidates
+    _, tight, _, _ = runs["tight"]
+    assert tight.sinks_screened == 0 and tight.scored > aware.scored
 
 
 def test_advice_repairs_what_the_search_did_not_avoid(runs):

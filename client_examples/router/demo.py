@@ -54,7 +54,7 @@ def run_mode(address: str, block_path: Path, mode: str, deck: Path = DECK, verbo
 COLUMNS = (("mode", "{}"), ("nets routed", "{}"), ("wirelength um", "{:.1f}"), ("vias", "{}"),
            ("nets still illegal", "{}"), ("repairs", "{}"), ("added vias", "{}"), ("diode um2", "{:.4f}"),
            ("rip-ups", "{}"), ("service calls", "{}"), ("cand/call p50", "{:g}"), ("service s", "{:.1f}"),
-           ("client build s", "{:.1f}"), ("time s", "{:.1f}"))
+           ("client build s", "{:.1f}"), ("time s", "{:.1f}"), ("router cpu s", "{:.1f}"))
 
 
 def table(rows: list[Stats]) -> str:
@@ -63,7 +63,7 @@ def table(rows: list[Stats]) -> str:
         m = s.meter
         values = (s.mode, f"{s.routed}/{s.nets}", s.wirelength_um, s.vias, s.violations, s.repairs,
                   s.added_vias, s.diode_um2, s.ripups, m.calls, m.batch_p50, m.seconds, m.build_seconds,
-                  s.seconds)
+                  s.seconds, s.cpu_seconds)
         cells.append([fmt.format(v) for (_, fmt), v in zip(COLUMNS, values)])
     widths = [max(len(row[i]) for row in cells) for i in range(len(COLUMNS))]
     lines = ["  ".join(c.rjust(w) if i else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths)))
@@ -81,6 +81,9 @@ def details(s: Stats) -> str:
         out += (f"; ScoreBatch candidates {sum(m.batch_sizes)} in {len(m.batch_sizes)} calls; budgets "
                 f"{m.budgets}; priced locally from budgets {m.local}")
     out += f"; hops {s.hops}, jumpers {s.jumpers}, diodes {s.diodes}; search expansions {s.expanded}"
+    if s.sinks_screened:
+        out += (f"; sink paths searched unpriced and scored whole {s.sinks_screened}, of them searched "
+                f"again with prices {s.sinks_repriced}")
     if s.plain_searches:
         out += f"; scored searches out of budget {s.plain_searches}"
     return out
@@ -106,9 +109,11 @@ def main(argv: list[str] | None = None) -> int:
     for s in rows:
         print(details(s))
     blind, aware, fixed = rows
-    print(f"ratios to blind: aware time {aware.seconds / blind.seconds:.2f}x, blind + repair time "
-          f"{fixed.seconds / blind.seconds:.2f}x; aware wirelength {aware.wirelength_um / blind.wirelength_um:.3f}x, "
-          f"vias {aware.vias / blind.vias:.3f}x")
+    print(f"ratios to blind: aware time {aware.seconds / blind.seconds:.2f}x (router cpu "
+          f"{aware.cpu_seconds / blind.cpu_seconds:.2f}x), blind + repair time {fixed.seconds / blind.seconds:.2f}x "
+          f"(router cpu {fixed.cpu_seconds / blind.cpu_seconds:.2f}x); aware wirelength "
+          f"{aware.wirelength_um / blind.wirelength_um:.3f}x, vias {aware.vias / blind.vias:.3f}x")
+    print(f"load average (1, 5, 15 min) at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     for s in rows:
         for name, why in s.unrepaired:
             print(f"  {s.mode}: {name}: {why}")

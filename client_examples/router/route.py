@@ -12,10 +12,12 @@ deck's default via (pads and cut). Two modes:
 
 * blind: antenna ratios are not looked at while routing; the service's check after
   routing tells how many nets break a limit;
-* aware: the search scores its gate-side candidates through ScoreBatch, and a path
-  that would still break a limit is repaired from the service's advice before it is
-  committed: a free, legal layer hop first, else a jumper (part of the run kept, the
-  rest hopped), else the suggested diode at the gate.
+* aware: each sink's path is searched as in the blind mode and scored whole; only a
+  sink whose path would break a limit is searched again with prices (gate-side
+  candidates from the service's budgets, joins onto the tree through ScoreBatch), and
+  a path that would still break a limit is repaired from the service's advice before
+  it is committed: a free, legal layer hop first, else a jumper (part of the run kept,
+  the rest hopped), else the suggested diode at the gate.
 """
 
 from __future__ import annotations
@@ -122,12 +124,20 @@ class Stats:
     diode_um2: float = 0.0  # diodes placed while routing (aware mode)
     ripups: int = 0
     # aware mode: sink searches whose scored search ran out of budget and were searched
-    # again without scores (their paths then go through the advice repair)
+    # again without scores, or (screened) kept the plain path found first; those paths
+    # then go through the advice repair
     plain_searches: int = 0
     scored: int = 0  # candidates priced while searching (from budgets or by the service)
+    # screened aware mode: sink paths searched without prices and scored whole, and of
+    # those, the sinks searched again with prices (their plain path broke a limit)
+    sinks_screened: int = 0
+    sinks_repriced: int = 0
     added_vias: int = 0  # cut shapes the repairs added (hops and jumpers)
     expanded: int = 0  # search nodes expanded
     seconds: float = 0.0
+    # CPU seconds of the router's own process over the same span: other jobs on a shared
+    # machine stretch wall time much more than this (the server's work is not in it)
+    cpu_seconds: float = 0.0
     meter: Meter = field(default_factory=Meter)  # service calls of the run
     # (net, why) a repair left a net illegal; at the end only nets still illegal
     unrepaired: list[tuple[str, str]] = field(default_factory=list)
@@ -142,11 +152,15 @@ class Stats:
 class Router:
     def __init__(self, client: Client, block: Block, aware: bool, costs: Costs = Costs(),
                  max_ripups: int = 4, log=None, search_scores: bool = True,
-                 repair_after: bool = False, deck_path: Path = DECK_PATH) -> None:
+                 repair_after: bool = False, deck_path: Path = DECK_PATH, screen: bool = True) -> None:
         self.client = client
         # aware mode without scores in the search: only the advice repairs (tests use it
         # to see the repairs at work on their own)
         self.search_scores = search_scores
+        # aware mode: each sink is searched first without prices and its path scored
+        # whole; only a path that would break a limit is searched again with prices.
+        # False: every sink's search is priced.
+        self.screen = screen
         self.deck = client.deck
         self.block = block
         self.aware = aware
@@ -261,7 +275,7 @@ class Router:
     # -- routing ---------------------------------------------------------------------------
 
     def route_all(self) -> Stats:
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         self.open_all()
         order = sorted(self.nets.values(), key=lambda r: _half_perimeter(r.data))
         queue = deque(r.data.name for r in order)
@@ -284,6 +298,7 @@ class Router:
                 self.stats.ripups += 1
                 queue.append(v)
         self.stats.seconds = time.perf_counter() - start
+        self.stats.cpu_seconds = time.process_time() - cpu
         if self.repair_after:
             self.repair_after_routing()
         return self.stats
@@ -317,30 +332,65 @@ class Router:
         for sink in sinks:
             k = g.layer_of_name[sink.layer]
             sources = {n for r in sink.rects for n in g.nodes_inside(k, r)}
-            pricer = self.pricer_for(data.name) if self.aware and self.search_scores else None
-            found = self._search(route, sources, pricer, soft)
+            priced = self.aware and self.search_scores
+            found = self._search(route, sources, None if self.screen else self._pricer(route, priced), soft)
             if not found.found:
                 self.rip_up(route)
                 return False
-            if self.aware:
-                self.commit_aware(route, list(found.items))
+            items = list(found.items)
+            if not self.aware:
+                self.commit(route, [x for item in items for x in self.item_rects(item)])
+            elif not (priced and self.screen):
+                self.commit_aware(route, items)
             else:
-                self.commit(route, [x for item in found.items for x in self.item_rects(item)])
+                self._commit_screened(route, sources, items, soft)
             route.tree.update(sources)
         route.routed = True
         return True
 
+    def _pricer(self, route: NetRoute, priced: bool) -> ServicePricer | None:
+        return self.pricer_for(route.data.name) if priced else None
+
+    def _commit_screened(self, route: NetRoute, sources: set[Node], items: list[Item], soft: bool) -> None:
+        """The screened aware mode: the sink's path was searched without prices, as the
+        blind router does; it is scored whole (the score every aware commit takes) and
+        committed when legal. Only a path that would break a limit has its sink searched
+        again with prices, and that path goes through the advice repair if needed."""
+        self.stats.sinks_screened += 1
+        verdict = self.score_path(route, items)
+        if verdict is None or verdict.legal:
+            self.commit_aware(route, items, verdict)
+            return
+        self.stats.sinks_repriced += 1
+        expanded = self.stats.expanded
+        found = self._search(route, sources, self._pricer(route, True), soft, plain_path=True)
+        self.log(f"{route.data.name}: plain path breaks a limit, priced search: "
+                 f"{self.stats.expanded - expanded} expansions")
+        if found.found:
+            self.commit_aware(route, list(found.items))
+        else:  # out of its budget: the plain path goes through the advice repair
+            self.commit_aware(route, items, verdict)
+
+    def score_path(self, route: NetRoute, items: Sequence[Item]) -> pb.ScoreReply | None:
+        """The service's score of a whole path (None for an empty one)."""
+        rects = [x for item in items for x in self.item_rects(item)]
+        if not rects:
+            return None
+        return self.session.score(self.service_name(route.data.name), [rect(n, *r) for n, r in rects])
+
     def _search(self, route: NetRoute, sources: set[Node], pricer: ServicePricer | None,
-                soft: bool) -> SearchResult:
+                soft: bool, plain_path: bool = False) -> SearchResult:
         """One sink's search. Scored, within a budget that follows the net's span; if
-        that runs out, the same search without scores (the advice repairs the path)."""
+        that runs out, the same search without scores (the advice repairs the path),
+        unless the caller holds that path already (``plain_path``: the search's result
+        then says it ran out)."""
         g, c, name = self.grid, self.costs, route.data.name
         if pricer is None:
             found = search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
             self.stats.expanded += found.expanded
             return found
         budget = expansion_budget(g, sources, route.tree, c.scored_margin_um, c.scored_per_node,
-                                  c.scored_floor, c.max_expansions)
+                                  c.scored_floor, c.repriced_ceiling if plain_path else c.max_expansions)
         found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget)
         pricer.drain()
         self.stats.scored += found.scored
@@ -351,17 +401,22 @@ class Router:
         paid = ("no path to the tree reached" if found.best_join_antenna is None else
                 f"the cheapest path reached pays {found.best_join_antenna:.0f} um of antenna cost")
         self.log(f"{name}: scored search out of budget ({found.expanded} of {budget} expansions, "
-                 f"{paid}); searched again without scores")
+                 f"{paid}); {'its plain path is kept' if plain_path else 'searched again without scores'}")
+        if plain_path:
+            return found
         return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
 
     # -- antenna-aware commit: check the path, repair from advice --------------------------------
 
-    def commit_aware(self, route: NetRoute, items: list[Item]) -> None:
+    def commit_aware(self, route: NetRoute, items: list[Item], verdict: pb.ScoreReply | None = None) -> None:
+        """Commit a path scored whole (``verdict``, asked here when not given), repaired
+        from advice when it would break a limit."""
         net = self.service_name(route.data.name)
         rects = [x for item in items for x in self.item_rects(item)]
         if not rects:
             return
-        verdict = self.session.score(net, [rect(n, *r) for n, r in rects])
+        if verdict is None:
+            verdict = self.session.score(net, [rect(n, *r) for n, r in rects])
         if verdict.legal:
             self.commit(route, rects)
             return
@@ -386,25 +441,26 @@ class Router:
             self._note_unrepaired(route, "still breaks a limit after the repair")
 
     def _apply_advice(self, route: NetRoute, layer: str, line: tuple[int, int, int, int],
-                      as_is: list[tuple[str, Rect]], rest: list[tuple[str, Rect]]) -> str:
+                      as_is: list[tuple[str, Rect]], rest: list[tuple[str, Rect]],
+                      skip: frozenset[str] = frozenset()) -> str:
         """Ask where a run (not committed; its joining end is) may go and commit the
         first free, legal answer with ``rest``: a layer hop, else a jumper, else the
         run as it is with the advised diode; else the run as it is. The hop and jumper
         are asked first and the diode only when neither serves (the diode search is the
-        dearest answer). Returns what was used."""
+        dearest answer); answers in ``skip`` are passed over. Returns what was used."""
         net = self.service_name(route.data.name)
         advice = self._advise(route, layer, line, ("hop", "jumper"))
         if advice is not None and advice.legal_as_is:
             self.commit(route, as_is + rest)
             return "legal as is"
-        if advice is not None and advice.HasField("best_option"):
+        if advice is not None and advice.HasField("best_option") and "hop" not in skip:
             option = advice.options[advice.best_option]
             self.commit(route, [(s.layer, _rect(s.rect)) for s in option.shapes] + rest)
             self.stats.hops += 1
             self.stats.added_vias += option.cuts
             self.log(f"{route.data.name}: {layer} run hops to {option.layer}")
             return "hop"
-        if (advice is not None and advice.HasField("jumper") and advice.jumper.legal
+        if (advice is not None and "jumper" not in skip and advice.HasField("jumper") and advice.jumper.legal
                 and not advice.jumper.blocked and advice.jumper.hop_layer):
             self.commit(route, [(s.layer, _rect(s.rect)) for s in advice.jumper.shapes] + rest)
             self.stats.jumpers += 1
@@ -473,13 +529,13 @@ class Router:
 
     # -- blind routing's usual follow-up: repair after routing, from advice ---------------------
 
-    def repair_after_routing(self, max_tries: int = 3) -> None:
+    def repair_after_routing(self, max_tries: int = 4) -> None:
         """Check every net once routing is done and repair each violating one from the
-        service's advice, as a flow without antenna awareness would: take out the
-        longest run on the lowest violated routing layer, ask where it may go, apply a
-        free, legal layer hop, else a free, legal jumper, else the advised diode at the
-        gate (else put the run back); check again, up to ``max_tries`` runs per net."""
-        start = time.perf_counter()
+        service's advice, as a flow without antenna awareness would: take out a run on
+        a violated layer (see _run_to_repair), ask where it may go, apply a free, legal
+        layer hop, else a free, legal jumper, else the advised diode at the gate (else
+        put the run back); check again, up to ``max_tries`` runs per net."""
+        start, cpu = time.perf_counter(), time.process_time()
         mine = {self.service_name(n): n for n in self.nets}
         t0 = time.perf_counter()
         bad = [rep.net for rep in self.client.check_all(violations_only=True) if rep.net in mine]
@@ -499,39 +555,53 @@ class Router:
             if not report.legal:
                 self.stats.unrepaired.append((route.data.name, "still breaks a limit after the repairs"))
         self.stats.seconds += time.perf_counter() - start
+        self.stats.cpu_seconds += time.process_time() - cpu
 
     def _run_to_repair(self, route: NetRoute, report: pb.NetReport, tried: set[Rect]) -> Committed | None:
-        """The longest run not tried yet on the lowest routing layer with a failing
-        check (for a failing cut layer, the routing layer below it)."""
+        """A run not tried yet for the failing checks, lowest step first, each on its
+        routing layer (for a failing cut layer, the routing layer below it): the longest
+        run in the failing gate's component at that step (the metal the ratio counts),
+        else the longest run on that layer. A check whose runs were all tried passes
+        the turn to the next one."""
+        from verify import gate_component
+
         names = [layer.name for layer in self.deck.layers]
         for check in sorted((c for c in report.checks if not c.legal), key=lambda c: c.step):
             layer = check.layer if check.layer not in self.cut_names else names[check.step - 1]
             runs = [s for s in route.shapes if s.layer == layer and s.run_um > 0 and s.rect not in tried]
-            if runs:
-                return max(runs, key=lambda s: s.run_um)
+            if not runs:
+                continue
+            counted = {id(route.shapes[i]) for i in gate_component(self.deck_path, route, check.gate, check.step)}
+            own = [s for s in runs if id(s) in counted]
+            return max(own or runs, key=lambda s: s.run_um)
         return None
 
     def _repair_run(self, route: NetRoute, run: Committed) -> str:
         """Take the run out and apply the advice on it (see _apply_advice). A routed
         run may carry branches along it, not only at its ends, and a hop or jumper
-        reconnects its ends only: when the net is no longer connected, the repair is
-        undone (checked here on the router's shapes, no call) and the run stays."""
+        reconnects its ends only: when the net is no longer connected (checked here on
+        the router's shapes, no call), that answer is undone and the next one tried (a
+        jumper keeps the part of the run at its joining end; the diode leaves the run
+        where it is)."""
         from verify import connected_nets
 
-        self.take_out(route, [run])
-        kept = len(route.shapes)
         line = _centre_line(run.rect, self.width[run.layer])
-        used = self._apply_advice(route, run.layer, line, [(run.layer, run.rect)], [])
-        if used in ("hop", "jumper") and not connected_nets(self.deck_path, [route]):
+        skip: set[str] = set()
+        while True:
+            self.take_out(route, [run])
+            kept = len(route.shapes)
+            used = self._apply_advice(route, run.layer, line, [(run.layer, run.rect)], [], frozenset(skip))
+            if used not in ("hop", "jumper") or connected_nets(self.deck_path, [route]):
+                return used
             added = route.shapes[kept:]
             self.take_out(route, added)
             self.commit(route, [(run.layer, run.rect)])
+            run = route.shapes[-1]
             self.stats.hops -= used == "hop"
             self.stats.jumpers -= used == "jumper"
             self.stats.added_vias -= sum(1 for s in added if s.layer in self.cut_names)
             self.log(f"{route.data.name}: {used} undone, it left a branch of the net apart")
-            return "undone"
-        return used
+            skip.add(used)
 
     def take_out(self, route: NetRoute, shapes: Sequence[Committed]) -> None:
         """Remove committed shapes from the service, the occupancy and the route."""
