@@ -18,8 +18,10 @@ Sources:
 
 Interpretation points (the project's documented reading of the contract):
 * a pin's ``cell_area`` on layer s counts at step s if the pin exists at s;
-* measure "side" has no ``cell_area`` contribution; a routing layer without
-  ``thickness_um`` adds 0 to a side sum;
+* measure "side" has no ``cell_area`` contribution; its in-cell counterpart is the
+  pin's ``cell_side_area`` on layer s (a side-wall area as given, LEF's
+  ANTENNAPARTIALMETALSIDEAREA), added to perimeter x thickness; a routing layer
+  without ``thickness_um`` adds 0 for its routed perimeter;
 * the cumulative ratio is the contract's chain, CAR_s = PAR_s + CAR_p with p the step
   that feeds s: for measure "side" the nearest lower routing step (so a cut step never
   enters a side sum, whatever the flags); for "area" the step directly below when
@@ -181,6 +183,7 @@ class RefPin:
     gate: dict[str, float]
     diff: float
     cell: dict[str, float]  # layer name -> um^2
+    cell_side: dict[str, float]  # layer name -> side-wall um^2
 
     @property
     def total_gate(self) -> float:
@@ -194,7 +197,8 @@ def _pins(deck: RefDeck, net: dict[str, Any]) -> list[RefPin]:
         gate = {DEFAULT_OXIDE: float(raw)} if isinstance(raw, (int, float)) else {k: float(v) for k, v in raw.items()}
         out.append(RefPin(p["name"], deck.index[p["layer"]], tuple(tuple(r) for r in p["rects"]),
                           {k: v for k, v in gate.items() if v > 0}, float(p.get("diff_area", 0.0)),
-                          {k: float(v) for k, v in p.get("cell_area", {}).items()}))
+                          {k: float(v) for k, v in p.get("cell_area", {}).items()},
+                          {k: float(v) for k, v in p.get("cell_side_area", {}).items()}))
     return out
 
 
@@ -210,6 +214,7 @@ class RefComponent:
     union_area_um2: float
     union_perimeter_um: float
     cell_um2: float
+    cell_side_um2: float
     gate_pins: list[int] = field(default_factory=list)
 
     def conductor(self, deck: RefDeck, measure: str) -> float:
@@ -219,7 +224,7 @@ class RefComponent:
         layer = deck.layers[self.step]
         if layer.kind == "cut":
             return 0.0
-        return self.union_perimeter_um * layer.thickness_um
+        return self.union_perimeter_um * layer.thickness_um + self.cell_side_um2
 
 
 @dataclass(frozen=True)
@@ -309,6 +314,7 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
                 union_area_um2=(union.area * scale * scale) if union is not None else 0.0,
                 union_perimeter_um=(union.length * scale) if union is not None else 0.0,
                 cell_um2=sum(pins[p].cell.get(deck.layers[s].name, 0.0) for p in pin_ids),
+                cell_side_um2=sum(pins[p].cell_side.get(deck.layers[s].name, 0.0) for p in pin_ids),
                 gate_pins=[p for p in pin_ids if pins[p].total_gate > 0]))
         components.append(at_step)
 

@@ -148,6 +148,8 @@ def nets_as_lef_def(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: di
             for layer, area in pin.get("cell_area", {}).items():
                 kind = "CUT" if layer.startswith("V") else "METAL"
                 lef.append(f"    ANTENNAPARTIAL{kind}AREA {area!r} LAYER {layer} ;")
+            for layer, area in pin.get("cell_side_area", {}).items():
+                lef.append(f"    ANTENNAPARTIALMETALSIDEAREA {area!r} LAYER {layer} ;")
             lef += ["    PORT", f"      LAYER {pin['layer']} ;"]
             lef += [f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"
                     for r in pin["rects"]]

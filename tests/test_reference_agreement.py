@@ -160,6 +160,10 @@ def pins_for(draw: st.DrawFn, deck: dict[str, Any]) -> list[dict[str, Any]]:
             pin["diff_area"] = draw(st.sampled_from([0.02, 0.1, 0.3, 0.75, 2.0]))
         if draw(st.booleans()):
             pin["cell_area"] = {l: draw(st.floats(0.0, 0.05)) for l in draw(st.sets(st.sampled_from(names), max_size=2))}
+        if draw(st.booleans()):  # in-cell side walls, on routing layers (the side measure's)
+            routing = [l["name"] for l in deck["layers"][:5] if l.get("kind", "routing") == "routing"]
+            pin["cell_side_area"] = {l: draw(st.floats(0.0, 0.05))
+                                     for l in draw(st.sets(st.sampled_from(routing), max_size=2))}
         pins.append(pin)
     return pins
 

@@ -45,9 +45,9 @@ struct DeckHandle {
 
 Table table(const std::vector<std::pair<double, double>>& points) { return Table{points}; }
 
-// (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)])
+// (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)], cell side [(step, um2)])
 using PinTuple = std::tuple<int, std::vector<std::tuple<i64, i64, i64, i64>>, std::vector<double>, double, double,
-                            std::vector<std::pair<int, double>>>;
+                            std::vector<std::pair<int, double>>, std::vector<std::pair<int, double>>>;
 
 std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
   std::vector<PinSpec> out;
@@ -61,6 +61,7 @@ std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
     p.gate_total_um2 = std::get<3>(t);
     p.diff_um2 = std::get<4>(t);
     p.cell_um2 = std::get<5>(t);
+    p.cell_side_um2 = std::get<6>(t);
     out.push_back(std::move(p));
   }
   return out;

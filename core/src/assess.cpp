@@ -25,7 +25,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
       const std::uint64_t bit = std::uint64_t(1) << key.oxide;
       if (!(c.oxides & bit)) continue;
       const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
       double ratio = rule.ratio(conductor, c.G, c.D);
       double limit = rule.partial_limit(c.D);
       int gate = -1;
@@ -51,7 +51,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
     }
     const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
     double limit = rule.cumulative_limit(c.D);
-    double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+    double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
     double term = rule.ratio(conductor, c.G, c.D);
     out.push_back({s, key.measure, Kind::Cumulative, key.oxide, best, limit, utilization(best, limit), best_p,
                    conductor, best - term, c.G, c.D});
@@ -83,7 +83,7 @@ const Assessment& Net::State::assess() const {
       double* car = &a.car[a.row(slot, g)];
       for (int s = pins[p].layer; s < n; ++s) {
         const Comp& c = comps[std::size_t(s)][std::size_t(comp_of[std::size_t(s)][std::size_t(anchor)])];
-        term[s] = m.term(s, g, c.area, c.cell_um2, c.perim, c.G, c.D);
+        term[s] = m.term(s, g, c.area, c.cell_um2, c.cell_side_um2, c.perim, c.G, c.D);
         int f = m.feeding(s, g);
         car[s] = f >= 0 ? term[s] + car[f] : term[s];
       }

@@ -159,14 +159,15 @@ bool Model::in_chain(int low, int s, int g) const {
   return s == low;
 }
 
-double Model::conductor(int step, Measure m, i128 area, double cell, i128 perim) const {
+double Model::conductor(int step, Measure m, i128 area, double cell, double cell_side, i128 perim) const {
   if (m == Measure::Area) return double(area) * scale_area + cell;
   if (is_cut[std::size_t(step)]) return 0.0;
-  return double(perim) * scale_length * deck.layers[std::size_t(step)].thickness_um;
+  return double(perim) * scale_length * deck.layers[std::size_t(step)].thickness_um + cell_side;
 }
 
-double Model::term(int step, int g, i128 area, double cell, i128 perim, double gate, double diff) const {
-  double a = conductor(step, groups[std::size_t(g)].measure, area, cell, perim);
+double Model::term(int step, int g, i128 area, double cell, double cell_side, i128 perim, double gate,
+                   double diff) const {
+  double a = conductor(step, groups[std::size_t(g)].measure, area, cell, cell_side, perim);
   const RuleSpec* r = factors(step, g);
   if (r == nullptr) return a / gate;
   return r->ratio(a, gate, diff);

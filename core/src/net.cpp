@@ -26,6 +26,7 @@ void Comp::absorb_figures(const Comp& o) {
     f.gate.add(o.figures_->gate);
     f.diff.add(o.figures_->diff);
     f.cell.add(o.figures_->cell);
+    f.cell_side.add(o.figures_->cell_side);
     oxides |= o.oxides;
     refresh();
   }
@@ -39,10 +40,11 @@ void Comp::reset(bool keep) {
     figures_->gate.clear();
     figures_->diff.clear();
     figures_->cell.clear();
+    figures_->cell_side.clear();
   } else {
     figures_.reset();
   }
-  G = D = cell_um2 = 0.0;
+  G = D = cell_um2 = cell_side_um2 = 0.0;
   area = perim = 0;
   oxides = 0;
   alive = false;
@@ -140,12 +142,8 @@ Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
   }
 }
 
-double Net::State::pin_cell(int p, int step) const {
-  double v = 0.0;
-  for (const auto& sc : pins[std::size_t(p)].cell_um2)
-    if (sc.first == step) v = sc.second;
-  return v;
-}
+double Net::State::pin_cell(int p, int step) const { return at_step(pins[std::size_t(p)].cell_um2, step); }
+double Net::State::pin_cell_side(int p, int step) const { return at_step(pins[std::size_t(p)].cell_side_um2, step); }
 
 int Net::State::new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor) {
   int e;
@@ -237,6 +235,7 @@ void Net::State::own_terms(Comp& c, int e, int step) const {
   f.gate.add(pin_gate[std::size_t(el.pin)]);
   f.diff.add(pin.diff_um2);
   f.cell.add(pin_cell(el.pin, step));
+  f.cell_side.add(pin_cell_side(el.pin, step));
   f.pins.push_back(el.pin);
   if (pin_gate[std::size_t(el.pin)] > 0) f.gates.push_back(el.pin);
   c.oxides |= pin_oxides[std::size_t(el.pin)];
@@ -494,6 +493,7 @@ void Net::State::erase(int e) {
           f.gate.add(-pin_gate[std::size_t(p)]);
           f.diff.add(-pins[std::size_t(p)].diff_um2);
           f.cell.add(-pin_cell(p, s));
+          f.cell_side.add(-pin_cell_side(p, s));
         }
       }
     }

@@ -23,6 +23,14 @@
 
 namespace etchguard {
 
+// A pin's per-step figure (in-cell areas): the value given for `step`, else 0.
+inline double at_step(const std::vector<std::pair<int, double>>& per_step, int step) {
+  double v = 0.0;
+  for (const auto& sc : per_step)
+    if (sc.first == step) v = sc.second;
+  return v;
+}
+
 struct Element {
   Rect r;
   i64 sid;   // shape id; for a pin rectangle -1 - pin index
@@ -38,13 +46,13 @@ struct Element {
 struct PinFigures {
   std::vector<int> gates;  // pin indices with gate area
   std::vector<int> pins;   // every pin index (anchors) in the component
-  ExactSum gate, diff, cell;
+  ExactSum gate, diff, cell, cell_side;
 };
 
 struct Comp {
   std::vector<int> members;  // elements
   std::unique_ptr<PinFigures> figures_;
-  double G = 0.0, D = 0.0, cell_um2 = 0.0;
+  double G = 0.0, D = 0.0, cell_um2 = 0.0, cell_side_um2 = 0.0;
   i128 area = 0, perim = 0;
   std::uint64_t oxides = 0;  // oxide classes with gate area here
   bool alive = false;
@@ -52,7 +60,7 @@ struct Comp {
   Comp() = default;
   Comp(const Comp& o)  // a whole copy (a trial copy of a net's state)
       : members(o.members), figures_(o.figures_ ? std::make_unique<PinFigures>(*o.figures_) : nullptr),
-        G(o.G), D(o.D), cell_um2(o.cell_um2), area(o.area), perim(o.perim), oxides(o.oxides), alive(o.alive) {}
+        G(o.G), D(o.D), cell_um2(o.cell_um2), cell_side_um2(o.cell_side_um2), area(o.area), perim(o.perim), oxides(o.oxides), alive(o.alive) {}
   Comp& operator=(const Comp& o) {
     if (this != &o) *this = Comp(o);
     return *this;
@@ -71,8 +79,9 @@ struct Comp {
       G = figures_->gate.value();
       D = figures_->diff.value();
       cell_um2 = figures_->cell.value();
+      cell_side_um2 = figures_->cell_side.value();
     } else {
-      G = D = cell_um2 = 0.0;
+      G = D = cell_um2 = cell_side_um2 = 0.0;
     }
   }
   void absorb(const Comp& o);
@@ -215,7 +224,9 @@ struct Net::State {
   std::vector<int> part_of;                  // per element, for splitting searches
   mutable std::uint32_t clock = 0;
 
+  // A pin's in-cell conductor on a step's layer: area (cell_um2) or side-wall (cell_side_um2).
   double pin_cell(int p, int step) const;
+  double pin_cell_side(int p, int step) const;
   int new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor);
   void touching(int layer, const Rect& r, std::vector<std::pair<int, int>>& out) const;
   // (area, perimeter) that r adds to a union whose rects touching r are `local`.

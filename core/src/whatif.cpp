@@ -248,10 +248,8 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
           PinFigures& f = built.figures();
           f.gate.add(sc.extra_gate[std::size_t(cd.pin)]);
           f.diff.add(pin.diff_um2);
-          double cell = 0.0;
-          for (const auto& step_cell : pin.cell_um2)
-            if (step_cell.first == s) cell = step_cell.second;
-          f.cell.add(cell);
+          f.cell.add(at_step(pin.cell_um2, s));
+          f.cell_side.add(at_step(pin.cell_side_um2, s));
           f.pins.push_back(p);
           if (sc.extra_gate[std::size_t(cd.pin)] > 0) f.gates.push_back(p);
           built.oxides |= oxides[std::size_t(p)];
@@ -288,7 +286,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       bool moved = false;
       for (int g = 0; g < ng; ++g) {
         if (!((group->oxides >> m.groups[std::size_t(g)].oxide) & 1u)) continue;
-        const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+        const double t = m.term(s, g, group->area, group->cell_um2, group->cell_side_um2, group->perim, group->G, group->D);
         const int f = m.feeding(s, g);
         double value = t;
         if (f >= 0) {
@@ -332,7 +330,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         double* row = fresh_row(p);
         for (int g = 0; g < ng; ++g) {
           if (!has_group(p, g)) continue;
-          const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+          const double t = m.term(s, g, group->area, group->cell_um2, group->cell_side_um2, group->perim, group->G, group->D);
           const int f = m.feeding(s, g);
           const std::size_t at = std::size_t(g) * std::size_t(steps);
           row[at + std::size_t(s)] = f >= 0 ? t + row[at + std::size_t(f)] : t;
@@ -366,7 +364,7 @@ double Net::State::lean_worst(int s, const Comp& c, bool partial, const std::vec
     for (const CheckKey& key : m.partial_checks[std::size_t(s)]) {
       if (!((c.oxides >> key.oxide) & 1u)) continue;
       const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
       worst = std::max(worst, utilization(rule.ratio(conductor, c.G, c.D), rule.partial_limit(c.D)));
     }
   }

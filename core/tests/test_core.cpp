@@ -3,6 +3,7 @@
 // independent shapely + networkx reference; these hold its own invariants: hand-worked
 // union measures, order-independent sums, add + remove restoring every figure, and a
 // what-if equal to the check after the commit, on random nets.
+#include <cmath>
 #include <cstdint>
 #include <random>
 #include <stdexcept>
@@ -51,6 +52,14 @@ PinSpec gate_pin(int layer, Rect r, double gate) {
   p.layer = layer;
   p.rects = {r};
   p.gate_by_oxide = {gate};
+  return p;
+}
+
+// A gate pin with in-cell conductor on M1 and M2 (area) and in-cell side wall on M2.
+PinSpec cell_pin(int layer, Rect r, double gate) {
+  PinSpec p = gate_pin(layer, r, gate);
+  p.cell_um2 = {{0, 0.01}, {2, 0.02}};
+  p.cell_side_um2 = {{2, 0.03}};
   return p;
 }
 
@@ -158,7 +167,7 @@ ETCHGUARD_TEST(add_then_remove_restores_every_figure) {
   std::mt19937_64 rng(7);
   for (int round = 0; round < 40; ++round) {
     auto model = compile(demo_deck(round % 2 == 1));
-    std::vector<PinSpec> pins{gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.02)};
+    std::vector<PinSpec> pins{cell_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.02)};
     PinSpec driver;
     driver.layer = 0;
     driver.rects = {{800, 0, 900, 100}};
@@ -185,7 +194,7 @@ ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
   CostModel costs;
   for (int round = 0; round < 60; ++round) {
     auto model = compile(demo_deck(round % 3 == 0));
-    Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.01)});
+    Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05), cell_pin(2, {300, 300, 400, 400}, 0.01)});
     std::uniform_int_distribution<int> layer(0, 4), count(1, 4);
     for (i64 id = 1; id <= 10; ++id) REQUIRE(net.add(id, layer(rng), random_rect(rng, 100)) == Status::Ok);
     for (int c = 0; c < 10; ++c) {
@@ -206,6 +215,24 @@ ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
       REQUIRE(net.remove(ids.data(), ids.size()) == Status::Ok);
     }
   }
+}
+
+ETCHGUARD_TEST(in_cell_side_wall_adds_to_the_side_measure) {
+  // M2 (thickness 0.3 um) run 0..1000 x 0..200 DBU: perimeter 2.4 um x 0.3 = 0.72 um^2
+  // of side wall, plus the pin's in-cell 0.03 = 0.75; G = 0.05: PAR_side = 15. The area
+  // measure takes the in-cell area 0.02 instead: (0.2 + 0.02) / 0.05 = 4.4.
+  auto model = compile(demo_deck());
+  Net net(model, {cell_pin(2, {0, 0, 100, 100}, 0.05)});
+  REQUIRE(net.add(1, 2, {0, 0, 1000, 200}) == Status::Ok);
+  Report r = net.check();
+  bool side = false, area = false;
+  for (const Check& c : r.checks) {
+    if (c.step != 2 || c.kind != Kind::Partial) continue;
+    if (c.measure == Measure::Side) side = std::abs(c.ratio - 15.0) < 1e-9;
+    if (c.measure == Measure::Area) area = std::abs(c.ratio - 4.4) < 1e-9;
+  }
+  CHECK(side);
+  CHECK(area);
 }
 
 ETCHGUARD_TEST(refusals_change_nothing) {

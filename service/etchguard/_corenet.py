@@ -64,7 +64,7 @@ def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
         if i is not None:
             gates[i] = value
     return (pin.layer, list(pin.rects), gates, pin.total_gate_area, pin.diff_area,
-            sorted(pin.cell_area.items()))
+            sorted(pin.cell_area.items()), sorted(pin.cell_side_area.items()))
 
 
 class CoreNet:

@@ -13,11 +13,12 @@
   oriented and placed (``_lefdef_geometry``); the engine holds a pin on one layer, so
   the lowest process step with shapes is used (a warning names the others). Gate area
   per oxide, diffusion area and in-cell areas (ANTENNAPARTIALMETALAREA and
-  ANTENNAPARTIALCUTAREA on their layers) come from the LEF pin. Where a pin gives only
+  ANTENNAPARTIALCUTAREA as ``cell_area`` on their layers, ANTENNAPARTIALMETALSIDEAREA as
+  ``cell_side_area``, a side-wall area as the reference defines it) come from the LEF pin. Where a pin gives only
   per-LAYER gate or diffusion areas, the smallest is used (a warning says so: it gives
   the highest ratio). A DEF PIN is its ports placed, with its ANTENNAPIN values.
-* Not expressible in the engine, each a warning naming file:line: side-wall in-cell areas
-  (ANTENNAPARTIALMETALSIDEAREA), hierarchical ANTENNAMAX*CAR values, shapes on layers
+* Not expressible in the engine, each a warning naming file:line: a side-wall in-cell
+  area on a cut layer, hierarchical ANTENNAMAX*CAR values, shapes on layers
   that are not process steps of the deck (poly, contacts), unplaced components.
 """
 
@@ -47,11 +48,14 @@ _N = Orientation.N
 class _PinTemplate:
     """A macro pin in macro-local DBU (origin applied), on one layer, with its areas."""
 
-    __slots__ = ("cell", "diff", "gate", "layer", "rects")
+    __slots__ = ("areas", "layer", "rects")
 
-    def __init__(self, layer: int, rects: list[Rect], gate: dict[str, float], diff: float,
-                 cell: dict[int, float]) -> None:
-        self.layer, self.rects, self.gate, self.diff, self.cell = layer, rects, gate, diff, cell
+    def __init__(self, layer: int, rects: list[Rect], areas: _PinAreas) -> None:
+        self.layer, self.rects, self.areas = layer, rects, areas
+
+
+# A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per step.
+_PinAreas = tuple[dict[str, float], float, dict[int, float], dict[int, float]]
 
 
 class DesignBinder:
@@ -181,7 +185,7 @@ class DesignBinder:
 
     # -- pins -------------------------------------------------------------------------------
 
-    def _areas(self, antenna: PinAntenna, what: str, at: Located) -> tuple[dict[str, float], float, dict[int, float]]:
+    def _areas(self, antenna: PinAntenna, what: str, at: Located) -> _PinAreas:
         gate = dict(antenna.gate_area)
         for oxide, by_layer in antenna.gate_area_by_layer.items():
             if oxide not in gate and by_layer:
@@ -194,21 +198,25 @@ class DesignBinder:
             self.notes.warn(at.source, at.line, "ANTENNADIFFAREA", f"{what}: only per-LAYER diffusion areas; "
                             "the smallest is used (the highest ratio)")
         cell: dict[int, float] = {}
+        cell_side: dict[int, float] = {}
         for (measure, layer), value in antenna.partial.items():
-            if measure is Measure.SIDE:
-                self.notes.warn(at.source, at.line, "ANTENNAPARTIALMETALSIDEAREA", f"{what}: the engine has "
-                                "no in-cell side-wall area; left out")
-                continue
             step = self.steps.get(layer)
             if step is None:
                 self.notes.warn(at.source, at.line, "ANTENNAPARTIAL", f"{what}: in-cell area on {layer}, "
                                 "which is not a process step of the deck; left out")
                 continue
+            if measure is Measure.SIDE:
+                if not self.deck.layers[step].is_routing:
+                    self.notes.warn(at.source, at.line, "ANTENNAPARTIALMETALSIDEAREA", f"{what}: a side-wall "
+                                    f"area on cut layer {layer}; left out")
+                    continue
+                cell_side[step] = value  # a side-wall area already (perimeter x thickness)
+                continue
             cell[step] = value
         if antenna.max_car:
             self.notes.warn(at.source, at.line, antenna.max_car[0][0], f"{what}: hierarchical ANTENNAMAX*CAR "
                             "values have no term in the engine yet; not added")
-        return {k: v for k, v in gate.items() if v > 0}, diff or 0.0, cell
+        return {k: v for k, v in gate.items() if v > 0}, diff or 0.0, cell, cell_side
 
     def _one_layer(self, shapes: list[tuple[int, Rect]], what: str, at: Located) -> tuple[int, list[Rect]] | None:
         if not shapes:
@@ -244,8 +252,7 @@ class DesignBinder:
             self.notes.warn(pin.at.source, pin.at.line, "PIN", f"{what} has no shape on a process step of the "
                             "deck; it is left out of its nets")
         else:
-            gate, diff, cell = self._areas(pin.antenna, what, pin.at)
-            template = _PinTemplate(one[0], one[1], gate, diff, cell)
+            template = _PinTemplate(one[0], one[1], self._areas(pin.antenna, what, pin.at))
         self._templates[key] = template
         return template
 
@@ -274,8 +281,7 @@ class DesignBinder:
             rects = place(template.rects, orient, bx, by)
             self._oriented[key] = rects
         return Pin(f"{comp_name}.{pin_name}", template.layer,
-                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]),
-                   template.gate, template.diff, template.cell)
+                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]), *template.areas)
 
     def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
         w, h = to_dbu(size[0], self.dbu), to_dbu(size[1], self.dbu)
@@ -310,8 +316,7 @@ class DesignBinder:
             self.notes.warn(self.source, pin.line, "PINS", f"pin {name} has no placed shape on a process "
                             "step; it is left out of its net")
             return None
-        gate, diff, cell = self._areas(pin.antenna, f"pin {name}", at)
-        return Pin(f"PIN {name}", one[0], tuple(one[1]), gate, diff, cell)
+        return Pin(f"PIN {name}", one[0], tuple(one[1]), *self._areas(pin.antenna, f"pin {name}", at))
 
     # -- nets -------------------------------------------------------------------------------
 

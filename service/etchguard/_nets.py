@@ -29,6 +29,10 @@ class Pin:
     gate_area: Mapping[str, float] = field(default_factory=dict)  # um^2 per oxide class
     diff_area: float = 0.0  # um^2
     cell_area: Mapping[int, float] = field(default_factory=dict)  # um^2 per layer step
+    # In-cell side-wall um^2 per layer step, for the side measure: LEF's
+    # ANTENNAPARTIALMETALSIDEAREA, which the LEF/DEF reference defines as the side-wall
+    # area itself (perimeter times thickness), so it is added as given.
+    cell_side_area: Mapping[int, float] = field(default_factory=dict)
 
     @property
     def total_gate_area(self) -> float:
@@ -69,7 +73,8 @@ def _area(value: object, field_name: str) -> float:
 
 def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
-             cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
+             cell_area: Mapping[str, object] | None = None, field_name: str = "pin",
+             cell_side_area: Mapping[str, object] | None = None) -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
     pin_name = check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
@@ -90,11 +95,23 @@ def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[o
         gates = {DEFAULT_OXIDE: _area(gate_area, f"{field_name}.gate_area")}
     _check_oxides(deck, gates, f"{field_name}.gate_area")
     gates = {k: v for k, v in gates.items() if v > 0}
-    cells: dict[int, float] = {}
-    for layer_name, value in (cell_area or {}).items():
-        cell_step = resolve_layer(deck, layer_name, f"{field_name}.cell_area")
-        cells[cell_step] = _area(value, f"{field_name}.cell_area.{layer_name}")
-    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"),
+               _per_layer(deck, cell_area, f"{field_name}.cell_area"),
+               _per_layer(deck, cell_side_area, f"{field_name}.cell_side_area", routing_only=True))
+
+
+def _per_layer(deck: Deck, areas: Mapping[str, object] | None, field_name: str,
+               routing_only: bool = False) -> dict[int, float]:
+    """um^2 per layer name, as um^2 per process step. A side wall belongs to a routing
+    layer (the side measure has no cut-layer figure): on a cut layer it is refused."""
+    out: dict[int, float] = {}
+    for layer_name, value in (areas or {}).items():
+        step = resolve_layer(deck, layer_name, field_name)
+        if routing_only and not deck.layers[step].is_routing:
+            raise InputError(f"{layer_name} is a cut layer; a side-wall area needs a routing layer",
+                             f"{field_name}.{layer_name}")
+        out[step] = _area(value, f"{field_name}.{layer_name}")
+    return out
 
 
 def _check_oxides(deck: Deck, gates: Mapping[str, float], field_name: str) -> None:
@@ -114,7 +131,7 @@ def make_shape(deck: Deck, layer: object, rect: Sequence[object], field_name: st
 
 
 _NET_KEYS = {"name", "pins", "shapes", "layer_range"}
-_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area"}
+_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area"}
 _SHAPE_KEYS = {"layer", "rect"}
 
 
@@ -144,11 +161,13 @@ def net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
     for i, p in enumerate(_json_list(raw, "pins", where)):
         pf = f"{where}.pins[{i}]"
         p = _json_object(p, "a pin", _PIN_KEYS, pf)
-        if not isinstance(p.get("cell_area", {}), dict):
-            raise InputError(f"must be an object of um^2 per layer, got {shown(p['cell_area'])}",
-                             f"{pf}.cell_area")
+        for key in ("cell_area", "cell_side_area"):
+            if not isinstance(p.get(key, {}), dict):
+                raise InputError(f"must be an object of um^2 per layer, got {shown(p[key])}",
+                                 f"{pf}.{key}")
         pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), _json_list(p, "rects", pf),
-                             p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf))
+                             p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf,
+                             p.get("cell_side_area")))
     shapes = []
     for i, s in enumerate(_json_list(raw, "shapes", where)):
         sf = f"{where}.shapes[{i}]"
@@ -270,7 +289,8 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
         check_name(oxide, "an oxide class", f"{field_name}.gate_area")
         _area(value, f"{field_name}.gate_area.{oxide}")
     _area(pin.diff_area, f"{field_name}.diff_area")
-    for step, value in pin.cell_area.items():
-        if type(step) is not int or not 0 <= step < steps:
-            raise InputError("not a layer of the deck", f"{field_name}.cell_area")
-        _area(value, f"{field_name}.cell_area")
+    for key in ("cell_area", "cell_side_area"):
+        for step, value in getattr(pin, key).items():
+            if type(step) is not int or not 0 <= step < steps:
+                raise InputError("not a layer of the deck", f"{field_name}.{key}")
+            _area(value, f"{field_name}.{key}")

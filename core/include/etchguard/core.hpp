@@ -106,7 +106,10 @@ struct PinSpec {
   std::vector<double> gate_by_oxide;     // per DeckSpec oxide (missing: 0)
   double gate_total_um2 = -1.0;          // G of the pin; < 0: the sum of gate_by_oxide
   double diff_um2 = 0.0;
-  std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2)
+  std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2), area measure
+  // (step, in-cell side-wall um^2), side measure: already a side-wall area (LEF's
+  // ANTENNAPARTIALMETALSIDEAREA), added to perimeter x thickness as cell_um2 is to the area
+  std::vector<std::pair<int, double>> cell_side_um2;
 };
 
 struct Shape {

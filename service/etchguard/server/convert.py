@@ -100,7 +100,8 @@ def pins(deck, msgs, path: str = "pins", limits: Limits | None = None) -> list:
         where = f"{path}[{i}]"
         out.append(make_pin(deck, p.name, p.layer,
                             [(r.xlo, r.ylo, r.xhi, r.yhi) for r in p.rects],
-                            dict(p.gate_area), p.diff_area, dict(p.cell_area), where))
+                            dict(p.gate_area), p.diff_area, dict(p.cell_area), where,
+                            dict(p.cell_side_area)))
     return out
 
 
@@ -258,6 +259,7 @@ def net_into(out, spec, shape_ids, deck) -> None:
             msg.rects.add(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3])
         msg.gate_area.update(pin.gate_area)
         msg.cell_area.update({names[step]: area for step, area in pin.cell_area.items()})
+        msg.cell_side_area.update({names[step]: area for step, area in pin.cell_side_area.items()})
     for sid, shape in zip(shape_ids, spec.shapes):
         held = out.shapes.add(id=sid)
         held.shape.layer = names[shape.layer]
