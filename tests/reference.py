@@ -32,6 +32,12 @@ Interpretation points (the project's documented reading of the contract):
   so M1's term is not in CAR_M2;
 * a step below g's pin layer adds 0 but the chain runs on through it (all steps below
   it are below the pin too, so they add 0 as well);
+* a block pin's ``block_car`` entries (layer, measure, oxide, ratio) are cumulative
+  sums already taken inside the block, so they are not chained: a gate of the pin
+  checked at step s gets, on top of its chain, the entry of the highest step among s
+  and the steps feeding s (walked down the same chain) that the pin has one for, of
+  the rule's measure and oxide (the LEF/DEF reference's hierarchical values, "for the
+  pin layer or the layers above it", as the project reads them);
 * r(D) is read from the table at every D, D = 0 included (the contract gives no
   D = 0 exception for it as it does for the limits), and is 1 without a table;
 * a step without a rule for (measure, oxide) adds the plain A / G to a cumulative sum;
@@ -184,6 +190,7 @@ class RefPin:
     diff: float
     cell: dict[str, float]  # layer name -> um^2
     cell_side: dict[str, float]  # layer name -> side-wall um^2
+    block: dict[tuple[str, int, str], float]  # (measure, step, oxide) -> the block's CAR
 
     @property
     def total_gate(self) -> float:
@@ -198,7 +205,9 @@ def _pins(deck: RefDeck, net: dict[str, Any]) -> list[RefPin]:
         out.append(RefPin(p["name"], deck.index[p["layer"]], tuple(tuple(r) for r in p["rects"]),
                           {k: v for k, v in gate.items() if v > 0}, float(p.get("diff_area", 0.0)),
                           {k: float(v) for k, v in p.get("cell_area", {}).items()},
-                          {k: float(v) for k, v in p.get("cell_side_area", {}).items()}))
+                          {k: float(v) for k, v in p.get("cell_side_area", {}).items()},
+                          {(b.get("measure", "area"), deck.index[b["layer"]], b.get("oxide", DEFAULT_OXIDE)):
+                           float(b["ratio"]) for b in p.get("block_car", [])}))
     return out
 
 
@@ -335,12 +344,21 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
         own = 0.0 if s < pins[p].layer else term(comp_of_pin(p, s), s, measure, oxide)  # type: ignore[arg-type]
         return own + car(p, deck.feeding_step(s, measure), measure, oxide)
 
+    def block(p: int, s: int | None, measure: str, oxide: str) -> float:
+        """The block's own sum: its entry at s, else at the step feeding s, and so on."""
+        while s is not None:
+            if (measure, s, oxide) in pins[p].block:
+                return pins[p].block[(measure, s, oxide)]
+            s = deck.feeding_step(s, measure)
+        return 0.0
+
     groups = {(r.measure, r.oxide) for r in deck.rules.values()}
     cars: dict[tuple[int, str, str], list[float]] = {}
     for p, pin in enumerate(pins):
         for measure, oxide in groups:
             if oxide in pin.gate:
-                cars[(p, measure, oxide)] = [car(p, s, measure, oxide) for s in range(steps)]
+                cars[(p, measure, oxide)] = [car(p, s, measure, oxide) + block(p, s, measure, oxide)
+                                             for s in range(steps)]
 
     entries: list[RefEntry] = []
     for s in range(steps):

@@ -150,6 +150,12 @@ def nets_as_lef_def(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: di
                 lef.append(f"    ANTENNAPARTIAL{kind}AREA {area!r} LAYER {layer} ;")
             for layer, area in pin.get("cell_side_area", {}).items():
                 lef.append(f"    ANTENNAPARTIALMETALSIDEAREA {area!r} LAYER {layer} ;")
+            for block in pin.get("block_car", []):  # after the gate areas: each under its own model
+                model = oxides[block.get("oxide", "thin")]
+                keyword = ("ANTENNAMAXSIDEAREACAR" if block.get("measure") == "side" else
+                           "ANTENNAMAXCUTCAR" if block["layer"].startswith("V") else "ANTENNAMAXAREACAR")
+                lef += [f"    ANTENNAMODEL OXIDE{1 if model == 'thin' else model[-1]} ;",
+                        f"    {keyword} {block['ratio']!r} LAYER {block['layer']} ;"]
             lef += ["    PORT", f"      LAYER {pin['layer']} ;"]
             lef += [f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"
                     for r in pin["rects"]]
@@ -183,6 +189,8 @@ def renamed(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: dict[str, 
     for net in nets:
         for pin in net["pins"]:
             pin["gate_area"] = {oxides[k]: v for k, v in gates(pin).items()}
+            for block in pin.get("block_car", []):
+                block["oxide"] = oxides[block.get("oxide", "thin")]
     return deck, nets
 
 

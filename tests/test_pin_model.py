@@ -15,7 +15,7 @@ from typing import Any
 
 import etchguard as eg
 from reference import analyze, ref_deck, report_disagreements
-from test_handworked import approx, deck_text, run, shape
+from test_handworked import PLAIN_RULES, approx, deck_text, run, shape
 from test_whatif_exact import assert_exact
 
 # Side rules on M1 and M2 (thickness 0.1 and 0.2 um in the demo layers), an area rule on M1.
@@ -97,3 +97,96 @@ def test_side_wall_on_a_cut_layer_is_refused() -> None:
         assert err.field.endswith("pins[0].cell_side_area.V1") and "cut layer" in err.message
     else:
         raise AssertionError("a side wall on a cut layer was accepted")
+
+
+# -- a block's accumulated cumulative ratios ------------------------------------------------
+
+# PLAIN_RULES, the demo rules of test_handworked: area rules on M1, V1, M2 (partial and
+# cumulative, limits 100 / 300 on metal, 10 / 40 on V1).
+
+def block_net(block_car: list[dict[str, Any]], plain_pin: bool = False) -> dict[str, Any]:
+    pins = [{"name": "blk.in", "layer": "M1", "rects": [[0, 0, 100, 100]], "gate_area": 0.1,
+             "block_car": block_car}]
+    if plain_pin:
+        pins.append({"name": "u1.a", "layer": "M1", "rects": [[1900, 0, 2000, 100]], "gate_area": 0.1})
+    return {"name": "b", "pins": pins,
+            "shapes": [shape("M1", [0, 0, 2000, 100]), shape("V1", [1900, 0, 2000, 100]),
+                       shape("M2", [1900, 0, 2000, 5000])]}
+
+
+def test_block_ratio_is_added_at_its_step_and_carried_not_summed() -> None:
+    # Terms (G = 0.1): M1 2 um x 0.1 = 0.2 um^2 -> 2; V1 0.1 x 0.1 = 0.01 -> 0.1;
+    # M2 0.1 x 5 um = 0.5 -> 5.
+    net = block_net([{"layer": "M1", "ratio": 30.0}, {"layer": "V1", "ratio": 5.0}])
+    checks = run(PLAIN_RULES, net)
+    # CAR_M1 = 2 + the block's 30 = 32; V1 (cuts chain with cuts) 0.1 + 5 = 5.1.
+    assert checks[("M1", "area", "cumulative", "thin")].ratio == approx(32.0)
+    assert checks[("V1", "area", "cumulative", "thin")].ratio == approx(5.1)
+    # M2 is fed by M1: chain 2 + 5 = 7; the block gives no M2 value, so its M1 sum (which
+    # covers the block's metal at and below M1) serves M2 too, once: 7 + 30 = 37.
+    assert checks[("M2", "area", "cumulative", "thin")].ratio == approx(37.0)
+    # The partial ratios do not see it: PAR_M2 = 5.
+    assert checks[("M2", "area", "partial", "thin")].ratio == approx(5.0)
+    # A value on M2 replaces M1's there (it already holds the block's M1 metal): 7 + 60.
+    with_m2 = run(PLAIN_RULES, block_net([{"layer": "M1", "ratio": 30.0}, {"layer": "M2", "ratio": 60.0}]))
+    assert with_m2[("M2", "area", "cumulative", "thin")].ratio == approx(67.0)
+
+
+def test_block_ratio_through_cuts_and_only_for_the_pins_own_gates() -> None:
+    # cumulative_includes_cuts: M2 is fed by V1, V1 by M1: chain 5 + 0.1 + 2 = 7.1, and the
+    # highest step of that chain with a block value is V1: 7.1 + 5 = 12.1.
+    net = block_net([{"layer": "M1", "ratio": 30.0}, {"layer": "V1", "ratio": 5.0}])
+    assert run(PLAIN_RULES, net, includes_cuts=True)[("M2", "area", "cumulative", "thin")].ratio == approx(12.1)
+    # A plain gate beside the block pin: G = 0.2 halves every term (M1 1, V1 0.05, M2 2.5);
+    # the block pin's CAR_M1 = 1 + 30 = 31 is the worst, the plain gate's is 1.
+    both = run(PLAIN_RULES, block_net([{"layer": "M1", "ratio": 30.0}], plain_pin=True))
+    assert both[("M1", "area", "cumulative", "thin")].ratio == approx(31.0)
+    assert both[("M1", "area", "cumulative", "thin")].gate == "blk.in"
+
+
+def test_block_ratio_what_if_equals_check_after_commit() -> None:
+    for plain_pin in (False, True):
+        net = block_net([{"layer": "M1", "ratio": 30.0}, {"layer": "V1", "ratio": 5.0},
+                         {"layer": "M2", "ratio": 60.0}], plain_pin)
+        engine = engine_of(PLAIN_RULES, net)
+        m1, v1, m2 = (engine.deck.layer_index[n] for n in ("M1", "V1", "M2"))
+        assert_exact(engine, "b", [[eg.Shape(m1, (2000, 0, 9000, 100))], [eg.Shape(m2, (1900, 5000, 2000, 9000))],
+                                   [eg.Shape(m1, (5000, 0, 6000, 100))],  # apart: no gate
+                                   [eg.Shape(v1, (0, 0, 100, 100)), eg.Shape(m2, (0, 0, 100, 3000))]])
+        agrees_with_reference(PLAIN_RULES, engine, net)
+
+
+def test_block_ratio_needs_gate_area_of_its_class() -> None:
+    deck = eg.loads_deck(deck_text(PLAIN_RULES), "<pin-demo>")
+    net = block_net([{"layer": "M1", "oxide": "thick", "ratio": 30.0}])
+    try:
+        eg.parse_net_file(deck, {"nets": [net]})
+    except eg.InputError as err:
+        assert err.field.endswith("pins[0].block_car[0].oxide") and "no gate area" in err.message
+    else:
+        raise AssertionError("a block ratio for a class the pin has no gate of was accepted")
+
+
+# -- the new fields through the gRPC messages and the journal ---------------------------------
+
+def test_side_walls_and_block_ratios_survive_proto_and_journal() -> None:
+    from etchguard import _journal, client
+    from etchguard.server import convert
+    from etchguard.v1 import etchguard_pb2 as pb
+    from etchguard.v1 import journal_pb2 as jpb
+
+    deck = eg.loads_deck(deck_text(PLAIN_RULES), "<pin-demo>")
+    msg = client.pin("blk.in", "M1", [(0, 0, 100, 100)], {"thin": 0.1, "thick": 0.2}, 0.0, {"M1": 0.05},
+                     cell_side_area={"M2": 0.02},
+                     block_car=[("M1", "area", "thin", 30.0), ("M2", "side", "thick", 4.5), ("V1", "area", "thin", 5.0)])
+    (pin,) = convert.pins(deck, [msg])
+    at = deck.layer_index
+    assert pin.cell_side_area == {at["M2"]: 0.02}
+    assert pin.block_car == {("area", at["M1"], "thin"): 30.0, ("side", at["M2"], "thick"): 4.5,
+                             ("area", at["V1"], "thin"): 5.0}
+    out = pb.NetContent()
+    convert.net_into(out, eg.NetSpec("b", (pin,)), [], deck)
+    assert convert.pins(deck, list(out.pins)) == [pin]
+    image = jpb.PinImage()
+    _journal._pin_into(image, pin)
+    assert _journal._pin_of(jpb.PinImage.FromString(image.SerializeToString())) == pin

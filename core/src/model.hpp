@@ -48,6 +48,8 @@ class Model {
     int r = term_rule[std::size_t(step) * groups.size() + std::size_t(g)];
     return r < 0 ? nullptr : &deck.rules[std::size_t(r)];
   }
+  // What a block pin adds to its gates' CAR at step s for group g (see model.cpp).
+  double block_car(const PinSpec& pin, int s, int g) const;
   // Whether a change of step `low`'s term reaches CAR at step `s` for group g.
   bool in_chain(int low, int s, int g) const;
 

@@ -1,5 +1,7 @@
 // Net state: elements, per-layer lookup, components at every step, add and remove.
 #include <algorithm>
+#include <cmath>
+#include <string>
 #include <stdexcept>
 
 #include "state.hpp"
@@ -105,6 +107,14 @@ std::size_t LayerIndex::memory() const {
 
 // -- state -----------------------------------------------------------------------------
 
+void check_block_car(const Model& m, const PinSpec& pin, const char* field) {
+  for (const BlockCar& b : pin.block_car) {
+    if (b.step < 0 || b.step >= m.steps || b.oxide < 0 || std::size_t(b.oxide) >= m.deck.oxides.size() ||
+        !(b.ratio >= 0.0) || !std::isfinite(b.ratio))
+      throw std::invalid_argument(std::string(field) + ": a step, an oxide and a finite ratio >= 0");
+  }
+}
+
 Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
     : holder(std::move(model)), m(*holder), pins(std::move(p)) {
   const std::size_t n = std::size_t(m.steps);
@@ -126,6 +136,8 @@ Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
     pin_oxides.push_back(ox);
     for (const Rect& r : pin.rects)
       if (!valid_rect(r)) throw std::invalid_argument("pins.rects: an empty, inverted or far rectangle");
+    check_block_car(m, pin, "pins.block_car");
+    blocks = blocks || !pin.block_car.empty();
   }
   for (std::size_t i = 0; i < pins.size(); ++i) {
     int first = -1;

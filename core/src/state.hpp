@@ -142,10 +142,14 @@ struct Assessment {
   int groups = 0, steps = 0;
   std::vector<int> slot_of_pin;        // pin -> row block, or -1 (no gate area)
   std::vector<double> term, car;       // [(slot * groups + g) * steps + s]
+  // Only for a net with block pins (State::blocks): the sums without block values
+  // (Model::block_car); otherwise car is that sum and chain stays empty.
+  std::vector<double> chain;
   std::vector<char> has;               // [slot * groups + g]: the pin has g's oxide
   std::vector<std::vector<double>> comp_worst, partial_worst;  // [s][comp]
   std::vector<std::vector<std::pair<double, int>>> ranked;     // [s]: (worst, comp), worst first
   std::vector<const double*> rows;                             // per pin: its CAR rows, or null
+  std::vector<const double*> chain_rows;                       // per pin: its chain rows (= rows without blocks)
   // Per step s, component X and group g (index X * groups + g): the largest CAR at s of
   // X's gates (-1 without one), and the components of the step feeding s that hold X's
   // gates, each with the largest CAR there of its gates, largest first. A what-if reads
@@ -197,6 +201,9 @@ struct Scratch {
   Comp built;
 };
 
+// Refuses a pin's block values the model cannot place (std::invalid_argument naming `field`).
+void check_block_car(const Model& m, const PinSpec& pin, const char* field);
+
 struct Net::State {
   State(std::shared_ptr<const Model> model, std::vector<PinSpec> pins);
 
@@ -206,6 +213,7 @@ struct Net::State {
   std::vector<double> pin_gate;           // G per pin
   std::vector<std::uint64_t> pin_oxides;  // oxide classes with gate area, per pin
   std::vector<int> anchor_of_pin;
+  bool blocks = false;  // a pin carries block values: CAR and chain differ (Model::block_car)
   std::vector<Element> elems;
   std::vector<int> free_elems;
   std::unordered_map<i64, int> by_sid;

@@ -17,8 +17,12 @@
   ``cell_side_area``, a side-wall area as the reference defines it) come from the LEF pin. Where a pin gives only
   per-LAYER gate or diffusion areas, the smallest is used (a warning says so: it gives
   the highest ratio). A DEF PIN is its ports placed, with its ANTENNAPIN values.
+* A block pin's ANTENNAMAXAREACAR / ANTENNAMAXCUTCAR (area measure) and
+  ANTENNAMAXSIDEAREACAR (side) on a layer, per ANTENNAMODEL oxide, become the pin's
+  ``block_car`` for its gates of that oxide (how they enter the CAR: docs/formats.md).
 * Not expressible in the engine, each a warning naming file:line: a side-wall in-cell
-  area on a cut layer, hierarchical ANTENNAMAX*CAR values, shapes on layers
+  area or ratio on a cut layer, a block ratio for an oxide the pin has no gate area of,
+  shapes on layers
   that are not process steps of the deck (poly, contacts), unplaced components.
 """
 
@@ -54,8 +58,10 @@ class _PinTemplate:
         self.layer, self.rects, self.areas = layer, rects, areas
 
 
-# A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per step.
-_PinAreas = tuple[dict[str, float], float, dict[int, float], dict[int, float]]
+# A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per
+# step, block ratios per (measure, step, oxide).
+_PinAreas = tuple[dict[str, float], float, dict[int, float], dict[int, float], dict[tuple[str, int, str], float]]
+_MAX_CAR_MEASURE = {"ANTENNAMAXAREACAR": "area", "ANTENNAMAXCUTCAR": "area", "ANTENNAMAXSIDEAREACAR": "side"}
 
 
 class DesignBinder:
@@ -213,10 +219,25 @@ class DesignBinder:
                 cell_side[step] = value  # a side-wall area already (perimeter x thickness)
                 continue
             cell[step] = value
-        if antenna.max_car:
-            self.notes.warn(at.source, at.line, antenna.max_car[0][0], f"{what}: hierarchical ANTENNAMAX*CAR "
-                            "values have no term in the engine yet; not added")
-        return {k: v for k, v in gate.items() if v > 0}, diff or 0.0, cell, cell_side
+        gate = {k: v for k, v in gate.items() if v > 0}
+        return gate, diff or 0.0, cell, cell_side, self._block_car(antenna, gate, what, at)
+
+    def _block_car(self, antenna: PinAntenna, gate: dict[str, float], what: str,
+                   at: Located) -> dict[tuple[str, int, str], float]:
+        block: dict[tuple[str, int, str], float] = {}
+        for keyword, oxide, layer, value in antenna.max_car:
+            measure, step = _MAX_CAR_MEASURE[keyword], self.steps.get(layer)
+            if step is None:
+                problem = f"on {layer}, which is not a process step of the deck"
+            elif measure == "side" and not self.deck.layers[step].is_routing:
+                problem = f"a side-wall ratio on cut layer {layer}"
+            elif oxide not in gate:
+                problem = f"for oxide {oxide}, which the pin has no gate area of"
+            else:
+                block[(measure, step, oxide)] = value  # a later statement for the same slot wins
+                continue
+            self.notes.warn(at.source, at.line, keyword, f"{what}: {problem}; left out")
+        return block
 
     def _one_layer(self, shapes: list[tuple[int, Rect]], what: str, at: Located) -> tuple[int, list[Rect]] | None:
         if not shapes:

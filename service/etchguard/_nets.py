@@ -33,6 +33,11 @@ class Pin:
     # ANTENNAPARTIALMETALSIDEAREA, which the LEF/DEF reference defines as the side-wall
     # area itself (perimeter times thickness), so it is added as given.
     cell_side_area: Mapping[int, float] = field(default_factory=dict)
+    # A block pin's cumulative ratios accumulated inside the block (LEF's ANTENNAMAX*CAR),
+    # (measure, layer step, oxide) -> ratio; added to the pin's gates' CAR of that measure
+    # and oxide from that step up, until a higher step of the chain gives its own (the
+    # core's Model::block_car; docs/formats.md).
+    block_car: Mapping[tuple[str, int, str], float] = field(default_factory=dict)
 
     @property
     def total_gate_area(self) -> float:
@@ -74,7 +79,8 @@ def _area(value: object, field_name: str) -> float:
 def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
              cell_area: Mapping[str, object] | None = None, field_name: str = "pin",
-             cell_side_area: Mapping[str, object] | None = None) -> Pin:
+             cell_side_area: Mapping[str, object] | None = None,
+             block_car: Sequence[object] | None = None) -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
     pin_name = check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
@@ -97,7 +103,44 @@ def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[o
     gates = {k: v for k, v in gates.items() if v > 0}
     return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"),
                _per_layer(deck, cell_area, f"{field_name}.cell_area"),
-               _per_layer(deck, cell_side_area, f"{field_name}.cell_side_area", routing_only=True))
+               _per_layer(deck, cell_side_area, f"{field_name}.cell_side_area", routing_only=True),
+               _block_car(deck, block_car or (), gates, f"{field_name}.block_car"))
+
+
+_BLOCK_KEYS = {"layer", "measure", "oxide", "ratio"}
+MEASURE_NAMES = ("area", "side")
+
+
+def _block_car(deck: Deck, entries: Sequence[object], gates: Mapping[str, float],
+               field_name: str) -> dict[tuple[str, int, str], float]:
+    """A block pin's accumulated ratios: objects with ``layer``, ``measure`` ("area" when
+    absent), ``oxide`` ("thin" when absent) and ``ratio``; each for a class the pin has
+    gate area of (the ratio is its gates'), once per (measure, layer, oxide)."""
+    if isinstance(entries, (str, bytes, Mapping)) or not isinstance(entries, Sequence):
+        raise InputError(f"must be a list of objects, got {shown(entries)}", field_name)
+    out: dict[tuple[str, int, str], float] = {}
+    for i, raw in enumerate(entries):
+        where = f"{field_name}[{i}]"
+        entry = _json_object(raw, "a block ratio", _BLOCK_KEYS, where)
+        step = resolve_layer(deck, entry.get("layer"), f"{where}.layer")
+        measure = entry.get("measure", "area")
+        if measure not in MEASURE_NAMES:
+            raise InputError(f"must be \"area\" or \"side\", got {shown(measure)}", f"{where}.measure")
+        if measure == "side" and not deck.layers[step].is_routing:
+            raise InputError(f"{deck.layers[step].name} is a cut layer; a side ratio needs a routing layer",
+                             f"{where}.layer")
+        oxide = entry.get("oxide", DEFAULT_OXIDE)
+        if not isinstance(oxide, str) or oxide not in gates:
+            raise InputError(f"the pin has no gate area of class {shown(oxide)}; a block's cumulative "
+                             "ratio belongs to the gates behind the pin", f"{where}.oxide")
+        if (measure, step, oxide) in out:
+            raise InputError("given twice for one (layer, measure, oxide)", where)
+        ratio = entry.get("ratio")
+        if isinstance(ratio, bool) or not isinstance(ratio, (int, float)) or not math.isfinite(ratio) \
+                or ratio < 0:
+            raise InputError(f"must be a finite ratio >= 0, got {shown(ratio)}", f"{where}.ratio")
+        out[(measure, step, oxide)] = float(ratio)
+    return out
 
 
 def _per_layer(deck: Deck, areas: Mapping[str, object] | None, field_name: str,
@@ -131,7 +174,7 @@ def make_shape(deck: Deck, layer: object, rect: Sequence[object], field_name: st
 
 
 _NET_KEYS = {"name", "pins", "shapes", "layer_range"}
-_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area"}
+_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area", "block_car"}
 _SHAPE_KEYS = {"layer", "rect"}
 
 
@@ -167,7 +210,7 @@ def net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
                                  f"{pf}.{key}")
         pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), _json_list(p, "rects", pf),
                              p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf,
-                             p.get("cell_side_area")))
+                             p.get("cell_side_area"), p.get("block_car")))
     shapes = []
     for i, s in enumerate(_json_list(raw, "shapes", where)):
         sf = f"{where}.shapes[{i}]"
@@ -294,3 +337,8 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
             if type(step) is not int or not 0 <= step < steps:
                 raise InputError("not a layer of the deck", f"{field_name}.{key}")
             _area(value, f"{field_name}.{key}")
+    for (measure, step, oxide), ratio in pin.block_car.items():
+        if measure not in MEASURE_NAMES or type(step) is not int or not 0 <= step < steps \
+                or oxide not in pin.gate_area or not (isinstance(ratio, (int, float)) and 0 <= ratio < math.inf):
+            raise InputError("a (measure, step, oxide) of the pin's gates and a finite ratio >= 0",
+                             f"{field_name}.block_car")

@@ -100,6 +100,17 @@ std::shared_ptr<const Model> compile(const DeckSpec& deck);
 int model_steps(const Model& model);
 int model_groups(const Model& model);  // (measure, oxide) groups of cumulative rules
 
+// A cumulative ratio already accumulated inside a block (LEF's ANTENNAMAXAREACAR,
+// ANTENNAMAXSIDEAREACAR, ANTENNAMAXCUTCAR on a block pin), for the pin's gates of `oxide`:
+// the block's cumulative sum on `step`'s layer, at and below it, for `measure`. Model::
+// block_car says how it enters a gate's CAR.
+struct BlockCar {
+  int step;
+  Measure measure;
+  int oxide;
+  double ratio;
+};
+
 struct PinSpec {
   int layer = 0;
   std::vector<Rect> rects;               // at least one
@@ -110,6 +121,7 @@ struct PinSpec {
   // (step, in-cell side-wall um^2), side measure: already a side-wall area (LEF's
   // ANTENNAPARTIALMETALSIDEAREA), added to perimeter x thickness as cell_um2 is to the area
   std::vector<std::pair<int, double>> cell_side_um2;
+  std::vector<BlockCar> block_car;  // empty for a pin that is not a block's
 };
 
 struct Shape {

@@ -22,6 +22,7 @@ from .._columns import CommonShapes
 from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
 from .._names import check_length
 from .._nets import checked_layer_range
+from .._rules import DEFAULT_OXIDE
 from ..v1 import etchguard_pb2 as pb
 
 _MEASURE = {"area": pb.MEASURE_AREA, "side": pb.MEASURE_SIDE}
@@ -101,8 +102,17 @@ def pins(deck, msgs, path: str = "pins", limits: Limits | None = None) -> list:
         out.append(make_pin(deck, p.name, p.layer,
                             [(r.xlo, r.ylo, r.xhi, r.yhi) for r in p.rects],
                             dict(p.gate_area), p.diff_area, dict(p.cell_area), where,
-                            dict(p.cell_side_area)))
+                            dict(p.cell_side_area), [_block_ratio(b) for b in p.block_car]))
     return out
+
+
+_MEASURE_NAME = {pb.MEASURE_UNSPECIFIED: "area", pb.MEASURE_AREA: "area", pb.MEASURE_SIDE: "side"}
+
+
+def _block_ratio(msg) -> dict[str, object]:
+    """A BlockRatio as the net file states one (make_pin validates it)."""
+    return {"layer": msg.layer, "measure": _MEASURE_NAME.get(msg.measure, msg.measure),
+            "oxide": msg.oxide or DEFAULT_OXIDE, "ratio": msg.ratio}
 
 
 def layer_range(deck, msg, path: str = "layer_range"):
@@ -260,6 +270,8 @@ def net_into(out, spec, shape_ids, deck) -> None:
         msg.gate_area.update(pin.gate_area)
         msg.cell_area.update({names[step]: area for step, area in pin.cell_area.items()})
         msg.cell_side_area.update({names[step]: area for step, area in pin.cell_side_area.items()})
+        for (measure, step, oxide), ratio in pin.block_car.items():
+            msg.block_car.add(layer=names[step], measure=_MEASURE[measure], oxide=oxide, ratio=ratio)
     for sid, shape in zip(shape_ids, spec.shapes):
         held = out.shapes.add(id=sid)
         held.shape.layer = names[shape.layer]

@@ -82,7 +82,7 @@ class Shape(_message.Message):
     def __init__(self, layer: _Optional[str] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., run: _Optional[_Union[Run, _Mapping]] = ...) -> None: ...
 
 class Pin(_message.Message):
-    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area")
+    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area", "block_car")
     class GateAreaEntry(_message.Message):
         __slots__ = ("key", "value")
         KEY_FIELD_NUMBER: _ClassVar[int]
@@ -111,6 +111,7 @@ class Pin(_message.Message):
     DIFF_AREA_FIELD_NUMBER: _ClassVar[int]
     CELL_AREA_FIELD_NUMBER: _ClassVar[int]
     CELL_SIDE_AREA_FIELD_NUMBER: _ClassVar[int]
+    BLOCK_CAR_FIELD_NUMBER: _ClassVar[int]
     name: str
     layer: str
     rects: _containers.RepeatedCompositeFieldContainer[Rect]
@@ -118,7 +119,20 @@ class Pin(_message.Message):
     diff_area: float
     cell_area: _containers.ScalarMap[str, float]
     cell_side_area: _containers.ScalarMap[str, float]
-    def __init__(self, name: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[str, float]] = ..., cell_side_area: _Optional[_Mapping[str, float]] = ...) -> None: ...
+    block_car: _containers.RepeatedCompositeFieldContainer[BlockRatio]
+    def __init__(self, name: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[str, float]] = ..., cell_side_area: _Optional[_Mapping[str, float]] = ..., block_car: _Optional[_Iterable[_Union[BlockRatio, _Mapping]]] = ...) -> None: ...
+
+class BlockRatio(_message.Message):
+    __slots__ = ("layer", "measure", "oxide", "ratio")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    MEASURE_FIELD_NUMBER: _ClassVar[int]
+    OXIDE_FIELD_NUMBER: _ClassVar[int]
+    RATIO_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    measure: Measure
+    oxide: str
+    ratio: float
+    def __init__(self, layer: _Optional[str] = ..., measure: _Optional[_Union[Measure, str]] = ..., oxide: _Optional[str] = ..., ratio: _Optional[float] = ...) -> None: ...
 
 class LayerRange(_message.Message):
     __slots__ = ("lowest", "highest")
