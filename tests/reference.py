@@ -38,6 +38,10 @@ Interpretation points (the project's documented reading of the contract):
   and the steps feeding s (walked down the same chain) that the pin has one for, of
   the rule's measure and oxide (the LEF/DEF reference's hierarchical values, "for the
   pin layer or the layers above it", as the project reads them);
+* a pin rectangle may name its own layer (``{"layer": "M2", "rect": [...]}``): it is an
+  element of that layer, present from that step on; a pin's rectangles are one
+  conductor (linked to each other whenever both exist) and the pin (its gate,
+  diffusion and in-cell figures) exists from the lowest layer among them;
 * r(D) is read from the table at every D, D = 0 included (the contract gives no
   D = 0 exception for it as it does for the limits), and is 1 without a table;
 * a step without a rule for (measure, oxide) adds the plain A / G to a cumulative sum;
@@ -184,8 +188,8 @@ def load_ref_deck(path: str | Path) -> RefDeck:
 @dataclass(frozen=True)
 class RefPin:
     name: str
-    layer: int
-    rects: tuple[tuple[int, int, int, int], ...]
+    layer: int  # the lowest layer of its rectangles: the pin exists from there on
+    rects: tuple[tuple[int, tuple[int, int, int, int]], ...]  # (layer, rectangle)
     gate: dict[str, float]
     diff: float
     cell: dict[str, float]  # layer name -> um^2
@@ -202,7 +206,9 @@ def _pins(deck: RefDeck, net: dict[str, Any]) -> list[RefPin]:
     for p in net.get("pins", []):
         raw = p.get("gate_area", {})
         gate = {DEFAULT_OXIDE: float(raw)} if isinstance(raw, (int, float)) else {k: float(v) for k, v in raw.items()}
-        out.append(RefPin(p["name"], deck.index[p["layer"]], tuple(tuple(r) for r in p["rects"]),
+        rects = tuple((deck.index[r["layer"]], tuple(r["rect"])) if isinstance(r, dict)
+                      else (deck.index[p["layer"]], tuple(r)) for r in p["rects"])
+        out.append(RefPin(p["name"], min(layer for layer, _ in rects), rects,
                           {k: v for k, v in gate.items() if v > 0}, float(p.get("diff_area", 0.0)),
                           {k: float(v) for k, v in p.get("cell_area", {}).items()},
                           {k: float(v) for k, v in p.get("cell_side_area", {}).items()},
@@ -225,6 +231,10 @@ class RefComponent:
     cell_um2: float
     cell_side_um2: float
     gate_pins: list[int] = field(default_factory=list)
+
+    def holds_pin(self, p: int) -> bool:
+        """Whether pin p (any of its rectangles) is in this component."""
+        return any(n[0] == "pin" and n[1] == p for n in self.nodes)
 
     def conductor(self, deck: RefDeck, measure: str) -> float:
         """A(C) on the step's layer for a measure, per the contract."""
@@ -287,7 +297,7 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
     shapes = [(index[s["layer"]], tuple(s["rect"])) for s in net.get("shapes", [])]
     elements: list[tuple[Node, int, tuple[int, ...]]] = [(("shape", i), l, r) for i, (l, r) in enumerate(shapes)]
     for p, pin in enumerate(pins):
-        elements += [(("pin", p, k), pin.layer, r) for k, r in enumerate(pin.rects)]
+        elements += [(("pin", p, k), layer, r) for k, (layer, r) in enumerate(pin.rects)]
     steps = len(deck.layers)
     scale = 1.0 / deck.dbu_per_micron
     components: list[list[RefComponent]] = []
@@ -328,7 +338,7 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
         components.append(at_step)
 
     def comp_of_pin(p: int, s: int) -> RefComponent | None:
-        return next((c for c in components[s] if ("pin", p, 0) in c.nodes), None)
+        return next((c for c in components[s] if c.holds_pin(p)), None)
 
     def term(c: RefComponent, s: int, measure: str, oxide: str) -> float:
         rule = deck.rules.get((deck.layers[s].name, measure, oxide))

@@ -96,8 +96,9 @@ def test_orientations_are_the_eight_symmetries_of_the_square() -> None:
 
 def pin(name: str, layer: str, rect: list[int], gate: dict[str, float] | None = None, diff: float = 0.0,
         cell: dict[str, float] | None = None, side: dict[str, float] | None = None,
-        block: list[dict[str, Any]] | None = None) -> dict[str, Any]:
-    return {"name": name, "layer": layer, "rects": [rect], "gate_area": gate or {}, "diff_area": diff,
+        block: list[dict[str, Any]] | None = None, also: dict[str, list[int]] | None = None) -> dict[str, Any]:
+    rects: list[Any] = [rect] + [{"layer": l, "rect": r} for l, r in (also or {}).items()]
+    return {"name": name, "layer": layer, "rects": rects, "gate_area": gate or {}, "diff_area": diff,
             "cell_area": cell or {}, "cell_side_area": side or {}, "block_car": block or []}
 
 
@@ -198,10 +199,12 @@ EXPECTED_NETS = [
         shape("M1", [37430, 4230, 37570, 5970])]},
     {"name": "n6", "pins": [
         # LBLOCK pin IN has per-LAYER gate areas only (M1 0.8, M2 0.6): the smallest, 0.6; its
-        # M2 port shape is left out (the lowest layer, M1, holds the pin); at (2000, 12000) N.
+        # port has RECT 0.0 1.0 0.4 1.4 on M1 and on M2: both are the pin's, which joins at
+        # M1, the lowest; at (2000, 12000) N.
         # ANTENNAMAXAREACAR 50 LAYER M1 (no ANTENNAMODEL: OXIDE1, "thin") is its block ratio.
         pin("b1.IN", "M1", [2000, 13000, 2400, 13400], gate={"thin": 0.6},
-            block=[{"layer": "M1", "measure": "area", "oxide": "thin", "ratio": 50.0}])],
+            block=[{"layer": "M1", "measure": "area", "oxide": "thin", "ratio": 50.0}],
+            also={"M2": [2000, 13000, 2400, 13400]})],
      "shapes": [shape("M1", [2130, 13130, 6070, 13270])]},
     {"name": "n7", "pins": [
         pin("u9.A", "M1", [40200, 4600, 40400, 5200], gate={"thin": 0.05}, cell={"M1": 0.02})],
@@ -226,7 +229,9 @@ EXPECTED_NETS = [
 def as_plain(spec: eg.NetSpec, deck: eg.Deck) -> dict[str, Any]:
     name = {l.index: l.name for l in deck.layers}
     return {"name": spec.name,
-            "pins": sorted([{"name": p.name, "layer": name[p.layer], "rects": [list(r) for r in p.rects],
+            "pins": sorted([{"name": p.name, "layer": name[p.layer],
+                             "rects": [list(r) if l == p.layer else {"layer": name[l], "rect": list(r)}
+                                       for l, r in p.layered_rects()],
                              "gate_area": dict(p.gate_area), "diff_area": p.diff_area,
                              "cell_area": {name[s]: a for s, a in p.cell_area.items()},
                              "cell_side_area": {name[s]: a for s, a in p.cell_side_area.items()},

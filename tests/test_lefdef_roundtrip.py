@@ -156,9 +156,11 @@ def nets_as_lef_def(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: di
                            "ANTENNAMAXCUTCAR" if block["layer"].startswith("V") else "ANTENNAMAXAREACAR")
                 lef += [f"    ANTENNAMODEL OXIDE{1 if model == 'thin' else model[-1]} ;",
                         f"    {keyword} {block['ratio']!r} LAYER {block['layer']} ;"]
-            lef += ["    PORT", f"      LAYER {pin['layer']} ;"]
-            lef += [f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"
-                    for r in pin["rects"]]
+            lef.append("    PORT")
+            for r in pin["rects"]:  # a rectangle on a layer of its own: a port on several layers
+                layer, r = (r["layer"], r["rect"]) if isinstance(r, dict) else (pin["layer"], r)
+                lef += [f"      LAYER {layer} ;",
+                        f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"]
             lef += ["    END", "  END a", f"END {macro}"]
             components.append(f"- c{n}_{p} {macro} + PLACED ( 0 0 ) N ;")
             connections.append(f"( c{n}_{p} a )")

@@ -167,9 +167,75 @@ def test_block_ratio_needs_gate_area_of_its_class() -> None:
         raise AssertionError("a block ratio for a class the pin has no gate of was accepted")
 
 
+# -- pins with shapes on several layers -------------------------------------------------------
+
+def layered_net(pin_layer: str = "M1") -> dict[str, Any]:
+    m1_rect, m2_rect = [0, 0, 100, 100], [5000, 0, 5100, 100]
+    rects: list[Any] = ([m1_rect, {"layer": "M2", "rect": m2_rect}] if pin_layer == "M1"
+                        else [m2_rect, {"layer": "M1", "rect": m1_rect}])
+    return {"name": "l", "pins": [{"name": "u.a", "layer": pin_layer, "rects": rects, "gate_area": 0.1}],
+            "shapes": [shape("M1", [0, 0, 2000, 100]), shape("M2", [5000, 0, 5100, 3000])]}
+
+
+def test_pin_on_two_layers_joins_at_the_lowest_and_connects_at_each() -> None:
+    # M1: the pin's M1 shape touches the M1 run 2 um x 0.1 = 0.2 um^2: PAR_M1 = 0.2 / 0.1 = 2.
+    # The pin's M2 shape does not exist at M1. At M2 it does, and it joins the pin (one
+    # conductor inside the cell) to the M2 run 0.1 x 3 um = 0.3 um^2, which touches no other
+    # metal of the net: PAR_M2 = 3, CAR_M2 = 2 + 3 = 5 (M2 is fed by M1).
+    for pin_layer in ("M1", "M2"):  # the pin's "layer" names its plain rectangles; it joins at M1 either way
+        checks = run(PLAIN_RULES, layered_net(pin_layer))
+        assert checks[("M1", "area", "partial", "thin")].ratio == approx(2.0)
+        assert checks[("M2", "area", "partial", "thin")].ratio == approx(3.0)
+        assert checks[("M2", "area", "cumulative", "thin")].ratio == approx(5.0)
+    deck = eg.loads_deck(deck_text(PLAIN_RULES), "<pin-demo>")
+    (pin,) = eg.parse_net_file(deck, {"nets": [layered_net("M2")]})[0].pins
+    assert pin.layer == deck.layer_index["M1"] and pin.lowest_rects() == ((0, 0, 100, 100),)
+    # On one layer, the M2 run would float apart from the gate: its component at M2 has
+    # no M2 metal, PAR_M2 = 0, CAR_M2 = 2.
+    one_layer = layered_net()
+    one_layer["pins"][0]["rects"] = [[0, 0, 100, 100]]
+    alone = run(PLAIN_RULES, one_layer)
+    assert alone[("M2", "area", "partial", "thin")].ratio == 0.0
+    assert alone[("M2", "area", "cumulative", "thin")].ratio == approx(2.0)
+
+
+def test_pin_on_two_layers_what_if_equals_check_after_commit() -> None:
+    net = layered_net()
+    engine = engine_of(PLAIN_RULES, net)
+    m1, v1, m2 = (engine.deck.layer_index[n] for n in ("M1", "V1", "M2"))
+    assert_exact(engine, "l", [[eg.Shape(m2, (5000, 3000, 5100, 8000))], [eg.Shape(m1, (5000, 0, 9000, 100))],
+                               [eg.Shape(m2, (5100, 0, 6000, 100))],  # touches the pin's M2 shape only
+                               [eg.Shape(v1, (1900, 0, 2000, 100)), eg.Shape(m2, (1900, 0, 2000, 4000))]])
+    agrees_with_reference(PLAIN_RULES, engine, net)
+
+
+def test_trial_pin_on_two_layers_equals_the_net_holding_it() -> None:
+    """A trial pin (what advice scores as extra pins) on M1 and M2, with a block ratio,
+    scored against the core net equals a net that holds it, to the bit."""
+    from etchguard._corenet import CoreNet, compile_deck
+
+    net = layered_net()
+    engine = engine_of(PLAIN_RULES, net)
+    deck = engine.deck
+    m1, m2 = deck.layer_index["M1"], deck.layer_index["M2"]
+    spec = engine.spec("l")
+    trial = eg.Pin("t.a", m1, ((1900, 0, 2000, 100), (5000, 2900, 5100, 3000)), {"thin": 0.05},
+                   block_car={("area", m1, "thin"): 7.0}, rect_layers=(m1, m2))
+    compiled = compile_deck(deck)
+    held = CoreNet(compiled, spec.pins)
+    held.add(list(range(len(spec.shapes))), spec.shapes)
+    both = CoreNet(compiled, spec.pins + (trial,))
+    both.add(list(range(len(spec.shapes))), spec.shapes)
+    extra = [eg.Shape(m2, (5000, 3000, 5100, 6000))]
+    for detail in (False, True):
+        score = held.score(extra, detail, [trial])
+        after = both.score(extra, detail)
+        assert (score.worst_utilization, score.legal) == (after.worst_utilization, after.legal)
+
+
 # -- the new fields through the gRPC messages and the journal ---------------------------------
 
-def test_side_walls_and_block_ratios_survive_proto_and_journal() -> None:
+def test_side_walls_block_ratios_and_layers_survive_proto_and_journal() -> None:
     from etchguard import _journal, client
     from etchguard.server import convert
     from etchguard.v1 import etchguard_pb2 as pb
@@ -178,9 +244,11 @@ def test_side_walls_and_block_ratios_survive_proto_and_journal() -> None:
     deck = eg.loads_deck(deck_text(PLAIN_RULES), "<pin-demo>")
     msg = client.pin("blk.in", "M1", [(0, 0, 100, 100)], {"thin": 0.1, "thick": 0.2}, 0.0, {"M1": 0.05},
                      cell_side_area={"M2": 0.02},
-                     block_car=[("M1", "area", "thin", 30.0), ("M2", "side", "thick", 4.5), ("V1", "area", "thin", 5.0)])
+                     block_car=[("M1", "area", "thin", 30.0), ("M2", "side", "thick", 4.5), ("V1", "area", "thin", 5.0)],
+                     other_rects=[("M2", (0, 0, 100, 300))])
     (pin,) = convert.pins(deck, [msg])
     at = deck.layer_index
+    assert pin.layered_rects() == ((at["M1"], (0, 0, 100, 100)), (at["M2"], (0, 0, 100, 300)))
     assert pin.cell_side_area == {at["M2"]: 0.02}
     assert pin.block_car == {("area", at["M1"], "thin"): 30.0, ("side", at["M2"], "thick"): 4.5,
                              ("area", at["V1"], "thin"): 5.0}

@@ -169,6 +169,9 @@ def pins_for(draw: st.DrawFn, deck: dict[str, Any], block_pins: bool = True) -> 
             pin["diff_area"] = draw(st.sampled_from([0.02, 0.1, 0.3, 0.75, 2.0]))
         if draw(st.booleans()):
             pin["cell_area"] = {l: draw(st.floats(0.0, 0.05)) for l in draw(st.sets(st.sampled_from(names), max_size=2))}
+        if block_pins and draw(st.integers(0, 2)) == 0:  # shapes on other layers too (above or below)
+            pin["rects"] += [{"layer": draw(st.sampled_from(names)), "rect": draw(rects())}
+                             for _ in range(draw(st.integers(1, 2)))]
         if block_pins and draw(st.booleans()):  # in-cell side walls, on routing layers
             routing = [l["name"] for l in deck["layers"][:5] if l.get("kind", "routing") == "routing"]
             pin["cell_side_area"] = {l: draw(st.floats(0.0, 0.05))
@@ -278,7 +281,7 @@ def test_score_equals_check_after_commit(case) -> None:
     first_new = len(net["shapes"])
     pin_index = {p["name"]: i for i, p in enumerate(net["pins"])}
     for ch in score.changes:
-        comp = next(c for c in ref_after.components[ch.step] if ("pin", pin_index[ch.gate], 0) in c.nodes)
+        comp = next(c for c in ref_after.components[ch.step] if c.holds_pin(pin_index[ch.gate]))
         assert any(n[0] == "shape" and n[1] >= first_new for n in comp.nodes), ch
         entry = next((e for e in ref_after.entries if e.nodes == comp.nodes and e.step == ch.step
                       and (e.measure, e.kind, e.oxide) == (ch.measure, ch.kind, ch.oxide)), None)

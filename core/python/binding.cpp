@@ -46,10 +46,10 @@ struct DeckHandle {
 Table table(const std::vector<std::pair<double, double>>& points) { return Table{points}; }
 
 // (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)], cell side [(step, um2)],
-//  block values [(step, measure, oxide, ratio)])
+//  block values [(step, measure, oxide, ratio)], rect layers [step per rect, or none])
 using PinTuple = std::tuple<int, std::vector<std::tuple<i64, i64, i64, i64>>, std::vector<double>, double, double,
                             std::vector<std::pair<int, double>>, std::vector<std::pair<int, double>>,
-                            std::vector<std::tuple<int, int, int, double>>>;
+                            std::vector<std::tuple<int, int, int, double>>, std::vector<int>>;
 
 std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
   std::vector<PinSpec> out;
@@ -68,6 +68,7 @@ std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
       if (measure != 0 && measure != 1) throw std::invalid_argument("pins.block_car: measure 0 (area) or 1 (side)");
       p.block_car.push_back({step, Measure(measure), oxide, ratio});
     }
+    p.rect_layers = std::get<8>(t);
     out.push_back(std::move(p));
   }
   return out;

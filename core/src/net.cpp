@@ -107,6 +107,21 @@ std::size_t LayerIndex::memory() const {
 
 // -- state -----------------------------------------------------------------------------
 
+std::size_t check_rect_layers(const Model& m, const PinSpec& pin, const char* field) {
+  if (!pin.rect_layers.empty() && pin.rect_layers.size() != pin.rects.size())
+    throw std::invalid_argument(std::string(field) + ": one layer per rectangle");
+  std::size_t anchor = pin.rects.size();
+  for (std::size_t k = 0; k < pin.rects.size(); ++k) {
+    const int l = pin.rect_layer(k);
+    if (l < pin.layer || l >= m.steps)
+      throw std::invalid_argument(std::string(field) + ": a layer of the deck, the pin's layer the lowest");
+    if (l == pin.layer && anchor == pin.rects.size()) anchor = k;
+  }
+  if (anchor == pin.rects.size())
+    throw std::invalid_argument(std::string(field) + ": the pin's layer is the lowest of its rectangles'");
+  return anchor;
+}
+
 void check_block_car(const Model& m, const PinSpec& pin, const char* field) {
   for (const BlockCar& b : pin.block_car) {
     if (b.step < 0 || b.step >= m.steps || b.oxide < 0 || std::size_t(b.oxide) >= m.deck.oxides.size() ||
@@ -137,19 +152,20 @@ Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
     for (const Rect& r : pin.rects)
       if (!valid_rect(r)) throw std::invalid_argument("pins.rects: an empty, inverted or far rectangle");
     check_block_car(m, pin, "pins.block_car");
+    anchor_rect.push_back(check_rect_layers(m, pin, "pins.rect_layers"));
     blocks = blocks || !pin.block_car.empty();
   }
+  // The anchor (the pin's first rectangle on its lowest layer) first; every other
+  // rectangle joins it at its own layer's step (one conductor inside the cell).
   for (std::size_t i = 0; i < pins.size(); ++i) {
-    int first = -1;
-    for (const Rect& r : pins[i].rects) {
-      int e = new_element(r, pins[i].layer, -1 - i64(i), int(i), first < 0);
-      if (first < 0) {
-        first = e;
-        anchor_of_pin.push_back(e);
-        insert(e, {});
-      } else {
-        insert(e, {{first, pins[i].layer}});
-      }
+    const PinSpec& pin = pins[i];
+    const int first = new_element(pin.rects[anchor_rect[i]], pin.layer, -1 - i64(i), int(i), true);
+    anchor_of_pin.push_back(first);
+    insert(first, {});
+    for (std::size_t k = 0; k < pin.rects.size(); ++k) {
+      if (k == anchor_rect[i]) continue;
+      const int e = new_element(pin.rects[k], pin.rect_layer(k), -1 - i64(i), int(i), false);
+      insert(e, {{first, pin.rect_layer(k)}});
     }
   }
 }

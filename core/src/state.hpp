@@ -201,8 +201,11 @@ struct Scratch {
   Comp built;
 };
 
-// Refuses a pin's block values the model cannot place (std::invalid_argument naming `field`).
+// Refuses a pin's block values or rectangle layers the model cannot place
+// (std::invalid_argument naming `field`); returns the index of the pin's anchor (its
+// first rectangle on its own layer, the lowest).
 void check_block_car(const Model& m, const PinSpec& pin, const char* field);
+std::size_t check_rect_layers(const Model& m, const PinSpec& pin, const char* field);
 
 struct Net::State {
   State(std::shared_ptr<const Model> model, std::vector<PinSpec> pins);
@@ -213,6 +216,7 @@ struct Net::State {
   std::vector<double> pin_gate;           // G per pin
   std::vector<std::uint64_t> pin_oxides;  // oxide classes with gate area, per pin
   std::vector<int> anchor_of_pin;
+  std::vector<std::size_t> anchor_rect;  // per pin: the index of its anchor among its rects
   bool blocks = false;  // a pin carries block values: CAR and chain differ (Model::block_car)
   std::vector<Element> elems;
   std::vector<int> free_elems;

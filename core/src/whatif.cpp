@@ -78,15 +78,14 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       if (pin.layer < 0 || pin.layer >= steps) throw std::invalid_argument("extra_pins.layer: unknown layer");
       if (pin.rects.empty()) throw std::invalid_argument("extra_pins.rects: a pin needs a rectangle");
       check_block_car(m, pin, "extra_pins.block_car");
+      const std::size_t anchor = check_rect_layers(m, pin, "extra_pins.rect_layers");
       trial_blocks = trial_blocks || !pin.block_car.empty();
       double total = 0.0;
       sc.oxides.push_back(oxide_mask(pin, m.deck.oxides.size(), total));
       sc.extra_gate.push_back(total);
-      bool first = true;
-      for (const Rect& r : pin.rects) {
-        if (!valid_rect(r)) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
-        cands.push_back({pin.layer, r, int(j), first});
-        first = false;
+      for (std::size_t q = 0; q < pin.rects.size(); ++q) {
+        if (!valid_rect(pin.rects[q])) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
+        cands.push_back({pin.rect_layer(q), pin.rects[q], int(j), q == anchor});
       }
     }
     oxides = sc.oxides.data();
@@ -104,8 +103,10 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
     first = std::min(first, cands[i].layer);
     for (std::size_t j = i + 1; j < k; ++j) {
       const auto &ci = cands[i], &cj = cands[j];
-      if (ci.layer == cj.layer) {
-        if (edge_touch(ci.r, cj.r) || (ci.pin >= 0 && ci.pin == cj.pin)) links.push_back({int(i), int(j), ci.layer});
+      if (ci.pin >= 0 && ci.pin == cj.pin) {  // one pin: one conductor, from the later layer's step
+        links.push_back({int(i), int(j), std::max(ci.layer, cj.layer)});
+      } else if (ci.layer == cj.layer) {
+        if (edge_touch(ci.r, cj.r)) links.push_back({int(i), int(j), ci.layer});
       } else if (std::abs(ci.layer - cj.layer) == 1 &&
                  m.is_cut[std::size_t(ci.layer)] != m.is_cut[std::size_t(cj.layer)]) {
         if (overlap(ci.r, cj.r)) links.push_back({int(i), int(j), std::max(ci.layer, cj.layer)});

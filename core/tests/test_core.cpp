@@ -62,6 +62,10 @@ PinSpec cell_pin(int layer, Rect r, double gate, bool block = false) {
   p.cell_um2 = {{0, 0.01}, {2, 0.02}};
   p.cell_side_um2 = {{2, 0.03}};
   if (block) p.block_car = {{0, Measure::Area, 0, 3.0}, {2, Measure::Side, 0, 1.5}};
+  if (block && layer == 0) {  // a shape on M2 too
+    p.rects.push_back({r.xlo + 200, r.ylo, r.xhi + 200, r.yhi});
+    p.rect_layers = {0, 2};
+  }
   return p;
 }
 
@@ -259,6 +263,30 @@ ETCHGUARD_TEST(block_ratio_is_carried_up_the_chain_not_summed) {
   CHECK(m2);
   PinSpec bad = gate_pin(0, {0, 0, 100, 100}, 0.05);
   bad.block_car = {{9, Measure::Area, 0, 1.0}};
+  CHECK_THROWS(Net(model, {bad}), std::invalid_argument);
+}
+
+ETCHGUARD_TEST(pin_on_two_layers_connects_at_each_from_its_step) {
+  // A pin (G = 0.05) on M1 at the origin and on M2 far away (one conductor in the cell).
+  // An M2 run 200 x 2000 DBU = 0.4 um^2 touches only the pin's M2 shape: at M1 it does
+  // not exist; at M2 it is the gate's: PAR_M2 = 0.4 / 0.05 = 8.
+  auto model = compile(demo_deck());
+  PinSpec pin = gate_pin(0, {0, 0, 100, 100}, 0.05);
+  pin.rects.push_back({5000, 0, 5200, 200});
+  pin.rect_layers = {0, 2};
+  Net net(model, {pin});
+  REQUIRE(net.add(1, 2, {5000, 0, 5200, 2000}) == Status::Ok);
+  bool m2 = false;
+  for (const Check& c : net.check().checks)
+    if (c.step == 2 && c.kind == Kind::Partial && c.measure == Measure::Area) m2 = std::abs(c.ratio - 8.0) < 1e-9;
+  CHECK(m2);
+  CostModel costs;
+  Shape more{2, {5000, 2000, 5200, 4000}};
+  Score s = net.score(&more, 1, false, costs);
+  REQUIRE(net.add(2, 2, more.rect) == Status::Ok);
+  CHECK_EQ(s.worst_utilization, net.check().worst_utilization);
+  PinSpec bad = pin;
+  bad.layer = 2;  // not the lowest of its rectangles' layers
   CHECK_THROWS(Net(model, {bad}), std::invalid_argument);
 }
 

@@ -10,8 +10,9 @@
   leaves the path where it is). Odd widths lean one
   DBU up or right, as the package's runs do.
 * Pins: a component pin is its macro pin's port shapes, moved by the macro ORIGIN,
-  oriented and placed (``_lefdef_geometry``); the engine holds a pin on one layer, so
-  the lowest process step with shapes is used (a warning names the others). Gate area
+  oriented and placed (``_lefdef_geometry``), on every process step it has shapes on
+  (the pin joins at the lowest; its shapes are one conductor, each connecting at its
+  own layer). Gate area
   per oxide, diffusion area and in-cell areas (ANTENNAPARTIALMETALAREA and
   ANTENNAPARTIALCUTAREA as ``cell_area`` on their layers, ANTENNAPARTIALMETALSIDEAREA as
   ``cell_side_area``, a side-wall area as the reference defines it) come from the LEF pin. Where a pin gives only
@@ -50,12 +51,12 @@ _N = Orientation.N
 
 
 class _PinTemplate:
-    """A macro pin in macro-local DBU (origin applied), on one layer, with its areas."""
+    """A macro pin in macro-local DBU (origin applied), its rectangles' layers, its areas."""
 
-    __slots__ = ("areas", "layer", "rects")
+    __slots__ = ("areas", "layer", "rect_layers", "rects")
 
-    def __init__(self, layer: int, rects: list[Rect], areas: _PinAreas) -> None:
-        self.layer, self.rects, self.areas = layer, rects, areas
+    def __init__(self, layer: int, rects: list[Rect], rect_layers: tuple[int, ...], areas: _PinAreas) -> None:
+        self.layer, self.rects, self.rect_layers, self.areas = layer, rects, rect_layers, areas
 
 
 # A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per
@@ -239,16 +240,14 @@ class DesignBinder:
             self.notes.warn(at.source, at.line, keyword, f"{what}: {problem}; left out")
         return block
 
-    def _one_layer(self, shapes: list[tuple[int, Rect]], what: str, at: Located) -> tuple[int, list[Rect]] | None:
+    @staticmethod
+    def _layered(shapes: list[tuple[int, Rect]]) -> tuple[int, list[Rect], tuple[int, ...]] | None:
+        """A pin's shapes as (lowest step, rectangles, their steps; none when all on one)."""
         if not shapes:
             return None
         lowest = min(step for step, _ in shapes)
-        others = sorted({step for step, _ in shapes if step != lowest})
-        if others:
-            names = ", ".join(self.deck.layers[s].name for s in others)
-            self.notes.warn(at.source, at.line, "PIN", f"{what} also has shapes on {names}; the engine holds a "
-                            f"pin on one layer, {self.deck.layers[lowest].name}")
-        return lowest, [r for step, r in shapes if step == lowest]
+        steps = tuple(step for step, _ in shapes)
+        return lowest, [r for _, r in shapes], steps if any(s != lowest for s in steps) else ()
 
     def _template(self, macro_name: str, pin_name: str, line: int) -> _PinTemplate | None:
         key = (macro_name, pin_name)
@@ -267,13 +266,13 @@ class DesignBinder:
                     raise fail(pin.at.source, pin.at.line, "PIN", f"{what}: unknown layer {layer}")
                 continue
             shapes.append((step, self._rect_dbu(rect, "PIN", pin.at, macro.origin[0], macro.origin[1])))
-        one = self._one_layer(shapes, what, pin.at)
+        one = self._layered(shapes)
         template = None
         if one is None:
             self.notes.warn(pin.at.source, pin.at.line, "PIN", f"{what} has no shape on a process step of the "
                             "deck; it is left out of its nets")
         else:
-            template = _PinTemplate(one[0], one[1], self._areas(pin.antenna, what, pin.at))
+            template = _PinTemplate(one[0], one[1], one[2], self._areas(pin.antenna, what, pin.at))
         self._templates[key] = template
         return template
 
@@ -302,7 +301,8 @@ class DesignBinder:
             rects = place(template.rects, orient, bx, by)
             self._oriented[key] = rects
         return Pin(f"{comp_name}.{pin_name}", template.layer,
-                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]), *template.areas)
+                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]), *template.areas,
+                   template.rect_layers)
 
     def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
         w, h = to_dbu(size[0], self.dbu), to_dbu(size[1], self.dbu)
@@ -332,12 +332,12 @@ class DesignBinder:
                 for step, r in self._via(via_name, _N, pin.line)[0]:
                     shapes.extend((step, o) for o in place([(r[0] + vx, r[1] + vy, r[2] + vx, r[3] + vy)],
                                                           orient, x, y))
-        one = self._one_layer(shapes, f"pin {name}", at)
+        one = self._layered(shapes)
         if one is None:
             self.notes.warn(self.source, pin.line, "PINS", f"pin {name} has no placed shape on a process "
                             "step; it is left out of its net")
             return None
-        return Pin(f"PIN {name}", one[0], tuple(one[1]), *self._areas(pin.antenna, f"pin {name}", at))
+        return Pin(f"PIN {name}", one[0], tuple(one[1]), *self._areas(pin.antenna, f"pin {name}", at), one[2])
 
     # -- nets -------------------------------------------------------------------------------
 

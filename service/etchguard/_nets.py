@@ -38,10 +38,25 @@ class Pin:
     # and oxide from that step up, until a higher step of the chain gives its own (the
     # core's Model::block_car; docs/formats.md).
     block_car: Mapping[tuple[str, int, str], float] = field(default_factory=dict)
+    # The layer step of each rectangle, for a pin with shapes on several layers (a cell
+    # port on M1 and M2); empty: all on `layer`. `layer` is then the lowest: the pin joins
+    # the structure there, each rectangle connects at its own layer from its step on, and
+    # the pin's rectangles are one conductor (connected inside the cell).
+    rect_layers: tuple[int, ...] = ()
 
     @property
     def total_gate_area(self) -> float:
         return sum(self.gate_area.values())
+
+    def layered_rects(self) -> tuple[tuple[int, Rect], ...]:
+        """(layer step, rectangle) of every rectangle."""
+        if not self.rect_layers:
+            return tuple((self.layer, r) for r in self.rects)
+        return tuple(zip(self.rect_layers, self.rects))
+
+    def lowest_rects(self) -> tuple[Rect, ...]:
+        """The rectangles on the pin's own (lowest) layer."""
+        return tuple(r for layer, r in self.layered_rects() if layer == self.layer)
 
 
 @dataclass(frozen=True)
@@ -76,7 +91,7 @@ def _area(value: object, field_name: str) -> float:
     return value
 
 
-def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
+def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[object],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
              cell_area: Mapping[str, object] | None = None, field_name: str = "pin",
              cell_side_area: Mapping[str, object] | None = None,
@@ -86,7 +101,12 @@ def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[o
     step = resolve_layer(deck, layer, f"{field_name}.layer")
     if not rects:
         raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
-    checked = tuple(checked_rect(r, f"{field_name}.rects[{i}]") for i, r in enumerate(rects))
+    layered = [_pin_rect(deck, step, r, f"{field_name}.rects[{i}]") for i, r in enumerate(rects)]
+    checked = tuple(r for _, r in layered)
+    rect_layers: tuple[int, ...] = ()
+    if any(l != step for l, _ in layered):  # several layers: the pin joins at the lowest
+        rect_layers = tuple(l for l, _ in layered)
+        step = min(rect_layers)
     if gate_area is None:
         gates: dict[str, float] = {}
     elif isinstance(gate_area, Mapping):
@@ -104,7 +124,17 @@ def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[o
     return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"),
                _per_layer(deck, cell_area, f"{field_name}.cell_area"),
                _per_layer(deck, cell_side_area, f"{field_name}.cell_side_area", routing_only=True),
-               _block_car(deck, block_car or (), gates, f"{field_name}.block_car"))
+               _block_car(deck, block_car or (), gates, f"{field_name}.block_car"), rect_layers)
+
+
+def _pin_rect(deck: Deck, step: int, raw: object, field_name: str) -> tuple[int, Rect]:
+    """A pin rectangle: four coordinates on the pin's layer, or ``{"layer", "rect"}`` on
+    a layer of its own."""
+    if isinstance(raw, Mapping):
+        entry = _json_object(dict(raw), "a pin rectangle", {"layer", "rect"}, field_name)
+        return (resolve_layer(deck, entry.get("layer"), f"{field_name}.layer"),
+                checked_rect(entry.get("rect", []), f"{field_name}.rect"))
+    return step, checked_rect(raw, field_name)  # type: ignore[arg-type]
 
 
 _BLOCK_KEYS = {"layer", "measure", "oxide", "ratio"}
@@ -337,6 +367,9 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
             if type(step) is not int or not 0 <= step < steps:
                 raise InputError("not a layer of the deck", f"{field_name}.{key}")
             _area(value, f"{field_name}.{key}")
+    if pin.rect_layers and (len(pin.rect_layers) != len(pin.rects) or min(pin.rect_layers) != pin.layer
+                            or any(type(l) is not int or not 0 <= l < steps for l in pin.rect_layers)):
+        raise InputError("one layer step per rectangle, the pin's layer the lowest", f"{field_name}.rect_layers")
     for (measure, step, oxide), ratio in pin.block_car.items():
         if measure not in MEASURE_NAMES or type(step) is not int or not 0 <= step < steps \
                 or oxide not in pin.gate_area or not (isinstance(ratio, (int, float)) and 0 <= ratio < math.inf):

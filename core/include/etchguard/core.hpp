@@ -111,9 +111,14 @@ struct BlockCar {
   double ratio;
 };
 
+// A pin's rectangles connect like routed ones of their layer and among themselves (one
+// conductor inside the cell), each from its own layer's step on; the pin, with its
+// figures, joins the structure at `layer`, the lowest of its rectangles' layers.
 struct PinSpec {
   int layer = 0;
   std::vector<Rect> rects;               // at least one
+  std::vector<int> rect_layers;          // per rectangle; empty: every one on `layer`
+  int rect_layer(std::size_t k) const { return rect_layers.empty() ? layer : rect_layers[k]; }
   std::vector<double> gate_by_oxide;     // per DeckSpec oxide (missing: 0)
   double gate_total_um2 = -1.0;          // G of the pin; < 0: the sum of gate_by_oxide
   double diff_um2 = 0.0;
