@@ -13,6 +13,8 @@ from __future__ import annotations
 import tomllib
 from typing import Any
 
+import pytest
+
 import etchguard as eg
 from reference import analyze, ref_deck, report_disagreements
 from test_handworked import PLAIN_RULES, approx, deck_text, run, shape
@@ -88,15 +90,15 @@ def test_in_cell_side_wall_what_if_equals_check_after_commit() -> None:
                                [eg.Shape(v1, (0, 0, 100, 100)), eg.Shape(m2, (0, 0, 100, 4000))]])
 
 
+def refusal(rules: str, net: dict[str, Any]) -> eg.InputError:
+    with pytest.raises(eg.InputError) as caught:
+        eg.parse_net_file(eg.loads_deck(deck_text(rules), "<pin-demo>"), {"nets": [net]})
+    return caught.value
+
+
 def test_side_wall_on_a_cut_layer_is_refused() -> None:
-    deck = eg.loads_deck(deck_text(SIDE_RULES), "<pin-demo>")
-    net = side_net({"V1": 0.01})
-    try:
-        eg.parse_net_file(deck, {"nets": [net]})
-    except eg.InputError as err:
-        assert err.field.endswith("pins[0].cell_side_area.V1") and "cut layer" in err.message
-    else:
-        raise AssertionError("a side wall on a cut layer was accepted")
+    err = refusal(SIDE_RULES, side_net({"V1": 0.01}))
+    assert err.field.endswith("pins[0].cell_side_area.V1") and "cut layer" in err.message
 
 
 # -- a block's accumulated cumulative ratios ------------------------------------------------
@@ -157,14 +159,8 @@ def test_block_ratio_what_if_equals_check_after_commit() -> None:
 
 
 def test_block_ratio_needs_gate_area_of_its_class() -> None:
-    deck = eg.loads_deck(deck_text(PLAIN_RULES), "<pin-demo>")
-    net = block_net([{"layer": "M1", "oxide": "thick", "ratio": 30.0}])
-    try:
-        eg.parse_net_file(deck, {"nets": [net]})
-    except eg.InputError as err:
-        assert err.field.endswith("pins[0].block_car[0].oxide") and "no gate area" in err.message
-    else:
-        raise AssertionError("a block ratio for a class the pin has no gate of was accepted")
+    err = refusal(PLAIN_RULES, block_net([{"layer": "M1", "oxide": "thick", "ratio": 30.0}]))
+    assert err.field.endswith("pins[0].block_car[0].oxide") and "no gate area" in err.message
 
 
 # -- pins with shapes on several layers -------------------------------------------------------
