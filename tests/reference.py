@@ -18,8 +18,10 @@ Sources:
 
 Interpretation points (the project's documented reading of the contract):
 * a pin's ``cell_area`` on layer s counts at step s if the pin exists at s;
-* measure "side" has no ``cell_area`` contribution; a routing layer without
-  ``thickness_um`` adds 0 to a side sum;
+* measure "side" has no ``cell_area`` contribution; its in-cell counterpart is the
+  pin's ``cell_side_area`` on layer s (a side-wall area as given, LEF's
+  ANTENNAPARTIALMETALSIDEAREA), added to perimeter x thickness; a routing layer
+  without ``thickness_um`` adds 0 for its routed perimeter;
 * the cumulative ratio is the contract's chain, CAR_s = PAR_s + CAR_p with p the step
   that feeds s: for measure "side" the nearest lower routing step (so a cut step never
   enters a side sum, whatever the flags); for "area" the step directly below when
@@ -30,6 +32,16 @@ Interpretation points (the project's documented reading of the contract):
   so M1's term is not in CAR_M2;
 * a step below g's pin layer adds 0 but the chain runs on through it (all steps below
   it are below the pin too, so they add 0 as well);
+* a block pin's ``block_car`` entries (layer, measure, oxide, ratio) are cumulative
+  sums already taken inside the block, so they are not chained: a gate of the pin
+  checked at step s gets, on top of its chain, the entry of the highest step among s
+  and the steps feeding s (walked down the same chain) that the pin has one for, of
+  the rule's measure and oxide (the LEF/DEF reference's hierarchical values, "for the
+  pin layer or the layers above it", as the project reads them);
+* a pin rectangle may name its own layer (``{"layer": "M2", "rect": [...]}``): it is an
+  element of that layer, present from that step on; a pin's rectangles are one
+  conductor (linked to each other whenever both exist) and the pin (its gate,
+  diffusion and in-cell figures) exists from the lowest layer among them;
 * r(D) is read from the table at every D, D = 0 included (the contract gives no
   D = 0 exception for it as it does for the limits), and is 1 without a table;
 * a step without a rule for (measure, oxide) adds the plain A / G to a cumulative sum;
@@ -176,11 +188,13 @@ def load_ref_deck(path: str | Path) -> RefDeck:
 @dataclass(frozen=True)
 class RefPin:
     name: str
-    layer: int
-    rects: tuple[tuple[int, int, int, int], ...]
+    layer: int  # the lowest layer of its rectangles: the pin exists from there on
+    rects: tuple[tuple[int, tuple[int, int, int, int]], ...]  # (layer, rectangle)
     gate: dict[str, float]
     diff: float
     cell: dict[str, float]  # layer name -> um^2
+    cell_side: dict[str, float]  # layer name -> side-wall um^2
+    block: dict[tuple[str, int, str], float]  # (measure, step, oxide) -> the block's CAR
 
     @property
     def total_gate(self) -> float:
@@ -192,9 +206,14 @@ def _pins(deck: RefDeck, net: dict[str, Any]) -> list[RefPin]:
     for p in net.get("pins", []):
         raw = p.get("gate_area", {})
         gate = {DEFAULT_OXIDE: float(raw)} if isinstance(raw, (int, float)) else {k: float(v) for k, v in raw.items()}
-        out.append(RefPin(p["name"], deck.index[p["layer"]], tuple(tuple(r) for r in p["rects"]),
+        rects = tuple((deck.index[r["layer"]], tuple(r["rect"])) if isinstance(r, dict)
+                      else (deck.index[p["layer"]], tuple(r)) for r in p["rects"])
+        out.append(RefPin(p["name"], min(layer for layer, _ in rects), rects,
                           {k: v for k, v in gate.items() if v > 0}, float(p.get("diff_area", 0.0)),
-                          {k: float(v) for k, v in p.get("cell_area", {}).items()}))
+                          {k: float(v) for k, v in p.get("cell_area", {}).items()},
+                          {k: float(v) for k, v in p.get("cell_side_area", {}).items()},
+                          {(b.get("measure", "area"), deck.index[b["layer"]], b.get("oxide", DEFAULT_OXIDE)):
+                           float(b["ratio"]) for b in p.get("block_car", [])}))
     return out
 
 
@@ -210,7 +229,12 @@ class RefComponent:
     union_area_um2: float
     union_perimeter_um: float
     cell_um2: float
+    cell_side_um2: float
     gate_pins: list[int] = field(default_factory=list)
+
+    def holds_pin(self, p: int) -> bool:
+        """Whether pin p (any of its rectangles) is in this component."""
+        return any(n[0] == "pin" and n[1] == p for n in self.nodes)
 
     def conductor(self, deck: RefDeck, measure: str) -> float:
         """A(C) on the step's layer for a measure, per the contract."""
@@ -219,7 +243,7 @@ class RefComponent:
         layer = deck.layers[self.step]
         if layer.kind == "cut":
             return 0.0
-        return self.union_perimeter_um * layer.thickness_um
+        return self.union_perimeter_um * layer.thickness_um + self.cell_side_um2
 
 
 @dataclass(frozen=True)
@@ -273,7 +297,7 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
     shapes = [(index[s["layer"]], tuple(s["rect"])) for s in net.get("shapes", [])]
     elements: list[tuple[Node, int, tuple[int, ...]]] = [(("shape", i), l, r) for i, (l, r) in enumerate(shapes)]
     for p, pin in enumerate(pins):
-        elements += [(("pin", p, k), pin.layer, r) for k, r in enumerate(pin.rects)]
+        elements += [(("pin", p, k), layer, r) for k, (layer, r) in enumerate(pin.rects)]
     steps = len(deck.layers)
     scale = 1.0 / deck.dbu_per_micron
     components: list[list[RefComponent]] = []
@@ -309,11 +333,12 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
                 union_area_um2=(union.area * scale * scale) if union is not None else 0.0,
                 union_perimeter_um=(union.length * scale) if union is not None else 0.0,
                 cell_um2=sum(pins[p].cell.get(deck.layers[s].name, 0.0) for p in pin_ids),
+                cell_side_um2=sum(pins[p].cell_side.get(deck.layers[s].name, 0.0) for p in pin_ids),
                 gate_pins=[p for p in pin_ids if pins[p].total_gate > 0]))
         components.append(at_step)
 
     def comp_of_pin(p: int, s: int) -> RefComponent | None:
-        return next((c for c in components[s] if ("pin", p, 0) in c.nodes), None)
+        return next((c for c in components[s] if c.holds_pin(p)), None)
 
     def term(c: RefComponent, s: int, measure: str, oxide: str) -> float:
         rule = deck.rules.get((deck.layers[s].name, measure, oxide))
@@ -329,12 +354,21 @@ def analyze(deck: RefDeck, net: dict[str, Any]) -> RefAnalysis:
         own = 0.0 if s < pins[p].layer else term(comp_of_pin(p, s), s, measure, oxide)  # type: ignore[arg-type]
         return own + car(p, deck.feeding_step(s, measure), measure, oxide)
 
+    def block(p: int, s: int | None, measure: str, oxide: str) -> float:
+        """The block's own sum: its entry at s, else at the step feeding s, and so on."""
+        while s is not None:
+            if (measure, s, oxide) in pins[p].block:
+                return pins[p].block[(measure, s, oxide)]
+            s = deck.feeding_step(s, measure)
+        return 0.0
+
     groups = {(r.measure, r.oxide) for r in deck.rules.values()}
     cars: dict[tuple[int, str, str], list[float]] = {}
     for p, pin in enumerate(pins):
         for measure, oxide in groups:
             if oxide in pin.gate:
-                cars[(p, measure, oxide)] = [car(p, s, measure, oxide) for s in range(steps)]
+                cars[(p, measure, oxide)] = [car(p, s, measure, oxide) + block(p, s, measure, oxide)
+                                             for s in range(steps)]
 
     entries: list[RefEntry] = []
     for s in range(steps):

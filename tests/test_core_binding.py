@@ -101,9 +101,9 @@ def test_bad_pins_and_queries_are_refused(held) -> None:
     deck, core = held
     model = core.compiled.model
     with pytest.raises(ValueError):  # a pin on no layer
-        _core.Net(model, [(len(deck.layers), [(0, 0, 10, 10)], [0.1], -1.0, 0.0, [])])
+        _core.Net(model, [(len(deck.layers), [(0, 0, 10, 10)], [0.1], -1.0, 0.0, [], [], [], [])])
     with pytest.raises(ValueError):  # a pin without a rectangle
-        _core.Net(model, [(0, [], [0.1], -1.0, 0.0, [])])
+        _core.Net(model, [(0, [], [0.1], -1.0, 0.0, [], [], [], [])])
     with pytest.raises(ValueError):
         core.net.headroom(len(deck.layers), 0, 0)
     with pytest.raises(ValueError):

@@ -95,9 +95,11 @@ def test_orientations_are_the_eight_symmetries_of_the_square() -> None:
 # lower-left corner is on the point.
 
 def pin(name: str, layer: str, rect: list[int], gate: dict[str, float] | None = None, diff: float = 0.0,
-        cell: dict[str, float] | None = None) -> dict[str, Any]:
-    return {"name": name, "layer": layer, "rects": [rect], "gate_area": gate or {}, "diff_area": diff,
-            "cell_area": cell or {}}
+        cell: dict[str, float] | None = None, side: dict[str, float] | None = None,
+        block: list[dict[str, Any]] | None = None, also: dict[str, list[int]] | None = None) -> dict[str, Any]:
+    rects: list[Any] = [rect] + [{"layer": l, "rect": r} for l, r in (also or {}).items()]
+    return {"name": name, "layer": layer, "rects": rects, "gate_area": gate or {}, "diff_area": diff,
+            "cell_area": cell or {}, "cell_side_area": side or {}, "block_car": block or []}
 
 
 def shape(layer: str, rect: list[int]) -> dict[str, Any]:
@@ -137,8 +139,9 @@ EXPECTED_NETS = [
         # A RECT 0.1 0.4 0.3 1.0 -> (200, 400, 400, 1000) -> (400, -400, 1000, -200)
         pin("u3.A", "M1", [14400, 5600, 15000, 5800], gate={"thin": 0.04}),
         # B PATH 0.7 0.5 0.7 1.1 at width 0.14 -> (0.63 0.43 0.77 1.17) -> (730, 430, 870, 1170)
-        # -> (430, -870, 1170, -730); its side-wall in-cell area has no term (a warning)
-        pin("u3.B", "M1", [14430, 5130, 15170, 5270], gate={"thin": 0.04})],
+        # -> (430, -870, 1170, -730); ANTENNAPARTIALMETALSIDEAREA 0.01 LAYER M1 is its
+        # in-cell side wall on M1, as given
+        pin("u3.B", "M1", [14430, 5130, 15170, 5270], gate={"thin": 0.04}, side={"M1": 0.01})],
      "shapes": [
         # (9100 5700) to (14700 5700) with extension 0 at the end
         shape("M1", [9030, 5630, 14700, 5770]),
@@ -196,8 +199,12 @@ EXPECTED_NETS = [
         shape("M1", [37430, 4230, 37570, 5970])]},
     {"name": "n6", "pins": [
         # LBLOCK pin IN has per-LAYER gate areas only (M1 0.8, M2 0.6): the smallest, 0.6; its
-        # M2 port shape is left out (the lowest layer, M1, holds the pin); at (2000, 12000) N
-        pin("b1.IN", "M1", [2000, 13000, 2400, 13400], gate={"thin": 0.6})],
+        # port has RECT 0.0 1.0 0.4 1.4 on M1 and on M2: both are the pin's, which joins at
+        # M1, the lowest; at (2000, 12000) N.
+        # ANTENNAMAXAREACAR 50 LAYER M1 (no ANTENNAMODEL: OXIDE1, "thin") is its block ratio.
+        pin("b1.IN", "M1", [2000, 13000, 2400, 13400], gate={"thin": 0.6},
+            block=[{"layer": "M1", "measure": "area", "oxide": "thin", "ratio": 50.0}],
+            also={"M2": [2000, 13000, 2400, 13400]})],
      "shapes": [shape("M1", [2130, 13130, 6070, 13270])]},
     {"name": "n7", "pins": [
         pin("u9.A", "M1", [40200, 4600, 40400, 5200], gate={"thin": 0.05}, cell={"M1": 0.02})],
@@ -222,9 +229,15 @@ EXPECTED_NETS = [
 def as_plain(spec: eg.NetSpec, deck: eg.Deck) -> dict[str, Any]:
     name = {l.index: l.name for l in deck.layers}
     return {"name": spec.name,
-            "pins": sorted([{"name": p.name, "layer": name[p.layer], "rects": [list(r) for r in p.rects],
+            "pins": sorted([{"name": p.name, "layer": name[p.layer],
+                             "rects": [list(r) if l == p.layer else {"layer": name[l], "rect": list(r)}
+                                       for l, r in p.layered_rects()],
                              "gate_area": dict(p.gate_area), "diff_area": p.diff_area,
-                             "cell_area": {name[s]: a for s, a in p.cell_area.items()}} for p in spec.pins],
+                             "cell_area": {name[s]: a for s, a in p.cell_area.items()},
+                             "cell_side_area": {name[s]: a for s, a in p.cell_side_area.items()},
+                             "block_car": [{"layer": name[s], "measure": m, "oxide": ox, "ratio": r}
+                                           for (m, s, ox), r in sorted(p.block_car.items())]}
+                            for p in spec.pins],
                            key=lambda p: p["name"]),
             "shapes": sorted([name[s.layer], list(s.rect)] for s in spec.shapes)}
 
@@ -240,7 +253,7 @@ def test_demo_block_nets_are_the_hand_derived_ones() -> None:
     assert got == [expected_plain(net) for net in EXPECTED_NETS]
     unplaced = [n for n in design.notes.kept if n.keyword == "COMPONENTS" and "not placed" in n.message]
     assert [(n.subject, n.line) for n in unplaced] == [("u8", line_of(BLOCK.read_text(), "- u8 LINV"))]
-    assert design.notes.count("ANTENNAPARTIALMETALSIDEAREA") == 1 and design.notes.count("ANTENNAMAXAREACAR") == 1
+    assert design.notes.count("ANTENNAPARTIALMETALSIDEAREA") == 0 and design.notes.count("ANTENNAMAXAREACAR") == 0
     assert design.header.special_nets == 1  # VDD, left out
 
 
@@ -460,8 +473,8 @@ def test_serve_takes_rules_from_lef_and_opens_the_def_nets() -> None:
             assert report.legal == offline[name]["legal"]
             assert report.worst_utilization == offline[name]["worst_utilization"]
         skipped = [e for e in server.logs if e.get("msg") == "LEF/DEF statement not used"]
-        pin_line = line_of(LEFS[1].read_text(encoding="utf-8"), "PIN IN")  # LBLOCK's pin
-        assert any(e["keyword"] == "ANTENNAMAXAREACAR" and e["where"] == f"{LEFS[1]}:{pin_line}" for e in skipped)
+        pin_line = line_of(LEFS[1].read_text(encoding="utf-8"), "PIN IN")  # LBLOCK's pin: per-LAYER gates only
+        assert any(e["keyword"] == "ANTENNAGATEAREA" and e["where"] == f"{LEFS[1]}:{pin_line}" for e in skipped)
     finally:
         assert server.stop() == 0
 

@@ -148,9 +148,19 @@ def nets_as_lef_def(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: di
             for layer, area in pin.get("cell_area", {}).items():
                 kind = "CUT" if layer.startswith("V") else "METAL"
                 lef.append(f"    ANTENNAPARTIAL{kind}AREA {area!r} LAYER {layer} ;")
-            lef += ["    PORT", f"      LAYER {pin['layer']} ;"]
-            lef += [f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"
-                    for r in pin["rects"]]
+            for layer, area in pin.get("cell_side_area", {}).items():
+                lef.append(f"    ANTENNAPARTIALMETALSIDEAREA {area!r} LAYER {layer} ;")
+            for block in pin.get("block_car", []):  # after the gate areas: each under its own model
+                model = oxides[block.get("oxide", "thin")]
+                keyword = ("ANTENNAMAXSIDEAREACAR" if block.get("measure") == "side" else
+                           "ANTENNAMAXCUTCAR" if block["layer"].startswith("V") else "ANTENNAMAXAREACAR")
+                lef += [f"    ANTENNAMODEL OXIDE{1 if model == 'thin' else model[-1]} ;",
+                        f"    {keyword} {block['ratio']!r} LAYER {block['layer']} ;"]
+            lef.append("    PORT")
+            for r in pin["rects"]:  # a rectangle on a layer of its own: a port on several layers
+                layer, r = (r["layer"], r["rect"]) if isinstance(r, dict) else (pin["layer"], r)
+                lef += [f"      LAYER {layer} ;",
+                        f"        RECT {um(r[0], dbu)} {um(r[1], dbu)} {um(r[2], dbu)} {um(r[3], dbu)} ;"]
             lef += ["    END", "  END a", f"END {macro}"]
             components.append(f"- c{n}_{p} {macro} + PLACED ( 0 0 ) N ;")
             connections.append(f"( c{n}_{p} a )")
@@ -181,6 +191,8 @@ def renamed(deck: dict[str, Any], nets: list[dict[str, Any]], oxides: dict[str, 
     for net in nets:
         for pin in net["pins"]:
             pin["gate_area"] = {oxides[k]: v for k, v in gates(pin).items()}
+            for block in pin.get("block_car", []):
+                block["oxide"] = oxides[block.get("oxide", "thin")]
     return deck, nets
 
 

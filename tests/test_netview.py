@@ -102,7 +102,7 @@ def test_pin_diffusion_after_the_run(seed):
             if s < pin.layer:
                 assert d is None
                 continue
-            comp = next(c for c in after.components[s] if ("pin", p, 0) in c.nodes)
+            comp = next(c for c in after.components[s] if c.holds_pin(p))
             assert d == pytest.approx(comp.diff, rel=REL, abs=0.0)
 
 

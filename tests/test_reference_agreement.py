@@ -20,7 +20,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import etchguard as eg
-from reference import (RefAnalysis, added_union_area_um2, analyze, close, ref_deck,
+from reference import (DEFAULT_OXIDE, RefAnalysis, added_union_area_um2, analyze, close, ref_deck,
                        report_disagreements)
 
 DATA = Path(eg.__file__).parent / "data"
@@ -140,7 +140,9 @@ def shapes_on(draw: st.DrawFn, deck: dict[str, Any], low_layers: bool, min_size:
 
 
 @st.composite
-def pins_for(draw: st.DrawFn, deck: dict[str, Any]) -> list[dict[str, Any]]:
+def pins_for(draw: st.DrawFn, deck: dict[str, Any], block_pins: bool = True) -> list[dict[str, Any]]:
+    """Random pins; ``block_pins`` adds in-cell side walls and block ratios (without them
+    the draws are those from before these fields existed)."""
     names = layer_names(deck)[:5]
     # only classes the deck has rules for: a gate of any other class is refused (it would
     # never be checked); a class limited on some layers and not others stays in play
@@ -156,10 +158,24 @@ def pins_for(draw: st.DrawFn, deck: dict[str, Any]) -> list[dict[str, Any]]:
             else:
                 pin["gate_area"] = {ox: draw(st.floats(0.005, 0.4))
                                     for ox in draw(st.sets(st.sampled_from(oxides), min_size=1))}
+        if block_pins and "gate_area" in pin and draw(st.integers(0, 2)) == 0:  # a block's ratios
+            gated = [DEFAULT_OXIDE] if isinstance(pin["gate_area"], float) else sorted(pin["gate_area"])
+            kinds = {l["name"]: l.get("kind", "routing") for l in deck["layers"]}
+            pin["block_car"] = [
+                {"layer": l, "measure": draw(st.sampled_from(["area", "side"] if kinds[l] == "routing" else ["area"])),
+                 "oxide": draw(st.sampled_from(gated)), "ratio": draw(st.floats(0.0, 400.0))}
+                for l in sorted(draw(st.sets(st.sampled_from(names), min_size=1, max_size=3)))]
         if draw(st.integers(0, 3)) == 0:
             pin["diff_area"] = draw(st.sampled_from([0.02, 0.1, 0.3, 0.75, 2.0]))
         if draw(st.booleans()):
             pin["cell_area"] = {l: draw(st.floats(0.0, 0.05)) for l in draw(st.sets(st.sampled_from(names), max_size=2))}
+        if block_pins and draw(st.integers(0, 2)) == 0:  # shapes on other layers too (above or below)
+            pin["rects"] += [{"layer": draw(st.sampled_from(names)), "rect": draw(rects())}
+                             for _ in range(draw(st.integers(1, 2)))]
+        if block_pins and draw(st.booleans()):  # in-cell side walls, on routing layers
+            routing = [l["name"] for l in deck["layers"][:5] if l.get("kind", "routing") == "routing"]
+            pin["cell_side_area"] = {l: draw(st.floats(0.0, 0.05))
+                                     for l in draw(st.sets(st.sampled_from(routing), max_size=2))}
         pins.append(pin)
     return pins
 
@@ -265,7 +281,7 @@ def test_score_equals_check_after_commit(case) -> None:
     first_new = len(net["shapes"])
     pin_index = {p["name"]: i for i, p in enumerate(net["pins"])}
     for ch in score.changes:
-        comp = next(c for c in ref_after.components[ch.step] if ("pin", pin_index[ch.gate], 0) in c.nodes)
+        comp = next(c for c in ref_after.components[ch.step] if c.holds_pin(pin_index[ch.gate]))
         assert any(n[0] == "shape" and n[1] >= first_new for n in comp.nodes), ch
         entry = next((e for e in ref_after.entries if e.nodes == comp.nodes and e.step == ch.step
                       and (e.measure, e.kind, e.oxide) == (ch.measure, ch.kind, ch.oxide)), None)

@@ -45,9 +45,11 @@ struct DeckHandle {
 
 Table table(const std::vector<std::pair<double, double>>& points) { return Table{points}; }
 
-// (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)])
+// (layer, rects, gate_by_oxide, gate_total, diff, cell [(step, um2)], cell side [(step, um2)],
+//  block values [(step, measure, oxide, ratio)], rect layers [step per rect, or none])
 using PinTuple = std::tuple<int, std::vector<std::tuple<i64, i64, i64, i64>>, std::vector<double>, double, double,
-                            std::vector<std::pair<int, double>>>;
+                            std::vector<std::pair<int, double>>, std::vector<std::pair<int, double>>,
+                            std::vector<std::tuple<int, int, int, double>>, std::vector<int>>;
 
 std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
   std::vector<PinSpec> out;
@@ -61,6 +63,12 @@ std::vector<PinSpec> pin_specs(const std::vector<PinTuple>& pins) {
     p.gate_total_um2 = std::get<3>(t);
     p.diff_um2 = std::get<4>(t);
     p.cell_um2 = std::get<5>(t);
+    p.cell_side_um2 = std::get<6>(t);
+    for (const auto& [step, measure, oxide, ratio] : std::get<7>(t)) {
+      if (measure != 0 && measure != 1) throw std::invalid_argument("pins.block_car: measure 0 (area) or 1 (side)");
+      p.block_car.push_back({step, Measure(measure), oxide, ratio});
+    }
+    p.rect_layers = std::get<8>(t);
     out.push_back(std::move(p));
   }
   return out;

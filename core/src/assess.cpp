@@ -25,7 +25,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
       const std::uint64_t bit = std::uint64_t(1) << key.oxide;
       if (!(c.oxides & bit)) continue;
       const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
       double ratio = rule.ratio(conductor, c.G, c.D);
       double limit = rule.partial_limit(c.D);
       int gate = -1;
@@ -51,7 +51,7 @@ void Net::State::entries(int s, const Comp& c, bool partial, const double* const
     }
     const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
     double limit = rule.cumulative_limit(c.D);
-    double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+    double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
     double term = rule.ratio(conductor, c.G, c.D);
     out.push_back({s, key.measure, Kind::Cumulative, key.oxide, best, limit, utilization(best, limit), best_p,
                    conductor, best - term, c.G, c.D});
@@ -71,6 +71,7 @@ const Assessment& Net::State::assess() const {
     if (pin_gate[p] > 0) a.slot_of_pin[p] = slots++;
   a.term.assign(std::size_t(slots) * std::size_t(ng) * std::size_t(n), 0.0);
   a.car.assign(a.term.size(), 0.0);
+  a.chain.assign(blocks ? a.term.size() : 0, 0.0);
   a.has.assign(std::size_t(slots) * std::size_t(ng), 0);
   for (std::size_t p = 0; p < pins.size(); ++p) {
     int slot = a.slot_of_pin[p];
@@ -81,17 +82,23 @@ const Assessment& Net::State::assess() const {
       a.has[std::size_t(slot) * std::size_t(ng) + std::size_t(g)] = 1;
       double* term = &a.term[a.row(slot, g)];
       double* car = &a.car[a.row(slot, g)];
+      double* chain = blocks ? &a.chain[a.row(slot, g)] : car;
       for (int s = pins[p].layer; s < n; ++s) {
         const Comp& c = comps[std::size_t(s)][std::size_t(comp_of[std::size_t(s)][std::size_t(anchor)])];
-        term[s] = m.term(s, g, c.area, c.cell_um2, c.perim, c.G, c.D);
+        term[s] = m.term(s, g, c.area, c.cell_um2, c.cell_side_um2, c.perim, c.G, c.D);
         int f = m.feeding(s, g);
-        car[s] = f >= 0 ? term[s] + car[f] : term[s];
+        chain[s] = f >= 0 ? term[s] + chain[f] : term[s];
+        if (blocks) car[s] = pins[p].block_car.empty() ? chain[s] : chain[s] + m.block_car(pins[p], s, g);
       }
     }
   }
   a.rows.assign(pins.size(), nullptr);
-  for (std::size_t p = 0; p < pins.size(); ++p)
-    if (a.slot_of_pin[p] >= 0) a.rows[p] = &a.car[a.row(a.slot_of_pin[p], 0)];
+  a.chain_rows.assign(pins.size(), nullptr);
+  for (std::size_t p = 0; p < pins.size(); ++p) {
+    if (a.slot_of_pin[p] < 0) continue;
+    a.rows[p] = &a.car[a.row(a.slot_of_pin[p], 0)];
+    a.chain_rows[p] = blocks ? &a.chain[a.row(a.slot_of_pin[p], 0)] : a.rows[p];
+  }
   const auto& rows = a.rows;
   a.comp_worst.resize(std::size_t(n));
   a.partial_worst.resize(std::size_t(n));

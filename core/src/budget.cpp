@@ -92,7 +92,7 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
     BudgetTerm bt{};
     bt.measure = meas;
     bt.oxide = ox;
-    bt.conductor = m.conductor(L, meas, RL.area, RL.cell_um2, RL.perim);
+    bt.conductor = m.conductor(L, meas, RL.area, RL.cell_um2, RL.cell_side_um2, RL.perim);
     const bool side_wall = meas == Measure::Side && !m.is_cut[std::size_t(L)];
     bt.per_area = meas == Measure::Area ? 1.0 : 0.0;
     bt.per_perimeter = side_wall ? m.deck.layers[std::size_t(L)].thickness_um : 0.0;

@@ -154,19 +154,40 @@ Model::Model(const DeckSpec& d) : deck(d) {
   for (std::size_t s = 0; s < n; ++s) side_needed[s] = !is_cut[s] && (cumulative_side || side_rule[s]);
 }
 
+// A block pin's accumulated ratio, per the LEF/DEF 5.8 reference's process antenna
+// appendix, hierarchical part (recalled from memory, not fetched: a block pin's
+// ANTENNAMAX*CAR value on a layer is the largest cumulative ratio inside the block using
+// the metal at or below that layer, the pin's own metal excluded, and serves for the
+// cumulative ratio on that layer and the layers above it). So the value is itself a
+// cumulative sum: it is not summed down the chain with the other terms. At step s the
+// pin's gates get the value of the highest step of s's feeding chain (s, p(s), p(p(s)),
+// ...) that the pin gives one for, for the group's measure and oxide; 0 where none:
+//   CAR_s(g) = chain_s(g) + H*_s(g),   chain_s(g) = PAR_s(C_s(g)) + chain_p(g)
+// (chain_s is the contract's sum without block values; the sum is rounded once, after
+// the chain, so a pin without values has CAR = chain exactly).
+double Model::block_car(const PinSpec& pin, int s, int g) const {
+  if (pin.block_car.empty()) return 0.0;
+  const Group& grp = groups[std::size_t(g)];
+  for (int t = s; t >= 0; t = feeding(t, g))
+    for (const BlockCar& b : pin.block_car)
+      if (b.step == t && b.measure == grp.measure && b.oxide == grp.oxide) return b.ratio;
+  return 0.0;
+}
+
 bool Model::in_chain(int low, int s, int g) const {
   while (s > low) s = feeding(s, g);
   return s == low;
 }
 
-double Model::conductor(int step, Measure m, i128 area, double cell, i128 perim) const {
+double Model::conductor(int step, Measure m, i128 area, double cell, double cell_side, i128 perim) const {
   if (m == Measure::Area) return double(area) * scale_area + cell;
   if (is_cut[std::size_t(step)]) return 0.0;
-  return double(perim) * scale_length * deck.layers[std::size_t(step)].thickness_um;
+  return double(perim) * scale_length * deck.layers[std::size_t(step)].thickness_um + cell_side;
 }
 
-double Model::term(int step, int g, i128 area, double cell, i128 perim, double gate, double diff) const {
-  double a = conductor(step, groups[std::size_t(g)].measure, area, cell, perim);
+double Model::term(int step, int g, i128 area, double cell, double cell_side, i128 perim, double gate,
+                   double diff) const {
+  double a = conductor(step, groups[std::size_t(g)].measure, area, cell, cell_side, perim);
   const RuleSpec* r = factors(step, g);
   if (r == nullptr) return a / gate;
   return r->ratio(a, gate, diff);

@@ -48,13 +48,18 @@ class Model {
     int r = term_rule[std::size_t(step) * groups.size() + std::size_t(g)];
     return r < 0 ? nullptr : &deck.rules[std::size_t(r)];
   }
+  // What a block pin adds to its gates' CAR at step s for group g (see model.cpp).
+  double block_car(const PinSpec& pin, int s, int g) const;
   // Whether a change of step `low`'s term reaches CAR at step `s` for group g.
   bool in_chain(int low, int s, int g) const;
 
-  // A of a component on layer `step`: um^2 (area) or side-wall um^2 (side).
-  double conductor(int step, Measure m, i128 area_dbu2, double cell_um2, i128 perim_dbu) const;
+  // A of a component on layer `step`: um^2 (area) or side-wall um^2 (side); the pins'
+  // in-cell conductor on the layer (cell_um2 for the area, cell_side_um2 for the side
+  // measure) is added to the routed union's.
+  double conductor(int step, Measure m, i128 area_dbu2, double cell_um2, double cell_side_um2,
+                   i128 perim_dbu) const;
   // Step `step`'s term of a cumulative sum for group g.
-  double term(int step, int g, i128 area_dbu2, double cell_um2, i128 perim_dbu, double gate_um2,
+  double term(int step, int g, i128 area_dbu2, double cell_um2, double cell_side_um2, i128 perim_dbu, double gate_um2,
               double diff_um2) const;
 };
 

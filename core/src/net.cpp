@@ -1,5 +1,7 @@
 // Net state: elements, per-layer lookup, components at every step, add and remove.
 #include <algorithm>
+#include <cmath>
+#include <string>
 #include <stdexcept>
 
 #include "state.hpp"
@@ -26,6 +28,7 @@ void Comp::absorb_figures(const Comp& o) {
     f.gate.add(o.figures_->gate);
     f.diff.add(o.figures_->diff);
     f.cell.add(o.figures_->cell);
+    f.cell_side.add(o.figures_->cell_side);
     oxides |= o.oxides;
     refresh();
   }
@@ -39,10 +42,11 @@ void Comp::reset(bool keep) {
     figures_->gate.clear();
     figures_->diff.clear();
     figures_->cell.clear();
+    figures_->cell_side.clear();
   } else {
     figures_.reset();
   }
-  G = D = cell_um2 = 0.0;
+  G = D = cell_um2 = cell_side_um2 = 0.0;
   area = perim = 0;
   oxides = 0;
   alive = false;
@@ -103,6 +107,29 @@ std::size_t LayerIndex::memory() const {
 
 // -- state -----------------------------------------------------------------------------
 
+std::size_t check_rect_layers(const Model& m, const PinSpec& pin, const char* field) {
+  if (!pin.rect_layers.empty() && pin.rect_layers.size() != pin.rects.size())
+    throw std::invalid_argument(std::string(field) + ": one layer per rectangle");
+  std::size_t anchor = pin.rects.size();
+  for (std::size_t k = 0; k < pin.rects.size(); ++k) {
+    const int l = pin.rect_layer(k);
+    if (l < pin.layer || l >= m.steps)
+      throw std::invalid_argument(std::string(field) + ": a layer of the deck, the pin's layer the lowest");
+    if (l == pin.layer && anchor == pin.rects.size()) anchor = k;
+  }
+  if (anchor == pin.rects.size())
+    throw std::invalid_argument(std::string(field) + ": the pin's layer is the lowest of its rectangles'");
+  return anchor;
+}
+
+void check_block_car(const Model& m, const PinSpec& pin, const char* field) {
+  for (const BlockCar& b : pin.block_car) {
+    if (b.step < 0 || b.step >= m.steps || b.oxide < 0 || std::size_t(b.oxide) >= m.deck.oxides.size() ||
+        !(b.ratio >= 0.0) || !std::isfinite(b.ratio))
+      throw std::invalid_argument(std::string(field) + ": a step, an oxide and a finite ratio >= 0");
+  }
+}
+
 Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
     : holder(std::move(model)), m(*holder), pins(std::move(p)) {
   const std::size_t n = std::size_t(m.steps);
@@ -124,28 +151,27 @@ Net::State::State(std::shared_ptr<const Model> model, std::vector<PinSpec> p)
     pin_oxides.push_back(ox);
     for (const Rect& r : pin.rects)
       if (!valid_rect(r)) throw std::invalid_argument("pins.rects: an empty, inverted or far rectangle");
+    check_block_car(m, pin, "pins.block_car");
+    anchor_rect.push_back(check_rect_layers(m, pin, "pins.rect_layers"));
+    blocks = blocks || !pin.block_car.empty();
   }
+  // The anchor (the pin's first rectangle on its lowest layer) first; every other
+  // rectangle joins it at its own layer's step (one conductor inside the cell).
   for (std::size_t i = 0; i < pins.size(); ++i) {
-    int first = -1;
-    for (const Rect& r : pins[i].rects) {
-      int e = new_element(r, pins[i].layer, -1 - i64(i), int(i), first < 0);
-      if (first < 0) {
-        first = e;
-        anchor_of_pin.push_back(e);
-        insert(e, {});
-      } else {
-        insert(e, {{first, pins[i].layer}});
-      }
+    const PinSpec& pin = pins[i];
+    const int first = new_element(pin.rects[anchor_rect[i]], pin.layer, -1 - i64(i), int(i), true);
+    anchor_of_pin.push_back(first);
+    insert(first, {});
+    for (std::size_t k = 0; k < pin.rects.size(); ++k) {
+      if (k == anchor_rect[i]) continue;
+      const int e = new_element(pin.rects[k], pin.rect_layer(k), -1 - i64(i), int(i), false);
+      insert(e, {{first, pin.rect_layer(k)}});
     }
   }
 }
 
-double Net::State::pin_cell(int p, int step) const {
-  double v = 0.0;
-  for (const auto& sc : pins[std::size_t(p)].cell_um2)
-    if (sc.first == step) v = sc.second;
-  return v;
-}
+double Net::State::pin_cell(int p, int step) const { return at_step(pins[std::size_t(p)].cell_um2, step); }
+double Net::State::pin_cell_side(int p, int step) const { return at_step(pins[std::size_t(p)].cell_side_um2, step); }
 
 int Net::State::new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor) {
   int e;
@@ -237,6 +263,7 @@ void Net::State::own_terms(Comp& c, int e, int step) const {
   f.gate.add(pin_gate[std::size_t(el.pin)]);
   f.diff.add(pin.diff_um2);
   f.cell.add(pin_cell(el.pin, step));
+  f.cell_side.add(pin_cell_side(el.pin, step));
   f.pins.push_back(el.pin);
   if (pin_gate[std::size_t(el.pin)] > 0) f.gates.push_back(el.pin);
   c.oxides |= pin_oxides[std::size_t(el.pin)];
@@ -494,6 +521,7 @@ void Net::State::erase(int e) {
           f.gate.add(-pin_gate[std::size_t(p)]);
           f.diff.add(-pins[std::size_t(p)].diff_um2);
           f.cell.add(-pin_cell(p, s));
+          f.cell_side.add(-pin_cell_side(p, s));
         }
       }
     }

@@ -220,7 +220,7 @@ Headroom Net::headroom(int layer, i64 x, i64 y) const {
     for (const CheckKey& key : m.partial_checks[std::size_t(layer)]) {
       if (!(c.oxides & (std::uint64_t(1) << key.oxide))) continue;
       const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-      double conductor = m.conductor(layer, key.measure, c.area, c.cell_um2, c.perim);
+      double conductor = m.conductor(layer, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
       double room = rule.headroom(rule.partial_limit(c.D), c.G, c.D, 0.0, conductor);
       Bind& b = best[int(key.measure)];
       if (room < b.room) b = {room, layer, Kind::Partial, key.oxide, -1};
@@ -230,7 +230,7 @@ Headroom Net::headroom(int layer, i64 x, i64 y) const {
         const int g = key.group;
         if (!m.in_chain(layer, s, g)) continue;
         const RuleSpec* factors = m.factors(layer, g);
-        double conductor = m.conductor(layer, key.measure, c.area, c.cell_um2, c.perim);
+        double conductor = m.conductor(layer, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
         double term = factors == nullptr ? conductor / c.G : factors->ratio(conductor, c.G, c.D);
         const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
         for (int p : c.gates()) {

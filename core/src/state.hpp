@@ -23,6 +23,14 @@
 
 namespace etchguard {
 
+// A pin's per-step figure (in-cell areas): the value given for `step`, else 0.
+inline double at_step(const std::vector<std::pair<int, double>>& per_step, int step) {
+  double v = 0.0;
+  for (const auto& sc : per_step)
+    if (sc.first == step) v = sc.second;
+  return v;
+}
+
 struct Element {
   Rect r;
   i64 sid;   // shape id; for a pin rectangle -1 - pin index
@@ -38,13 +46,13 @@ struct Element {
 struct PinFigures {
   std::vector<int> gates;  // pin indices with gate area
   std::vector<int> pins;   // every pin index (anchors) in the component
-  ExactSum gate, diff, cell;
+  ExactSum gate, diff, cell, cell_side;
 };
 
 struct Comp {
   std::vector<int> members;  // elements
   std::unique_ptr<PinFigures> figures_;
-  double G = 0.0, D = 0.0, cell_um2 = 0.0;
+  double G = 0.0, D = 0.0, cell_um2 = 0.0, cell_side_um2 = 0.0;
   i128 area = 0, perim = 0;
   std::uint64_t oxides = 0;  // oxide classes with gate area here
   bool alive = false;
@@ -52,7 +60,7 @@ struct Comp {
   Comp() = default;
   Comp(const Comp& o)  // a whole copy (a trial copy of a net's state)
       : members(o.members), figures_(o.figures_ ? std::make_unique<PinFigures>(*o.figures_) : nullptr),
-        G(o.G), D(o.D), cell_um2(o.cell_um2), area(o.area), perim(o.perim), oxides(o.oxides), alive(o.alive) {}
+        G(o.G), D(o.D), cell_um2(o.cell_um2), cell_side_um2(o.cell_side_um2), area(o.area), perim(o.perim), oxides(o.oxides), alive(o.alive) {}
   Comp& operator=(const Comp& o) {
     if (this != &o) *this = Comp(o);
     return *this;
@@ -71,8 +79,9 @@ struct Comp {
       G = figures_->gate.value();
       D = figures_->diff.value();
       cell_um2 = figures_->cell.value();
+      cell_side_um2 = figures_->cell_side.value();
     } else {
-      G = D = cell_um2 = 0.0;
+      G = D = cell_um2 = cell_side_um2 = 0.0;
     }
   }
   void absorb(const Comp& o);
@@ -133,10 +142,14 @@ struct Assessment {
   int groups = 0, steps = 0;
   std::vector<int> slot_of_pin;        // pin -> row block, or -1 (no gate area)
   std::vector<double> term, car;       // [(slot * groups + g) * steps + s]
+  // Only for a net with block pins (State::blocks): the sums without block values
+  // (Model::block_car); otherwise car is that sum and chain stays empty.
+  std::vector<double> chain;
   std::vector<char> has;               // [slot * groups + g]: the pin has g's oxide
   std::vector<std::vector<double>> comp_worst, partial_worst;  // [s][comp]
   std::vector<std::vector<std::pair<double, int>>> ranked;     // [s]: (worst, comp), worst first
   std::vector<const double*> rows;                             // per pin: its CAR rows, or null
+  std::vector<const double*> chain_rows;                       // per pin: its chain rows (= rows without blocks)
   // Per step s, component X and group g (index X * groups + g): the largest CAR at s of
   // X's gates (-1 without one), and the components of the step feeding s that hold X's
   // gates, each with the largest CAR there of its gates, largest first. A what-if reads
@@ -188,6 +201,12 @@ struct Scratch {
   Comp built;
 };
 
+// Refuses a pin's block values or rectangle layers the model cannot place
+// (std::invalid_argument naming `field`); returns the index of the pin's anchor (its
+// first rectangle on its own layer, the lowest).
+void check_block_car(const Model& m, const PinSpec& pin, const char* field);
+std::size_t check_rect_layers(const Model& m, const PinSpec& pin, const char* field);
+
 struct Net::State {
   State(std::shared_ptr<const Model> model, std::vector<PinSpec> pins);
 
@@ -197,6 +216,8 @@ struct Net::State {
   std::vector<double> pin_gate;           // G per pin
   std::vector<std::uint64_t> pin_oxides;  // oxide classes with gate area, per pin
   std::vector<int> anchor_of_pin;
+  std::vector<std::size_t> anchor_rect;  // per pin: the index of its anchor among its rects
+  bool blocks = false;  // a pin carries block values: CAR and chain differ (Model::block_car)
   std::vector<Element> elems;
   std::vector<int> free_elems;
   std::unordered_map<i64, int> by_sid;
@@ -215,7 +236,9 @@ struct Net::State {
   std::vector<int> part_of;                  // per element, for splitting searches
   mutable std::uint32_t clock = 0;
 
+  // A pin's in-cell conductor on a step's layer: area (cell_um2) or side-wall (cell_side_um2).
   double pin_cell(int p, int step) const;
+  double pin_cell_side(int p, int step) const;
   int new_element(const Rect& r, int layer, i64 sid, int pin, bool anchor);
   void touching(int layer, const Rect& r, std::vector<std::pair<int, int>>& out) const;
   // (area, perimeter) that r adds to a union whose rects touching r are `local`.

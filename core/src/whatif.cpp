@@ -70,20 +70,22 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
   const std::size_t npins = pins.size(), all_pins = npins + n_extra;
   sc.extra_gate.clear();
   const std::uint64_t* oxides = pin_oxides.data();
+  bool trial_blocks = false;
   if (n_extra > 0) {
     sc.oxides.assign(pin_oxides.begin(), pin_oxides.end());
     for (std::size_t j = 0; j < n_extra; ++j) {
       const PinSpec& pin = extra[j];
       if (pin.layer < 0 || pin.layer >= steps) throw std::invalid_argument("extra_pins.layer: unknown layer");
       if (pin.rects.empty()) throw std::invalid_argument("extra_pins.rects: a pin needs a rectangle");
+      check_block_car(m, pin, "extra_pins.block_car");
+      const std::size_t anchor = check_rect_layers(m, pin, "extra_pins.rect_layers");
+      trial_blocks = trial_blocks || !pin.block_car.empty();
       double total = 0.0;
       sc.oxides.push_back(oxide_mask(pin, m.deck.oxides.size(), total));
       sc.extra_gate.push_back(total);
-      bool first = true;
-      for (const Rect& r : pin.rects) {
-        if (!valid_rect(r)) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
-        cands.push_back({pin.layer, r, int(j), first});
-        first = false;
+      for (std::size_t q = 0; q < pin.rects.size(); ++q) {
+        if (!valid_rect(pin.rects[q])) throw std::invalid_argument("extra_pins.rects: empty, inverted or too far");
+        cands.push_back({pin.rect_layer(q), pin.rects[q], int(j), q == anchor});
       }
     }
     oxides = sc.oxides.data();
@@ -101,8 +103,10 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
     first = std::min(first, cands[i].layer);
     for (std::size_t j = i + 1; j < k; ++j) {
       const auto &ci = cands[i], &cj = cands[j];
-      if (ci.layer == cj.layer) {
-        if (edge_touch(ci.r, cj.r) || (ci.pin >= 0 && ci.pin == cj.pin)) links.push_back({int(i), int(j), ci.layer});
+      if (ci.pin >= 0 && ci.pin == cj.pin) {  // one pin: one conductor, from the later layer's step
+        links.push_back({int(i), int(j), std::max(ci.layer, cj.layer)});
+      } else if (ci.layer == cj.layer) {
+        if (edge_touch(ci.r, cj.r)) links.push_back({int(i), int(j), ci.layer});
       } else if (std::abs(ci.layer - cj.layer) == 1 &&
                  m.is_cut[std::size_t(ci.layer)] != m.is_cut[std::size_t(cj.layer)]) {
         if (overlap(ci.r, cj.r)) links.push_back({int(i), int(j), std::max(ci.layer, cj.layer)});
@@ -110,7 +114,12 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
     }
   }
 
-  // CAR rows: the held ones, and fresh rows for the gates a group touches.
+  // CAR rows: the held ones, and fresh rows for the gates a group touches. With block
+  // values (Model::block_car) a gate's CAR is its chain plus a value of its own, so a
+  // group's best CAR is not its best chain plus one term: every gate is then walked
+  // (as with detail), and a fresh row holds the chain behind the CAR.
+  const bool per_block = blocks || trial_blocks;
+  const bool per_gate = detail || per_block;
   const std::size_t row_len = std::size_t(ng) * std::size_t(steps);
   auto& car_view = sc.car_view;
   car_view.assign(a.rows.begin(), a.rows.end());
@@ -125,10 +134,12 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       sc.fresh_pins.push_back(p);
       if (sc.fresh.size() <= std::size_t(slot)) sc.fresh.emplace_back();
       auto& row = sc.fresh[std::size_t(slot)];
-      if (std::size_t(p) < npins && a.rows[std::size_t(p)] != nullptr)
+      if (std::size_t(p) < npins && a.rows[std::size_t(p)] != nullptr) {
         row.assign(a.rows[std::size_t(p)], a.rows[std::size_t(p)] + row_len);
-      else
-        row.assign(row_len, 0.0);
+        if (per_block) row.insert(row.end(), a.chain_rows[std::size_t(p)], a.chain_rows[std::size_t(p)] + row_len);
+      } else {
+        row.assign(per_block ? 2 * row_len : row_len, 0.0);
+      }
       car_view[std::size_t(p)] = row.data();
     }
     return sc.fresh[std::size_t(slot)].data();
@@ -248,10 +259,8 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
           PinFigures& f = built.figures();
           f.gate.add(sc.extra_gate[std::size_t(cd.pin)]);
           f.diff.add(pin.diff_um2);
-          double cell = 0.0;
-          for (const auto& step_cell : pin.cell_um2)
-            if (step_cell.first == s) cell = step_cell.second;
-          f.cell.add(cell);
+          f.cell.add(at_step(pin.cell_um2, s));
+          f.cell_side.add(at_step(pin.cell_side_um2, s));
           f.pins.push_back(p);
           if (sc.extra_gate[std::size_t(cd.pin)] > 0) f.gates.push_back(p);
           built.oxides |= oxides[std::size_t(p)];
@@ -288,7 +297,7 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
       bool moved = false;
       for (int g = 0; g < ng; ++g) {
         if (!((group->oxides >> m.groups[std::size_t(g)].oxide) & 1u)) continue;
-        const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+        const double t = m.term(s, g, group->area, group->cell_um2, group->cell_side_um2, group->perim, group->G, group->D);
         const int f = m.feeding(s, g);
         double value = t;
         if (f >= 0) {
@@ -316,35 +325,51 @@ void Net::State::what_if(const Shape* shapes, std::size_t n, const PinSpec* extr
         sc.group_best[std::size_t(s)][gi * G + std::size_t(g)] = value;
         if (!merged && value != a.best[std::size_t(s)][std::size_t(only) * G + std::size_t(g)]) moved = true;
       }
-      if (!merged && !moved) {
+      if (!merged && !moved && !per_block) {
         worst_net = std::max({worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)],
                               a.comp_worst[std::size_t(s)][std::size_t(only)]});
         continue;
       }
       if (!merged) worst_net = std::max(worst_net, a.partial_worst[std::size_t(s)][std::size_t(only)]);
-      if (!detail) {
+      if (!per_gate) {
         worst_change = std::max(worst_change, lean_worst(s, *group, merged, bests));
         worst_net = std::max(worst_net, worst_change);
         continue;
       }
       // With detail, every gate's sum along the chain: the figures name their gate.
+      if (per_block) bests.assign(G, -1.0);  // the group's best CAR, from its gates' own sums
       for (int p : group->gates()) {
         double* row = fresh_row(p);
+        double* chain = per_block ? row + row_len : row;
+        const PinSpec& spec = std::size_t(p) < npins ? pins[std::size_t(p)] : extra[std::size_t(p) - npins];
         for (int g = 0; g < ng; ++g) {
           if (!has_group(p, g)) continue;
-          const double t = m.term(s, g, group->area, group->cell_um2, group->perim, group->G, group->D);
+          const double t = m.term(s, g, group->area, group->cell_um2, group->cell_side_um2, group->perim, group->G, group->D);
           const int f = m.feeding(s, g);
           const std::size_t at = std::size_t(g) * std::size_t(steps);
-          row[at + std::size_t(s)] = f >= 0 ? t + row[at + std::size_t(f)] : t;
+          chain[at + std::size_t(s)] = f >= 0 ? t + chain[at + std::size_t(f)] : t;
+          if (per_block) row[at + std::size_t(s)] = spec.block_car.empty() ? chain[at + std::size_t(s)]
+                                                                          : chain[at + std::size_t(s)] + m.block_car(spec, s, g);
+          if (per_block) bests[std::size_t(g)] = std::max(bests[std::size_t(g)], row[at + std::size_t(s)]);
+        }
+      }
+      if (per_block && !merged) {  // unmoved as the lean walk tells it: no group's best CAR moved
+        bool best_moved = false;
+        for (int g = 0; g < ng; ++g)
+          best_moved = best_moved || bests[std::size_t(g)] != a.best[std::size_t(s)][std::size_t(only) * G + std::size_t(g)];
+        if (!best_moved) {
+          worst_net = std::max(worst_net, a.comp_worst[std::size_t(s)][std::size_t(only)]);
+          continue;
         }
       }
       es.clear();
       entries(s, *group, merged, car_view.data(), oxides, es);
       before.clear();
-      for (int c : group_comps) entries(s, pool[std::size_t(c)], true, a.rows.data(), oxides, before);
+      if (detail)
+        for (int c : group_comps) entries(s, pool[std::size_t(c)], true, a.rows.data(), oxides, before);
       for (const Entry& e : es) {
         if (e.utilization > worst_change) worst_change = e.utilization;
-        record_change(e, before, group_comps.size() == 1, out);
+        if (detail) record_change(e, before, group_comps.size() == 1, out);
       }
       worst_net = std::max(worst_net, worst_change);
     }
@@ -366,7 +391,7 @@ double Net::State::lean_worst(int s, const Comp& c, bool partial, const std::vec
     for (const CheckKey& key : m.partial_checks[std::size_t(s)]) {
       if (!((c.oxides >> key.oxide) & 1u)) continue;
       const RuleSpec& rule = m.deck.rules[std::size_t(key.rule)];
-      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.perim);
+      double conductor = m.conductor(s, key.measure, c.area, c.cell_um2, c.cell_side_um2, c.perim);
       worst = std::max(worst, utilization(rule.ratio(conductor, c.G, c.D), rule.partial_limit(c.D)));
     }
   }

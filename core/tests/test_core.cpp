@@ -3,6 +3,7 @@
 // independent shapely + networkx reference; these hold its own invariants: hand-worked
 // union measures, order-independent sums, add + remove restoring every figure, and a
 // what-if equal to the check after the commit, on random nets.
+#include <cmath>
 #include <cstdint>
 #include <random>
 #include <stdexcept>
@@ -51,6 +52,20 @@ PinSpec gate_pin(int layer, Rect r, double gate) {
   p.layer = layer;
   p.rects = {r};
   p.gate_by_oxide = {gate};
+  return p;
+}
+
+// A gate pin with in-cell conductor on M1 and M2 (area) and in-cell side wall on M2;
+// with `block`, a block pin's accumulated ratios on M1 (area) and M2 (side).
+PinSpec cell_pin(int layer, Rect r, double gate, bool block = false) {
+  PinSpec p = gate_pin(layer, r, gate);
+  p.cell_um2 = {{0, 0.01}, {2, 0.02}};
+  p.cell_side_um2 = {{2, 0.03}};
+  if (block) p.block_car = {{0, Measure::Area, 0, 3.0}, {2, Measure::Side, 0, 1.5}};
+  if (block && layer == 0) {  // a shape on M2 too
+    p.rects.push_back({r.xlo + 200, r.ylo, r.xhi + 200, r.yhi});
+    p.rect_layers = {0, 2};
+  }
   return p;
 }
 
@@ -158,7 +173,8 @@ ETCHGUARD_TEST(add_then_remove_restores_every_figure) {
   std::mt19937_64 rng(7);
   for (int round = 0; round < 40; ++round) {
     auto model = compile(demo_deck(round % 2 == 1));
-    std::vector<PinSpec> pins{gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.02)};
+    std::vector<PinSpec> pins{cell_pin(0, {0, 0, 100, 100}, 0.05, round % 3 == 1),
+                              gate_pin(2, {300, 300, 400, 400}, 0.02)};
     PinSpec driver;
     driver.layer = 0;
     driver.rects = {{800, 0, 900, 100}};
@@ -185,7 +201,7 @@ ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
   CostModel costs;
   for (int round = 0; round < 60; ++round) {
     auto model = compile(demo_deck(round % 3 == 0));
-    Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05), gate_pin(2, {300, 300, 400, 400}, 0.01)});
+    Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05), cell_pin(2, {300, 300, 400, 400}, 0.01, round % 2 == 1)});
     std::uniform_int_distribution<int> layer(0, 4), count(1, 4);
     for (i64 id = 1; id <= 10; ++id) REQUIRE(net.add(id, layer(rng), random_rect(rng, 100)) == Status::Ok);
     for (int c = 0; c < 10; ++c) {
@@ -206,6 +222,72 @@ ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
       REQUIRE(net.remove(ids.data(), ids.size()) == Status::Ok);
     }
   }
+}
+
+ETCHGUARD_TEST(in_cell_side_wall_adds_to_the_side_measure) {
+  // M2 (thickness 0.3 um) run 0..1000 x 0..200 DBU: perimeter 2.4 um x 0.3 = 0.72 um^2
+  // of side wall, plus the pin's in-cell 0.03 = 0.75; G = 0.05: PAR_side = 15. The area
+  // measure takes the in-cell area 0.02 instead: (0.2 + 0.02) / 0.05 = 4.4.
+  auto model = compile(demo_deck());
+  Net net(model, {cell_pin(2, {0, 0, 100, 100}, 0.05)});
+  REQUIRE(net.add(1, 2, {0, 0, 1000, 200}) == Status::Ok);
+  Report r = net.check();
+  bool side = false, area = false;
+  for (const Check& c : r.checks) {
+    if (c.step != 2 || c.kind != Kind::Partial) continue;
+    if (c.measure == Measure::Side) side = std::abs(c.ratio - 15.0) < 1e-9;
+    if (c.measure == Measure::Area) area = std::abs(c.ratio - 4.4) < 1e-9;
+  }
+  CHECK(side);
+  CHECK(area);
+}
+
+ETCHGUARD_TEST(block_ratio_is_carried_up_the_chain_not_summed) {
+  // A block pin on M1 (G = 0.05) with 3.0 on M1 (area). M1 run 0..1000 x 0..200 DBU =
+  // 0.2 um^2 (+ in-cell 0.01): term 4.2; CAR_M1 = 4.2 + 3 = 7.2. A V1 and an M2 pad
+  // 200 x 200 (0.04 + in-cell 0.02): term 1.2; CAR_M2 = (4.2 + 1.2) + 3 (M1's value
+  // serves M2, once) = 8.4.
+  auto model = compile(demo_deck());
+  Net net(model, {cell_pin(0, {0, 0, 100, 100}, 0.05, true)});
+  REQUIRE(net.add(1, 0, {0, 0, 1000, 200}) == Status::Ok);
+  REQUIRE(net.add(2, 1, {0, 0, 200, 200}) == Status::Ok);
+  REQUIRE(net.add(3, 2, {0, 0, 200, 200}) == Status::Ok);
+  Report r = net.check();
+  bool m1 = false, m2 = false;
+  for (const Check& c : r.checks) {
+    if (c.kind != Kind::Cumulative || c.measure != Measure::Area) continue;
+    if (c.step == 0) m1 = std::abs(c.ratio - 7.2) < 1e-9;
+    if (c.step == 2) m2 = std::abs(c.ratio - 8.4) < 1e-9;
+  }
+  CHECK(m1);
+  CHECK(m2);
+  PinSpec bad = gate_pin(0, {0, 0, 100, 100}, 0.05);
+  bad.block_car = {{9, Measure::Area, 0, 1.0}};
+  CHECK_THROWS(Net(model, {bad}), std::invalid_argument);
+}
+
+ETCHGUARD_TEST(pin_on_two_layers_connects_at_each_from_its_step) {
+  // A pin (G = 0.05) on M1 at the origin and on M2 far away (one conductor in the cell).
+  // An M2 run 200 x 2000 DBU = 0.4 um^2 touches only the pin's M2 shape: at M1 it does
+  // not exist; at M2 it is the gate's: PAR_M2 = 0.4 / 0.05 = 8.
+  auto model = compile(demo_deck());
+  PinSpec pin = gate_pin(0, {0, 0, 100, 100}, 0.05);
+  pin.rects.push_back({5000, 0, 5200, 200});
+  pin.rect_layers = {0, 2};
+  Net net(model, {pin});
+  REQUIRE(net.add(1, 2, {5000, 0, 5200, 2000}) == Status::Ok);
+  bool m2 = false;
+  for (const Check& c : net.check().checks)
+    if (c.step == 2 && c.kind == Kind::Partial && c.measure == Measure::Area) m2 = std::abs(c.ratio - 8.0) < 1e-9;
+  CHECK(m2);
+  CostModel costs;
+  Shape more{2, {5000, 2000, 5200, 4000}};
+  Score s = net.score(&more, 1, false, costs);
+  REQUIRE(net.add(2, 2, more.rect) == Status::Ok);
+  CHECK_EQ(s.worst_utilization, net.check().worst_utilization);
+  PinSpec bad = pin;
+  bad.layer = 2;  // not the lowest of its rectangles' layers
+  CHECK_THROWS(Net(model, {bad}), std::invalid_argument);
 }
 
 ETCHGUARD_TEST(refusals_change_nothing) {

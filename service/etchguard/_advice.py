@@ -894,7 +894,7 @@ class _DiodeSearch:
         got = self.seen.get(D)
         if got is None:
             gate = self.advisor.view.pins[self.pin]
-            diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.rects, {}, D, {})
+            diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, D, {})
             got = self.seen[D] = self.advisor.excess(self.run, [diode])
         return got
 
@@ -955,7 +955,7 @@ class _DiodeSearch:
             return self._elsewhere(result)
         # the check that still fails, named: the changes of that trial, scored once more
         gate = self.advisor.view.pins[self.pin]
-        diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.rects, {}, MAX_DIODE_UM2, {})
+        diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, MAX_DIODE_UM2, {})
         changes = self.advisor.score(self.run, True, [diode]).changes
         worst: RatioChange = max(changes, key=lambda c: c.ratio - c.limit)
         return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {worst.kind} {worst.measure} at "

@@ -65,7 +65,10 @@ def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
         if i is not None:
             gates[i] = value
     return (pin.layer, list(pin.rects), gates, pin.total_gate_area, pin.diff_area,
-            sorted(pin.cell_area.items()))
+            sorted(pin.cell_area.items()), sorted(pin.cell_side_area.items()),
+            [(step, MEASURES.index(measure), compiled.oxide_index[ox], ratio)
+             for (measure, step, ox), ratio in sorted(pin.block_car.items()) if ox in compiled.oxide_index],
+            list(pin.rect_layers))
 
 
 class CoreNet:

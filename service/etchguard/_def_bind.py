@@ -10,14 +10,20 @@
   leaves the path where it is). Odd widths lean one
   DBU up or right, as the package's runs do.
 * Pins: a component pin is its macro pin's port shapes, moved by the macro ORIGIN,
-  oriented and placed (``_lefdef_geometry``); the engine holds a pin on one layer, so
-  the lowest process step with shapes is used (a warning names the others). Gate area
+  oriented and placed (``_lefdef_geometry``), on every process step it has shapes on
+  (the pin joins at the lowest; its shapes are one conductor, each connecting at its
+  own layer). Gate area
   per oxide, diffusion area and in-cell areas (ANTENNAPARTIALMETALAREA and
-  ANTENNAPARTIALCUTAREA on their layers) come from the LEF pin. Where a pin gives only
+  ANTENNAPARTIALCUTAREA as ``cell_area`` on their layers, ANTENNAPARTIALMETALSIDEAREA as
+  ``cell_side_area``, a side-wall area as the reference defines it) come from the LEF pin. Where a pin gives only
   per-LAYER gate or diffusion areas, the smallest is used (a warning says so: it gives
   the highest ratio). A DEF PIN is its ports placed, with its ANTENNAPIN values.
-* Not expressible in the engine, each a warning naming file:line: side-wall in-cell areas
-  (ANTENNAPARTIALMETALSIDEAREA), hierarchical ANTENNAMAX*CAR values, shapes on layers
+* A block pin's ANTENNAMAXAREACAR / ANTENNAMAXCUTCAR (area measure) and
+  ANTENNAMAXSIDEAREACAR (side) on a layer, per ANTENNAMODEL oxide, become the pin's
+  ``block_car`` for its gates of that oxide (how they enter the CAR: docs/formats.md).
+* Not expressible in the engine, each a warning naming file:line: a side-wall in-cell
+  area or ratio on a cut layer, a block ratio for an oxide the pin has no gate area of,
+  shapes on layers
   that are not process steps of the deck (poly, contacts), unplaced components.
 """
 
@@ -45,13 +51,18 @@ _N = Orientation.N
 
 
 class _PinTemplate:
-    """A macro pin in macro-local DBU (origin applied), on one layer, with its areas."""
+    """A macro pin in macro-local DBU (origin applied), its rectangles' layers, its areas."""
 
-    __slots__ = ("cell", "diff", "gate", "layer", "rects")
+    __slots__ = ("areas", "layer", "rect_layers", "rects")
 
-    def __init__(self, layer: int, rects: list[Rect], gate: dict[str, float], diff: float,
-                 cell: dict[int, float]) -> None:
-        self.layer, self.rects, self.gate, self.diff, self.cell = layer, rects, gate, diff, cell
+    def __init__(self, layer: int, rects: list[Rect], rect_layers: tuple[int, ...], areas: _PinAreas) -> None:
+        self.layer, self.rects, self.rect_layers, self.areas = layer, rects, rect_layers, areas
+
+
+# A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per
+# step, block ratios per (measure, step, oxide).
+_PinAreas = tuple[dict[str, float], float, dict[int, float], dict[int, float], dict[tuple[str, int, str], float]]
+_MAX_CAR_MEASURE = {"ANTENNAMAXAREACAR": "area", "ANTENNAMAXCUTCAR": "area", "ANTENNAMAXSIDEAREACAR": "side"}
 
 
 class DesignBinder:
@@ -183,7 +194,7 @@ class DesignBinder:
 
     # -- pins -------------------------------------------------------------------------------
 
-    def _areas(self, antenna: PinAntenna, what: str, at: Located) -> tuple[dict[str, float], float, dict[int, float]]:
+    def _areas(self, antenna: PinAntenna, what: str, at: Located) -> _PinAreas:
         gate = dict(antenna.gate_area)
         for oxide, by_layer in antenna.gate_area_by_layer.items():
             if oxide not in gate and by_layer:
@@ -196,32 +207,49 @@ class DesignBinder:
             self.notes.warn(at.source, at.line, "ANTENNADIFFAREA", f"{what}: only per-LAYER diffusion areas; "
                             "the smallest is used (the highest ratio)")
         cell: dict[int, float] = {}
+        cell_side: dict[int, float] = {}
         for (measure, layer), value in antenna.partial.items():
-            if measure is Measure.SIDE:
-                self.notes.warn(at.source, at.line, "ANTENNAPARTIALMETALSIDEAREA", f"{what}: the engine has "
-                                "no in-cell side-wall area; left out")
-                continue
             step = self.steps.get(layer)
             if step is None:
                 self.notes.warn(at.source, at.line, "ANTENNAPARTIAL", f"{what}: in-cell area on {layer}, "
                                 "which is not a process step of the deck; left out")
                 continue
+            if measure is Measure.SIDE:
+                if not self.deck.layers[step].is_routing:
+                    self.notes.warn(at.source, at.line, "ANTENNAPARTIALMETALSIDEAREA", f"{what}: a side-wall "
+                                    f"area on cut layer {layer}; left out")
+                    continue
+                cell_side[step] = value  # a side-wall area already (perimeter x thickness)
+                continue
             cell[step] = value
-        if antenna.max_car:
-            self.notes.warn(at.source, at.line, antenna.max_car[0][0], f"{what}: hierarchical ANTENNAMAX*CAR "
-                            "values have no term in the engine yet; not added")
-        return {k: v for k, v in gate.items() if v > 0}, diff or 0.0, cell
+        gate = {k: v for k, v in gate.items() if v > 0}
+        return gate, diff or 0.0, cell, cell_side, self._block_car(antenna, gate, what, at)
 
-    def _one_layer(self, shapes: list[tuple[int, Rect]], what: str, at: Located) -> tuple[int, list[Rect]] | None:
+    def _block_car(self, antenna: PinAntenna, gate: dict[str, float], what: str,
+                   at: Located) -> dict[tuple[str, int, str], float]:
+        block: dict[tuple[str, int, str], float] = {}
+        for keyword, oxide, layer, value in antenna.max_car:
+            measure, step = _MAX_CAR_MEASURE[keyword], self.steps.get(layer)
+            if step is None:
+                problem = f"on {layer}, which is not a process step of the deck"
+            elif measure == "side" and not self.deck.layers[step].is_routing:
+                problem = f"a side-wall ratio on cut layer {layer}"
+            elif oxide not in gate:
+                problem = f"for oxide {oxide}, which the pin has no gate area of"
+            else:
+                block[(measure, step, oxide)] = value  # a later statement for the same slot wins
+                continue
+            self.notes.warn(at.source, at.line, keyword, f"{what}: {problem}; left out")
+        return block
+
+    @staticmethod
+    def _layered(shapes: list[tuple[int, Rect]]) -> tuple[int, list[Rect], tuple[int, ...]] | None:
+        """A pin's shapes as (lowest step, rectangles, their steps; none when all on one)."""
         if not shapes:
             return None
         lowest = min(step for step, _ in shapes)
-        others = sorted({step for step, _ in shapes if step != lowest})
-        if others:
-            names = ", ".join(self.deck.layers[s].name for s in others)
-            self.notes.warn(at.source, at.line, "PIN", f"{what} also has shapes on {names}; the engine holds a "
-                            f"pin on one layer, {self.deck.layers[lowest].name}")
-        return lowest, [r for step, r in shapes if step == lowest]
+        steps = tuple(step for step, _ in shapes)
+        return lowest, [r for _, r in shapes], steps if any(s != lowest for s in steps) else ()
 
     def _template(self, macro_name: str, pin_name: str, line: int) -> _PinTemplate | None:
         key = (macro_name, pin_name)
@@ -240,14 +268,13 @@ class DesignBinder:
                     raise fail(pin.at.source, pin.at.line, "PIN", f"{what}: unknown layer {layer}")
                 continue
             shapes.append((step, self._rect_dbu(rect, "PIN", pin.at, macro.origin[0], macro.origin[1])))
-        one = self._one_layer(shapes, what, pin.at)
+        one = self._layered(shapes)
         template = None
         if one is None:
             self.notes.warn(pin.at.source, pin.at.line, "PIN", f"{what} has no shape on a process step of the "
                             "deck; it is left out of its nets")
         else:
-            gate, diff, cell = self._areas(pin.antenna, what, pin.at)
-            template = _PinTemplate(one[0], one[1], gate, diff, cell)
+            template = _PinTemplate(one[0], one[1], one[2], self._areas(pin.antenna, what, pin.at))
         self._templates[key] = template
         return template
 
@@ -276,8 +303,8 @@ class DesignBinder:
             rects = place(template.rects, orient, bx, by)
             self._oriented[key] = rects
         return Pin(f"{comp_name}.{pin_name}", template.layer,
-                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]),
-                   template.gate, template.diff, template.cell)
+                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]), *template.areas,
+                   template.rect_layers)
 
     def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
         w, h = to_dbu(size[0], self.dbu), to_dbu(size[1], self.dbu)
@@ -307,13 +334,12 @@ class DesignBinder:
                 for step, r in self._via(via_name, _N, pin.line)[0]:
                     shapes.extend((step, o) for o in place([(r[0] + vx, r[1] + vy, r[2] + vx, r[3] + vy)],
                                                           orient, x, y))
-        one = self._one_layer(shapes, f"pin {name}", at)
+        one = self._layered(shapes)
         if one is None:
             self.notes.warn(self.source, pin.line, "PINS", f"pin {name} has no placed shape on a process "
                             "step; it is left out of its net")
             return None
-        gate, diff, cell = self._areas(pin.antenna, f"pin {name}", at)
-        return Pin(f"PIN {name}", one[0], tuple(one[1]), gate, diff, cell)
+        return Pin(f"PIN {name}", one[0], tuple(one[1]), *self._areas(pin.antenna, f"pin {name}", at), one[2])
 
     # -- nets -------------------------------------------------------------------------------
 

@@ -168,7 +168,10 @@ class Engine:
                                  f"lacks; close the net first", "deck.layers")
             return new.layer_index[name]
         pins = tuple(Pin(p.name, step(p.layer, f"pin {p.name}"), p.rects, p.gate_area, p.diff_area,
-                         {step(s, f"cell_area of {p.name}"): a for s, a in p.cell_area.items()})
+                         {step(s, f"cell_area of {p.name}"): a for s, a in p.cell_area.items()},
+                         {step(s, f"cell_side_area of {p.name}"): a for s, a in p.cell_side_area.items()},
+                         {(m, step(s, f"block_car of {p.name}"), ox): r for (m, s, ox), r in p.block_car.items()},
+                         tuple(step(s, f"pin {p.name}") for s in p.rect_layers))
                      for p in net.pins)
         shapes = {sid: (step(v[0], f"shape {sid}"),) + v[1:] for sid, v in net.shape_table().items()}
         layer_range = None

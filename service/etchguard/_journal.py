@@ -279,13 +279,18 @@ def _pin_into(msg: jpb.PinImage, pin: Pin) -> None:
     msg.gate_area.update(pin.gate_area)
     msg.diff_area = pin.diff_area
     msg.cell_area.update(pin.cell_area)
+    msg.cell_side_area.update(pin.cell_side_area)
+    msg.rect_layers.extend(pin.rect_layers)
+    for (measure, step, oxide), ratio in pin.block_car.items():
+        msg.block_car.add(step=step, measure=measure, oxide=oxide, ratio=ratio)
 
 
 def _pin_of(msg: jpb.PinImage) -> Pin:
     v = list(msg.rects)
     rects = tuple(tuple(v[i:i + 4]) for i in range(0, len(v), 4))
     return Pin(msg.name, msg.layer, rects, dict(msg.gate_area), msg.diff_area,
-               dict(msg.cell_area))
+               dict(msg.cell_area), dict(msg.cell_side_area),
+               {(b.measure, b.step, b.oxide): b.ratio for b in msg.block_car}, tuple(msg.rect_layers))
 
 
 def encode(change: Change) -> bytes:

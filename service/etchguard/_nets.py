@@ -29,10 +29,34 @@ class Pin:
     gate_area: Mapping[str, float] = field(default_factory=dict)  # um^2 per oxide class
     diff_area: float = 0.0  # um^2
     cell_area: Mapping[int, float] = field(default_factory=dict)  # um^2 per layer step
+    # In-cell side-wall um^2 per layer step, for the side measure: LEF's
+    # ANTENNAPARTIALMETALSIDEAREA, which the LEF/DEF reference defines as the side-wall
+    # area itself (perimeter times thickness), so it is added as given.
+    cell_side_area: Mapping[int, float] = field(default_factory=dict)
+    # A block pin's cumulative ratios accumulated inside the block (LEF's ANTENNAMAX*CAR),
+    # (measure, layer step, oxide) -> ratio; added to the pin's gates' CAR of that measure
+    # and oxide from that step up, until a higher step of the chain gives its own (the
+    # core's Model::block_car; docs/formats.md).
+    block_car: Mapping[tuple[str, int, str], float] = field(default_factory=dict)
+    # The layer step of each rectangle, for a pin with shapes on several layers (a cell
+    # port on M1 and M2); empty: all on `layer`. `layer` is then the lowest: the pin joins
+    # the structure there, each rectangle connects at its own layer from its step on, and
+    # the pin's rectangles are one conductor (connected inside the cell).
+    rect_layers: tuple[int, ...] = ()
 
     @property
     def total_gate_area(self) -> float:
         return sum(self.gate_area.values())
+
+    def layered_rects(self) -> tuple[tuple[int, Rect], ...]:
+        """(layer step, rectangle) of every rectangle."""
+        if not self.rect_layers:
+            return tuple((self.layer, r) for r in self.rects)
+        return tuple(zip(self.rect_layers, self.rects))
+
+    def lowest_rects(self) -> tuple[Rect, ...]:
+        """The rectangles on the pin's own (lowest) layer."""
+        return tuple(r for layer, r in self.layered_rects() if layer == self.layer)
 
 
 @dataclass(frozen=True, slots=True)
@@ -87,15 +111,22 @@ def _area(value: object, field_name: str) -> float:
     return value
 
 
-def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[object]],
+def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[object],
              gate_area: Mapping[str, object] | float | None = None, diff_area: object = 0.0,
-             cell_area: Mapping[str, object] | None = None, field_name: str = "pin") -> Pin:
+             cell_area: Mapping[str, object] | None = None, field_name: str = "pin",
+             cell_side_area: Mapping[str, object] | None = None,
+             block_car: Sequence[object] | None = None) -> Pin:
     """Validate one pin given with layer names, as a router or a net file states it."""
     pin_name = check_name(name, "a pin", f"{field_name}.name")
     step = resolve_layer(deck, layer, f"{field_name}.layer")
     if not rects:
         raise InputError("a pin needs at least one rectangle", f"{field_name}.rects")
-    checked = tuple(checked_rect(r, f"{field_name}.rects[{i}]") for i, r in enumerate(rects))
+    layered = [_pin_rect(deck, step, r, f"{field_name}.rects[{i}]") for i, r in enumerate(rects)]
+    checked = tuple(r for _, r in layered)
+    rect_layers: tuple[int, ...] = ()
+    if any(l != step for l, _ in layered):  # several layers: the pin joins at the lowest
+        rect_layers = tuple(l for l, _ in layered)
+        step = min(rect_layers)
     if gate_area is None:
         gates: dict[str, float] = {}
     elif isinstance(gate_area, Mapping):
@@ -110,11 +141,70 @@ def make_pin(deck: Deck, name: object, layer: object, rects: Sequence[Sequence[o
         gates = {DEFAULT_OXIDE: _area(gate_area, f"{field_name}.gate_area")}
     _check_oxides(deck, gates, f"{field_name}.gate_area")
     gates = {k: v for k, v in gates.items() if v > 0}
-    cells: dict[int, float] = {}
-    for layer_name, value in (cell_area or {}).items():
-        cell_step = resolve_layer(deck, layer_name, f"{field_name}.cell_area")
-        cells[cell_step] = _area(value, f"{field_name}.cell_area.{layer_name}")
-    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"), cells)
+    return Pin(pin_name, step, checked, gates, _area(diff_area, f"{field_name}.diff_area"),
+               _per_layer(deck, cell_area, f"{field_name}.cell_area"),
+               _per_layer(deck, cell_side_area, f"{field_name}.cell_side_area", routing_only=True),
+               _block_car(deck, block_car or (), gates, f"{field_name}.block_car"), rect_layers)
+
+
+def _pin_rect(deck: Deck, step: int, raw: object, field_name: str) -> tuple[int, Rect]:
+    """A pin rectangle: four coordinates on the pin's layer, or ``{"layer", "rect"}`` on
+    a layer of its own."""
+    if isinstance(raw, Mapping):
+        entry = _json_object(dict(raw), "a pin rectangle", {"layer", "rect"}, field_name)
+        return (resolve_layer(deck, entry.get("layer"), f"{field_name}.layer"),
+                checked_rect(entry.get("rect", []), f"{field_name}.rect"))
+    return step, checked_rect(raw, field_name)  # type: ignore[arg-type]
+
+
+_BLOCK_KEYS = {"layer", "measure", "oxide", "ratio"}
+MEASURE_NAMES = ("area", "side")
+
+
+def _block_car(deck: Deck, entries: Sequence[object], gates: Mapping[str, float],
+               field_name: str) -> dict[tuple[str, int, str], float]:
+    """A block pin's accumulated ratios: objects with ``layer``, ``measure`` ("area" when
+    absent), ``oxide`` ("thin" when absent) and ``ratio``; each for a class the pin has
+    gate area of (the ratio is its gates'), once per (measure, layer, oxide)."""
+    if isinstance(entries, (str, bytes, Mapping)) or not isinstance(entries, Sequence):
+        raise InputError(f"must be a list of objects, got {shown(entries)}", field_name)
+    out: dict[tuple[str, int, str], float] = {}
+    for i, raw in enumerate(entries):
+        where = f"{field_name}[{i}]"
+        entry = _json_object(raw, "a block ratio", _BLOCK_KEYS, where)
+        step = resolve_layer(deck, entry.get("layer"), f"{where}.layer")
+        measure = entry.get("measure", "area")
+        if measure not in MEASURE_NAMES:
+            raise InputError(f"must be \"area\" or \"side\", got {shown(measure)}", f"{where}.measure")
+        if measure == "side" and not deck.layers[step].is_routing:
+            raise InputError(f"{deck.layers[step].name} is a cut layer; a side ratio needs a routing layer",
+                             f"{where}.layer")
+        oxide = entry.get("oxide", DEFAULT_OXIDE)
+        if not isinstance(oxide, str) or oxide not in gates:
+            raise InputError(f"the pin has no gate area of class {shown(oxide)}; a block's cumulative "
+                             "ratio belongs to the gates behind the pin", f"{where}.oxide")
+        if (measure, step, oxide) in out:
+            raise InputError("given twice for one (layer, measure, oxide)", where)
+        ratio = entry.get("ratio")
+        if isinstance(ratio, bool) or not isinstance(ratio, (int, float)) or not math.isfinite(ratio) \
+                or ratio < 0:
+            raise InputError(f"must be a finite ratio >= 0, got {shown(ratio)}", f"{where}.ratio")
+        out[(measure, step, oxide)] = float(ratio)
+    return out
+
+
+def _per_layer(deck: Deck, areas: Mapping[str, object] | None, field_name: str,
+               routing_only: bool = False) -> dict[int, float]:
+    """um^2 per layer name, as um^2 per process step. A side wall belongs to a routing
+    layer (the side measure has no cut-layer figure): on a cut layer it is refused."""
+    out: dict[int, float] = {}
+    for layer_name, value in (areas or {}).items():
+        step = resolve_layer(deck, layer_name, field_name)
+        if routing_only and not deck.layers[step].is_routing:
+            raise InputError(f"{layer_name} is a cut layer; a side-wall area needs a routing layer",
+                             f"{field_name}.{layer_name}")
+        out[step] = _area(value, f"{field_name}.{layer_name}")
+    return out
 
 
 def _check_oxides(deck: Deck, gates: Mapping[str, float], field_name: str) -> None:
@@ -134,7 +224,7 @@ def make_shape(deck: Deck, layer: object, rect: Sequence[object], field_name: st
 
 
 _NET_KEYS = {"name", "pins", "shapes", "layer_range"}
-_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area"}
+_PIN_KEYS = {"name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area", "block_car"}
 _SHAPE_KEYS = {"layer", "rect"}
 
 
@@ -164,11 +254,13 @@ def net_from_json(deck: Deck, raw: Any, where: str) -> NetSpec:
     for i, p in enumerate(_json_list(raw, "pins", where)):
         pf = f"{where}.pins[{i}]"
         p = _json_object(p, "a pin", _PIN_KEYS, pf)
-        if not isinstance(p.get("cell_area", {}), dict):
-            raise InputError(f"must be an object of um^2 per layer, got {shown(p['cell_area'])}",
-                             f"{pf}.cell_area")
+        for key in ("cell_area", "cell_side_area"):
+            if not isinstance(p.get(key, {}), dict):
+                raise InputError(f"must be an object of um^2 per layer, got {shown(p[key])}",
+                                 f"{pf}.{key}")
         pins.append(make_pin(deck, p.get("name", ""), p.get("layer"), _json_list(p, "rects", pf),
-                             p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf))
+                             p.get("gate_area"), p.get("diff_area", 0.0), p.get("cell_area"), pf,
+                             p.get("cell_side_area"), p.get("block_car")))
     shapes = []
     for i, s in enumerate(_json_list(raw, "shapes", where)):
         sf = f"{where}.shapes[{i}]"
@@ -290,7 +382,16 @@ def check_pin_object(steps: int, pin: object, field_name: str) -> None:
         check_name(oxide, "an oxide class", f"{field_name}.gate_area")
         _area(value, f"{field_name}.gate_area.{oxide}")
     _area(pin.diff_area, f"{field_name}.diff_area")
-    for step, value in pin.cell_area.items():
-        if type(step) is not int or not 0 <= step < steps:
-            raise InputError("not a layer of the deck", f"{field_name}.cell_area")
-        _area(value, f"{field_name}.cell_area")
+    for key in ("cell_area", "cell_side_area"):
+        for step, value in getattr(pin, key).items():
+            if type(step) is not int or not 0 <= step < steps:
+                raise InputError("not a layer of the deck", f"{field_name}.{key}")
+            _area(value, f"{field_name}.{key}")
+    if pin.rect_layers and (len(pin.rect_layers) != len(pin.rects) or min(pin.rect_layers) != pin.layer
+                            or any(type(l) is not int or not 0 <= l < steps for l in pin.rect_layers)):
+        raise InputError("one layer step per rectangle, the pin's layer the lowest", f"{field_name}.rect_layers")
+    for (measure, step, oxide), ratio in pin.block_car.items():
+        if measure not in MEASURE_NAMES or type(step) is not int or not 0 <= step < steps \
+                or oxide not in pin.gate_area or not (isinstance(ratio, (int, float)) and 0 <= ratio < math.inf):
+            raise InputError("a (measure, step, oxide) of the pin's gates and a finite ratio >= 0",
+                             f"{field_name}.block_car")

@@ -100,7 +100,7 @@ def conflicts_with(a: Rect, b: Rect, spacing: int) -> bool:
 
 def pin_items(pins: Sequence[Pin]) -> list[tuple[int, Rect, OwnerKey]]:
     """A net's pin rectangles as index items (pins are that net's metal too)."""
-    return [(pin.layer, r, pin_key(p, k)) for p, pin in enumerate(pins) for k, r in enumerate(pin.rects)]
+    return [(layer, r, pin_key(p, k)) for p, pin in enumerate(pins) for k, (layer, r) in enumerate(pin.layered_rects())]
 
 
 def net_items(name: str, pins: Sequence[Pin], shapes: Mapping[int, tuple[int, int, int, int, int]]

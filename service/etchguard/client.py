@@ -121,13 +121,25 @@ def via(deck: pb.DeckInfo, cut_layer: str, x: int, y: int) -> list[pb.Shape]:
 
 def pin(name: str, layer: str, rects: Iterable[RectLike],
         gate_area: Mapping[str, float] | float | None = None, diff_area: float = 0.0,
-        cell_area: Mapping[str, float] | None = None) -> pb.Pin:
+        cell_area: Mapping[str, float] | None = None,
+        cell_side_area: Mapping[str, float] | None = None,
+        block_car: Iterable[tuple[str, str, str, float]] = (),
+        other_rects: Iterable[tuple[str, RectLike]] = ()) -> pb.Pin:
     """A pin: gate area um^2 per oxide (a number means oxide "thin"), diffusion um^2,
-    in-cell conductor um^2 per layer name; rectangles in DBU."""
+    in-cell conductor um^2 per layer name (area measure; side-wall um^2 for the side
+    measure); a block pin's accumulated cumulative ratios as (layer, "area" | "side", oxide,
+    ratio); rectangles in DBU, on `layer`, and (layer, rectangle) on other layers for a
+    pin with shapes on several layers."""
     gates = {"thin": float(gate_area)} if isinstance(gate_area, (int, float)) else dict(gate_area or {})
     return pb.Pin(name=name, layer=layer,
                   rects=[pb.Rect(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3]) for r in rects],
-                  gate_area=gates, diff_area=diff_area, cell_area=dict(cell_area or {}))
+                  gate_area=gates, diff_area=diff_area, cell_area=dict(cell_area or {}),
+                  cell_side_area=dict(cell_side_area or {}),
+                  block_car=[pb.BlockRatio(layer=layer, oxide=oxide, ratio=ratio,
+                                           measure=pb.MEASURE_SIDE if measure == "side" else pb.MEASURE_AREA)
+                             for layer, measure, oxide, ratio in block_car],
+                  other_rects=[pb.LayerRect(layer=layer, rect=pb.Rect(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3]))
+                               for layer, r in other_rects])
 
 
 def runs_to_rects(x1: Any, y1: Any, x2: Any, y2: Any, width: Any,

@@ -100,13 +100,33 @@ std::shared_ptr<const Model> compile(const DeckSpec& deck);
 int model_steps(const Model& model);
 int model_groups(const Model& model);  // (measure, oxide) groups of cumulative rules
 
+// A cumulative ratio already accumulated inside a block (LEF's ANTENNAMAXAREACAR,
+// ANTENNAMAXSIDEAREACAR, ANTENNAMAXCUTCAR on a block pin), for the pin's gates of `oxide`:
+// the block's cumulative sum on `step`'s layer, at and below it, for `measure`. Model::
+// block_car says how it enters a gate's CAR.
+struct BlockCar {
+  int step;
+  Measure measure;
+  int oxide;
+  double ratio;
+};
+
+// A pin's rectangles connect like routed ones of their layer and among themselves (one
+// conductor inside the cell), each from its own layer's step on; the pin, with its
+// figures, joins the structure at `layer`, the lowest of its rectangles' layers.
 struct PinSpec {
   int layer = 0;
   std::vector<Rect> rects;               // at least one
+  std::vector<int> rect_layers;          // per rectangle; empty: every one on `layer`
+  int rect_layer(std::size_t k) const { return rect_layers.empty() ? layer : rect_layers[k]; }
   std::vector<double> gate_by_oxide;     // per DeckSpec oxide (missing: 0)
   double gate_total_um2 = -1.0;          // G of the pin; < 0: the sum of gate_by_oxide
   double diff_um2 = 0.0;
-  std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2)
+  std::vector<std::pair<int, double>> cell_um2;  // (step, in-cell conductor um^2), area measure
+  // (step, in-cell side-wall um^2), side measure: already a side-wall area (LEF's
+  // ANTENNAPARTIALMETALSIDEAREA), added to perimeter x thickness as cell_um2 is to the area
+  std::vector<std::pair<int, double>> cell_side_um2;
+  std::vector<BlockCar> block_car;  // empty for a pin that is not a block's
 };
 
 struct Shape {

@@ -23,6 +23,7 @@ from .._jobs import DEFAULT_JOB, JOB_FIELD, check_job_name
 from .._kinds import LayerKind, LimitedBy, Measure, OptionStatus, RatioKind
 from .._names import check_length
 from .._nets import checked_layer_range
+from .._rules import DEFAULT_OXIDE
 from ..v1 import etchguard_pb2 as pb
 
 _MEASURE = {Measure.AREA: pb.MEASURE_AREA, Measure.SIDE: pb.MEASURE_SIDE}
@@ -98,15 +99,26 @@ def pins(deck, msgs, path: str = "pins", limits: Limits | None = None) -> list:
         at_most(len(msgs), limits.max_pins_per_net, "pins", path)
         rects = 0
         for i, p in enumerate(msgs):
-            rects += len(p.rects)
+            rects += len(p.rects) + len(p.other_rects)
             at_most(rects, limits.max_shapes_per_net, "pin rectangles", f"{path}[{i}].rects")
     out = []
     for i, p in enumerate(msgs):
         where = f"{path}[{i}]"
         out.append(make_pin(deck, p.name, p.layer,
-                            [(r.xlo, r.ylo, r.xhi, r.yhi) for r in p.rects],
-                            dict(p.gate_area), p.diff_area, dict(p.cell_area), where))
+                            [(r.xlo, r.ylo, r.xhi, r.yhi) for r in p.rects]
+                            + [{"layer": o.layer, "rect": rect_tuple(o.rect)} for o in p.other_rects],
+                            dict(p.gate_area), p.diff_area, dict(p.cell_area), where,
+                            dict(p.cell_side_area), [_block_ratio(b) for b in p.block_car]))
     return out
+
+
+_MEASURE_NAME = {pb.MEASURE_UNSPECIFIED: "area", pb.MEASURE_AREA: "area", pb.MEASURE_SIDE: "side"}
+
+
+def _block_ratio(msg) -> dict[str, object]:
+    """A BlockRatio as the net file states one (make_pin validates it)."""
+    return {"layer": msg.layer, "measure": _MEASURE_NAME.get(msg.measure, msg.measure),
+            "oxide": msg.oxide or DEFAULT_OXIDE, "ratio": msg.ratio}
 
 
 def layer_range(deck, msg, path: str = "layer_range"):
@@ -259,10 +271,13 @@ def net_into(out, spec, shape_ids, deck) -> None:
     out.net = spec.name
     for pin in spec.pins:
         msg = out.pins.add(name=pin.name, layer=names[pin.layer], diff_area=pin.diff_area)
-        for r in pin.rects:
-            msg.rects.add(xlo=r[0], ylo=r[1], xhi=r[2], yhi=r[3])
+        for step, r in pin.layered_rects():
+            _rect_into(msg.rects.add() if step == pin.layer else msg.other_rects.add(layer=names[step]).rect, r)
         msg.gate_area.update(pin.gate_area)
         msg.cell_area.update({names[step]: area for step, area in pin.cell_area.items()})
+        msg.cell_side_area.update({names[step]: area for step, area in pin.cell_side_area.items()})
+        for (measure, step, oxide), ratio in pin.block_car.items():
+            msg.block_car.add(layer=names[step], measure=_MEASURE[measure], oxide=oxide, ratio=ratio)
     for sid, shape in zip(shape_ids, spec.shapes):
         held = out.shapes.add(id=sid)
         held.shape.layer = names[shape.layer]

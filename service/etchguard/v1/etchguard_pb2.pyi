@@ -104,7 +104,7 @@ class Shape(_message.Message):
     def __init__(self, layer: _Optional[str] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ..., run: _Optional[_Union[Run, _Mapping]] = ...) -> None: ...
 
 class Pin(_message.Message):
-    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area")
+    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area", "block_car", "other_rects")
     class GateAreaEntry(_message.Message):
         __slots__ = ("key", "value")
         KEY_FIELD_NUMBER: _ClassVar[int]
@@ -119,19 +119,52 @@ class Pin(_message.Message):
         key: str
         value: float
         def __init__(self, key: _Optional[str] = ..., value: _Optional[float] = ...) -> None: ...
+    class CellSideAreaEntry(_message.Message):
+        __slots__ = ("key", "value")
+        KEY_FIELD_NUMBER: _ClassVar[int]
+        VALUE_FIELD_NUMBER: _ClassVar[int]
+        key: str
+        value: float
+        def __init__(self, key: _Optional[str] = ..., value: _Optional[float] = ...) -> None: ...
     NAME_FIELD_NUMBER: _ClassVar[int]
     LAYER_FIELD_NUMBER: _ClassVar[int]
     RECTS_FIELD_NUMBER: _ClassVar[int]
     GATE_AREA_FIELD_NUMBER: _ClassVar[int]
     DIFF_AREA_FIELD_NUMBER: _ClassVar[int]
     CELL_AREA_FIELD_NUMBER: _ClassVar[int]
+    CELL_SIDE_AREA_FIELD_NUMBER: _ClassVar[int]
+    BLOCK_CAR_FIELD_NUMBER: _ClassVar[int]
+    OTHER_RECTS_FIELD_NUMBER: _ClassVar[int]
     name: str
     layer: str
     rects: _containers.RepeatedCompositeFieldContainer[Rect]
     gate_area: _containers.ScalarMap[str, float]
     diff_area: float
     cell_area: _containers.ScalarMap[str, float]
-    def __init__(self, name: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[str, float]] = ...) -> None: ...
+    cell_side_area: _containers.ScalarMap[str, float]
+    block_car: _containers.RepeatedCompositeFieldContainer[BlockRatio]
+    other_rects: _containers.RepeatedCompositeFieldContainer[LayerRect]
+    def __init__(self, name: _Optional[str] = ..., layer: _Optional[str] = ..., rects: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[str, float]] = ..., cell_side_area: _Optional[_Mapping[str, float]] = ..., block_car: _Optional[_Iterable[_Union[BlockRatio, _Mapping]]] = ..., other_rects: _Optional[_Iterable[_Union[LayerRect, _Mapping]]] = ...) -> None: ...
+
+class LayerRect(_message.Message):
+    __slots__ = ("layer", "rect")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    RECT_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    rect: Rect
+    def __init__(self, layer: _Optional[str] = ..., rect: _Optional[_Union[Rect, _Mapping]] = ...) -> None: ...
+
+class BlockRatio(_message.Message):
+    __slots__ = ("layer", "measure", "oxide", "ratio")
+    LAYER_FIELD_NUMBER: _ClassVar[int]
+    MEASURE_FIELD_NUMBER: _ClassVar[int]
+    OXIDE_FIELD_NUMBER: _ClassVar[int]
+    RATIO_FIELD_NUMBER: _ClassVar[int]
+    layer: str
+    measure: Measure
+    oxide: str
+    ratio: float
+    def __init__(self, layer: _Optional[str] = ..., measure: _Optional[_Union[Measure, str]] = ..., oxide: _Optional[str] = ..., ratio: _Optional[float] = ...) -> None: ...
 
 class LayerRange(_message.Message):
     __slots__ = ("lowest", "highest")

@@ -24,7 +24,7 @@ _sym_db = _symbol_database.Default()
 
 
 
-DESCRIPTOR = _descriptor_pool.Default().AddSerializedFile(b'\n\x1a\x65tchguard/v1/journal.proto\x12\x0c\x65tchguard.v1\"]\n\x0cShapeColumns\x12\r\n\x05layer\x18\x01 \x03(\r\x12\x0b\n\x03xlo\x18\x02 \x03(\x03\x12\x0b\n\x03ylo\x18\x03 \x03(\x03\x12\x0b\n\x03xhi\x18\x04 \x03(\x03\x12\x0b\n\x03yhi\x18\x05 \x03(\x03\x12\n\n\x02id\x18\x06 \x03(\x04\"\x9d\x02\n\x08PinImage\x12\x0c\n\x04name\x18\x01 \x01(\t\x12\r\n\x05layer\x18\x02 \x01(\r\x12\r\n\x05rects\x18\x03 \x03(\x03\x12\x37\n\tgate_area\x18\x04 \x03(\x0b\x32$.etchguard.v1.PinImage.GateAreaEntry\x12\x11\n\tdiff_area\x18\x05 \x01(\x01\x12\x37\n\tcell_area\x18\x06 \x03(\x0b\x32$.etchguard.v1.PinImage.CellAreaEntry\x1a/\n\rGateAreaEntry\x12\x0b\n\x03key\x18\x01 \x01(\t\x12\r\n\x05value\x18\x02 \x01(\x01:\x02\x38\x01\x1a/\n\rCellAreaEntry\x12\x0b\n\x03key\x18\x01 \x01(\r\x12\r\n\x05value\x18\x02 \x01(\x01:\x02\x38\x01\" \n\x10\x44\x65\x63kLoadedRecord\x12\x0c\n\x04toml\x18\x01 \x01(\t\"\xbc\x01\n\x0fNetOpenedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12$\n\x04pins\x18\x02 \x03(\x0b\x32\x16.etchguard.v1.PinImage\x12\x17\n\x0fhas_layer_range\x18\x03 \x01(\x08\x12\x0e\n\x06lowest\x18\x04 \x01(\r\x12\x0f\n\x07highest\x18\x05 \x01(\r\x12*\n\x06shapes\x18\x06 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x10\n\x08\x66irst_id\x18\x07 \x01(\x04\"b\n\x15ShapesCommittedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12*\n\x06shapes\x18\x02 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x10\n\x08\x66irst_id\x18\x03 \x01(\x04\"/\n\x13ShapesRemovedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12\x0b\n\x03ids\x18\x02 \x03(\x04\"\x1e\n\x0fNetClosedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\"p\n\x16\x42lockageDeclaredRecord\x12\x13\n\x0b\x62lockage_id\x18\x01 \x01(\x04\x12\r\n\x05layer\x18\x02 \x01(\r\x12\x0b\n\x03xlo\x18\x03 \x01(\x03\x12\x0b\n\x03ylo\x18\x04 \x01(\x03\x12\x0b\n\x03xhi\x18\x05 \x01(\x03\x12\x0b\n\x03yhi\x18\x06 \x01(\x03\",\n\x15\x42lockageRemovedRecord\x12\x13\n\x0b\x62lockage_id\x18\x01 \x01(\x04\"\xbc\x03\n\rJournalRecord\x12\x35\n\x0b\x64\x65\x63k_loaded\x18\x01 \x01(\x0b\x32\x1e.etchguard.v1.DeckLoadedRecordH\x00\x12\x33\n\nnet_opened\x18\x02 \x01(\x0b\x32\x1d.etchguard.v1.NetOpenedRecordH\x00\x12?\n\x10shapes_committed\x18\x03 \x01(\x0b\x32#.etchguard.v1.ShapesCommittedRecordH\x00\x12;\n\x0eshapes_removed\x18\x04 \x01(\x0b\x32!.etchguard.v1.ShapesRemovedRecordH\x00\x12\x33\n\nnet_closed\x18\x05 \x01(\x0b\x32\x1d.etchguard.v1.NetClosedRecordH\x00\x12\x41\n\x11\x62lockage_declared\x18\x06 \x01(\x0b\x32$.etchguard.v1.BlockageDeclaredRecordH\x00\x12?\n\x10\x62lockage_removed\x18\x07 \x01(\x0b\x32#.etchguard.v1.BlockageRemovedRecordH\x00\x42\x08\n\x06\x63hange\"\xce\x01\n\x0eSnapshotHeader\x12\x1d\n\x15\x63overs_segments_below\x18\x01 \x01(\x04\x12\x10\n\x08has_deck\x18\x02 \x01(\x08\x12\x11\n\tdeck_toml\x18\x03 \x01(\t\x12\x37\n\tblockages\x18\x04 \x03(\x0b\x32$.etchguard.v1.BlockageDeclaredRecord\x12\x18\n\x10next_blockage_id\x18\x05 \x01(\x04\x12\x11\n\tnet_count\x18\x06 \x01(\x04\x12\x12\n\nwritten_by\x18\x07 \x01(\t\"\xb4\x01\n\x08NetImage\x12\x0b\n\x03net\x18\x01 \x01(\t\x12$\n\x04pins\x18\x02 \x03(\x0b\x32\x16.etchguard.v1.PinImage\x12\x17\n\x0fhas_layer_range\x18\x03 \x01(\x08\x12\x0e\n\x06lowest\x18\x04 \x01(\r\x12\x0f\n\x07highest\x18\x05 \x01(\r\x12*\n\x06shapes\x18\x06 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x0f\n\x07next_id\x18\x07 \x01(\x04\"5\n\x0bSnapshotEnd\x12\x11\n\tnet_count\x18\x01 \x01(\x04\x12\x13\n\x0bshape_count\x18\x02 \x01(\x04\x62\x06proto3')
+DESCRIPTOR = _descriptor_pool.Default().AddSerializedFile(b'\n\x1a\x65tchguard/v1/journal.proto\x12\x0c\x65tchguard.v1\"]\n\x0cShapeColumns\x12\r\n\x05layer\x18\x01 \x03(\r\x12\x0b\n\x03xlo\x18\x02 \x03(\x03\x12\x0b\n\x03ylo\x18\x03 \x03(\x03\x12\x0b\n\x03xhi\x18\x04 \x03(\x03\x12\x0b\n\x03yhi\x18\x05 \x03(\x03\x12\n\n\x02id\x18\x06 \x03(\x04\"\xdb\x03\n\x08PinImage\x12\x0c\n\x04name\x18\x01 \x01(\t\x12\r\n\x05layer\x18\x02 \x01(\r\x12\r\n\x05rects\x18\x03 \x03(\x03\x12\x37\n\tgate_area\x18\x04 \x03(\x0b\x32$.etchguard.v1.PinImage.GateAreaEntry\x12\x11\n\tdiff_area\x18\x05 \x01(\x01\x12\x37\n\tcell_area\x18\x06 \x03(\x0b\x32$.etchguard.v1.PinImage.CellAreaEntry\x12@\n\x0e\x63\x65ll_side_area\x18\x07 \x03(\x0b\x32(.etchguard.v1.PinImage.CellSideAreaEntry\x12\x30\n\tblock_car\x18\x08 \x03(\x0b\x32\x1d.etchguard.v1.BlockRatioImage\x12\x13\n\x0brect_layers\x18\t \x03(\r\x1a/\n\rGateAreaEntry\x12\x0b\n\x03key\x18\x01 \x01(\t\x12\r\n\x05value\x18\x02 \x01(\x01:\x02\x38\x01\x1a/\n\rCellAreaEntry\x12\x0b\n\x03key\x18\x01 \x01(\r\x12\r\n\x05value\x18\x02 \x01(\x01:\x02\x38\x01\x1a\x33\n\x11\x43\x65llSideAreaEntry\x12\x0b\n\x03key\x18\x01 \x01(\r\x12\r\n\x05value\x18\x02 \x01(\x01:\x02\x38\x01\"N\n\x0f\x42lockRatioImage\x12\x0c\n\x04step\x18\x01 \x01(\r\x12\x0f\n\x07measure\x18\x02 \x01(\t\x12\r\n\x05oxide\x18\x03 \x01(\t\x12\r\n\x05ratio\x18\x04 \x01(\x01\" \n\x10\x44\x65\x63kLoadedRecord\x12\x0c\n\x04toml\x18\x01 \x01(\t\"\xbc\x01\n\x0fNetOpenedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12$\n\x04pins\x18\x02 \x03(\x0b\x32\x16.etchguard.v1.PinImage\x12\x17\n\x0fhas_layer_range\x18\x03 \x01(\x08\x12\x0e\n\x06lowest\x18\x04 \x01(\r\x12\x0f\n\x07highest\x18\x05 \x01(\r\x12*\n\x06shapes\x18\x06 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x10\n\x08\x66irst_id\x18\x07 \x01(\x04\"b\n\x15ShapesCommittedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12*\n\x06shapes\x18\x02 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x10\n\x08\x66irst_id\x18\x03 \x01(\x04\"/\n\x13ShapesRemovedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\x12\x0b\n\x03ids\x18\x02 \x03(\x04\"\x1e\n\x0fNetClosedRecord\x12\x0b\n\x03net\x18\x01 \x01(\t\"p\n\x16\x42lockageDeclaredRecord\x12\x13\n\x0b\x62lockage_id\x18\x01 \x01(\x04\x12\r\n\x05layer\x18\x02 \x01(\r\x12\x0b\n\x03xlo\x18\x03 \x01(\x03\x12\x0b\n\x03ylo\x18\x04 \x01(\x03\x12\x0b\n\x03xhi\x18\x05 \x01(\x03\x12\x0b\n\x03yhi\x18\x06 \x01(\x03\",\n\x15\x42lockageRemovedRecord\x12\x13\n\x0b\x62lockage_id\x18\x01 \x01(\x04\"\xbc\x03\n\rJournalRecord\x12\x35\n\x0b\x64\x65\x63k_loaded\x18\x01 \x01(\x0b\x32\x1e.etchguard.v1.DeckLoadedRecordH\x00\x12\x33\n\nnet_opened\x18\x02 \x01(\x0b\x32\x1d.etchguard.v1.NetOpenedRecordH\x00\x12?\n\x10shapes_committed\x18\x03 \x01(\x0b\x32#.etchguard.v1.ShapesCommittedRecordH\x00\x12;\n\x0eshapes_removed\x18\x04 \x01(\x0b\x32!.etchguard.v1.ShapesRemovedRecordH\x00\x12\x33\n\nnet_closed\x18\x05 \x01(\x0b\x32\x1d.etchguard.v1.NetClosedRecordH\x00\x12\x41\n\x11\x62lockage_declared\x18\x06 \x01(\x0b\x32$.etchguard.v1.BlockageDeclaredRecordH\x00\x12?\n\x10\x62lockage_removed\x18\x07 \x01(\x0b\x32#.etchguard.v1.BlockageRemovedRecordH\x00\x42\x08\n\x06\x63hange\"\xce\x01\n\x0eSnapshotHeader\x12\x1d\n\x15\x63overs_segments_below\x18\x01 \x01(\x04\x12\x10\n\x08has_deck\x18\x02 \x01(\x08\x12\x11\n\tdeck_toml\x18\x03 \x01(\t\x12\x37\n\tblockages\x18\x04 \x03(\x0b\x32$.etchguard.v1.BlockageDeclaredRecord\x12\x18\n\x10next_blockage_id\x18\x05 \x01(\x04\x12\x11\n\tnet_count\x18\x06 \x01(\x04\x12\x12\n\nwritten_by\x18\x07 \x01(\t\"\xb4\x01\n\x08NetImage\x12\x0b\n\x03net\x18\x01 \x01(\t\x12$\n\x04pins\x18\x02 \x03(\x0b\x32\x16.etchguard.v1.PinImage\x12\x17\n\x0fhas_layer_range\x18\x03 \x01(\x08\x12\x0e\n\x06lowest\x18\x04 \x01(\r\x12\x0f\n\x07highest\x18\x05 \x01(\r\x12*\n\x06shapes\x18\x06 \x01(\x0b\x32\x1a.etchguard.v1.ShapeColumns\x12\x0f\n\x07next_id\x18\x07 \x01(\x04\"5\n\x0bSnapshotEnd\x12\x11\n\tnet_count\x18\x01 \x01(\x04\x12\x13\n\x0bshape_count\x18\x02 \x01(\x04\x62\x06proto3')
 
 _globals = globals()
 _builder.BuildMessageAndEnumDescriptors(DESCRIPTOR, _globals)
@@ -35,34 +35,40 @@ if not _descriptor._USE_C_DESCRIPTORS:
   _globals['_PINIMAGE_GATEAREAENTRY']._serialized_options = b'8\001'
   _globals['_PINIMAGE_CELLAREAENTRY']._loaded_options = None
   _globals['_PINIMAGE_CELLAREAENTRY']._serialized_options = b'8\001'
+  _globals['_PINIMAGE_CELLSIDEAREAENTRY']._loaded_options = None
+  _globals['_PINIMAGE_CELLSIDEAREAENTRY']._serialized_options = b'8\001'
   _globals['_SHAPECOLUMNS']._serialized_start=44
   _globals['_SHAPECOLUMNS']._serialized_end=137
   _globals['_PINIMAGE']._serialized_start=140
-  _globals['_PINIMAGE']._serialized_end=425
-  _globals['_PINIMAGE_GATEAREAENTRY']._serialized_start=329
-  _globals['_PINIMAGE_GATEAREAENTRY']._serialized_end=376
-  _globals['_PINIMAGE_CELLAREAENTRY']._serialized_start=378
-  _globals['_PINIMAGE_CELLAREAENTRY']._serialized_end=425
-  _globals['_DECKLOADEDRECORD']._serialized_start=427
-  _globals['_DECKLOADEDRECORD']._serialized_end=459
-  _globals['_NETOPENEDRECORD']._serialized_start=462
-  _globals['_NETOPENEDRECORD']._serialized_end=650
-  _globals['_SHAPESCOMMITTEDRECORD']._serialized_start=652
-  _globals['_SHAPESCOMMITTEDRECORD']._serialized_end=750
-  _globals['_SHAPESREMOVEDRECORD']._serialized_start=752
-  _globals['_SHAPESREMOVEDRECORD']._serialized_end=799
-  _globals['_NETCLOSEDRECORD']._serialized_start=801
-  _globals['_NETCLOSEDRECORD']._serialized_end=831
-  _globals['_BLOCKAGEDECLAREDRECORD']._serialized_start=833
-  _globals['_BLOCKAGEDECLAREDRECORD']._serialized_end=945
-  _globals['_BLOCKAGEREMOVEDRECORD']._serialized_start=947
-  _globals['_BLOCKAGEREMOVEDRECORD']._serialized_end=991
-  _globals['_JOURNALRECORD']._serialized_start=994
-  _globals['_JOURNALRECORD']._serialized_end=1438
-  _globals['_SNAPSHOTHEADER']._serialized_start=1441
-  _globals['_SNAPSHOTHEADER']._serialized_end=1647
-  _globals['_NETIMAGE']._serialized_start=1650
-  _globals['_NETIMAGE']._serialized_end=1830
-  _globals['_SNAPSHOTEND']._serialized_start=1832
-  _globals['_SNAPSHOTEND']._serialized_end=1885
+  _globals['_PINIMAGE']._serialized_end=615
+  _globals['_PINIMAGE_GATEAREAENTRY']._serialized_start=466
+  _globals['_PINIMAGE_GATEAREAENTRY']._serialized_end=513
+  _globals['_PINIMAGE_CELLAREAENTRY']._serialized_start=515
+  _globals['_PINIMAGE_CELLAREAENTRY']._serialized_end=562
+  _globals['_PINIMAGE_CELLSIDEAREAENTRY']._serialized_start=564
+  _globals['_PINIMAGE_CELLSIDEAREAENTRY']._serialized_end=615
+  _globals['_BLOCKRATIOIMAGE']._serialized_start=617
+  _globals['_BLOCKRATIOIMAGE']._serialized_end=695
+  _globals['_DECKLOADEDRECORD']._serialized_start=697
+  _globals['_DECKLOADEDRECORD']._serialized_end=729
+  _globals['_NETOPENEDRECORD']._serialized_start=732
+  _globals['_NETOPENEDRECORD']._serialized_end=920
+  _globals['_SHAPESCOMMITTEDRECORD']._serialized_start=922
+  _globals['_SHAPESCOMMITTEDRECORD']._serialized_end=1020
+  _globals['_SHAPESREMOVEDRECORD']._serialized_start=1022
+  _globals['_SHAPESREMOVEDRECORD']._serialized_end=1069
+  _globals['_NETCLOSEDRECORD']._serialized_start=1071
+  _globals['_NETCLOSEDRECORD']._serialized_end=1101
+  _globals['_BLOCKAGEDECLAREDRECORD']._serialized_start=1103
+  _globals['_BLOCKAGEDECLAREDRECORD']._serialized_end=1215
+  _globals['_BLOCKAGEREMOVEDRECORD']._serialized_start=1217
+  _globals['_BLOCKAGEREMOVEDRECORD']._serialized_end=1261
+  _globals['_JOURNALRECORD']._serialized_start=1264
+  _globals['_JOURNALRECORD']._serialized_end=1708
+  _globals['_SNAPSHOTHEADER']._serialized_start=1711
+  _globals['_SNAPSHOTHEADER']._serialized_end=1917
+  _globals['_NETIMAGE']._serialized_start=1920
+  _globals['_NETIMAGE']._serialized_end=2100
+  _globals['_SNAPSHOTEND']._serialized_start=2102
+  _globals['_SNAPSHOTEND']._serialized_end=2155
 # @@protoc_insertion_point(module_scope)

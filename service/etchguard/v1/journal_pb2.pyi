@@ -23,7 +23,7 @@ class ShapeColumns(_message.Message):
     def __init__(self, layer: _Optional[_Iterable[int]] = ..., xlo: _Optional[_Iterable[int]] = ..., ylo: _Optional[_Iterable[int]] = ..., xhi: _Optional[_Iterable[int]] = ..., yhi: _Optional[_Iterable[int]] = ..., id: _Optional[_Iterable[int]] = ...) -> None: ...
 
 class PinImage(_message.Message):
-    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area")
+    __slots__ = ("name", "layer", "rects", "gate_area", "diff_area", "cell_area", "cell_side_area", "block_car", "rect_layers")
     class GateAreaEntry(_message.Message):
         __slots__ = ("key", "value")
         KEY_FIELD_NUMBER: _ClassVar[int]
@@ -38,19 +38,44 @@ class PinImage(_message.Message):
         key: int
         value: float
         def __init__(self, key: _Optional[int] = ..., value: _Optional[float] = ...) -> None: ...
+    class CellSideAreaEntry(_message.Message):
+        __slots__ = ("key", "value")
+        KEY_FIELD_NUMBER: _ClassVar[int]
+        VALUE_FIELD_NUMBER: _ClassVar[int]
+        key: int
+        value: float
+        def __init__(self, key: _Optional[int] = ..., value: _Optional[float] = ...) -> None: ...
     NAME_FIELD_NUMBER: _ClassVar[int]
     LAYER_FIELD_NUMBER: _ClassVar[int]
     RECTS_FIELD_NUMBER: _ClassVar[int]
     GATE_AREA_FIELD_NUMBER: _ClassVar[int]
     DIFF_AREA_FIELD_NUMBER: _ClassVar[int]
     CELL_AREA_FIELD_NUMBER: _ClassVar[int]
+    CELL_SIDE_AREA_FIELD_NUMBER: _ClassVar[int]
+    BLOCK_CAR_FIELD_NUMBER: _ClassVar[int]
+    RECT_LAYERS_FIELD_NUMBER: _ClassVar[int]
     name: str
     layer: int
     rects: _containers.RepeatedScalarFieldContainer[int]
     gate_area: _containers.ScalarMap[str, float]
     diff_area: float
     cell_area: _containers.ScalarMap[int, float]
-    def __init__(self, name: _Optional[str] = ..., layer: _Optional[int] = ..., rects: _Optional[_Iterable[int]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[int, float]] = ...) -> None: ...
+    cell_side_area: _containers.ScalarMap[int, float]
+    block_car: _containers.RepeatedCompositeFieldContainer[BlockRatioImage]
+    rect_layers: _containers.RepeatedScalarFieldContainer[int]
+    def __init__(self, name: _Optional[str] = ..., layer: _Optional[int] = ..., rects: _Optional[_Iterable[int]] = ..., gate_area: _Optional[_Mapping[str, float]] = ..., diff_area: _Optional[float] = ..., cell_area: _Optional[_Mapping[int, float]] = ..., cell_side_area: _Optional[_Mapping[int, float]] = ..., block_car: _Optional[_Iterable[_Union[BlockRatioImage, _Mapping]]] = ..., rect_layers: _Optional[_Iterable[int]] = ...) -> None: ...
+
+class BlockRatioImage(_message.Message):
+    __slots__ = ("step", "measure", "oxide", "ratio")
+    STEP_FIELD_NUMBER: _ClassVar[int]
+    MEASURE_FIELD_NUMBER: _ClassVar[int]
+    OXIDE_FIELD_NUMBER: _ClassVar[int]
+    RATIO_FIELD_NUMBER: _ClassVar[int]
+    step: int
+    measure: str
+    oxide: str
+    ratio: float
+    def __init__(self, step: _Optional[int] = ..., measure: _Optional[str] = ..., oxide: _Optional[str] = ..., ratio: _Optional[float] = ...) -> None: ...
 
 class DeckLoadedRecord(_message.Message):
     __slots__ = ("toml",)
