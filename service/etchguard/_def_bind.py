@@ -30,6 +30,7 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
+from typing import Any
 
 from ._def_model import DefHeader, DefPin, RawNet, RawPath, coordinate
 from ._geometry import Rect
@@ -44,19 +45,21 @@ from ._lef_model import (
 )
 from ._lefdef_geometry import ORIENTATIONS, Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
-from ._nets import NetSpec, Pin, shapes_of
+from ._nets import NetSpec, Pin, pin_copy, pin_fields, shapes_of
 from ._rules import Deck
 
 _N = Orientation.N
 
 
 class _PinTemplate:
-    """A macro pin in macro-local DBU (origin applied), its rectangles' layers, its areas."""
+    """A macro pin in macro-local DBU (origin applied), and the fields every placed copy
+    of it shares (layers, areas: ``pin_fields``)."""
 
-    __slots__ = ("areas", "layer", "rect_layers", "rects")
+    __slots__ = ("fields", "rects")
 
     def __init__(self, layer: int, rects: list[Rect], rect_layers: tuple[int, ...], areas: _PinAreas) -> None:
-        self.layer, self.rects, self.rect_layers, self.areas = layer, rects, rect_layers, areas
+        self.rects = rects
+        self.fields = pin_fields(Pin("", layer, (), *areas, rect_layers))
 
 
 # A pin's figures: gate area per oxide, diffusion, in-cell area and side-wall area per
@@ -75,7 +78,7 @@ class DesignBinder:
         self.dbu = deck.dbu_per_micron
         self.steps = deck.layer_index
         self._templates: dict[tuple[str, str], _PinTemplate | None] = {}
-        self._oriented: dict[tuple[str, str, Orientation], list[Rect]] = {}
+        self._oriented: dict[tuple[str, str, Orientation], tuple[dict[str, Any] | None, tuple[Rect, ...]]] = {}
         self._vias: dict[tuple[str, Orientation], tuple[list[tuple[int, Rect]], tuple[str, ...]]] = {}
         self._widths: dict[tuple[str | None, str], int] = {}
         self._via_moves: dict[tuple[str, str, str, str | None],
@@ -282,29 +285,43 @@ class DesignBinder:
         component = self.header.components.get(comp_name)
         if component is None:
             raise fail(self.source, line, "NETS", f"unknown component {comp_name}")
-        template = self._template(component.macro, pin_name, line)
-        if template is None:
+        placement = component.placement
+        if placement is None:
+            if self._template(component.macro, pin_name, line) is not None:
+                self.notes.warn(self.source, component.line, "COMPONENTS", "a component that is not placed: "
+                                "its pins are left out of their nets", subject=comp_name)
             return None
-        if component.placement is None:
-            self.notes.warn(self.source, component.line, "COMPONENTS", "a component that is not placed: its "
-                            "pins are left out of their nets", subject=comp_name)
+        x, y, orient = placement
+        oriented = self._oriented.get((component.macro, pin_name, orient))
+        if oriented is None:
+            oriented = self._orient(component.macro, pin_name, orient, line)
+        fields, rects = oriented
+        if fields is None:
             return None
-        x, y, orient = component.placement
-        key = (component.macro, pin_name, orient)
-        rects = self._oriented.get(key)
-        if rects is None:
-            macro = self.lef.macros[component.macro]
+        if len(rects) == 1:  # the common case, without a comprehension's frame
+            r = rects[0]
+            placed: tuple[Rect, ...] = ((r[0] + x, r[1] + y, r[2] + x, r[3] + y),)
+        else:
+            placed = tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects])
+        return pin_copy(fields, f"{comp_name}.{pin_name}", placed)
+
+    def _orient(self, macro_name: str, pin_name: str, orient: Orientation, line: int
+                ) -> tuple[dict[str, Any] | None, tuple[Rect, ...]]:
+        """A macro pin's fields and its rectangles oriented as placed at 0, 0 (kept per
+        macro, pin and orientation; a placed pin is these moved by the placement point)."""
+        template = self._template(macro_name, pin_name, line)
+        oriented: tuple[dict[str, Any] | None, tuple[Rect, ...]] = (None, ())
+        if template is not None:
+            macro = self.lef.macros[macro_name]
             if macro.size is None and orient is not _N:
                 raise fail(macro.at.source, macro.at.line, "SIZE", f"macro {macro.name} has no SIZE, so it "
                            f"cannot be placed in orientation {orient.name}")
             width, height = (self._size(macro.size, macro.at) if macro.size else (0, 0))
             # oriented about the origin and moved so that the box's lower-left is at 0, 0
             bx, by = placement_shift(orient, width, height, 0, 0)
-            rects = place(template.rects, orient, bx, by)
-            self._oriented[key] = rects
-        return Pin(f"{comp_name}.{pin_name}", template.layer,
-                   tuple([(r[0] + x, r[1] + y, r[2] + x, r[3] + y) for r in rects]), *template.areas,
-                   template.rect_layers)
+            oriented = (template.fields, tuple(place(template.rects, orient, bx, by)))
+        self._oriented[(macro_name, pin_name, orient)] = oriented
+        return oriented
 
     def _size(self, size: tuple[float, float], at: Located) -> tuple[int, int]:
         w, h = to_dbu(size[0], self.dbu), to_dbu(size[1], self.dbu)

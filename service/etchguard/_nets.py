@@ -87,6 +87,28 @@ def shapes_of(rows: Iterable[tuple[int, Rect]]) -> tuple[Shape, ...]:
     return tuple(out)
 
 
+_set_attribute = object.__setattr__  # past the frozen dataclass's refusal
+
+
+def pin_fields(pin: Pin) -> dict[str, Any]:
+    """A pin's fields, for ``pin_copy`` (a reader's template of one cell pin)."""
+    return dict(vars(pin))
+
+
+def pin_copy(fields: dict[str, Any], name: str, rects: tuple[Rect, ...]) -> Pin:
+    """A pin equal to ``Pin(name, rects=rects, **other fields)`` of ``pin_fields``, built
+    without the frozen dataclass's ``__init__`` (``object.__setattr__`` per field, nine
+    of them: four times the cost of a dict copy, and a DEF read makes a pin per
+    connection). The other fields' mappings are shared with the template, as pins of
+    one cell pin always shared them."""
+    pin = _object_new(Pin)
+    own = fields.copy()
+    own["name"] = name
+    own["rects"] = rects
+    _set_attribute(pin, "__dict__", own)
+    return pin
+
+
 @dataclass(frozen=True)
 class NetSpec:
     name: str
