@@ -20,6 +20,7 @@ Sources:
 
 from __future__ import annotations
 
+import gc
 import json
 import re
 import subprocess
@@ -384,6 +385,34 @@ def test_cli_refusal_exits_2_with_file_and_line(tmp_path: Path) -> None:
 def test_cli_refuses_mixed_inputs() -> None:
     done = run_cli("check", "--lef", str(LEFS[0]), "--def", str(BLOCK), "--rules", "deck.toml")
     assert done.returncode == 2 and "not both" in done.stderr
+
+
+def test_components_of_every_form_read_alike(tmp_path: Path) -> None:
+    """The common one-line COMPONENTS statements are taken a line at a time, the others
+    word by word: the same records either way, and a refusal after many one-line
+    statements still names its line. The collector runs again after the header."""
+    lines = ["VERSION 5.8 ;", "DESIGN lumen_forms ;", "UNITS DISTANCE MICRONS 1000 ;", "COMPONENTS 6 ;",
+             "- c0 LINV + PLACED ( 0 0 ) N ;",
+             "- c1 LINV", "  + FIXED ( 2800 0 ) FS ;",
+             "- c2 LINV + PLACED ( 5.6e3 0 ) N ;",
+             "- c3 LINV + SOURCE DIST + PLACED ( 8400 0 ) E ;",
+             "- c4 LINV + UNPLACED ;",
+             "- c5 LINV + COVER ( 11200 0 ) FW ;", "END COMPONENTS", "END DESIGN"]
+    path = tmp_path / "forms.def"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    components = DefReader(path).read_header().components
+    got = {name: (c.macro, c.line, c.placement) for name, c in components.items()}
+    assert got == {"c0": ("LINV", 5, (0, 0, Orientation.N)), "c1": ("LINV", 6, (2800, 0, Orientation.FS)),
+                   "c2": ("LINV", 8, (5600, 0, Orientation.N)), "c3": ("LINV", 9, (8400, 0, Orientation.E)),
+                   "c4": ("LINV", 10, None), "c5": ("LINV", 11, (11200, 0, Orientation.FW))}
+    assert gc.isenabled()
+    twice = lines[:4] + [f"- c{i} LINV + PLACED ( {i * 2800} 0 ) N ;" for i in range(5)] + [
+        "- c3 LINV + PLACED ( 0 0 ) N ;", "END COMPONENTS", "END DESIGN"]
+    path.write_text("\n".join(twice) + "\n", encoding="utf-8")
+    with pytest.raises(eg.InputError) as info:
+        DefReader(path).read_header()
+    assert info.value.field == f"{path}:10: COMPONENTS" and "defined twice" in info.value.message
+    assert gc.isenabled()
 
 
 # -- streaming ----------------------------------------------------------------------------------

@@ -15,6 +15,7 @@ section's line. Errors (``InputError``) name file:line and the keyword.
 
 from __future__ import annotations
 
+import gc
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import TypeVar
@@ -56,12 +57,17 @@ class DefReader:
             raise self.stream.error(section, f"expected {section} count ;")
         return coordinate(words[0], self.source, line, section), line
 
-    def _statements(self, section: str, declared_at: tuple[int, int] | None = None
-                    ) -> Iterator[tuple[list[str], list[tuple[int, int]]]]:
+    def _statements(self, section: str, declared_at: tuple[int, int] | None = None,
+                    quick: Callable[[], int] | None = None) -> Iterator[tuple[list[str], list[tuple[int, int]]]]:
+        """The section's ``- ...`` statements as words and line marks. ``quick`` first
+        takes the common one-line statements that follow, returning how many it took,
+        and leaves any other to this loop."""
         stream = self.stream
         declared, line = declared_at or self._declared(section)
         found = 0
         while True:
+            if quick is not None:
+                found += quick()
             word = stream.peek()
             if word is None:
                 raise stream.error(section, f"the file ends inside {section} (truncated, or END {section} missing)")
@@ -98,9 +104,20 @@ class DefReader:
         return self._nets_declared[0]
 
     def read_header(self) -> DefHeader:
-        """Everything up to the NETS section (or the end of the design)."""
-        while not self._in_nets and not self._done:
-            self._top_statement(before_nets=True)
+        """Everything up to the NETS section (or the end of the design).
+
+        The cyclic garbage collector is paused meanwhile: the header is hundreds of
+        thousands of small records (components) that live as long as the read and hold
+        no cycles, and the collections their allocation sets off would walk them again
+        and again (a third of the header's time). It runs again as it was afterwards."""
+        collecting = gc.isenabled()
+        gc.disable()
+        try:
+            while not self._in_nets and not self._done:
+                self._top_statement(before_nets=True)
+        finally:
+            if collecting:
+                gc.enable()
         return self.header
 
     def _top_statement(self, before_nets: bool) -> None:
@@ -141,7 +158,7 @@ class DefReader:
             for words, marks in self._statements(up):
                 self._guarded(self._sections.ndr, up, words, marks)
         elif up == "COMPONENTS":
-            for words, marks in self._statements(up):
+            for words, marks in self._statements(up, quick=self._sections.placed_components):
                 self._guarded(self._sections.component, up, words, marks)
         elif up == "PINS":
             for words, marks in self._statements(up):

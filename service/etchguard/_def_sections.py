@@ -111,20 +111,34 @@ class SectionReader:
         return (coordinate(values[0], self.source, line, keyword),
                 coordinate(values[1], self.source, line, keyword), ORIENTATIONS[values[2]])
 
+    def placed_components(self) -> int:
+        """The COMPONENTS statements of the common form, one per line, that follow
+        ("- name macro + PLACED ( x y ) orient ;", integer coordinates, a name not seen
+        before), taken a line at a time without a statement's words and marks (a big
+        design has hundreds of thousands); returns how many. It stops at any other line,
+        which ``component`` then reads (and refuses, if it must)."""
+        components = self.header.components
+        stream = self.stream
+        taken = 0
+        for line, words in stream.whole_lines():
+            if len(words) == 11:
+                dash, name, macro, plus, kind, left, x, y, right, orient, end = words
+                if (dash == "-" and plus == "+" and kind in PLACEMENT and left == "(" and right == ")"
+                        and orient in ORIENTATIONS and end == ";" and name not in components):
+                    try:
+                        at = (int(x), int(y), ORIENTATIONS[orient])
+                    except ValueError:
+                        pass
+                    else:
+                        components[name] = DefComponent(macro, line, at)
+                        taken += 1
+                        continue
+            stream.unread_line()
+            break
+        return taken
+
     def component(self, words: list[str], marks: list[tuple[int, int]]) -> None:
         line = marks[0][1]
-        if len(words) == 10:  # the common form, "- name macro + PLACED ( x y ) orient", without the walk
-            _, name, macro, plus, kind, left, x, y, right, orient = words
-            components = self.header.components
-            if (plus == "+" and kind in PLACEMENT and left == "(" and right == ")" and orient in ORIENTATIONS
-                    and name not in components):
-                try:
-                    at = (int(x), int(y), ORIENTATIONS[orient])
-                except ValueError:
-                    at = (coordinate(x, self.source, line, "COMPONENTS"),
-                          coordinate(y, self.source, line, "COMPONENTS"), ORIENTATIONS[orient])
-                components[name] = DefComponent(macro, line, at)
-                return
         if len(words) < 3:
             raise fail(self.source, line, "COMPONENTS", "expected - name macro")
         name, macro = words[1], words[2]

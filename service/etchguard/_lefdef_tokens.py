@@ -248,6 +248,21 @@ class TokenStream:
             out.extend(words[pos:] if pos else words)
             pos = len(words)
 
+    def whole_lines(self) -> Iterator[tuple[int, list[str]]]:
+        """The following lines (number, words), each taken whole as it is handed out,
+        for a reader that matches common one-line statements without going word by word;
+        nothing while the current line has words left. ``unread_line()`` gives the last
+        one back (a line the reader does not match, read then by ``statement``)."""
+        if self._pos < len(self._words):
+            return
+        for number, words in self._lines:
+            self._words, self._pos, self.line = words, len(words), number
+            yield number, words
+
+    def unread_line(self) -> None:
+        """The line ``whole_lines`` handed out last is read again from its first word."""
+        self._pos = 0
+
     def skip_statement(self, keyword: str) -> None:
         self.statement(keyword)
 
