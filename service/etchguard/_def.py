@@ -216,14 +216,17 @@ class DefReader:
             self.notes.warn(source, line, "MUSTJOIN", "a must-join net has no wiring of its own; skipped")
             return None
         connections: list[tuple[str, str, int]] = []
+        second_line = marks[1][0] if len(marks) > 1 else n  # words before it are on the first line
         while i < n and words[i] == "(":
-            try:
-                close = words.index(")", i)
-            except ValueError:
-                raise fail(source, line_of(marks, i), "NETS", f"net {name}: '(' without ')'") from None
-            if close - i < 3:
-                raise fail(source, line_of(marks, i), "NETS", f"net {name}: expected ( component pin )")
-            connections.append((words[i + 1], words[i + 2], line_of(marks, i)))
+            close = i + 3
+            if close >= n or words[close] != ")":  # "( component pin )" the common case, else look
+                try:
+                    close = words.index(")", i)
+                except ValueError:
+                    raise fail(source, line_of(marks, i), "NETS", f"net {name}: '(' without ')'") from None
+                if close - i < 3:
+                    raise fail(source, line_of(marks, i), "NETS", f"net {name}: expected ( component pin )")
+            connections.append((words[i + 1], words[i + 2], line if i < second_line else line_of(marks, i)))
             i = close + 1
         net = RawNet(name, line, connections, [], None)
         try:
@@ -234,7 +237,8 @@ class DefReader:
         for start, group in groups:
             key = group[0].upper() if group else ""
             if key in WIRING:
-                wiring.append((start + 1, group[1:]))
+                del group[0]  # (the group is the statement's copy)
+                wiring.append((start + 1, group))
             elif key in ("RECT", "VIRTUAL") and wiring:
                 wiring[-1][1].extend(group)  # '+ RECT' / '+ VIRTUAL' continue a path
             elif key == "NONDEFAULTRULE" and len(group) == 2:
@@ -269,6 +273,7 @@ class DefReader:
         them once, placing shapes as it goes)."""
         source = self.source
         i, n = 0, len(words)
+        switches = words.count("NEW")
         while i < n:
             line = line_of(marks, start + i)
             layer = words[i]
@@ -284,6 +289,12 @@ class DefReader:
                 self.notes.warn(source, line, "STYLE", "a wire style has no term in the model; the "
                                 "segment is taken as a rectangle of the path's width")
                 i += 2
-            end = words.index("NEW", i) if "NEW" in words[i:] else n  # (a missed index raises: slower)
+            end = n
+            if switches:  # (a missed index would raise: slower)
+                switches -= 1
+                try:
+                    end = words.index("NEW", i)
+                except ValueError:  # the word NEW was a rule's name, not a switch
+                    end = n
             net.paths.append(RawPath(layer, line, taper, taper_rule, words[i:end]))
             i = end + 1  # past NEW
