@@ -45,7 +45,7 @@ from ._lef_model import (
 )
 from ._lefdef_geometry import ORIENTATIONS, Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
-from ._nets import NetSpec, Pin, pin_copy, pin_fields, shapes_of
+from ._nets import NetSpec, Pin, pin_copy, pin_fields, read_net, shapes_of
 from ._rules import Deck
 
 _N = Orientation.N
@@ -377,7 +377,7 @@ class DesignBinder:
         rows: list[tuple[int, Rect]] = []
         for path in raw.paths:
             self._wire(raw, path, rows)
-        return NetSpec(raw.name, tuple(pins), shapes_of(rows))
+        return read_net(raw.name, tuple(pins), shapes_of(rows))
 
     def _wire(self, raw: RawNet, path: RawPath, rows: list[tuple[int, Rect]]) -> None:
         """The path's shapes as (step, rect) rows, its routing points walked once."""

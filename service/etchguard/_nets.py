@@ -117,6 +117,14 @@ class NetSpec:
     layer_range: tuple[int, int] | None = None
 
 
+def read_net(name: str, pins: tuple[Pin, ...], shapes: tuple[Shape, ...]) -> NetSpec:
+    """A net a reader has already checked, equal to ``NetSpec(name, pins, shapes)`` but
+    built without the frozen dataclass's ``__init__`` (as ``pin_copy``)."""
+    spec = _object_new(NetSpec)
+    _set_attribute(spec, "__dict__", {"name": name, "pins": pins, "shapes": shapes, "layer_range": None})
+    return spec
+
+
 def resolve_layer(deck: Deck, name: object, field_name: str) -> int:
     if not isinstance(name, str) or name not in deck.layer_index:
         raise InputError(f"unknown layer {shown(name)} (deck {deck.name} has "
