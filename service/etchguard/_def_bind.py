@@ -45,10 +45,11 @@ from ._lef_model import (
 )
 from ._lefdef_geometry import ORIENTATIONS, Orientation, cut_array, place, placement_shift, to_dbu
 from ._lefdef_tokens import Notes, fail
-from ._nets import NetSpec, Pin, pin_copy, pin_fields, read_net, shapes_of
+from ._nets import NetSpec, Pin, Shape, pin_copy, pin_fields, read_net, set_shape_layer, set_shape_rect
 from ._rules import Deck
 
 _N = Orientation.N
+_blank = object.__new__  # a Shape without its fields (set_shape_layer, set_shape_rect)
 
 
 class _PinTemplate:
@@ -374,13 +375,14 @@ class DesignBinder:
             if pin is not None and pin.name not in names:
                 names.add(pin.name)
                 pins.append(pin)
-        rows: list[tuple[int, Rect]] = []
+        shapes: list[Shape] = []
         for path in raw.paths:
-            self._wire(raw, path, rows)
-        return read_net(raw.name, tuple(pins), shapes_of(rows))
+            self._wire(raw, path, shapes)
+        return read_net(raw.name, tuple(pins), tuple(shapes))
 
-    def _wire(self, raw: RawNet, path: RawPath, rows: list[tuple[int, Rect]]) -> None:
-        """The path's shapes as (step, rect) rows, its routing points walked once."""
+    def _wire(self, raw: RawNet, path: RawPath, shapes: list[Shape]) -> None:
+        """The path's shapes, its routing points walked once (shapes built inline, as
+        ``_nets`` says: a read makes one per segment and three per via)."""
         line = path.line
         layer = path.layer
         step = self._step(layer, line, "NETS")
@@ -395,7 +397,7 @@ class DesignBinder:
         py: int | None = None
         pext: int | None = None
         words, i, n = path.words, 0, len(path.words)
-        append = rows.append
+        append = shapes.append
         try:
             while i < n:
                 word = words[i]
@@ -418,14 +420,18 @@ class DesignBinder:
                         d1 = half if pext is None else pext
                         d2 = half if ext is None else ext
                         if py == y and (px != x or self.deck.layers[step].direction == "horizontal"):
-                            append((step, (x - d2, y - half, px + d1, y - half + width) if px > x
-                                    else (px - d1, y - half, x + d2, y - half + width)))
+                            rect = ((x - d2, y - half, px + d1, y - half + width) if px > x
+                                    else (px - d1, y - half, x + d2, y - half + width))
                         elif px == x:
-                            append((step, (x - half, y - d2, x - half + width, py + d1) if py > y  # type: ignore[operator]
-                                    else (x - half, py - d1, x - half + width, y + d2)))  # type: ignore[operator]
+                            rect = ((x - half, y - d2, x - half + width, py + d1) if py > y  # type: ignore[operator]
+                                    else (x - half, py - d1, x - half + width, y + d2))  # type: ignore[operator]
                         else:
                             raise fail(self.source, line, "NETS", f"net {raw.name}: segment ({px} {py}) to "
                                        f"({x} {y}) is neither horizontal nor vertical")
+                        shape = _blank(Shape)
+                        set_shape_layer(shape, step)
+                        set_shape_rect(shape, rect)
+                        append(shape)
                     px, py, pext = x, y, ext
                 elif word == "MASK":
                     i += 2
@@ -439,7 +445,7 @@ class DesignBinder:
                     x1, y1, x2, y2 = px + values[0], py + values[1], px + values[2], py + values[3]
                     if x1 == x2 or y1 == y2:
                         raise fail(self.source, line, "RECT", f"net {raw.name}: the rectangle has no area")
-                    append((step, (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))))
+                    append(Shape(step, (min(x1, x2), min(y1, y2), max(x1, x2), max(y1, y2))))
                 else:  # a via, placed at the last point; it switches the path's layer
                     orient = words[i + 1] if i + 1 < n and words[i + 1] in ORIENTATIONS else ""
                     i += 2 if orient else 1
@@ -449,7 +455,11 @@ class DesignBinder:
                     if move is None:
                         move = self._via_move(raw, word, orient, layer, rule, line)
                     placed, moves, layer, after = move
-                    rows.extend([(s, (r[0] + px, r[1] + py, r[2] + px, r[3] + py)) for s, r in placed])
+                    for s, r in placed:
+                        shape = _blank(Shape)
+                        set_shape_layer(shape, s)
+                        set_shape_rect(shape, (r[0] + px, r[1] + py, r[2] + px, r[3] + py))
+                        append(shape)
                     if not moves:
                         continue  # cuts only: placed, the path stays on its layer
                     if after is None:

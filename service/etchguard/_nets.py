@@ -7,7 +7,7 @@ Layers are resolved to process-step indices of the loaded deck.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -69,22 +69,13 @@ class Shape:
 
 
 _object_new = object.__new__
-_set_layer = Shape.__dict__["layer"].__set__  # the slots' own setters
-_set_rect = Shape.__dict__["rect"].__set__
-
-
-def shapes_of(rows: Iterable[tuple[int, Rect]]) -> tuple[Shape, ...]:
-    """Shapes of (layer, rect) rows a reader has already checked, equal to
-    ``Shape(layer, rect)`` each but built without the frozen dataclass's ``__init__``
-    (``object.__setattr__`` per field: half the cost of a shape, and a DEF read makes
-    millions)."""
-    out = []
-    for layer, rect in rows:
-        shape = _object_new(Shape)
-        _set_layer(shape, layer)
-        _set_rect(shape, rect)
-        out.append(shape)
-    return tuple(out)
+# A reader's hot loop builds shapes it has already checked as ``shape = object.__new__(Shape)``
+# then ``set_shape_layer(shape, layer)`` and ``set_shape_rect(shape, rect)`` (the slots' own
+# setters), inline: equal to ``Shape(layer, rect)`` but without the frozen dataclass's
+# ``__init__`` (``object.__setattr__`` per field: half the cost of a shape, and a DEF read
+# makes millions).
+set_shape_layer = Shape.__dict__["layer"].__set__
+set_shape_rect = Shape.__dict__["rect"].__set__
 
 
 _set_attribute = object.__setattr__  # past the frozen dataclass's refusal
