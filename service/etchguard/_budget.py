@@ -53,6 +53,14 @@ class BudgetTerm:
         return max(0.0, self.factor * conductor - self.credit_um2) / self.gate_um2
 
 
+def _reached(term: int | None, spent: float, floor: float, terms: tuple[BudgetTerm, ...], added_area_um2: float,
+             added_perimeter_um: float) -> float:
+    """``max(floor, spent + terms[term])`` for an addition (the floor without a term)."""
+    if term is None:
+        return floor
+    return max(floor, spent + terms[term].value(added_area_um2, added_perimeter_um))
+
+
 @dataclass(frozen=True)
 class BudgetRatio:
     """One ratio the addition may change: ``max(floor, spent + terms[term])``."""
@@ -71,9 +79,7 @@ class BudgetRatio:
 
     def value(self, terms: tuple[BudgetTerm, ...], added_area_um2: float = 0.0,
               added_perimeter_um: float = 0.0) -> float:
-        if self.term is None:
-            return self.floor
-        return max(self.floor, self.spent + terms[self.term].value(added_area_um2, added_perimeter_um))
+        return _reached(self.term, self.spent, self.floor, terms, added_area_um2, added_perimeter_um)
 
 
 @dataclass(frozen=True)
@@ -90,9 +96,7 @@ class BudgetWatch:
 
     def value(self, terms: tuple[BudgetTerm, ...], added_area_um2: float = 0.0,
               added_perimeter_um: float = 0.0) -> float:
-        if self.term is None:
-            return self.floor
-        return max(self.floor, self.spent + terms[self.term].value(added_area_um2, added_perimeter_um))
+        return _reached(self.term, self.spent, self.floor, terms, added_area_um2, added_perimeter_um)
 
 
 @dataclass(frozen=True)
