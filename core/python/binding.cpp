@@ -351,12 +351,14 @@ NB_MODULE(_core, m) {
         for (const BudgetRatio& r : b.ratios)
           ratios.push_back({r.step, int(r.measure), int(r.kind), r.oxide, r.limit, r.term, r.spent, r.floor,
                             r.always, r.gate});
+        std::vector<std::tuple<int, int, double, double, double>> watches;
+        for (const BudgetWatch& w : b.watches) watches.push_back({w.step, w.term, w.spent, w.floor, w.held});
         std::vector<R4> own, own_pins;
         for (const Rect& r : b.own) own.push_back(rect4(r));
         for (const Rect& r : b.own_pins) own_pins.push_back(rect4(r));
         std::vector<std::pair<int, R4>> foreign;
         for (const auto& f : b.foreign) foreign.push_back({f.first, rect4(f.second)});
-        return nb::make_tuple(b.found, terms, ratios, b.rest_worst, b.fixed_change, b.common_added_um2, own,
+        return nb::make_tuple(b.found, terms, ratios, watches, b.rest_worst, b.fixed_change, b.common_added_um2, own,
                               own_pins, foreign);
       })
       .def("touching", [](const Net& net, int layer, std::tuple<i64, i64, i64, i64> r) {

@@ -13,13 +13,23 @@
 //     of R_s outside R_L keep theirs (the ratio of R_s is the largest over its gates).
 // Every other ratio of N' keeps its value (rest_worst).
 //
+// Rounding. spent is read back as CAR_s - term_L(A) and the client adds term_L(A'); the
+// what-if sums the chain afresh (t_s + CAR_f ..., then a block pin's own value). With a
+// block value (tens to hundreds beside terms of a few units) the two orders round apart
+// by a few ulps of CAR: equal to 1e-9 relative (the contract's tolerance), not to the
+// bit. A watch is compared exactly and that stays sound: where X does not reach the
+// best gate the value is the floor, a CAR copied as is; where it does, the best moves by
+// X's term change, far above an ulp.
+//
 // Which figures the service counts as changes (its what-if walk in whatif.cpp, for the
 // candidate common + X against the held net N): at each step the component of each
 // group of candidates counts when it is a merge (not exactly one of N's components, or
-// a candidate rectangle on that step's layer) or when one of its gates' CAR moved. R_L
-// always counts (X lies on L). R_s above L counts when common alone makes it count
-// (merge, or a CAR that differs from N's), or when X moves a term feeding s. The other
-// components common makes count are fixed: fixed_change.
+// a candidate rectangle on that step's layer) or when its best CAR of some (measure,
+// oxide) differs from that of its one component in N. R_L always counts (X lies on L).
+// R_s above L counts when common merges it, else when one of its best CARs, now a
+// function of X (a watch), differs from N's. The other components common makes count
+// are fixed: fixed_change. (Counting R_s whenever X moves a term feeding s would count
+// it where its best CAR belongs to a gate X does not reach, which the what-if does not.)
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -111,7 +121,8 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
   };
 
   // What common alone makes count, step by step (see the header comment).
-  std::vector<char> lineage_counts(std::size_t(steps), 0);
+  const std::size_t G = std::size_t(ng);
+  std::vector<char> lineage_merged(std::size_t(steps), 0);
   std::vector<const double*> rows_now(st.pins.size(), nullptr);
   for (std::size_t p = 0; p < st.pins.size(); ++p)
     if (now.slot_of_pin[p] >= 0) rows_now[p] = &now.car[now.row(now.slot_of_pin[p], 0)];
@@ -139,13 +150,13 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
       }
       merged = merged || held_comps.size() != 1;
       bool moved = false;
-      for (int p : R.gates())
-        for (int g = 0; g < ng && !merged && !moved; ++g)
-          if (has_oxide(st.pin_oxides[std::size_t(p)], m.groups[std::size_t(g)].oxide))
-            moved = car_of(now, p, g, s) != car_of(before, p, g, s);
+      for (int g = 0; g < ng && !merged && !moved; ++g)
+        if (has_oxide(R.oxides, m.groups[std::size_t(g)].oxide))
+          moved = now.best[std::size_t(s)][std::size_t(c) * G + std::size_t(g)] !=
+                  before.best[std::size_t(s)][std::size_t(held_comps[0]) * G + std::size_t(g)];
       const bool lineage = s >= L && c == comp_at(s);
-      if (lineage) lineage_counts[std::size_t(s)] = merged || moved;
-      if (R.G <= 0 || !(merged || moved) || (lineage && s == L)) continue;
+      if (lineage) lineage_merged[std::size_t(s)] = merged;
+      if (R.G <= 0 || !(merged || moved) || (lineage && (s == L || !merged))) continue;
       es.clear();
       st.entries(s, R, merged, rows_now.data(), st.pin_oxides.data(), es);
       for (const Entry& en : es)
@@ -165,33 +176,56 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
                           term_index(key.measure, key.oxide), 0.0, -inf, true, gate});
     }
   }
+  // R_s's best CAR for group g as the addition makes it: gates X reaches (R_L's, through
+  // L on g's chain) follow the term, the others stay (floor).
+  auto reach = [&](const Comp& Rs, int s, int g, BudgetWatch& w, int& gate) {
+    const Group& grp = m.groups[std::size_t(g)];
+    const bool chain = m.in_chain(L, s, g);
+    double best = -1.0;
+    w = {s, -1, -inf, -inf, 0.0};
+    gate = -1;
+    for (int p : Rs.gates()) {
+      if (!has_oxide(st.pin_oxides[std::size_t(p)], grp.oxide)) continue;
+      const double value = car_of(now, p, g, s);
+      if (value > best || (value == best && p < gate)) {
+        best = value;
+        gate = p;
+      }
+      if (chain && in_RL(p)) {
+        w.term = term_index(grp.measure, grp.oxide);
+        w.spent = std::max(w.spent, value - now.term[now.row(now.slot_of_pin[std::size_t(p)], g) + std::size_t(L)]);
+      } else {
+        w.floor = std::max(w.floor, value);
+      }
+    }
+    if (w.term < 0) w.spent = 0.0;
+  };
   for (int s = L; s < steps; ++s) {
     const Comp& Rs = st.comps[std::size_t(s)][std::size_t(comp_at(s))];
     if (Rs.G <= 0) continue;
+    const bool always = s == L || lineage_merged[std::size_t(s)] != 0;
+    BudgetWatch w{};
+    int gate = -1;
     for (const CheckKey& key : m.cumulative_checks[std::size_t(s)]) {
       if (!has_oxide(Rs.oxides, key.oxide)) continue;
-      const int g = key.group;
-      const bool chain = m.in_chain(L, s, g);
-      BudgetRatio r{s, key.measure, Kind::Cumulative, key.oxide,
-                    m.deck.rules[std::size_t(key.rule)].cumulative_limit(Rs.D), -1, -inf, -inf,
-                    s == L || lineage_counts[std::size_t(s)] != 0, -1};
-      double best = -1.0;
-      for (int p : Rs.gates()) {
-        if (!has_oxide(st.pin_oxides[std::size_t(p)], key.oxide)) continue;
-        const double value = car_of(now, p, g, s);
-        if (value > best || (value == best && p < r.gate)) {
-          best = value;
-          r.gate = p;
-        }
-        if (chain && in_RL(p)) {
-          r.term = term_index(key.measure, key.oxide);
-          r.spent = std::max(r.spent, value - now.term[now.row(now.slot_of_pin[std::size_t(p)], g) + std::size_t(L)]);
-        } else {
-          r.floor = std::max(r.floor, value);
-        }
+      reach(Rs, s, key.group, w, gate);
+      b.ratios.push_back({s, key.measure, Kind::Cumulative, key.oxide,
+                          m.deck.rules[std::size_t(key.rule)].cumulative_limit(Rs.D), w.term, w.spent, w.floor,
+                          always, gate});
+    }
+    if (always) continue;
+    // Not merged: R_s is one component of N (the one holding its members outside common).
+    int held_comp = -1;
+    for (int e : Rs.members)
+      if (!is_common[std::size_t(e)]) {
+        held_comp = held.comp_of[std::size_t(s)][std::size_t(e)];
+        break;
       }
-      if (r.term < 0) r.spent = 0.0;
-      b.ratios.push_back(r);
+    for (int g = 0; g < ng; ++g) {
+      if (!has_oxide(Rs.oxides, m.groups[std::size_t(g)].oxide)) continue;
+      reach(Rs, s, g, w, gate);
+      w.held = before.best[std::size_t(s)][std::size_t(held_comp) * G + std::size_t(g)];
+      b.watches.push_back(w);
     }
   }
 

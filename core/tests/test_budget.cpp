@@ -146,6 +146,24 @@ ETCHGUARD_TEST(budget_at_zero_is_the_net_with_common) {
     REQUIRE(net.remove(ids.data(), ids.size()) == Status::Ok);
   }
   CHECK(found > 0);
+  // Without common, an addition of nothing moves no watch: each is its held best CAR
+  // to the bit (a client compares them exactly; a zero-area candidate inside the
+  // component's own metal is one).
+  int watched = 0;
+  for (int round = 0; round < 60; ++round) {
+    Net held = random_net(rng);
+    Budget b = held.budget(0, 0, 0, nullptr, 0, everywhere);
+    for (const BudgetWatch& w : b.watches) {
+      double value = w.floor;
+      if (w.term >= 0) {
+        const BudgetTerm& t = b.terms[std::size_t(w.term)];
+        value = std::max(w.floor, w.spent + std::max(0.0, t.factor * t.conductor - t.credit) / t.gate);
+      }
+      CHECK(value == w.held);
+      ++watched;
+    }
+  }
+  CHECK(watched > 0);
   Net net = random_net(rng);
   CHECK_THROWS(net.budget(9, 0, 0, nullptr, 0, everywhere), std::invalid_argument);
   CHECK_THROWS(net.budget(0, 0, 0, nullptr, 0, Rect{5, 0, 5, 9}), std::invalid_argument);

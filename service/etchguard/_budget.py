@@ -12,7 +12,10 @@ it), a partial ratio at L or a cumulative ratio at a step whose feeding chain pa
 through L. The candidate common + X gets from the service exactly:
 
 * worst_change_utilization = max(fixed_change_utilization, the utilizations of the
-  ratios that count: ``always``, or a term feeding their step moved);
+  ratios that count: ``always``, or a ``BudgetWatch`` at their step moved off its held
+  value (R's best cumulative ratio of some (measure, oxide) there moved; a term feeding
+  the step may move while the best belongs to a gate X does not reach, and then the
+  service's score counts nothing there);
 * worst_utilization = max(rest_worst_utilization, every ratio's utilization);
 * cost = the cost curve at worst_change_utilization; added area = common's + a.
 
@@ -50,6 +53,14 @@ class BudgetTerm:
         return max(0.0, self.factor * conductor - self.credit_um2) / self.gate_um2
 
 
+def _reached(term: int | None, spent: float, floor: float, terms: tuple[BudgetTerm, ...], added_area_um2: float,
+             added_perimeter_um: float) -> float:
+    """``max(floor, spent + terms[term])`` for an addition (the floor without a term)."""
+    if term is None:
+        return floor
+    return max(floor, spent + terms[term].value(added_area_um2, added_perimeter_um))
+
+
 @dataclass(frozen=True)
 class BudgetRatio:
     """One ratio the addition may change: ``max(floor, spent + terms[term])``."""
@@ -64,13 +75,28 @@ class BudgetRatio:
     term: int | None  # index into Budget.terms; None: the addition does not change it
     spent: float  # the other steps' sum
     floor: float  # other gates of the component (-inf: none)
-    always: bool  # a change of every candidate
+    always: bool  # a change of every candidate (else when a watch at its step moves)
 
     def value(self, terms: tuple[BudgetTerm, ...], added_area_um2: float = 0.0,
               added_perimeter_um: float = 0.0) -> float:
-        if self.term is None:
-            return self.floor
-        return max(self.floor, self.spent + terms[self.term].value(added_area_um2, added_perimeter_um))
+        return _reached(self.term, self.spent, self.floor, terms, added_area_um2, added_perimeter_um)
+
+
+@dataclass(frozen=True)
+class BudgetWatch:
+    """The component's best cumulative ratio at a step for one (measure, oxide): the
+    step's ratios count as changes when ``value`` differs from ``held`` (the best in the
+    net as held), as the service's score counts them."""
+
+    step: int
+    term: int | None  # index into Budget.terms; None: the addition does not change it
+    spent: float
+    floor: float  # gates the addition does not reach (-inf: none)
+    held: float  # compared exactly
+
+    def value(self, terms: tuple[BudgetTerm, ...], added_area_um2: float = 0.0,
+              added_perimeter_um: float = 0.0) -> float:
+        return _reached(self.term, self.spent, self.floor, terms, added_area_um2, added_perimeter_um)
 
 
 @dataclass(frozen=True)
@@ -80,6 +106,7 @@ class Budget:
     step: int
     terms: tuple[BudgetTerm, ...]
     ratios: tuple[BudgetRatio, ...]
+    watches: tuple[BudgetWatch, ...]
     rest_worst_utilization: float
     fixed_change_utilization: float
     common_added_area_um2: float

@@ -62,13 +62,12 @@ class LocalBudget:
         # (conductor, per_area, per_perimeter, factor, credit, gate) per term
         self.terms = [(t.conductor_um2, t.per_area, t.per_perimeter_um, t.factor, t.credit_um2, t.gate_um2)
                       for t in reply.terms]
-        fed_by: dict[int, list[int]] = {}
-        for i, t in enumerate(reply.terms):
-            for step in t.feeds:
-                fed_by.setdefault(step, []).append(i)
-        # (term or -1, spent, floor, limit, always, terms feeding its step)
-        self.ratios = [(r.term if r.HasField("term") else -1, r.spent, r.floor, r.limit, r.always,
-                        tuple(fed_by.get(r.step, ()))) for r in reply.ratios]
+        # (term or -1, spent, floor, limit, always, step)
+        self.ratios = [(r.term if r.HasField("term") else -1, r.spent, r.floor, r.limit, r.always, r.step)
+                       for r in reply.ratios]
+        # (term or -1, spent, floor, held, step): a step's ratios count when one moves
+        self.watches = [(w.term if w.HasField("term") else -1, w.spent, w.floor, w.held, w.step)
+                        for w in reply.watches]
         self.rest = reply.rest_worst_utilization
         self.fixed = reply.fixed_change_utilization
         self.common_added = reply.common_added_area_um2
@@ -79,7 +78,6 @@ class LocalBudget:
         self.window = _rect(reply.window)
         c = reply.cost
         self.curve = (c.knee, c.exponent, c.scale, c.violation, c.over_slope)
-        self._now = [self._term(i, 0.0, 0.0) for i in range(len(self.terms))]
 
     # -- what the budget covers -------------------------------------------------------------
 
@@ -137,14 +135,15 @@ class LocalBudget:
         a = area_dbu2 * self.scale_area
         p = perimeter_dbu * self.scale_length
         values = [self._term(i, a, p) for i in range(len(self.terms))]
-        moved = [v != w for v, w in zip(values, self._now)]
+        moved = {step for term, spent, floor, held, step in self.watches
+                 if (floor if term < 0 else max(floor, spent + values[term])) != held}
         change, worst = self.fixed, self.rest
-        for term, spent, floor, limit, always, fed in self.ratios:
+        for term, spent, floor, limit, always, step in self.ratios:
             ratio = floor if term < 0 else max(floor, spent + values[term])
             u = _utilization(ratio, limit)
             if u > worst:
                 worst = u
-            if u > change and (always or any(moved[t] for t in fed)):
+            if u > change and (always or step in moved):
                 change = u
         return LocalScore(change, worst, is_legal(worst), not is_legal(change),
                           self.cost(change), self.common_added + a)

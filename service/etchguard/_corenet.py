@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _core
-from ._budget import Budget, BudgetRatio, BudgetTerm
+from ._budget import Budget, BudgetRatio, BudgetTerm, BudgetWatch
 from ._columns import BatchScores, CheckedCommon
 from ._costs import CostModel
 from ._geometry import Rect
@@ -199,7 +199,7 @@ class CoreNet:
         """The budget of the component at (x, y) on ``layer``, ``common`` taken as
         committed (see _budget)."""
         raw = self.net.budget(layer, x, y, [(s.layer,) + s.rect for s in common], window)
-        found, terms, ratios, rest, fixed, common_added, own, own_pins, foreign = raw
+        found, terms, ratios, watches, rest, fixed, common_added, own, own_pins, foreign = raw
         layers, oxides = self.deck.layers, self.compiled.oxides
         return Budget(
             found, layers[layer].name, layer,
@@ -208,6 +208,8 @@ class CoreNet:
             tuple(BudgetRatio(layers[s].name, s, MEASURES[m], KINDS[k], oxides[o], self.pins[g].name if g >= 0 else "",
                               limit, term if term >= 0 else None, spent, floor, always)
                   for s, m, k, o, limit, term, spent, floor, always, g in ratios),
+            tuple(BudgetWatch(s, term if term >= 0 else None, spent, floor, held)
+                  for s, term, spent, floor, held in watches),
             rest, fixed, common_added, tuple(own), tuple(own_pins), tuple(foreign), window, costs)
 
     # -- what repair advice asks (see _advice) ----------------------------------------

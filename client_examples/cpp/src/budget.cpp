@@ -106,16 +106,14 @@ LocalBudget::LocalBudget(const pb::BudgetReply& reply) {
   scale_length_ = 1.0 / dbu;
   for (const pb::BudgetTerm& t : reply.terms()) {
     terms_.push_back({t.conductor_um2(), t.per_area(), t.per_perimeter_um(), t.factor(), t.credit_um2(), t.gate_um2()});
-    now_.push_back(terms_.back().Value(0.0, 0.0));
   }
   for (const pb::BudgetRatio& r : reply.ratios()) {
-    Ratio ratio{r.has_term() ? static_cast<int>(r.term()) : -1, r.spent(), r.floor(), r.limit(), r.always(), {}};
-    for (int t = 0; t < reply.terms_size(); ++t) {
-      const auto& feeds = reply.terms(t).feeds();
-      if (std::find(feeds.begin(), feeds.end(), r.step()) != feeds.end()) ratio.fed_by.push_back(t);
-    }
-    ratios_.push_back(std::move(ratio));
+    ratios_.push_back({r.has_term() ? static_cast<int>(r.term()) : -1, r.spent(), r.floor(), r.limit(), r.always(),
+                       static_cast<int>(r.step())});
   }
+  for (const pb::BudgetWatch& w : reply.watches())
+    watches_.push_back({w.has_term() ? static_cast<int>(w.term()) : -1, w.spent(), w.floor(), w.held(),
+                        static_cast<int>(w.step())});
   rest_ = reply.rest_worst_utilization();
   fixed_ = reply.fixed_change_utilization();
   common_added_ = reply.common_added_area_um2();
@@ -177,14 +175,17 @@ LocalScore LocalBudget::EvaluateAdded(double area_dbu2, double perimeter_dbu) co
   const double a = area_dbu2 * scale_area_, p = perimeter_dbu * scale_length_;
   std::vector<double> values(terms_.size());
   for (std::size_t t = 0; t < terms_.size(); ++t) values[t] = terms_[t].Value(a, p);
+  auto value = [&](int term, double spent, double floor) {
+    return term < 0 ? floor : std::max(floor, spent + values[std::size_t(term)]);
+  };
+  std::vector<int> moved;  // steps whose ratios count
+  for (const Watch& w : watches_)
+    if (value(w.term, w.spent, w.floor) != w.held) moved.push_back(w.step);
   double change = fixed_, worst = rest_;
   for (const Ratio& r : ratios_) {
-    const double ratio = r.term < 0 ? r.floor : std::max(r.floor, r.spent + values[std::size_t(r.term)]);
-    const double u = Utilization(ratio, r.limit);
+    const double u = Utilization(value(r.term, r.spent, r.floor), r.limit);
     worst = std::max(worst, u);
-    bool counts = r.always;
-    for (int t : r.fed_by) counts = counts || values[std::size_t(t)] != now_[std::size_t(t)];
-    if (counts) change = std::max(change, u);
+    if (r.always || std::find(moved.begin(), moved.end(), r.step) != moved.end()) change = std::max(change, u);
   }
   return LocalScore{change, worst, worst <= 1.0 + kTolerance, !(change <= 1.0 + kTolerance), Cost(change),
                     common_added_ + a};

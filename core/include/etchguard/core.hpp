@@ -197,10 +197,10 @@ struct Headroom {
 //   A' = conductor + per_area * a + per_perimeter * p        per term
 //   term = max(0, factor * A' - credit) / gate                  (affine in a and p above 0)
 //   ratio = max(floor, spent + term)   (a ratio without a term is its floor)
-// A ratio counts as a change when `always`, or when a term that feeds its step (a
-// step in the term's `feeds`) differs from its value at a = p = 0; worst utilization
-// among changes = max(fixed_change, counted ones), of the whole net = max(rest_worst,
-// all of them).
+// A ratio counts as a change when `always`, or when a watch at its step has a value
+// other than its `held` one (the component's best CAR of one (measure, oxide) moved:
+// the what-if's test, Net::score); worst utilization among changes =
+// max(fixed_change, counted ones), of the whole net = max(rest_worst, all of them).
 struct BudgetTerm {
   Measure measure;
   int oxide;
@@ -224,11 +224,20 @@ struct BudgetRatio {
   int gate;      // pin index of the gate with this ratio now
 };
 
+// The component's best CAR at a step for one (measure, oxide), as a ratio's value
+// (max(floor, spent + term)), and that best in the held net (without common).
+struct BudgetWatch {
+  int step;
+  int term;  // -1: the addition does not reach it
+  double spent, floor, held;
+};
+
 struct Budget {
   bool found = false;  // false: nothing of the net (or common) lies on the layer at the point
   int layer = -1;
   std::vector<BudgetTerm> terms;
   std::vector<BudgetRatio> ratios;
+  std::vector<BudgetWatch> watches;  // steps above the layer whose ratios are not `always`
   double rest_worst = 0.0;        // worst utilization of every other ratio of the net
   double fixed_change = 0.0;      // worst utilization among the changes common makes elsewhere
   double common_added_um2 = 0.0;  // union area common adds, over its layers

@@ -357,6 +357,8 @@ def budget_into(out, budget, deck) -> None:
         out.ratios.add(layer=r.layer, step=r.step, measure=_MEASURE[r.measure], kind=_KIND[r.kind],
                        oxide=r.oxide, gate=r.gate, limit=r.limit, term=r.term, spent=r.spent,
                        floor=r.floor, always=r.always)
+    for w in budget.watches:
+        out.watches.add(step=w.step, term=w.term, spent=w.spent, floor=w.floor, held=w.held)
     out.rest_worst_utilization = budget.rest_worst_utilization
     out.fixed_change_utilization = budget.fixed_change_utilization
     out.common_added_area_um2 = budget.common_added_area_um2

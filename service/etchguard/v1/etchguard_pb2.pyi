@@ -514,6 +514,20 @@ class BudgetRatio(_message.Message):
     always: bool
     def __init__(self, layer: _Optional[str] = ..., step: _Optional[int] = ..., measure: _Optional[_Union[Measure, str]] = ..., kind: _Optional[_Union[RatioKind, str]] = ..., oxide: _Optional[str] = ..., gate: _Optional[str] = ..., limit: _Optional[float] = ..., term: _Optional[int] = ..., spent: _Optional[float] = ..., floor: _Optional[float] = ..., always: _Optional[bool] = ...) -> None: ...
 
+class BudgetWatch(_message.Message):
+    __slots__ = ("step", "term", "spent", "floor", "held")
+    STEP_FIELD_NUMBER: _ClassVar[int]
+    TERM_FIELD_NUMBER: _ClassVar[int]
+    SPENT_FIELD_NUMBER: _ClassVar[int]
+    FLOOR_FIELD_NUMBER: _ClassVar[int]
+    HELD_FIELD_NUMBER: _ClassVar[int]
+    step: int
+    term: int
+    spent: float
+    floor: float
+    held: float
+    def __init__(self, step: _Optional[int] = ..., term: _Optional[int] = ..., spent: _Optional[float] = ..., floor: _Optional[float] = ..., held: _Optional[float] = ...) -> None: ...
+
 class CostCurve(_message.Message):
     __slots__ = ("knee", "exponent", "scale", "violation", "over_slope")
     KNEE_FIELD_NUMBER: _ClassVar[int]
@@ -529,7 +543,7 @@ class CostCurve(_message.Message):
     def __init__(self, knee: _Optional[float] = ..., exponent: _Optional[float] = ..., scale: _Optional[float] = ..., violation: _Optional[float] = ..., over_slope: _Optional[float] = ...) -> None: ...
 
 class BudgetReply(_message.Message):
-    __slots__ = ("found", "layer", "step", "terms", "ratios", "rest_worst_utilization", "fixed_change_utilization", "common_added_area_um2", "own", "own_pins", "foreign", "window", "cost", "dbu_per_micron")
+    __slots__ = ("found", "layer", "step", "terms", "ratios", "rest_worst_utilization", "fixed_change_utilization", "common_added_area_um2", "own", "own_pins", "foreign", "window", "cost", "dbu_per_micron", "watches")
     FOUND_FIELD_NUMBER: _ClassVar[int]
     LAYER_FIELD_NUMBER: _ClassVar[int]
     STEP_FIELD_NUMBER: _ClassVar[int]
@@ -544,6 +558,7 @@ class BudgetReply(_message.Message):
     WINDOW_FIELD_NUMBER: _ClassVar[int]
     COST_FIELD_NUMBER: _ClassVar[int]
     DBU_PER_MICRON_FIELD_NUMBER: _ClassVar[int]
+    WATCHES_FIELD_NUMBER: _ClassVar[int]
     found: bool
     layer: str
     step: int
@@ -558,7 +573,8 @@ class BudgetReply(_message.Message):
     window: Rect
     cost: CostCurve
     dbu_per_micron: int
-    def __init__(self, found: _Optional[bool] = ..., layer: _Optional[str] = ..., step: _Optional[int] = ..., terms: _Optional[_Iterable[_Union[BudgetTerm, _Mapping]]] = ..., ratios: _Optional[_Iterable[_Union[BudgetRatio, _Mapping]]] = ..., rest_worst_utilization: _Optional[float] = ..., fixed_change_utilization: _Optional[float] = ..., common_added_area_um2: _Optional[float] = ..., own: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., own_pins: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., foreign: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ..., cost: _Optional[_Union[CostCurve, _Mapping]] = ..., dbu_per_micron: _Optional[int] = ...) -> None: ...
+    watches: _containers.RepeatedCompositeFieldContainer[BudgetWatch]
+    def __init__(self, found: _Optional[bool] = ..., layer: _Optional[str] = ..., step: _Optional[int] = ..., terms: _Optional[_Iterable[_Union[BudgetTerm, _Mapping]]] = ..., ratios: _Optional[_Iterable[_Union[BudgetRatio, _Mapping]]] = ..., rest_worst_utilization: _Optional[float] = ..., fixed_change_utilization: _Optional[float] = ..., common_added_area_um2: _Optional[float] = ..., own: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., own_pins: _Optional[_Iterable[_Union[Rect, _Mapping]]] = ..., foreign: _Optional[_Iterable[_Union[PlacedShape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ..., cost: _Optional[_Union[CostCurve, _Mapping]] = ..., dbu_per_micron: _Optional[int] = ..., watches: _Optional[_Iterable[_Union[BudgetWatch, _Mapping]]] = ...) -> None: ...
 
 class BudgetsRequest(_message.Message):
     __slots__ = ("requests",)

@@ -61,13 +61,19 @@ class LocalBudget {
     int term;  // -1: constant
     double spent, floor, limit;
     bool always;
-    std::vector<int> fed_by;  // terms feeding its step
+    int step;
+  };
+  // A step's ratios count when one of its watches moves off its held value.
+  struct Watch {
+    int term;  // -1: constant
+    double spent, floor, held;
+    int step;
   };
   std::string layer_;
   double scale_area_, scale_length_;
   std::vector<Term> terms_;
-  std::vector<double> now_;
   std::vector<Ratio> ratios_;
+  std::vector<Watch> watches_;
   double rest_, fixed_, common_added_;
   std::vector<Box> own_, connects_, same_layer_, other_layer_;
   Box window_;
