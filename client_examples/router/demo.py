@@ -11,6 +11,7 @@ table's figures come from these runs.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from contextlib import contextmanager
 from pathlib import Path
