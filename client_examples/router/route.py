@@ -375,7 +375,7 @@ class Router:
         self.log(f"{route.data.name}: plain path breaks a limit, priced search: {spent} expansions")
         if found.found:
             self.commit_aware(route, list(found.items))
-        else:  # out of its budget: the plain path goes through the advice repair
+        else:  # no legal path within the detour, or out of budget: the plain path is repaired
             self.commit_aware(route, items, verdict)
 
     def score_path(self, route: NetRoute, items: Sequence[Item]) -> pb.ScoreReply | None:
@@ -398,7 +398,7 @@ class Router:
             self.stats.expanded += found.expanded
             return found
         budget = expansion_budget(g, sources, route.tree, c.scored_margin_um, c.scored_per_node,
-                                  c.scored_floor, c.repriced_ceiling if plain else c.max_expansions)
+                                  c.scored_floor, c.max_expansions if plain is None else c.repriced_ceiling)
         within = None
         if plain is not None:
             budget = min(budget, max(c.repriced_floor, int(c.repriced_effort * plain.expanded)))
@@ -413,7 +413,7 @@ class Router:
         paid = ("no path to the tree reached" if found.best_join_antenna is None else
                 f"the cheapest path reached pays {found.best_join_antenna:.0f} um of antenna cost")
         self.log(f"{name}: scored search out of budget ({found.expanded} of {budget} expansions, "
-                 f"{paid}); {'its plain path is kept' if plain else 'searched again without scores'}")
+                 f"{paid}); {'its plain path is kept' if plain is not None else 'searched again without scores'}")
         if plain is not None:
             return found
         return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
