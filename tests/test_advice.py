@@ -260,6 +260,30 @@ def test_no_diode_suffices_when_the_table_flattens_below_the_ratio():
                                net_json(deck, engine, "n", [Shape(0, adv.rect)], [huge]))
 
 
+def test_no_diode_for_a_side_rule_on_the_gates_own_component():
+    # A side (perimeter) rule on M1 without a diode table: its limit is the plain
+    # maximum whatever diffusion the component has (the contract). A 30 um M1 stub on
+    # the gate, already committed, breaks it: side conductor 2 * (30.1 + 0.1) um * 0.1
+    # um = 6.04 um^2 on 0.01 um^2 of gate, 604 of 500 (its area ratio, 301 of 400,
+    # holds). The run asked about climbs from the stub's end on M2; no diode at g can
+    # help, and the reason must say it is g's own check, not one g never joins.
+    text = deck_text() + '\n[[rules]]\nlayer = "M1"\nmeasure = "side"\npartial_max = 500.0\n'
+    deck = loads_deck(text, "advice-side")
+    L = deck.layer_index
+    pins, shapes = far_side_net(deck)
+    shapes += [Shape(L["M1"], (0, 0, 30100, 100))] + via_stack(deck, 30050, 50, L["M1"], L["M2"])
+    engine = Engine(deck)
+    engine.open_net("n", pins, None, shapes)
+    adv = engine.advise("n", L["M2"], 30050, 50, 30050, 20050)
+    assert adv.diode is not None and not adv.diode.found
+    assert "never joins" not in adv.diode.reason
+    assert "at step M1" in adv.diode.reason and "partial side" in adv.diode.reason
+    assert "pin's own component" in adv.diode.reason and "do not depend on diffusion" in adv.diode.reason
+    # the reference agrees that no diode helps: 1e6 um^2 at g leaves the net illegal
+    huge = make_pin(deck, "diode", "M1", [[0, 0, 100, 100]], None, 1.0e6)
+    assert not reference_legal(text, net_json(deck, engine, "n", [Shape(L["M2"], adv.rect)], [huge]))
+
+
 def test_blocked_track_is_reported_and_the_next_layer_taken(deck):
     engine = Engine(deck)
     open_far_side(engine, deck)

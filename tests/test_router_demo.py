@@ -198,3 +198,46 @@ def test_scored_search_out_of_budget_falls_back(runs):
     assert tight.scored > 0
     assert tight.violations == sum(1 for n, r in reports.items()
                                    if n.startswith("aware:") and not r.legal)
+
+
+class _EveryPathBreaksALimit:
+    """A pricer whose every candidate is over a limit (the service's cost >= 1e6)."""
+
+    def gate_side(self, asks):
+        return [(1.0e6, 2.0) for _ in asks]
+
+    def joins(self, asks):
+        return [1.0e6 for _ in asks]
+
+    def prefetch(self, before, k, run):
+        pass
+
+    def flush(self):
+        pass
+
+
+def test_priced_search_within_a_detour_drops_paths_over_a_limit(runs):
+    """maze.search on an empty grid of the small block, M2 (vertical) from (5, 5) to
+    (5, 60): the plain path is found; a detour bound (``within``) below the plain
+    path's cost finds none (every node within it expanded, not out of budget), one
+    above it finds one; a path that pays the antenna cap (every candidate
+    over a limit) is taken without a bound and dropped with one, so the caller keeps
+    its plain path for the repair."""
+    from grid import Occupancy
+    from maze import search
+
+    router = runs[True][0]
+    grid = router.grid
+    occ = Occupancy(grid)
+    source, target = {grid.node(1, 5, 5)}, {grid.node(1, 5, 60)}
+    plain = search(grid, occ, "t", source, target, Costs())
+    assert plain.found and plain.cost > 0
+    below = search(grid, occ, "t", source, target, Costs(), within=plain.cost - 1.0)
+    assert not below.found and not below.out_of_budget
+    assert search(grid, occ, "t", source, target, Costs(), within=plain.cost + 1.0).found
+    costs = Costs(min_scored_um=0.0, antenna_cap=10.0)  # a small cap: the search floods less
+    capped = search(grid, occ, "t", source, target, costs, _EveryPathBreaksALimit())
+    assert capped.found and capped.cost > costs.antenna_cap  # it pays the cap
+    dropped = search(grid, occ, "t", source, target, costs, _EveryPathBreaksALimit(),
+                     within=plain.cost + 100.0)
+    assert not dropped.found and not dropped.out_of_budget

@@ -11,6 +11,7 @@ table's figures come from these runs.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from contextlib import contextmanager
 from pathlib import Path
@@ -84,6 +85,11 @@ def details(s: Stats) -> str:
     if s.sinks_screened:
         out += (f"; sink paths searched unpriced and scored whole {s.sinks_screened}, of them searched "
                 f"again with prices {s.sinks_repriced}")
+    if s.repriced:
+        outcomes = [r[-1] for r in s.repriced]
+        out += (f" (found a legal path {outcomes.count('found')}, none within the detour "
+                f"{outcomes.count('none')}, out of budget {outcomes.count('out of budget')}; "
+                f"{sum(r[3] for r in s.repriced)} expansions)")
     if s.plain_searches:
         out += f"; scored searches out of budget {s.plain_searches}"
     return out

@@ -132,6 +132,9 @@ class Stats:
     # those, the sinks searched again with prices (their plain path broke a limit)
     sinks_screened: int = 0
     sinks_repriced: int = 0
+    # per sink searched again with prices: (net, plain search's expansions and path
+    # cost, priced search's expansions and path cost, its outcome)
+    repriced: list[tuple[str, int, float, int, float, str]] = field(default_factory=list)
     added_vias: int = 0  # cut shapes the repairs added (hops and jumpers)
     expanded: int = 0  # search nodes expanded
     seconds: float = 0.0
@@ -343,7 +346,7 @@ class Router:
             elif not (priced and self.screen):
                 self.commit_aware(route, items)
             else:
-                self._commit_screened(route, sources, items, soft)
+                self._commit_screened(route, sources, items, soft, found)
             route.tree.update(sources)
         route.routed = True
         return True
@@ -351,7 +354,8 @@ class Router:
     def _pricer(self, route: NetRoute, priced: bool) -> ServicePricer | None:
         return self.pricer_for(route.data.name) if priced else None
 
-    def _commit_screened(self, route: NetRoute, sources: set[Node], items: list[Item], soft: bool) -> None:
+    def _commit_screened(self, route: NetRoute, sources: set[Node], items: list[Item], soft: bool,
+                         plain: SearchResult) -> None:
         """The screened aware mode: the sink's path was searched without prices, as the
         blind router does; it is scored whole (the score every aware commit takes) and
         committed when legal. Only a path that would break a limit has its sink searched
@@ -363,12 +367,15 @@ class Router:
             return
         self.stats.sinks_repriced += 1
         expanded = self.stats.expanded
-        found = self._search(route, sources, self._pricer(route, True), soft, plain_path=True)
-        self.log(f"{route.data.name}: plain path breaks a limit, priced search: "
-                 f"{self.stats.expanded - expanded} expansions")
+        found = self._search(route, sources, self._pricer(route, True), soft, plain)
+        spent = self.stats.expanded - expanded
+        outcome = "found" if found.found else ("out of budget" if found.out_of_budget else "none")
+        self.stats.repriced.append((route.data.name, plain.expanded, round(plain.cost, 1), spent,
+                                    round(found.cost, 1), outcome))
+        self.log(f"{route.data.name}: plain path breaks a limit, priced search: {spent} expansions")
         if found.found:
             self.commit_aware(route, list(found.items))
-        else:  # out of its budget: the plain path goes through the advice repair
+        else:  # no legal path within the detour, or out of budget: the plain path is repaired
             self.commit_aware(route, items, verdict)
 
     def score_path(self, route: NetRoute, items: Sequence[Item]) -> pb.ScoreReply | None:
@@ -379,19 +386,24 @@ class Router:
         return self.session.score(self.service_name(route.data.name), [rect(n, *r) for n, r in rects])
 
     def _search(self, route: NetRoute, sources: set[Node], pricer: ServicePricer | None,
-                soft: bool, plain_path: bool = False) -> SearchResult:
+                soft: bool, plain: SearchResult | None = None) -> SearchResult:
         """One sink's search. Scored, within a budget that follows the net's span; if
         that runs out, the same search without scores (the advice repairs the path),
-        unless the caller holds that path already (``plain_path``: the search's result
-        then says it ran out)."""
+        unless the caller holds that path already (``plain``, the sink's search without
+        prices: the priced search then looks for a legal path within a detour of it and
+        an effort that follows its own, and says when it ran out)."""
         g, c, name = self.grid, self.costs, route.data.name
         if pricer is None:
             found = search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
             self.stats.expanded += found.expanded
             return found
         budget = expansion_budget(g, sources, route.tree, c.scored_margin_um, c.scored_per_node,
-                                  c.scored_floor, c.repriced_ceiling if plain_path else c.max_expansions)
-        found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget)
+                                  c.scored_floor, c.max_expansions if plain is None else c.repriced_ceiling)
+        within = None
+        if plain is not None:
+            budget = min(budget, max(c.repriced_floor, int(c.repriced_effort * plain.expanded)))
+            within = plain.cost + max(c.detour_um, c.detour_share * plain.cost)
+        found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget, within)
         pricer.drain()
         self.stats.scored += found.scored
         self.stats.expanded += found.expanded
@@ -401,8 +413,8 @@ class Router:
         paid = ("no path to the tree reached" if found.best_join_antenna is None else
                 f"the cheapest path reached pays {found.best_join_antenna:.0f} um of antenna cost")
         self.log(f"{name}: scored search out of budget ({found.expanded} of {budget} expansions, "
-                 f"{paid}); {'its plain path is kept' if plain_path else 'searched again without scores'}")
-        if plain_path:
+                 f"{paid}); {'its plain path is kept' if plain is not None else 'searched again without scores'}")
+        if plain is not None:
             return found
         return search(g, self.occ, name, sources, route.tree, c, None, soft, c.max_expansions)
 

@@ -82,11 +82,12 @@ Search methods, and what they rest on:
   decides whether any D there is legal, then a doubling search and the same root
   finder find the least. D = 0+ (``TINY_DIODE_UM2``) is a point of its own: with
   D > 0 the tables replace the plain maxima and ``factor_with_diode_only`` switches
-  the area factor on. No diode suffices when a
-  failing check lies in a component g never joins (every changed ratio holds, the net
-  does not), or when, at the largest D considered, a changed ratio still exceeds its
-  limit (a table that flattens below a ratio the diode cannot lower when k_gate =
-  k_credit = 0); the reason names the check.
+  the area factor on. No diode suffices when a failing check is one no trial changes
+  (every changed ratio holds, the net does not: the check lies in a component g never
+  joins, or in g's own under a rule whose ratio and limit do not depend on diffusion),
+  or when, at the largest D considered, a changed ratio still exceeds its limit (a
+  table that flattens below a ratio the diode cannot lower when k_gate = k_credit =
+  0); the reason names the check.
 
 Answers asked for (``want``, a subset of ``ANSWERS``): without "hop" the layer options
 are not reported; when the jumper needs its hop layer they are scored nearest first
@@ -964,10 +965,17 @@ class _DiodeSearch:
 
     def _elsewhere(self, result: Score) -> str:
         # a check no trial diode changes has the figures it has as held: find it there
-        where = next((f" at step {self.advisor.deck.layers[o.step].name}"
-                      for o in self.advisor.view.offences() if o.utilization == result.worst_utilization), "")
-        return (f"a check{where} ({_pct(result.worst_utilization)}) lies in a component "
-                f"the pin never joins")
+        offence = next((o for o in self.advisor.view.offences() if o.utilization == result.worst_utilization),
+                       None)
+        if offence is None:
+            return f"a check ({_pct(result.worst_utilization)}) lies in a component the pin never joins"
+        where = f"a check at step {self.advisor.deck.layers[offence.step].name} ({_pct(offence.utilization)}"
+        if self.pin not in offence.pins:
+            return f"{where}) lies in a component the pin never joins"
+        # the pin's own component, yet no trial changed that check: neither its ratio
+        # nor its limit depends on the diffusion the component has
+        return (f"{where}, {offence.kind} {offence.measure}, {offence.oxide} oxide) fails on the pin's own "
+                f"component, and that rule's ratio and limit do not depend on diffusion")
 
 
 def _bisect_left_edge(h: Callable[[float], float], lo: float, hi: float) -> float:
