@@ -170,8 +170,10 @@ def test_local_budget_equals_score_on_random_nets(case) -> None:
                 + [(s.layer, s.rect, -1) for s in spec.shapes] + [(s.layer, s.rect, -1) for s in common])
     hit = rng.randrange(len(elements))
     layer, anchor, _ = elements[hit]
-    x, y = anchor[0], anchor[1]  # the anchor's corner: a point on it (rectangles are closed)
-    # the element the engine finds there may be another one at that point: same component
+    # a point inside the anchor: any element of its layer holding it overlaps the anchor
+    # with positive area, so it is of the same component (a corner point may be shared by
+    # two components that touch only there, and the engine would pick either)
+    x, y = (anchor[0] + anchor[2]) // 2, (anchor[1] + anchor[3]) // 2
     budget = local_budget(engine, "n1", layer, x, y, common)
     before = engine.check("n1")
     for ext in _extensions(rng, layer, anchor, len(deck.layers)):
