@@ -47,7 +47,7 @@ from etchguard.client import Client, candidate_columns, pb
 
 from .native import cmake, cmake_build
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
-from .rounds import echo_ready, free_port, round_arguments, start_ours, start_process, stop_process
+from .rounds import echo_ready, round_arguments, start_ours, start_process, stop_process
 
 REPO = Path(__file__).resolve().parents[1]
 SOURCE = REPO / "bench" / "cpp"
@@ -230,7 +230,7 @@ def main(argv: list[str] | None = None) -> int:
                            for i, b in enumerate(batch_requests)])
         try:
             ours, ready = start_ours(["--rules", str(BENCH_DECK), "--listen", "127.0.0.1:0",
-                                      "--metrics-port", str(free_port())])
+                                      "--metrics-port", "0"])
             ours_address = ready["addresses"][0]
             with Client(ours_address, timeout=60) as setup:
                 setup.open_net(NET, _pb_pins(names, net.pins), _pb_shapes(names, net.shapes))

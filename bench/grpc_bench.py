@@ -52,7 +52,7 @@ from etchguard.server.metrics import Metrics
 from etchguard.server.servicer import AntennaServicer
 
 from .netgen import BENCH_DECK, bench_deck, extension_candidates, generate_net, via_run_candidates
-from .rounds import echo_ready, free_port, round_arguments, start_ours, start_process, stop_process
+from .rounds import echo_ready, round_arguments, start_ours, start_process, stop_process
 
 OUT_DIR = Path(__file__).resolve().parent / "out"
 REPO = Path(__file__).resolve().parents[1]
@@ -251,7 +251,7 @@ def main(argv: list[str] | None = None) -> int:
     ]
 
     ours, ready = start_ours(["--rules", str(BENCH_DECK), "--listen", "127.0.0.1:0",
-                              "--metrics-port", str(free_port())])
+                              "--metrics-port", "0"])
     ours_addr = ready["addresses"][0]
     echo = None
     try:

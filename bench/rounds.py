@@ -6,7 +6,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import socket
 import subprocess
 import threading
 from collections.abc import Callable
@@ -30,12 +29,6 @@ def round_arguments(prog: str, doc: str | None, rounds: int, json_path: Path,
     if args.quick:
         args.rounds, args.calls, args.batches = 1, 30, 1
     return args
-
-
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 def start_process(cmd: list[str], ready: Callable[[str], str | None], on_stderr: bool,

@@ -25,7 +25,7 @@ from pathlib import Path
 from etchguard.client import Client, pb, pin, rect, run
 from etchguard.server.launch import Launched, launch
 from etchguard.sharded_client import ShardedClient
-from grpc_fixtures import DEMO_DECK, REPO, free_port
+from grpc_fixtures import DEMO_DECK, REPO
 
 START_TIMEOUT_S = 40.0
 
@@ -83,7 +83,7 @@ class FarmProcess(Launched):
 def start_farm(shards: int, *extra: str, metrics: bool = True, rules: Path | None = DEMO_DECK,
                listen: str = "127.0.0.1:0") -> FarmProcess:
     args = ["--shards", str(shards), "--listen", listen,
-            "--metrics-port", str(free_port() if metrics else 0), "--grace", "5", *extra]
+            *(["--metrics-port", "0"] if metrics else []), "--grace", "5", *extra]
     if "--topology-out" not in extra and "--state-dir" not in extra:  # not into the work tree
         args += ["--topology-out", str(Path(tempfile.mkdtemp(prefix="etchguard-farm-")) / "topology")]
     if rules is not None:

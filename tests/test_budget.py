@@ -28,7 +28,7 @@ import etchguard as eg
 from etchguard.client import LocalBudget, pb
 from etchguard.server import convert
 
-from test_reference_agreement import GRID, SPAN, decks, engine_with, layer_names, pins_for, shapes_on
+from test_reference_agreement import GRID, SPAN, decks, engine_with, pins_for, shapes_on
 
 REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:

@@ -6,11 +6,11 @@ from __future__ import annotations
 import signal
 import threading
 import time
+import urllib.request
 
 import grpc
 import numpy as np
 import pytest
-
 from etchguard.client import Client, ServiceError, runs_to_rects
 from grpc_fixtures import candidate, open_small_net, start_server
 
@@ -91,6 +91,23 @@ def test_listening_log_line_is_structured():
         assert line["limits"]["max_nets"] == 7 and line["metrics_port"] == srv.metrics_port > 0
     finally:
         srv.stop()
+
+
+def test_metrics_port_zero_takes_a_free_port_and_no_option_means_off():
+    """``--metrics-port 0`` binds a port the kernel picks, as ``--listen``'s port 0 does,
+    and the ready line names it (so a caller need not find a free port and race for it);
+    without the option there is no endpoint."""
+    with_metrics, without = start_server(), start_server(metrics=False)
+    try:
+        port = with_metrics.metrics_port
+        assert port > 0
+        text = urllib.request.urlopen(f"http://127.0.0.1:{port}/metrics", timeout=10).read().decode()
+        assert "etchguard_calls_total" in text or "etchguard_nets_held" in text
+        line = next(e for e in without.logs if e.get("msg") == "listening")
+        assert line["metrics_port"] == 0 and without.metrics_port == 0
+    finally:
+        with_metrics.stop()
+        without.stop()
 
 
 def test_address_file_names_the_bound_port(tmp_path):

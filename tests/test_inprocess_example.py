@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import math
 import subprocess
-from pathlib import Path
 
 import pytest
 

@@ -25,7 +25,7 @@ import pytest
 import etchguard._journal as journal_module
 from etchguard import Engine, load_deck, loads_deck
 from etchguard._changelog import ChangeLogError
-from etchguard._journal import Journal, segments
+from etchguard._journal import Journal
 from etchguard.client import ServiceError, rect
 from etchguard.server import convert
 from grpc_fixtures import DEMO_DECK, DRIVER, GATE, REPO, start_server

@@ -20,7 +20,7 @@ import tomllib
 import pytest
 from shapely.geometry import box
 
-from etchguard import Engine, InputError, Pin, Shape, loads_deck, make_pin, run_rect
+from etchguard import InputError, Pin, Shape, run_rect
 from etchguard._coreview import spec_views
 from test_advice import net_json
 from test_advice_closed_form import far_side_case

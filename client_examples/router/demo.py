@@ -30,7 +30,7 @@ from route import Router, Stats, load_block  # noqa: E402
 @contextmanager
 def serve(deck: Path):
     """A real ``etchguard serve`` on 127.0.0.1 with a port the kernel picks."""
-    server = launch(["--rules", str(deck), "--listen", "127.0.0.1:0", "--metrics-port", "0"], cwd=REPO)
+    server = launch(["--rules", str(deck), "--listen", "127.0.0.1:0"], cwd=REPO)
     try:
         yield server.address
     finally:

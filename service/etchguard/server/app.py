@@ -64,7 +64,9 @@ class ServerConfig:
     listen: list[str] = field(default_factory=lambda: ["127.0.0.1:50051"])  # host:port | unix:/path
     address_file: Path | None = None  # written with the bound addresses once listening
     rules: Path | None = None  # rule deck loaded at start; None: wait for LoadDeck
-    metrics_port: int = 0  # Prometheus endpoint port; 0 = off
+    # Prometheus endpoint port; None = off, 0 = a free one (the ready line says which), as
+    # --listen's port 0: a caller that needs a free port need not pick one and race for it
+    metrics_port: int | None = None
     metrics_address: str = "127.0.0.1"  # another than loopback needs metrics_beyond_loopback
     metrics_beyond_loopback: bool = False
     # per message, both ways. Parsing alone costs ~6x the bytes (upb, measured: 33 MiB of
@@ -313,7 +315,7 @@ class EtchguardServer:
         self.grpc_server.start()
         if self.shard is not None:  # listening first: peers may push while this shard fetches
             self.shard.start()
-        if self.config.metrics_port:
+        if self.config.metrics_port is not None:
             self.metrics_port = self.metrics.serve(self.config.metrics_address, self.config.metrics_port)
         try:
             deck = self.engine.deck.name
@@ -459,7 +461,7 @@ def build_server(config: ServerConfig) -> EtchguardServer:
         for open_journal in ([journal] if journal is not None else []) + maker.journals:
             open_journal.close(snapshot=False)
         raise
-    metrics = Metrics(jobs.stats, AntennaServicer.METHODS) if config.metrics_port else NullMetrics()
+    metrics = Metrics(jobs.stats, AntennaServicer.METHODS) if config.metrics_port is not None else NullMetrics()
     server = grpc_server(config, gate)
     pb_grpc.add_AntennaServiceServicer_to_server(AntennaServicer(jobs, metrics), server)
     shard = None

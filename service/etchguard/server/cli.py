@@ -38,7 +38,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="once listening, write the addresses as bound (port 0 resolved), one "
                              "a line, to FILE (replaced whole: a reader never sees half)")
     parser.add_argument("--metrics-port", type=int, default=_DEFAULTS.metrics_port, metavar="N",
-                        help="port of the Prometheus metrics endpoint; 0 = off (default)")
+                        help="serve Prometheus metrics on this port (0 picks a free one, named in the "
+                             "ready log line); off when not given")
     parser.add_argument("--metrics-address", default=_DEFAULTS.metrics_address, metavar="HOST",
                         help="address the metrics endpoint binds (default %(default)s); "
                              "another than loopback needs --metrics-beyond-loopback")

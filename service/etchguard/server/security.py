@@ -78,7 +78,7 @@ def check_metrics(config) -> None:
     """Refuse a metrics endpoint beyond loopback unless the operator asked for it."""
     from .app import ServeError
 
-    if not config.metrics_port or config.metrics_beyond_loopback:
+    if config.metrics_port is None or config.metrics_beyond_loopback:
         return
     if not is_local(f"{config.metrics_address}:{config.metrics_port}"):
         raise ServeError(f"metrics on {config.metrics_address} would be served beyond this machine "

@@ -62,7 +62,7 @@ class ShardPlan:
     index: int
     listen: str
     state_dir: Path | None
-    metrics_port: int  # the shard's private metrics port; 0 = off
+    metrics_port: int | None  # the shard's private metrics port; None = off
 
 
 @dataclass
@@ -105,7 +105,7 @@ def plan(config: ServerConfig, shards: int, topology_out: Path | None) -> Plan:
         raise ServeError(f"{config.listen[0]!r} gives two shards the same address", "listen")
     path = topology_out or (config.state_dir / "topology" if config.state_dir else Path("etchguard.topology"))
     return Plan([ShardPlan(k, addresses[k], config.state_dir / f"shard-{k}" if config.state_dir else None,
-                           _free_port() if config.metrics_port else 0) for k in range(shards)],
+                           _free_port() if config.metrics_port is not None else None) for k in range(shards)],
                 Topology(tuple(addresses)), path)
 
 
@@ -214,7 +214,7 @@ class Supervisor:
         yield from merged.values()
 
     def _serve_metrics(self) -> None:
-        if not self.config.metrics_port:
+        if self.config.metrics_port is None:
             return
         registry = CollectorRegistry()
         registry.register(self)
