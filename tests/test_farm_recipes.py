@@ -156,7 +156,8 @@ def test_batch_job_array_slots_write_the_topology_and_serve_as_one_farm(tmp_path
             if p.poll() is None:
                 p.send_signal(signal.SIGTERM)
         for p in procs:
-            p.wait(30)
+            _out, err = p.communicate(timeout=30)
+            print(f"slot stderr (exit {p.returncode}):\n{err}")  # shown when the test fails
     assert all(p.returncode == 0 for p in procs)
 
 
