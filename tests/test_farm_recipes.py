@@ -15,6 +15,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 import signal
@@ -123,12 +124,15 @@ def test_batch_job_array_slots_write_the_topology_and_serve_as_one_farm(tmp_path
     env = dict(os.environ, SHARD_COUNT="2", RUN_DIR=str(run_dir), SHARD_HOST="127.0.0.1",
                ETCHGUARD=str(Path(os.sys.executable).with_name("etchguard")), SHARD_WAIT_S="60")
     procs = []
+    logs = contextlib.ExitStack()  # the slots' log files, closed once they end
     try:
         for slot in (1, 0):  # any order: each waits for the other's address
             procs.append(subprocess.Popen(
                 ["bash", str(SLOT_SCRIPT), "--rules", str(DEMO_DECK), "--grace", "5"],
                 env=dict(env, SHARD_SLOT=str(slot), SHARD_PORT=str(ports[slot])),
-                stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True))
+                # a file, not a pipe nobody reads while the slot runs: a full pipe would block it
+                stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                stderr=logs.enter_context((tmp_path / f"slot-{slot}.log").open("w")), text=True))
             time.sleep(0.5)
         deadline = time.monotonic() + 60
         while not (run_dir / "topology").exists() and time.monotonic() < deadline:
@@ -156,8 +160,10 @@ def test_batch_job_array_slots_write_the_topology_and_serve_as_one_farm(tmp_path
             if p.poll() is None:
                 p.send_signal(signal.SIGTERM)
         for p in procs:
-            _out, err = p.communicate(timeout=30)
-            print(f"slot stderr (exit {p.returncode}):\n{err}")  # shown when the test fails
+            p.wait(30)
+        logs.close()
+        for log in sorted(tmp_path.glob("slot-*.log")):  # printed: pytest shows it on a failure
+            print(f"{log.name}:\n{log.read_text(errors='replace')}")
     assert all(p.returncode == 0 for p in procs)
 
 

@@ -45,7 +45,6 @@ class OptionStatus(StrEnum):
     """A layer option's verdict: the net's verdict words, or ``blocked`` when it is
     legal but another net or a blockage is in the way."""
 
-
     LEGAL = "legal"  # antenna-legal and nothing in the way
     ILLEGAL = "illegal"  # breaks a limit
     BLOCKED = "blocked"  # another net or a blockage is in the way
