@@ -391,6 +391,23 @@ def test_cli_json_is_a_flag_as_in_check_and_advise(tmp_path: Path, capsys: pytes
     assert "[--json]" in capsys.readouterr().out.replace("\n", " ")
 
 
+def test_cli_selects_nets_by_name_and_pattern(capsys: pytest.CaptureFixture[str]) -> None:
+    """``report --net/--match``, as ``check`` takes them: only those nets are reported,
+    with the figures of the whole file's report; a name the file lacks is refused."""
+    assert main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "--json", "--progress", "never"]) == 1
+    every = {n["net"]: n for n in json.loads(capsys.readouterr().out)["nets"]}
+    illegal = sorted(n for n, r in every.items() if not r["legal"])
+    pattern = "blk_a/n1*"
+    wanted = {illegal[0]} | {n for n in every if re.fullmatch(r"blk_a/n1.*", n)}
+    rc = main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "--json", "--progress", "never",
+               "--net", illegal[0], "--match", pattern])
+    got = {n["net"]: n for n in json.loads(capsys.readouterr().out)["nets"]}
+    assert rc == 1 and set(got) == wanted and 1 < len(got) < len(every)
+    assert all(got[n] == every[n] for n in got)
+    assert main(["report", "--rules", str(DECK_PATH), str(NETS_PATH), "--json", "--net", "blk_a/none"]) == 2
+    assert "the input has no net 'blk_a/none'" in capsys.readouterr().err
+
+
 def test_cli_legal_nets_exit_zero(tmp_path: Path, deck: eg.Deck) -> None:
     data = json.loads(NETS_PATH.read_text(encoding="utf-8"))
     engine = eg.Engine(deck)

@@ -88,6 +88,15 @@ def test_server_report_equals_offline_check(served: tuple[str, list[dict]], tmp_
         assert got[name]["offenders"] and got[name]["offenders"] == offline[name]["offenders"]
 
 
+def test_server_report_selects_nets(served: tuple[str, list[dict]], capsys: pytest.CaptureFixture[str]) -> None:
+    address, nets = served
+    name = nets[0]["name"]
+    main(["report", "--server", address, "--json", "--progress", "never", "--net", name])
+    assert [n["net"] for n in json.loads(capsys.readouterr().out)["nets"]] == [name]
+    assert main(["report", "--server", address, "--json", "--match", "no-such-*"]) == 2
+    assert "no net matches 'no-such-*'" in capsys.readouterr().err
+
+
 def test_server_unreachable_is_bad_input(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     port = free_port()  # nothing listens there
     rc = main(["report", "--server", f"127.0.0.1:{port}", "--timeout", "1", "--json"])

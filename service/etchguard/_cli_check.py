@@ -7,9 +7,10 @@ import argparse
 import fnmatch
 import json
 import sys
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
-from typing import Any, TextIO
+from operator import attrgetter
+from typing import Any, TextIO, TypeVar
 
 from ._engine import Engine
 from ._errors import InputError
@@ -21,6 +22,8 @@ from ._nets import NetSpec, iter_net_file
 from ._progress import progress
 from ._results import NetReport
 from ._rules import Deck, load_deck
+
+T = TypeVar("T")
 
 HELP = "check every net of a net file against a rule deck, or of a LEF/DEF design (offline)"
 
@@ -45,19 +48,22 @@ def add_selection_arguments(parser: argparse.ArgumentParser) -> None:
                              "('blk_a/*', 'n[0-9]?'; repeatable)")
 
 
-def selected(specs: Iterable[NetSpec], names: Sequence[str], patterns: Sequence[str]) -> Iterator[NetSpec]:
-    """The nets named in ``names`` or matching one of ``patterns`` (all when both are
-    empty). A name the input does not have, or a selection nothing matches, is refused
-    once the input is read (an unselected net is still validated)."""
+def selected(items: Iterable[T], names: Sequence[str], patterns: Sequence[str],
+             name_of: Callable[[T], str] = attrgetter("name")) -> Iterator[T]:
+    """The nets (``NetSpec``s, or anything ``name_of`` names) named in ``names`` or
+    matching one of ``patterns`` (all when both are empty). A name the input does not
+    have, or a selection nothing matches, is refused once the input is read (an
+    unselected net is still validated)."""
     if not names and not patterns:
-        yield from specs
+        yield from items
         return
     wanted, seen, matched = set(names), set(), 0
-    for spec in specs:
-        if spec.name in wanted or any(fnmatch.fnmatchcase(spec.name, p) for p in patterns):
-            seen.add(spec.name)
+    for item in items:
+        name = name_of(item)
+        if name in wanted or any(fnmatch.fnmatchcase(name, p) for p in patterns):
+            seen.add(name)
             matched += 1
-            yield spec
+            yield item
     missing = sorted(wanted - seen)
     if missing:
         raise InputError(f"the input has no net {shown(missing[0])}"

@@ -6,6 +6,7 @@ Two sources of nets, one builder (``etchguard._design_report``):
 * ``--server ADDRESS``: every net a running server holds, as its CheckAll reports
   them, with the server's deck; the violating nets' pins and shapes come from GetNet
   and the deck's rules from GetDeck's TOML, so the page draws them the same way.
+``--net``/``--match`` select the nets reported, as in ``check``.
 Exit status as for ``check``: 0 every net legal, 1 violations found (the outputs are
 written all the same), 2 bad input or an unreachable server.
 """
@@ -15,11 +16,12 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
+from operator import attrgetter
 from pathlib import Path
 from typing import Any
 
-from ._cli_check import add_lefdef_arguments, specs_from_args
+from ._cli_check import add_lefdef_arguments, add_selection_arguments, selected, specs_from_args
 from ._design_report import NetRecord, OffenderFinder, check_records, render_html, report_json, write_csv
 from ._errors import InputError
 from ._kinds import Measure, RatioKind
@@ -51,6 +53,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="rows of the worst-nets table (default 25)")
     parser.add_argument("--max-drawings", type=int, default=40, metavar="N",
                         help="draw at most N violating nets (default 40)")
+    add_selection_arguments(parser)
     parser.add_argument("--title", default="", help="page title (default: from the deck name)")
     parser.add_argument("--progress", choices=("auto", "always", "never"), default="auto",
                         help="progress bar on stderr: auto draws it on a terminal only")
@@ -82,10 +85,12 @@ def _write(path: str, text: str, what: str) -> None:
 
 
 def records_from_server(address: str, timeout: float,
-                        bar: Callable[[Iterable[Any], int, str], Iterable[Any]]
+                        bar: Callable[[Iterable[Any], int, str], Iterable[Any]],
+                        names: Sequence[str] = (), patterns: Sequence[str] = ()
                         ) -> tuple[str, list[str], list[NetRecord], Deck | None]:
-    """(deck name, layer order, records, deck) of every net a running server holds; the
-    violating nets come with their geometry when the server hands out its deck's text."""
+    """(deck name, layer order, records, deck) of every net a running server holds (or
+    of those ``names`` and ``patterns`` select); the violating nets come with their
+    geometry when the server hands out its deck's text."""
     try:
         import grpc
 
@@ -103,7 +108,9 @@ def records_from_server(address: str, timeout: float,
             total = int(client.stats().nets)
             reports = []
             deck = loads_deck(info.toml, f"deck of {address}") if info.toml else None
-            for r in bar(client.check_all(), total, "fetching"):
+            answers = selected(bar(client.check_all(), total, "fetching"), names, patterns,
+                               name_of=attrgetter("net"))
+            for r in answers:
                 checks = tuple(CheckResult(c.layer, c.step, measure[c.measure], kind[c.kind], c.oxide,
                                            c.ratio, c.limit, c.utilization, c.legal, c.gate)
                                for c in r.checks)
@@ -161,13 +168,16 @@ def run(args: argparse.Namespace) -> int:
         if args.nets or args.rules or args.lef or args.def_path:
             raise InputError("--server reports the server's own nets and deck; give no net "
                              "file, --rules, --lef or --def with it", "--server")
-        deck_name, layer_order, records, deck = records_from_server(args.server, args.timeout, bar)
+        deck_name, layer_order, records, deck = records_from_server(
+            args.server, args.timeout, bar, args.select_names, args.select_patterns)
         source = f"server {args.server}"
     else:
         if not (args.lef or args.def_path) and (not args.nets or not args.rules):
             raise InputError("give a net file and --rules DECK, --lef ... --def DESIGN, or --server ADDRESS",
                              "nets")
         deck, specs, total, notes = specs_from_args(args)
+        if args.select_names or args.select_patterns:
+            specs, total = selected(specs, args.select_names, args.select_patterns), None
         records = list(check_records(deck, bar(specs, total, "checking")))
         if notes is not None:
             print_notes(notes, sys.stderr)
