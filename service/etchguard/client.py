@@ -374,6 +374,13 @@ class Client:
     def close_net(self, net: str) -> None:
         self._call(self.stub.CloseNet, pb.CloseNetRequest(net=net))
 
+    def declare_blockage(self, area: pb.Shape) -> int:
+        """An area no new shape may use (``rect(layer, ...)``); returns its id."""
+        return self._call(self.stub.DeclareBlockage, pb.DeclareBlockageRequest(area=area)).id
+
+    def remove_blockage(self, blockage_id: int) -> None:
+        self._call(self.stub.RemoveBlockage, pb.RemoveBlockageRequest(id=blockage_id))
+
     # questions
     def score(self, net: str, candidate: Sequence[pb.Shape], *,
               without_changes: bool = False) -> pb.ScoreReply:

@@ -151,6 +151,21 @@ void Client::CloseNet(const std::string& net) {
   ETCHGUARD_UNARY(CloseNet, request, reply);
 }
 
+std::uint64_t Client::DeclareBlockage(const pb::Shape& area) {
+  pb::DeclareBlockageRequest request;
+  *request.mutable_area() = area;
+  pb::BlockageId reply;
+  ETCHGUARD_UNARY(DeclareBlockage, request, reply);
+  return reply.id();
+}
+
+void Client::RemoveBlockage(std::uint64_t blockage_id) {
+  pb::RemoveBlockageRequest request;
+  request.set_id(blockage_id);
+  pb::RemoveBlockageReply reply;
+  ETCHGUARD_UNARY(RemoveBlockage, request, reply);
+}
+
 pb::ScoreReply Client::Score(const std::string& net, const std::vector<pb::Shape>& candidate,
                              bool without_changes) {
   return Score(ScoreRequest(net, candidate, without_changes));

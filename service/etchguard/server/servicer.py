@@ -79,6 +79,17 @@ def _close_net(call, req, out):
     call.engine.close_net(req.net)
 
 
+def _declare_blockage(call, req, out):
+    if not req.HasField("area"):
+        raise InputError("a blockage needs its area (a layer and a rectangle)", "area")
+    area = convert.shape(call.engine.deck, req.area, "area")
+    out.id = call.engine.declare_blockage(area.layer, area.rect)
+
+
+def _remove_blockage(call, req, out):
+    call.engine.remove_blockage(req.id)
+
+
 def _score(call, req, out):
     limits = call.engine.limits
     candidate = convert.shapes(call.engine.deck, req.candidate, "candidate",
@@ -213,7 +224,8 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
 
     SESSION_LABELS = {op: f"Session/{op}" for op in _SESSION_OPS}
     # metrics labels: every unary / server-streaming method, and each session op
-    METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "Score",
+    METHODS = ["LoadDeck", "GetDeck", "OpenNet", "Commit", "Remove", "CloseNet", "DeclareBlockage",
+               "RemoveBlockage", "Score",
                "ScoreBatch", "Headroom", "Budget", "Budgets", "CheckNet", "GetNet", "CheckAll", "Advise", "GetStats",
                *SESSION_LABELS.values()]
 
@@ -233,6 +245,8 @@ class AntennaServicer(pb_grpc.AntennaServiceServicer):
     Commit = _unary("Commit", _commit, pb.ShapeIds)
     Remove = _unary("Remove", _remove, pb.RemoveReply)
     CloseNet = _unary("CloseNet", _close_net, pb.CloseNetReply)
+    DeclareBlockage = _unary("DeclareBlockage", _declare_blockage, pb.BlockageId)
+    RemoveBlockage = _unary("RemoveBlockage", _remove_blockage, pb.RemoveBlockageReply)
     Score = _unary("Score", _score, pb.ScoreReply)
     ScoreBatch = _unary("ScoreBatch", _score_batch, pb.ScoreBatchReply)
     Headroom = _unary("Headroom", _headroom, pb.HeadroomReply)

@@ -328,6 +328,28 @@ class CloseNetReply(_message.Message):
     __slots__ = ()
     def __init__(self) -> None: ...
 
+class DeclareBlockageRequest(_message.Message):
+    __slots__ = ("area",)
+    AREA_FIELD_NUMBER: _ClassVar[int]
+    area: Shape
+    def __init__(self, area: _Optional[_Union[Shape, _Mapping]] = ...) -> None: ...
+
+class BlockageId(_message.Message):
+    __slots__ = ("id",)
+    ID_FIELD_NUMBER: _ClassVar[int]
+    id: int
+    def __init__(self, id: _Optional[int] = ...) -> None: ...
+
+class RemoveBlockageRequest(_message.Message):
+    __slots__ = ("id",)
+    ID_FIELD_NUMBER: _ClassVar[int]
+    id: int
+    def __init__(self, id: _Optional[int] = ...) -> None: ...
+
+class RemoveBlockageReply(_message.Message):
+    __slots__ = ()
+    def __init__(self) -> None: ...
+
 class ScoreRequest(_message.Message):
     __slots__ = ("net", "candidate", "without_changes")
     NET_FIELD_NUMBER: _ClassVar[int]

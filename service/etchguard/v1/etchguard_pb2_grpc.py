@@ -65,6 +65,16 @@ class AntennaServiceStub:
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.CloseNetRequest.SerializeToString,
                 response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.CloseNetReply.FromString,
                 _registered_method=True)
+        self.DeclareBlockage = channel.unary_unary(
+                '/etchguard.v1.AntennaService/DeclareBlockage',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.DeclareBlockageRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.BlockageId.FromString,
+                _registered_method=True)
+        self.RemoveBlockage = channel.unary_unary(
+                '/etchguard.v1.AntennaService/RemoveBlockage',
+                request_serializer=etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageRequest.SerializeToString,
+                response_deserializer=etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageReply.FromString,
+                _registered_method=True)
         self.Score = channel.unary_unary(
                 '/etchguard.v1.AntennaService/Score',
                 request_serializer=etchguard_dot_v1_dot_etchguard__pb2.ScoreRequest.SerializeToString,
@@ -164,6 +174,22 @@ class AntennaServiceServicer:
 
     def CloseNet(self, request, context):
         """Close a net and drop everything held for it.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
+    def DeclareBlockage(self, request, context):
+        """Declare an area of a layer that no new shape may use (an obstruction, a keep-out):
+        advice counts an option through it as blocked by "blockage <id>". Design-wide (the
+        caller's job), journaled like a commit; a shard holds its own.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
+    def RemoveBlockage(self, request, context):
+        """Take a declared blockage back (NOT_FOUND for an id not held).
         """
         context.set_code(grpc.StatusCode.UNIMPLEMENTED)
         context.set_details('Method not implemented!')
@@ -286,6 +312,16 @@ def add_AntennaServiceServicer_to_server(servicer, server):
                     servicer.CloseNet,
                     request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.CloseNetRequest.FromString,
                     response_serializer=etchguard_dot_v1_dot_etchguard__pb2.CloseNetReply.SerializeToString,
+            ),
+            'DeclareBlockage': grpc.unary_unary_rpc_method_handler(
+                    servicer.DeclareBlockage,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.DeclareBlockageRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.BlockageId.SerializeToString,
+            ),
+            'RemoveBlockage': grpc.unary_unary_rpc_method_handler(
+                    servicer.RemoveBlockage,
+                    request_deserializer=etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageRequest.FromString,
+                    response_serializer=etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageReply.SerializeToString,
             ),
             'Score': grpc.unary_unary_rpc_method_handler(
                     servicer.Score,
@@ -506,6 +542,60 @@ class AntennaService:
             '/etchguard.v1.AntennaService/CloseNet',
             etchguard_dot_v1_dot_etchguard__pb2.CloseNetRequest.SerializeToString,
             etchguard_dot_v1_dot_etchguard__pb2.CloseNetReply.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def DeclareBlockage(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/DeclareBlockage',
+            etchguard_dot_v1_dot_etchguard__pb2.DeclareBlockageRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.BlockageId.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def RemoveBlockage(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/etchguard.v1.AntennaService/RemoveBlockage',
+            etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageRequest.SerializeToString,
+            etchguard_dot_v1_dot_etchguard__pb2.RemoveBlockageReply.FromString,
             options,
             channel_credentials,
             insecure,
