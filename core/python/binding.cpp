@@ -343,10 +343,10 @@ NB_MODULE(_core, m) {
         }
         using R4 = std::tuple<i64, i64, i64, i64>;
         auto rect4 = [](const Rect& r) { return R4{r.xlo, r.ylo, r.xhi, r.yhi}; };
-        std::vector<std::tuple<int, int, double, double, double, double, double, double, std::vector<int>>> terms;
+        std::vector<std::tuple<int, int, double, double, double, double, double, double>> terms;
         for (const BudgetTerm& t : b.terms)
           terms.push_back({int(t.measure), t.oxide, t.conductor, t.per_area, t.per_perimeter, t.factor, t.credit,
-                           t.gate, t.feeds});
+                           t.gate});
         std::vector<std::tuple<int, int, int, int, double, int, double, double, bool, int>> ratios;
         for (const BudgetRatio& r : b.ratios)
           ratios.push_back({r.step, int(r.measure), int(r.kind), r.oxide, r.limit, r.term, r.spent, r.floor,

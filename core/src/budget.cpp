@@ -110,11 +110,6 @@ Budget Net::budget(int layer, i64 x, i64 y, const Shape* common, std::size_t n_c
     bt.factor = rule ? rule->conductor_factor(RL.D) : 1.0;
     bt.credit = rule ? rule->diode_area_credit * RL.D : 0.0;
     bt.gate = rule ? RL.G + rule->diode_gate_factor * RL.D : RL.G;
-    for (int g = 0; g < ng; ++g) {
-      if (m.groups[std::size_t(g)].measure != meas || m.groups[std::size_t(g)].oxide != ox) continue;
-      for (int s = L + 1; s < steps; ++s)
-        if (m.in_chain(L, s, g)) bt.feeds.push_back(s);
-    }
     t = int(b.terms.size());
     b.terms.push_back(std::move(bt));
     return t;

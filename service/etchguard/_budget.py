@@ -46,7 +46,6 @@ class BudgetTerm:
     factor: float  # f * r(D)
     credit_um2: float  # k_credit * D
     gate_um2: float  # G + k_gate * D
-    feeds: tuple[int, ...]  # steps above whose cumulative ratios it enters
 
     def value(self, added_area_um2: float = 0.0, added_perimeter_um: float = 0.0) -> float:
         conductor = self.conductor_um2 + self.per_area * added_area_um2 + self.per_perimeter_um * added_perimeter_um

@@ -203,8 +203,8 @@ class CoreNet:
         layers, oxides = self.deck.layers, self.compiled.oxides
         return Budget(
             found, layers[layer].name, layer,
-            tuple(BudgetTerm(MEASURES[m], oxides[o], a, per_area, per_perimeter, factor, credit, gate, tuple(feeds))
-                  for m, o, a, per_area, per_perimeter, factor, credit, gate, feeds in terms),
+            tuple(BudgetTerm(MEASURES[m], oxides[o], a, per_area, per_perimeter, factor, credit, gate)
+                  for m, o, a, per_area, per_perimeter, factor, credit, gate in terms),
             tuple(BudgetRatio(layers[s].name, s, MEASURES[m], KINDS[k], oxides[o], self.pins[g].name if g >= 0 else "",
                               limit, term if term >= 0 else None, spent, floor, always)
                   for s, m, k, o, limit, term, spent, floor, always, g in ratios),

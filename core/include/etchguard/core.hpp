@@ -208,7 +208,6 @@ struct BudgetTerm {
   double per_area;       // dA per um^2 of added area (1 for area, else 0)
   double per_perimeter;  // dA per um of added perimeter (thickness for side, else 0)
   double factor, credit, gate;
-  std::vector<int> feeds;  // steps above the layer whose cumulative sums this term feeds
 };
 
 struct BudgetRatio {

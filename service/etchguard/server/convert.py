@@ -352,7 +352,7 @@ def budget_into(out, budget, deck) -> None:
     for t in budget.terms:
         out.terms.add(measure=_MEASURE[t.measure], oxide=t.oxide, conductor_um2=t.conductor_um2,
                       per_area=t.per_area, per_perimeter_um=t.per_perimeter_um, factor=t.factor,
-                      credit_um2=t.credit_um2, gate_um2=t.gate_um2, feeds=t.feeds)
+                      credit_um2=t.credit_um2, gate_um2=t.gate_um2)
     for r in budget.ratios:
         out.ratios.add(layer=r.layer, step=r.step, measure=_MEASURE[r.measure], kind=_KIND[r.kind],
                        oxide=r.oxide, gate=r.gate, limit=r.limit, term=r.term, spent=r.spent,

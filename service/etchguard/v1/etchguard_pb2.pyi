@@ -489,7 +489,7 @@ class BudgetRequest(_message.Message):
     def __init__(self, net: _Optional[str] = ..., layer: _Optional[str] = ..., x: _Optional[int] = ..., y: _Optional[int] = ..., common: _Optional[_Iterable[_Union[Shape, _Mapping]]] = ..., window: _Optional[_Union[Rect, _Mapping]] = ...) -> None: ...
 
 class BudgetTerm(_message.Message):
-    __slots__ = ("measure", "oxide", "conductor_um2", "per_area", "per_perimeter_um", "factor", "credit_um2", "gate_um2", "feeds")
+    __slots__ = ("measure", "oxide", "conductor_um2", "per_area", "per_perimeter_um", "factor", "credit_um2", "gate_um2")
     MEASURE_FIELD_NUMBER: _ClassVar[int]
     OXIDE_FIELD_NUMBER: _ClassVar[int]
     CONDUCTOR_UM2_FIELD_NUMBER: _ClassVar[int]
@@ -498,7 +498,6 @@ class BudgetTerm(_message.Message):
     FACTOR_FIELD_NUMBER: _ClassVar[int]
     CREDIT_UM2_FIELD_NUMBER: _ClassVar[int]
     GATE_UM2_FIELD_NUMBER: _ClassVar[int]
-    FEEDS_FIELD_NUMBER: _ClassVar[int]
     measure: Measure
     oxide: str
     conductor_um2: float
@@ -507,8 +506,7 @@ class BudgetTerm(_message.Message):
     factor: float
     credit_um2: float
     gate_um2: float
-    feeds: _containers.RepeatedScalarFieldContainer[int]
-    def __init__(self, measure: _Optional[_Union[Measure, str]] = ..., oxide: _Optional[str] = ..., conductor_um2: _Optional[float] = ..., per_area: _Optional[float] = ..., per_perimeter_um: _Optional[float] = ..., factor: _Optional[float] = ..., credit_um2: _Optional[float] = ..., gate_um2: _Optional[float] = ..., feeds: _Optional[_Iterable[int]] = ...) -> None: ...
+    def __init__(self, measure: _Optional[_Union[Measure, str]] = ..., oxide: _Optional[str] = ..., conductor_um2: _Optional[float] = ..., per_area: _Optional[float] = ..., per_perimeter_um: _Optional[float] = ..., factor: _Optional[float] = ..., credit_um2: _Optional[float] = ..., gate_um2: _Optional[float] = ...) -> None: ...
 
 class BudgetRatio(_message.Message):
     __slots__ = ("layer", "step", "measure", "kind", "oxide", "gate", "limit", "term", "spent", "floor", "always")
