@@ -140,15 +140,25 @@ def _checked_columns(deck, cols, path: str) -> tuple[np.ndarray, np.ndarray]:
     empty = np.flatnonzero(counts == 0)
     if len(empty):
         raise InputError("a candidate needs at least one shape", f"{path}.shape_count[{empty[0]}]")
+    return counts, _steps(deck, cols, cols.layer, path, "layer")
+
+
+def _steps(deck, cols, indices, path: str, field: str) -> np.ndarray:
+    """Deck steps of shapes given as indices into the message's `layers` names."""
     table = np.array([resolve_layer(deck, name, f"{path}.layers[{j}]")
                       for j, name in enumerate(cols.layers)], dtype=np.int64)
-    index = np.array(cols.layer, dtype=np.int64)
+    index = np.array(indices, dtype=np.int64)
     past = np.flatnonzero(index >= len(table))
     if len(past):
         k = past[0]
         raise InputError(f"index {index[k]} is past the {len(table)} entries of `layers`",
-                         f"{path}.layer[{k}]")
-    return counts, table[index] if n else index
+                         f"{path}.{field}[{k}]")
+    return table[index] if len(index) else index
+
+
+def _rect_columns(cols, names: tuple[str, str, str, str]) -> np.ndarray:
+    """(N, 4) int64 DBU rectangles from four coordinate columns."""
+    return np.column_stack([np.array(getattr(cols, name), dtype=np.int64) for name in names]).reshape(-1, 4)
 
 
 def candidate_arrays(deck, cols, path: str = "candidates", max_candidates: int | None = None
@@ -157,9 +167,7 @@ def candidate_arrays(deck, cols, path: str = "candidates", max_candidates: int |
     the engine's columnar form (Engine.score_columns validates the rectangles)."""
     at_most(len(cols.shape_count), max_candidates, "candidates", path)
     counts, steps = _checked_columns(deck, cols, path)
-    rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
-                             for name in ("xlo", "ylo", "xhi", "yhi")]).reshape(-1, 4)
-    return counts, steps, rects
+    return counts, steps, _rect_columns(cols, ("xlo", "ylo", "xhi", "yhi"))
 
 
 def common_shapes(deck, cols, path: str = "candidates") -> CommonShapes | None:
@@ -172,16 +180,8 @@ def common_shapes(deck, cols, path: str = "candidates") -> CommonShapes | None:
         if len(getattr(cols, name)) != n:
             raise InputError(f"has {len(getattr(cols, name))} values, but `common_layer` has {n}",
                              f"{path}.{name}")
-    table = np.array([resolve_layer(deck, name, f"{path}.layers[{j}]")
-                      for j, name in enumerate(cols.layers)], dtype=np.int64)
-    index = np.array(cols.common_layer, dtype=np.int64)
-    past = np.flatnonzero(index >= len(table))
-    if len(past):
-        k = past[0]
-        raise InputError(f"index {index[k]} is past the {len(table)} entries of `layers`",
-                         f"{path}.common_layer[{k}]")
-    rects = np.column_stack([np.array(getattr(cols, name), dtype=np.int64)
-                             for name in ("common_xlo", "common_ylo", "common_xhi", "common_yhi")]).reshape(-1, 4)
+    steps = _steps(deck, cols, cols.common_layer, path, "common_layer")
+    rects = _rect_columns(cols, ("common_xlo", "common_ylo", "common_xhi", "common_yhi"))
     part = np.array(cols.common_part, dtype=np.int64) - 1 if len(cols.common_part) else None
     if part is not None:
         past = np.flatnonzero(part >= len(cols.common_count))
@@ -189,7 +189,7 @@ def common_shapes(deck, cols, path: str = "candidates") -> CommonShapes | None:
             j = past[0]
             raise InputError(f"part {part[j] + 1} is past the {len(cols.common_count)} shared parts "
                              "(1-based; 0 = none)", f"{path}.common_part[{j}]")
-    return CommonShapes(table[index] if n else index, rects, np.array(cols.common_count, dtype=np.int64), part)
+    return CommonShapes(steps, rects, np.array(cols.common_count, dtype=np.int64), part)
 
 
 # engine field -> CandidateColumns field, for Engine.score_columns' refusals
