@@ -90,6 +90,9 @@ def details(s: Stats) -> str:
         out += (f" (found a legal path {outcomes.count('found')}, none within the detour "
                 f"{outcomes.count('none')}, out of budget {outcomes.count('out of budget')}; "
                 f"{sum(r[3] for r in s.repriced)} expansions)")
+        if outcomes.count("skipped"):
+            out += (f"; repaired without a priced search, their plain search already past its "
+                    f"ceiling {outcomes.count('skipped')}")
     if s.plain_searches:
         out += f"; scored searches out of budget {s.plain_searches}"
     return out

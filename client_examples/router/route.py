@@ -23,10 +23,11 @@ deck's default via (pads and cut). Two modes:
 from __future__ import annotations
 
 import json
+import math
 import time
 from collections import deque
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from etchguard import run_rect
@@ -365,6 +366,14 @@ class Router:
         if verdict is None or verdict.legal:
             self.commit_aware(route, items, verdict)
             return
+        if plain.expanded > self.costs.repriced_ceiling:
+            # A priced search expands at least about what the plain one did (on blk_r
+            # those that found a legal path took 1.0-2.9 times as many), so past the
+            # ceiling it would run out: the plain path goes straight to the repair.
+            self.stats.repriced.append((route.data.name, plain.expanded, round(plain.cost, 1), 0,
+                                        math.inf, "skipped"))
+            self.commit_aware(route, items, verdict)
+            return
         self.stats.sinks_repriced += 1
         expanded = self.stats.expanded
         found = self._search(route, sources, self._pricer(route, True), soft, plain)
@@ -403,6 +412,7 @@ class Router:
         if plain is not None:
             budget = min(budget, max(c.repriced_floor, int(c.repriced_effort * plain.expanded)))
             within = plain.cost + max(c.detour_um, c.detour_share * plain.cost)
+            c = replace(c, greed=c.repriced_greed)
         found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget, within)
         pricer.drain()
         self.stats.scored += found.scored
