@@ -151,6 +151,9 @@ def python_figures(c: Client, net: str) -> dict[str, object]:
         f["stream.commit.ids"] = s.commit(net, trunk(deck))
         f.update(_score_figures("stream.score.short", s.score(net, riser(SHORT))))
         f.update(_score_figures("stream.score.long", s.score(net, riser(LONG))))
+        verdict, committed = s.commit_if_legal(net, riser(LONG))
+        f.update(_score_figures("stream.commit_if_legal.long", verdict))
+        f["stream.commit_if_legal.long.committed"] = len(committed)
         ids = s.commit(net, riser(SHORT))
         f["stream.commit_riser.ids"] = ids
         report = s.check(net)
@@ -224,10 +227,11 @@ def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
     # = 400.8 um; side wall 400.8 x 0.14 um (M2 thickness) = 56.112 um^2; over the
     # 0.05 um^2 gate, 1122.24; / 450 = 2.4938666...
     side_util = 400.8 * 0.14 / 0.05 / 450.0
-    for prefix in ("stream.score.long", "unary.score.long"):
+    for prefix in ("stream.score.long", "unary.score.long", "stream.commit_if_legal.long"):
         assert math.isclose(float(cpp[f"{prefix}.worst_utilization"]), side_util, rel_tol=REL_TOL)
         assert cpp[f"{prefix}.legal"] == "false"
         assert cpp[f"{prefix}.breaks_limit"] == "true"
+    assert cpp["stream.commit_if_legal.long.committed"] == "0"  # not legal: nothing committed
     # A refusal names the field: candidate 0's layer (M9 is not in the deck);
     # 3 = INVALID_ARGUMENT in google.rpc.Code.
     assert cpp["refusal.code"] == "3"

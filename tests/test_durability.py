@@ -313,11 +313,16 @@ def test_journal_records_follow_each_nets_order_and_a_refused_call_records_nothi
             ids = c.commit("o", [rect("M1", 0, 30, 5000, 170)])
             with pytest.raises(ServiceError):
                 c.commit("o", [rect("M1", 10, 10, 5, 5)])
-            c.remove("o", ids)
+            # a commit only if legal is recorded when it commits, and only then
+            verdict, none = c.commit_if_legal("o", [rect("M1", -400_000, 30, 200, 170)])
+            assert not verdict.legal and none == []
+            verdict, more = c.commit_if_legal("o", [rect("M1", 0, 200, 200, 400)])
+            assert verdict.legal and more
+            c.remove("o", ids + more)
             c.close_net("o")
             c.open_net("o", [GATE])
         kinds = [rec.WhichOneof("change") for _, _, rec in iter_records(state2)]
-        assert kinds == ["deck_loaded", "net_opened", "shapes_committed", "shapes_removed",
+        assert kinds == ["deck_loaded", "net_opened", "shapes_committed", "shapes_committed", "shapes_removed",
                          "net_closed", "net_opened"]
     finally:
         server.stop()

@@ -58,6 +58,31 @@ def test_open_commit_remove_close(client):
     assert err.value.code == grpc.StatusCode.NOT_FOUND
 
 
+def test_commit_if_legal(client):
+    """Commit with only_if_legal: the verdict is the Score of the same shapes on the net
+    as it was; a legal one is committed (the net then holds it), an illegal one leaves
+    the net as it was. Bad input is refused naming the field and changes nothing."""
+    name, held = open_small_net(client)
+    short, long = candidate(9000), candidate(200_000)
+    want_long = client.score(name, long)
+    assert not want_long.legal  # the long M2 riser breaks M2's side-wall rule (see test_score...)
+    before = client.check(name)
+    verdict, ids = client.commit_if_legal(name, long)
+    assert verdict == want_long and ids == []
+    assert client.check(name) == before and [s.id for s in client.get_net(name).shapes] == held
+    want_short = client.score(name, short)
+    assert want_short.legal
+    with client.session() as s:
+        verdict, ids = s.commit_if_legal(name, short)
+    assert verdict == want_short and ids == [held[-1] + 1]
+    assert client.check(name) != before and [s.id for s in client.get_net(name).shapes] == held + ids
+    for bad, field in (([], "shapes"), ([run("M9", 0, 0, 1000, 0)], "shapes[0].layer")):
+        with pytest.raises(ServiceError) as err:
+            client.commit_if_legal(name, bad)
+        assert err.value.code == grpc.StatusCode.INVALID_ARGUMENT and err.value.field == field
+    assert [s.id for s in client.get_net(name).shapes] == held + ids
+
+
 def test_score_equals_engine(client, engine_twin):
     deck, engine = engine_twin
     name, _ = open_small_net(client)

@@ -119,10 +119,12 @@ def test_blind_leaves_violations_aware_and_repaired_none(runs):
 def test_call_counts_agree_with_the_server(runs, aware):
     """The table's service figures are the router's own count of its requests; the
     server's counters over the same routing agree with them: shapes committed, and
-    candidates scored (ScoreBatch candidates, single scores, budgets, advice)."""
+    candidates scored (ScoreBatch candidates, single scores, commits only if legal,
+    budgets, advice)."""
     router, stats, _, (before, served) = runs[aware]
     m = stats.meter
-    scored = sum(m.batch_sizes) + m.requests.get("score", 0) + m.budgets + m.requests.get("advise", 0)
+    scored = (sum(m.batch_sizes) + m.requests.get("score", 0) + m.requests.get("commit_if_legal", 0)
+              + m.budgets + m.requests.get("advise", 0))
     assert served.scores - before.scores == scored
     assert served.commits - before.commits >= sum(len(r.shapes) for r in router.nets.values())
     assert m.calls == sum(m.requests.values()) > 0
@@ -163,13 +165,16 @@ def test_screened_aware_mode_prices_only_paths_that_break_a_limit(runs):
     """The aware mode searches each sink without prices, scores the path whole, and
     searches again with prices only the sinks whose path would break a limit: on this
     block (where blind routing leaves violations) some but not all sinks; every path
-    committed was scored (one Score per screened sink, plus one per priced path)."""
+    committed was scored: one commit only if legal per screened sink (scored and, when
+    legal, committed in one call), then one Score per path found by a priced search."""
     router, aware, _, _ = runs[True]
     sinks = sum(len(n.sinks) for n in router.block.nets)
     assert aware.sinks_screened >= sinks  # rip-ups route some sinks again
     assert 0 < aware.sinks_repriced < aware.sinks_screened
     m = aware.meter
-    assert m.requests.get("score", 0) >= aware.sinks_screened
+    assert m.requests.get("commit_if_legal", 0) == aware.sinks_screened
+    found = sum(1 for r in aware.repriced if r[-1] == "found")
+    assert m.requests.get("score", 0) >= found
     # the not-screened run priced every sink's search, so it priced far more candidates
     _, tight, _, _ = runs["tight"]
     assert tight.sinks_screened == 0 and tight.scored > aware.scored

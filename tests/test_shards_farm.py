@@ -119,9 +119,12 @@ def test_a_commit_on_one_shard_is_in_the_next_advice_of_another(farm, single, lo
         args = ("M1", x0 + 100, y0 + 100, x0 + 80_000, y0 + 100)
         before = fc.advise(advised, *args, width=300)
         assert before == sc.advise(advised, *args, width=300)
+        wide = [rect("M3", x0 + 1000, y0 - 200, x0 + 80_000, y0 + 400)]
         for c in (fc, sc):
-            c.open_net(blocker, [pin("b.y", "M3", [(x0 + 20_000, y0 - 400, x0 + 20_200, y0 + 600)], diff_area=0.1)],
-                       [rect("M3", x0 + 1000, y0 - 200, x0 + 80_000, y0 + 400)])
+            c.open_net(blocker, [pin("b.y", "M3", [(x0 + 20_000, y0 - 400, x0 + 20_200, y0 + 600)], diff_area=0.1)])
+        sc.commit(blocker, wide)
+        verdict, ids = fc.commit_if_legal(blocker, wide)  # no gate on the net: legal, committed
+        assert verdict.legal and len(ids) == 1
         after = fc.advise(advised, *args, width=300)
         assert after == sc.advise(advised, *args, width=300)
         assert after != before

@@ -193,6 +193,10 @@ int Run(const std::string& address, const std::string& net) {
     PrintIds("stream.commit.ids", session.Commit(net, Trunk(deck)));
     PrintScore("stream.score.short", session.Score(net, Riser(9000)));
     PrintScore("stream.score.long", session.Score(net, Riser(200000)));
+    // Scored and committed in one call, only when legal: the long riser is not.
+    const pb::ShapeIds refused = session.CommitIfLegal(net, Riser(200000));
+    PrintScore("stream.commit_if_legal.long", refused.verdict());
+    PrintCount("stream.commit_if_legal.long.committed", static_cast<std::uint64_t>(refused.shape_ids_size()));
     const std::vector<std::uint64_t> riser_ids = session.Commit(net, Riser(9000));
     PrintIds("stream.commit_riser.ids", riser_ids);
     const pb::NetReport report = session.Check(net);

@@ -242,6 +242,11 @@ class Router:
         if not rects:
             return
         ids = self.session.commit(self.service_name(route.data.name), [rect(n, *r) for n, r in rects])
+        self._held(route, rects, ids, runs_um)
+
+    def _held(self, route: NetRoute, rects: Sequence[tuple[str, Rect]], ids: Sequence[int],
+              runs_um: Sequence[float] | None = None) -> None:
+        """Note shapes the service committed (ids in the order of ``rects``)."""
         lengths = runs_um or [_run_length(n not in self.cut_names, r) for n, r in rects]
         for sid, (name, r), length in zip(ids, rects, lengths):
             route.shapes.append(Committed(sid, name, r, length))
@@ -358,13 +363,18 @@ class Router:
     def _commit_screened(self, route: NetRoute, sources: set[Node], items: list[Item], soft: bool,
                          plain: SearchResult) -> None:
         """The screened aware mode: the sink's path was searched without prices, as the
-        blind router does; it is scored whole (the score every aware commit takes) and
-        committed when legal. Only a path that would break a limit has its sink searched
+        blind router does; it is scored whole and committed when legal, in one call (the
+        score every aware commit takes, and the commit). Only a path that would break a limit has its sink searched
         again with prices, and that path goes through the advice repair if needed."""
+        rects = [x for item in items for x in self.item_rects(item)]
+        if not rects:
+            return
         self.stats.sinks_screened += 1
-        verdict = self.score_path(route, items)
-        if verdict is None or verdict.legal:
-            self.commit_aware(route, items, verdict)
+        # scored and, when legal, committed in one call
+        verdict, ids = self.session.commit_if_legal(self.service_name(route.data.name),
+                                                    [rect(n, *r) for n, r in rects])
+        if ids:
+            self._held(route, rects, ids)
             return
         if plain.expanded > self.costs.repriced_ceiling:
             # A priced search expands at least about what the plain one did (on blk_r
@@ -386,13 +396,6 @@ class Router:
             self.commit_aware(route, list(found.items))
         else:  # no legal path within the detour, or out of budget: the plain path is repaired
             self.commit_aware(route, items, verdict)
-
-    def score_path(self, route: NetRoute, items: Sequence[Item]) -> pb.ScoreReply | None:
-        """The service's score of a whole path (None for an empty one)."""
-        rects = [x for item in items for x in self.item_rects(item)]
-        if not rects:
-            return None
-        return self.session.score(self.service_name(route.data.name), [rect(n, *r) for n, r in rects])
 
     def _search(self, route: NetRoute, sources: set[Node], pricer: ServicePricer | None,
                 soft: bool, plain: SearchResult | None = None) -> SearchResult:

@@ -267,6 +267,27 @@ class Engine:
                 self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
             return self._commit_locked(net, shapes)
 
+    def commit_if_legal(self, name: str, shapes: Sequence[Shape]) -> tuple[Score, list[int]]:
+        """Score shapes against a net and commit them only when the score is legal, in
+        one step under the net's lock; returns the score and the ids (empty: nothing
+        was committed)."""
+        if not shapes:
+            raise InputError("a candidate needs at least one shape", "shapes")
+        if len(shapes) > self.limits.max_candidates:
+            raise LimitExceededError(f"{len(shapes)} shapes exceed the limit of "
+                                     f"{self.limits.max_candidates}", "shapes")
+        net = self._net(name)
+        with net.lock:
+            if net.closed:
+                raise NotFoundError(f"no open net {name!r}", "net")
+            self._check_shapes(shapes, net.core.shape_count)
+            verdict = net.core.score(shapes, True, (), self._cost_tuple)
+            self.counters["scores"] += 1
+            if not verdict.legal:
+                return verdict, []
+            self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
+            return verdict, self._commit_locked(net, shapes)
+
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
         ids = list(range(net.next_id, net.next_id + len(shapes)))
         net.core.add(ids, shapes)

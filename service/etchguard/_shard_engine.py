@@ -270,7 +270,7 @@ class ShardObstacleIndex(ObstacleIndex):
 # -- the engine of one shard ------------------------------------------------------------------
 
 # Engine methods whose first argument is a net name: refused for a net of another shard.
-NET_CALLS = ("open_net", "close_net", "commit", "remove", "shapes", "spec_with_ids", "spec",
+NET_CALLS = ("open_net", "close_net", "commit", "commit_if_legal", "remove", "shapes", "spec_with_ids", "spec",
              "score", "score_many", "score_columns", "check", "headroom", "advise")
 
 

@@ -243,6 +243,14 @@ def _ids(reply: pb.ShapeIds) -> list[int]:
     return list(reply.shape_ids)
 
 
+def _commit_if_legal(net: str, shapes: Sequence[pb.Shape]) -> pb.CommitRequest:
+    return pb.CommitRequest(net=net, shapes=shapes, only_if_legal=True)
+
+
+def _verdict_ids(reply: pb.ShapeIds) -> tuple[pb.ScoreReply, list[int]]:
+    return reply.verdict, list(reply.shape_ids)
+
+
 def advise_request(net: str, layer: str, x1: int, y1: int, x2: int, y2: int, width: int = 0,
                    allow_non_preferred: bool = False, want: Sequence[str] = ()) -> pb.AdviseRequest:
     """An AdviseRequest for a run given by its centre line (width 0: the layer's)."""
@@ -367,6 +375,11 @@ class Client:
 
     def commit(self, net: str, shapes: Sequence[pb.Shape]) -> list[int]:
         return _ids(self._call(self.stub.Commit, pb.CommitRequest(net=net, shapes=shapes)))
+
+    def commit_if_legal(self, net: str, shapes: Sequence[pb.Shape]) -> tuple[pb.ScoreReply, list[int]]:
+        """Score and, when legal, commit in one call: the score and the ids (empty: not
+        committed)."""
+        return _verdict_ids(self._call(self.stub.Commit, _commit_if_legal(net, shapes)))
 
     def remove(self, net: str, shape_ids: Sequence[int]) -> int:
         return self._call(self.stub.Remove, pb.RemoveRequest(net=net, shape_ids=shape_ids)).removed
@@ -554,6 +567,9 @@ class Session:
 
     def commit(self, net: str, shapes: Sequence[pb.Shape]) -> list[int]:
         return _ids(self.ask("commit", pb.CommitRequest(net=net, shapes=shapes)))
+
+    def commit_if_legal(self, net: str, shapes: Sequence[pb.Shape]) -> tuple[pb.ScoreReply, list[int]]:
+        return _verdict_ids(self.ask("commit", _commit_if_legal(net, shapes)))
 
     def remove(self, net: str, shape_ids: Sequence[int]) -> int:
         return self.ask("remove", pb.RemoveRequest(net=net, shape_ids=shape_ids)).removed

@@ -39,14 +39,24 @@ from typing import Any
 import grpc
 
 from ._shards import Topology, load_topology, shard_of
-from .client import Client, ServiceError, Session, advise_request, batch_scores, candidate_columns, pb
+from .client import (
+    Client,
+    ServiceError,
+    Session,
+    _commit_if_legal,
+    _verdict_ids,
+    advise_request,
+    batch_scores,
+    candidate_columns,
+    pb,
+)
 from .v1 import shards_pb2 as spb
 from .v1 import shards_pb2_grpc as spb_grpc
 
 __all__ = ["ShardedClient", "ShardedSession"]
 
 # unary calls whose first argument is the net: routed to its shard
-ROUTED_CALLS = ("open_net", "commit", "remove", "close_net", "score", "score_batch",
+ROUTED_CALLS = ("open_net", "commit", "commit_if_legal", "remove", "close_net", "score", "score_batch",
                 "score_columns", "headroom", "check", "get_net", "advise")
 # session calls that change nothing: safe to send again after a lost stream
 READ_OPS = frozenset({"score", "score_batch", "headroom", "check", "advise"})
@@ -227,6 +237,9 @@ class ShardedSession:
 
     def commit(self, net: str, shapes: Sequence[pb.Shape]) -> list[int]:
         return list(self.ask(net, "commit", pb.CommitRequest(net=net, shapes=shapes)).shape_ids)
+
+    def commit_if_legal(self, net: str, shapes: Sequence[pb.Shape]) -> tuple[pb.ScoreReply, list[int]]:
+        return _verdict_ids(self.ask(net, "commit", _commit_if_legal(net, shapes)))
 
     def remove(self, net: str, shape_ids: Sequence[int]) -> int:
         return self.ask(net, "remove", pb.RemoveRequest(net=net, shape_ids=shape_ids)).removed

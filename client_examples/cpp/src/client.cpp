@@ -25,10 +25,12 @@ pb::OpenNetRequest OpenNetRequest(const std::string& net, const std::vector<pb::
   return r;
 }
 
-pb::CommitRequest CommitRequest(const std::string& net, const std::vector<pb::Shape>& shapes) {
+pb::CommitRequest CommitRequest(const std::string& net, const std::vector<pb::Shape>& shapes,
+                                bool only_if_legal = false) {
   pb::CommitRequest r;
   r.set_net(net);
   AddShapes(r.mutable_shapes(), shapes);
+  r.set_only_if_legal(only_if_legal);
   return r;
 }
 
@@ -136,6 +138,12 @@ std::vector<std::uint64_t> Client::Commit(const std::string& net, const std::vec
   pb::ShapeIds reply;
   ETCHGUARD_UNARY(Commit, CommitRequest(net, shapes), reply);
   return Ids(reply);
+}
+
+pb::ShapeIds Client::CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes) {
+  pb::ShapeIds reply;
+  ETCHGUARD_UNARY(Commit, CommitRequest(net, shapes, true), reply);
+  return reply;
 }
 
 std::uint32_t Client::Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids) {
@@ -282,6 +290,12 @@ std::vector<std::uint64_t> Session::Commit(const std::string& net, const std::ve
   pb::SessionRequest request;
   *request.mutable_commit() = CommitRequest(net, shapes);
   return Ids(Ask(std::move(request)).commit());
+}
+
+pb::ShapeIds Session::CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes) {
+  pb::SessionRequest request;
+  *request.mutable_commit() = CommitRequest(net, shapes, true);
+  return Ask(std::move(request)).commit();
 }
 
 std::uint32_t Session::Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids) {

@@ -94,6 +94,10 @@ std::vector<std::uint64_t> ShardedSession::Commit(const std::string& net, const 
   return For(net).Commit(net, shapes);
 }
 
+pb::ShapeIds ShardedSession::CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes) {
+  return For(net).CommitIfLegal(net, shapes);
+}
+
 std::uint32_t ShardedSession::Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids) {
   return For(net).Remove(net, shape_ids);
 }

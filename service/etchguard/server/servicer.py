@@ -66,7 +66,12 @@ def _open_net(call, req, out):
 
 def _commit(call, req, out):
     shapes = convert.shapes(call.engine.deck, req.shapes, "shapes", call.engine.limits.max_shapes_per_net)
-    convert.ids_into(out, call.engine.commit(req.net, shapes))
+    if not req.only_if_legal:
+        convert.ids_into(out, call.engine.commit(req.net, shapes))
+        return
+    verdict, ids = call.engine.commit_if_legal(req.net, shapes)
+    convert.score_into(out.verdict, verdict)
+    convert.ids_into(out, ids)
 
 
 def _remove(call, req, out):

@@ -291,18 +291,22 @@ class OpenNetRequest(_message.Message):
     def __init__(self, net: _Optional[str] = ..., pins: _Optional[_Iterable[_Union[Pin, _Mapping]]] = ..., layer_range: _Optional[_Union[LayerRange, _Mapping]] = ..., shapes: _Optional[_Iterable[_Union[Shape, _Mapping]]] = ...) -> None: ...
 
 class ShapeIds(_message.Message):
-    __slots__ = ("shape_ids",)
+    __slots__ = ("shape_ids", "verdict")
     SHAPE_IDS_FIELD_NUMBER: _ClassVar[int]
+    VERDICT_FIELD_NUMBER: _ClassVar[int]
     shape_ids: _containers.RepeatedScalarFieldContainer[int]
-    def __init__(self, shape_ids: _Optional[_Iterable[int]] = ...) -> None: ...
+    verdict: ScoreReply
+    def __init__(self, shape_ids: _Optional[_Iterable[int]] = ..., verdict: _Optional[_Union[ScoreReply, _Mapping]] = ...) -> None: ...
 
 class CommitRequest(_message.Message):
-    __slots__ = ("net", "shapes")
+    __slots__ = ("net", "shapes", "only_if_legal")
     NET_FIELD_NUMBER: _ClassVar[int]
     SHAPES_FIELD_NUMBER: _ClassVar[int]
+    ONLY_IF_LEGAL_FIELD_NUMBER: _ClassVar[int]
     net: str
     shapes: _containers.RepeatedCompositeFieldContainer[Shape]
-    def __init__(self, net: _Optional[str] = ..., shapes: _Optional[_Iterable[_Union[Shape, _Mapping]]] = ...) -> None: ...
+    only_if_legal: bool
+    def __init__(self, net: _Optional[str] = ..., shapes: _Optional[_Iterable[_Union[Shape, _Mapping]]] = ..., only_if_legal: _Optional[bool] = ...) -> None: ...
 
 class RemoveRequest(_message.Message):
     __slots__ = ("net", "shape_ids")

@@ -159,7 +159,9 @@ class AntennaServiceServicer:
         raise NotImplementedError('Method not implemented!')
 
     def Commit(self, request, context):
-        """Commit routed shapes to a net; returns their ids, in request order.
+        """Commit routed shapes to a net; returns their ids, in request order. With
+        only_if_legal the shapes are scored first and committed only when legal, in one
+        step (the score a router asks before each commit, without a second round trip).
         """
         context.set_code(grpc.StatusCode.UNIMPLEMENTED)
         context.set_details('Method not implemented!')

@@ -136,6 +136,9 @@ class Session {
   std::vector<std::uint64_t> OpenNet(const std::string& net, const std::vector<pb::Pin>& pins,
                                      const std::vector<pb::Shape>& shapes = {});
   std::vector<std::uint64_t> Commit(const std::string& net, const std::vector<pb::Shape>& shapes);
+  // Scores the shapes and commits them only when legal, in one call: the reply's verdict
+  // is the score; shape_ids is empty when nothing was committed.
+  pb::ShapeIds CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes);
   std::uint32_t Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids);
   pb::ScoreReply Score(const std::string& net, const std::vector<pb::Shape>& candidate,
                        bool without_changes = false);
@@ -185,6 +188,9 @@ class Client {
   std::vector<std::uint64_t> OpenNet(const std::string& net, const std::vector<pb::Pin>& pins,
                                      const std::vector<pb::Shape>& shapes = {});
   std::vector<std::uint64_t> Commit(const std::string& net, const std::vector<pb::Shape>& shapes);
+  // Scores the shapes and commits them only when legal, in one call: the reply's verdict
+  // is the score; shape_ids is empty when nothing was committed.
+  pb::ShapeIds CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes);
   std::uint32_t Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids);
   void CloseNet(const std::string& net);
   // An area no new shape may use (advice counts an option through it as blocked); its id.

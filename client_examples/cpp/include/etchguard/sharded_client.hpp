@@ -34,6 +34,7 @@ class ShardedSession {
   std::vector<std::uint64_t> OpenNet(const std::string& net, const std::vector<pb::Pin>& pins,
                                      const std::vector<pb::Shape>& shapes = {});
   std::vector<std::uint64_t> Commit(const std::string& net, const std::vector<pb::Shape>& shapes);
+  pb::ShapeIds CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes);
   std::uint32_t Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids);
   pb::ScoreReply Score(const std::string& net, const std::vector<pb::Shape>& candidate,
                        bool without_changes = false);
@@ -74,6 +75,9 @@ class ShardedClient {
   }
   std::vector<std::uint64_t> Commit(const std::string& net, const std::vector<pb::Shape>& shapes) {
     return For(net).Commit(net, shapes);
+  }
+  pb::ShapeIds CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes) {
+    return For(net).CommitIfLegal(net, shapes);
   }
   std::uint32_t Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids) {
     return For(net).Remove(net, shape_ids);
