@@ -24,6 +24,9 @@
   retried: its fate is unknown when the reply was lost (it may be journaled), so the
   ``ServiceError`` (UNAVAILABLE) goes to the caller, who may look with ``get_net``.
 * ``load_deck`` goes to every shard; ``check_all`` and ``stats`` fan out and merge.
+* ``declare_blockage`` declares the area on every shard (advice on any net then sees
+  it) and returns one farm id, which ``remove_blockage`` takes; see there for ids and
+  for a shard that refuses or cannot be reached part way.
 """
 
 from __future__ import annotations
@@ -64,6 +67,8 @@ class ShardedClient:
         self.retry_s = retry_s
         self.shards = [Client(address, **client_options) for address in self.topology.addresses]
         self._count = self.topology.shards
+        self._blockages: dict[int, dict[int, int]] = {}  # farm id -> {shard: that shard's id}
+        self._blockage_lock = threading.Lock()  # one fan-out at a time keeps the shards' ids in step
         if connect:
             try:
                 self.connect()
@@ -114,6 +119,82 @@ class ShardedClient:
                       dbu_per_micron: int = 0) -> pb.DeckInfo:
         infos = [client.load_deck_lef(lef, process_name, dbu_per_micron) for client in self.shards]
         return infos[0]
+
+    # blockages: declared on every shard, one farm id
+    def declare_blockage(self, area: pb.Shape) -> int:
+        """Declare ``area`` (``rect(layer, ...)``) on every shard, in shard order, so that
+        advice on any net treats it as blocked; returns its farm id, which is shard 0's
+        id for it. Advice's conflicts name the id of the shard that answered, which is
+        the farm id too while every blockage of the farm goes through one ShardedClient.
+
+        When a shard fails part way, the shards before it remove it again and that
+        shard's ``ServiceError`` is raised unchanged: so a bad area is refused by shard
+        0 with the single server's status and field, before any shard holds it. When a
+        shard may still hold it (one unreachable: its reply was lost; or an undo that
+        failed), the ``ServiceError`` (the failing shard's code, field "blockage_id")
+        names those shards and, for undos that failed, the farm id that
+        ``remove_blockage`` takes to finish the clean-up."""
+        with self._blockage_lock:
+            held: dict[int, int] = {}
+            for k, client in enumerate(self.shards):
+                try:
+                    held[k] = client.declare_blockage(area)
+                except ServiceError as exc:
+                    self._undo_declare(held, k, exc)
+                    raise
+            farm_id = held[0]
+            self._blockages[farm_id] = held
+            return farm_id
+
+    def _undo_declare(self, held: dict[int, int], failed: int, cause: ServiceError) -> None:
+        """Remove a part-way declaration from the shards in ``held``; raises when some
+        shard may still hold it (the caller raises ``cause`` otherwise)."""
+        left, _ = self._remove_from_shards(held)
+        lost = cause.code is grpc.StatusCode.UNAVAILABLE
+        if not left and not lost:
+            return
+        where = [f"shard {k}" for k in sorted(left)] + ([f"shard {failed} (reply lost)"] if lost else [])
+        again = ""
+        if left:
+            self._blockages[held[0]] = left
+            again = f"; remove_blockage({held[0]}) removes it"
+        raise ServiceError(cause.code, f"declaring the blockage failed on shard {failed} ({cause.message}) "
+                                       f"and it may still be held by {', '.join(where)}{again}",
+                           "blockage_id") from cause
+
+    def remove_blockage(self, blockage_id: int) -> None:
+        """Remove the blockage of farm id ``blockage_id`` from every shard that holds it
+        (NOT_FOUND, field "blockage_id", for an id this client did not declare or has
+        removed). A shard that answers NOT_FOUND has it removed already. When a shard
+        refuses or cannot be reached, the shards removed from are forgotten and the
+        ``ServiceError`` names the shards that still hold it; calling again retries them."""
+        with self._blockage_lock:
+            held = self._blockages.get(blockage_id)
+            if held is None:
+                raise ServiceError(grpc.StatusCode.NOT_FOUND, f"no blockage {blockage_id} declared through "
+                                   "this farm client", "blockage_id")
+            left, failure = self._remove_from_shards(held)
+            if failure is None:
+                del self._blockages[blockage_id]
+                return
+            self._blockages[blockage_id] = left
+            raise ServiceError(failure.code, f"blockage {blockage_id} is still held by shard(s) "
+                               f"{', '.join(str(k) for k in sorted(left))} ({failure.message})",
+                               "blockage_id") from failure
+
+    def _remove_from_shards(self, held: dict[int, int]) -> tuple[dict[int, int], ServiceError | None]:
+        """Remove each shard's blockage (NOT_FOUND: gone already); returns the shards
+        that still hold it ({shard: its id}) and the first failure."""
+        left: dict[int, int] = {}
+        failure = None
+        for k, shard_id in held.items():
+            try:
+                self.shards[k].remove_blockage(shard_id)
+            except ServiceError as exc:
+                if exc.code is not grpc.StatusCode.NOT_FOUND:
+                    left[k] = shard_id
+                    failure = failure or exc
+        return left, failure
 
     @property
     def deck(self) -> pb.DeckInfo:
