@@ -19,7 +19,9 @@ Every file is created 0600 and the folder 0700: they hold every net of a design.
 folder that already exists readable by others is used as it is, with a warning.
 
 Start = snapshot (if any) + replay of the segments from the one it names, in order.
-Replay checks that every shape and blockage gets back the id it had.
+Replay checks that every shape gets back the id it had; a blockage is declared again
+under the id its record names (picked or asked for alike), which the engine refuses
+when a blockage already holds it.
 
 Damage on start (a frame whose length runs past the end, whose CRC fails, or whose
 length is zero with data after it):
@@ -361,9 +363,8 @@ def apply(engine, rec: jpb.JournalRecord, where: str) -> str | None:
             return text
         elif kind == "blockage_declared":
             m = rec.blockage_declared
-            bid = engine.declare_blockage(m.layer, (m.xlo, m.ylo, m.xhi, m.yhi))
-            if bid != m.blockage_id:
-                raise JournalError(f"replay gave blockage id {bid}, the journal says {m.blockage_id}", where)
+            # the id as recorded, picked or asked: the engine refuses one held already
+            engine.declare_blockage(m.layer, (m.xlo, m.ylo, m.xhi, m.yhi), m.blockage_id)
         elif kind == "blockage_removed":
             engine.remove_blockage(rec.blockage_removed.blockage_id)
         else:

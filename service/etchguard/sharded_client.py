@@ -25,8 +25,8 @@
   ``ServiceError`` (UNAVAILABLE) goes to the caller, who may look with ``get_net``.
 * ``load_deck`` goes to every shard; ``check_all`` and ``stats`` fan out and merge.
 * ``declare_blockage`` declares the area on every shard (advice on any net then sees
-  it) and returns one farm id, which ``remove_blockage`` takes; see there for ids and
-  for a shard that refuses or cannot be reached part way.
+  it) under one id, the one shard 0 picks; ``remove_blockage`` takes it from any farm
+  client. See there for a shard that refuses or cannot be reached part way.
 """
 
 from __future__ import annotations
@@ -35,7 +35,7 @@ import functools
 import queue
 import threading
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -67,8 +67,6 @@ class ShardedClient:
         self.retry_s = retry_s
         self.shards = [Client(address, **client_options) for address in self.topology.addresses]
         self._count = self.topology.shards
-        self._blockages: dict[int, dict[int, int]] = {}  # farm id -> {shard: that shard's id}
-        self._blockage_lock = threading.Lock()  # one fan-out at a time keeps the shards' ids in step
         if connect:
             try:
                 self.connect()
@@ -120,81 +118,75 @@ class ShardedClient:
         infos = [client.load_deck_lef(lef, process_name, dbu_per_micron) for client in self.shards]
         return infos[0]
 
-    # blockages: declared on every shard, one farm id
+    # blockages: declared on every shard under one id, shard 0's
     def declare_blockage(self, area: pb.Shape) -> int:
-        """Declare ``area`` (``rect(layer, ...)``) on every shard, in shard order, so that
-        advice on any net treats it as blocked; returns its farm id, which is shard 0's
-        id for it. Advice's conflicts name the id of the shard that answered, which is
-        the farm id too while every blockage of the farm goes through one ShardedClient.
+        """Declare ``area`` (``rect(layer, ...)``) on every shard, so that advice on any
+        net treats it as blocked; returns its id. Shard 0 picks the id, every other
+        shard is asked for that same id, so advice's conflicts name it on every shard
+        and any farm client (another one, a restarted router) can ``remove_blockage`` it.
 
-        When a shard fails part way, the shards before it remove it again and that
-        shard's ``ServiceError`` is raised unchanged: so a bad area is refused by shard
-        0 with the single server's status and field, before any shard holds it. When a
-        shard may still hold it (one unreachable: its reply was lost; or an undo that
-        failed), the ``ServiceError`` (the failing shard's code, field "blockage_id")
-        names those shards and, for undos that failed, the farm id that
-        ``remove_blockage`` takes to finish the clean-up."""
-        with self._blockage_lock:
-            held: dict[int, int] = {}
-            for k, client in enumerate(self.shards):
-                try:
-                    held[k] = client.declare_blockage(area)
-                except ServiceError as exc:
-                    self._undo_declare(held, k, exc)
-                    raise
-            farm_id = held[0]
-            self._blockages[farm_id] = held
-            return farm_id
+        When a shard refuses, the shards before it remove it again and that shard's
+        ``ServiceError`` is raised unchanged: so a bad area is refused by shard 0 with
+        the single server's status and field, before any shard holds it; a shard that
+        holds the id already (a blockage declared on it directly) refuses with
+        ALREADY_EXISTS, and a new call gets a new id. When a shard may still hold it (one
+        unreachable: its reply was lost; or an undo that failed), the ``ServiceError``
+        (the failing shard's code, field "blockage_id") names those shards and the id
+        that ``remove_blockage`` takes to clear them later. Only a reply lost from
+        shard 0 itself leaves its id unknown (shard 0 alone may hold it then)."""
+        blockage_id = self.shards[0].declare_blockage(area)
+        for k, client in enumerate(self.shards[1:], start=1):
+            try:
+                client.declare_blockage(area, blockage_id=blockage_id)
+            except ServiceError as exc:
+                self._undo_declare(blockage_id, k, exc)
+                raise
+        return blockage_id
 
-    def _undo_declare(self, held: dict[int, int], failed: int, cause: ServiceError) -> None:
-        """Remove a part-way declaration from the shards in ``held``; raises when some
-        shard may still hold it (the caller raises ``cause`` otherwise)."""
-        left, _ = self._remove_from_shards(held)
+    def _undo_declare(self, blockage_id: int, failed: int, cause: ServiceError) -> None:
+        """Remove a part-way declaration from the shards before ``failed``; raises when
+        some shard may still hold it (the caller raises ``cause`` otherwise)."""
+        left, _, _ = self._remove_from_shards(blockage_id, range(failed))
         lost = cause.code is grpc.StatusCode.UNAVAILABLE
         if not left and not lost:
             return
-        where = [f"shard {k}" for k in sorted(left)] + ([f"shard {failed} (reply lost)"] if lost else [])
-        again = ""
-        if left:
-            self._blockages[held[0]] = left
-            again = f"; remove_blockage({held[0]}) removes it"
-        raise ServiceError(cause.code, f"declaring the blockage failed on shard {failed} ({cause.message}) "
-                                       f"and it may still be held by {', '.join(where)}{again}",
-                           "blockage_id") from cause
+        where = [f"shard {k}" for k in left] + ([f"shard {failed} (reply lost)"] if lost else [])
+        raise ServiceError(cause.code, f"declaring blockage {blockage_id} failed on shard {failed} "
+                                       f"({cause.message}) and it may still be held by {', '.join(where)}; "
+                                       f"remove_blockage({blockage_id}) removes it", "blockage_id") from cause
 
     def remove_blockage(self, blockage_id: int) -> None:
-        """Remove the blockage of farm id ``blockage_id`` from every shard that holds it
-        (NOT_FOUND, field "blockage_id", for an id this client did not declare or has
-        removed). A shard that answers NOT_FOUND has it removed already. When a shard
-        refuses or cannot be reached, the shards removed from are forgotten and the
-        ``ServiceError`` names the shards that still hold it; calling again retries them."""
-        with self._blockage_lock:
-            held = self._blockages.get(blockage_id)
-            if held is None:
-                raise ServiceError(grpc.StatusCode.NOT_FOUND, f"no blockage {blockage_id} declared through "
-                                   "this farm client", "blockage_id")
-            left, failure = self._remove_from_shards(held)
-            if failure is None:
-                del self._blockages[blockage_id]
-                return
-            self._blockages[blockage_id] = left
-            raise ServiceError(failure.code, f"blockage {blockage_id} is still held by shard(s) "
-                               f"{', '.join(str(k) for k in sorted(left))} ({failure.message})",
+        """Remove blockage ``blockage_id`` from every shard (it has the same id on each,
+        so any farm client can). A shard that answers NOT_FOUND has it removed already;
+        NOT_FOUND (field "blockage_id") when no shard held it (after a part-way failure:
+        none was left holding it). When a shard refuses or cannot be reached, the
+        ``ServiceError`` names it; calling again retries."""
+        left, failure, found = self._remove_from_shards(blockage_id, range(len(self.shards)))
+        if failure is not None:
+            raise ServiceError(failure.code, f"blockage {blockage_id} may still be held by shard(s) "
+                               f"{', '.join(str(k) for k in left)} ({failure.message})",
                                "blockage_id") from failure
+        if not found:
+            raise ServiceError(grpc.StatusCode.NOT_FOUND, f"no shard holds blockage {blockage_id}",
+                               "blockage_id")
 
-    def _remove_from_shards(self, held: dict[int, int]) -> tuple[dict[int, int], ServiceError | None]:
-        """Remove each shard's blockage (NOT_FOUND: gone already); returns the shards
-        that still hold it ({shard: its id}) and the first failure."""
-        left: dict[int, int] = {}
+    def _remove_from_shards(self, blockage_id: int, shards: Iterable[int]
+                            ) -> tuple[list[int], ServiceError | None, bool]:
+        """Remove the blockage from each of ``shards`` (NOT_FOUND: gone already); returns
+        the shards that may still hold it, the first failure, and whether any shard
+        removed it."""
+        left: list[int] = []
         failure = None
-        for k, shard_id in held.items():
+        found = False
+        for k in shards:
             try:
-                self.shards[k].remove_blockage(shard_id)
+                self.shards[k].remove_blockage(blockage_id)
+                found = True
             except ServiceError as exc:
                 if exc.code is not grpc.StatusCode.NOT_FOUND:
-                    left[k] = shard_id
+                    left.append(k)
                     failure = failure or exc
-        return left, failure
+        return left, failure, found
 
     @property
     def deck(self) -> pb.DeckInfo:
