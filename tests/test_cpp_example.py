@@ -42,6 +42,7 @@ SHORT, LONG = 9000, 200000
 # The advised run: (layer, x1, y1, x2, y2) and width of example.cpp's WideRiser().
 WIDE_RISER = ("M2", 4900, 100, 4900, 60100)
 WIDE_RISER_WIDTH = 400
+BLOCKAGE_ID = 4242  # example.cpp's kBlockageId
 BATCH_LENGTHS = (2000, 20000, 60000, 140000, 300000)
 
 
@@ -180,6 +181,13 @@ def python_figures(c: Client, net: str) -> dict[str, object]:
         c.score(net, [run("M9", 0, 0, 1000, 0)])
     f["refusal.code"] = refused.value.code.value[0]
     f["refusal.field"] = refused.value.field
+    keep_out = rect("M3", 0, 5000000, 1000, 5001000)
+    f["blockage.id"] = c.declare_blockage(keep_out, blockage_id=BLOCKAGE_ID)
+    with pytest.raises(ServiceError) as held:
+        c.declare_blockage(keep_out, blockage_id=BLOCKAGE_ID)
+    f["blockage.again.code"] = held.value.code.value[0]
+    f["blockage.again.field"] = held.value.field
+    c.remove_blockage(BLOCKAGE_ID)
     c.close_net(net)
     f["closed"] = net
     return f
@@ -236,6 +244,9 @@ def test_cpp_example_figures_worked_by_hand(example_binary, live_server):
     # 3 = INVALID_ARGUMENT in google.rpc.Code.
     assert cpp["refusal.code"] == "3"
     assert cpp["refusal.field"] == "candidate[0].layer"
+    # The asked blockage id is the one held; asked again, ALREADY_EXISTS (6) names it.
+    assert cpp["blockage.id"] == str(BLOCKAGE_ID)
+    assert (cpp["blockage.again.code"], cpp["blockage.again.field"]) == ("6", "blockage_id")
     # Advice on the wide riser, run [4700, -100, 5100, 60300] (400 wide, 200 past each
     # end), which covers the whole pad: 400 x 60,400 DBU^2 = 24.16 um^2 of M2 over the
     # 0.05 um^2 gate, a partial area ratio of 483.2 against 400 (its side wall,

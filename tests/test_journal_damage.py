@@ -288,3 +288,23 @@ def test_a_journal_cut_anywhere_starts_with_every_whole_record(tmp_path):
             assert journal.recovery.records == whole, f"cut at {cut}"
         finally:
             journal.close(snapshot=False)
+
+
+def test_a_snapshot_without_nets_starts_and_zeros_after_it_are_refused(tmp_path):
+    """A snapshot of a deck alone (or a deck and blockages) ends with an empty end frame
+    (SnapshotEnd of no nets serializes to no bytes), which is a frame, not damage; a
+    snapshot that zeros follow is still refused."""
+    state = tmp_path / "state"
+    engine = Engine()
+    journal = Journal.open(state, engine, sync="none", snapshot_every=0)
+    engine.load_deck(load_deck(DEMO_DECK), DEMO_DECK.read_text(encoding="utf-8"))
+    engine.declare_blockage(2, (0, 0, 100, 100))
+    journal.close(snapshot=True)
+    again = Engine()
+    Journal.open(state, again, sync="none", snapshot_every=0).close(snapshot=False)
+    assert again.deck_text is not None and again.export_state(lambda: None)[0].blockages == {
+        1: (2, (0, 0, 100, 100))}
+    with open(state / "snapshot.pb", "ab") as f:
+        f.write(bytes(16))
+    with pytest.raises(JournalError):
+        Journal.open(state, Engine(), sync="none", snapshot_every=0)

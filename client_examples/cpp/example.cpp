@@ -22,6 +22,8 @@ namespace pb = etchguard::v1;
 
 namespace {
 
+constexpr std::uint64_t kBlockageId = 4242;  // the blockage id the example asks for
+
 void Print(const std::string& key, double value) { std::printf("%s %.17g\n", key.c_str(), value); }
 void Print(const std::string& key, bool value) { std::printf("%s %s\n", key.c_str(), value ? "true" : "false"); }
 void Print(const std::string& key, const std::string& value) {
@@ -226,6 +228,19 @@ int Run(const std::string& address, const std::string& net) {
     PrintCount("refusal.code", static_cast<std::uint64_t>(e.code()));
     Print("refusal.field", e.field());
   }
+
+  // A blockage under an id of our choosing (a farm client gives every shard shard 0's
+  // id so), far from the net; asking for an id held already is refused.
+  const pb::Shape keep_out = eg::RectShape("M3", {0, 5000000, 1000, 5001000});
+  PrintCount("blockage.id", client.DeclareBlockage(keep_out, kBlockageId));
+  try {
+    client.DeclareBlockage(keep_out, kBlockageId);
+    Print("blockage.again.code", std::string("none"));
+  } catch (const eg::ServiceError& e) {
+    PrintCount("blockage.again.code", static_cast<std::uint64_t>(e.code()));
+    Print("blockage.again.field", e.field());
+  }
+  client.RemoveBlockage(kBlockageId);
 
   client.CloseNet(net);
   Print("closed", net);

@@ -44,7 +44,7 @@ from ._geometry import COORD_LIMIT
 from ._geometry import checked_rect as _checked_rect
 from ._names import check_name
 from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
-from ._obstacles import ObstacleIndex
+from ._obstacles import MAX_BLOCKAGE_ID, ObstacleIndex
 from ._obstacles import net_items as _net_items
 from ._obstacles import pin_items as _pin_items
 from ._obstacles import shape_key as _shape_key
@@ -466,15 +466,21 @@ class Engine:
 
     # -- advice: blockages and repair advice ----------------------------------------
 
-    def declare_blockage(self, layer: int, rect: Sequence[int]) -> int:
-        """Declare an area of a layer no new shape may use; returns its id."""
+    def declare_blockage(self, layer: int, rect: Sequence[int], blockage_id: int | None = None) -> int:
+        """Declare an area of a layer no new shape may use; returns its id: ``blockage_id``
+        when given (refused when held, changing nothing), else the next one free. A
+        farm gives one blockage the same id on every shard this way."""
         deck = self.deck
         if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
             raise InputError(f"unknown layer {layer!r}", "layer")
         checked = _checked_rect(list(rect), "rect")
+        if blockage_id is not None and (isinstance(blockage_id, bool) or not isinstance(blockage_id, int)
+                                        or not 1 <= blockage_id <= MAX_BLOCKAGE_ID):
+            raise InputError(f"a blockage id is 1 .. {MAX_BLOCKAGE_ID}, not {blockage_id!r}", "blockage_id")
         with self._registry:  # ordered against deck loads and snapshots in the change log
-            self._record(BlockageDeclared(self._obstacles._next_blockage, layer, checked))
-            return self._obstacles.add_blockage(layer, checked)
+            bid = self._obstacles.blockage_id_for(blockage_id)
+            self._record(BlockageDeclared(bid, layer, checked))
+            return self._obstacles.add_blockage(layer, checked, bid)
 
     def remove_blockage(self, blockage_id: int) -> None:
         with self._registry:

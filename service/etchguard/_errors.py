@@ -47,7 +47,7 @@ class NotFoundError(EtchguardError):
 
 
 class AlreadyExistsError(EtchguardError):
-    """A net was opened twice."""
+    """A net was opened twice, or a blockage id asked for is held already."""
 
 
 class NoDeckError(EtchguardError):

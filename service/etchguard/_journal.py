@@ -19,7 +19,9 @@ Every file is created 0600 and the folder 0700: they hold every net of a design.
 folder that already exists readable by others is used as it is, with a warning.
 
 Start = snapshot (if any) + replay of the segments from the one it names, in order.
-Replay checks that every shape and blockage gets back the id it had.
+Replay checks that every shape gets back the id it had; a blockage is declared again
+under the id its record names (picked or asked for alike), which the engine refuses
+when a blockage already holds it.
 
 Damage on start (a frame whose length runs past the end, whose CRC fails, or whose
 length is zero with data after it):
@@ -205,11 +207,12 @@ def next_record_frame(data: bytes, start: int) -> int | None:
     return None
 
 
-def read_frames(path: Path, data: bytes, start: int = _HEADER.size,
-                records: bool = True) -> tuple[list[tuple[int, bytes]], Damage | None]:
+def read_frames(path: Path, data: bytes, start: int = _HEADER.size, records: bool = True,
+                empty_ok: bool = False) -> tuple[list[tuple[int, bytes]], Damage | None]:
     """The frames from ``start`` as (offset, payload), up to the first damaged one,
     which is described (``records``: the frames are journal records, so what follows
-    the damage is searched for whole records)."""
+    the damage is searched for whole records; ``empty_ok``: an empty payload is a
+    frame, as a snapshot's end frame of an engine without nets serializes empty)."""
     frames: list[tuple[int, bytes]] = []
     offset, end = start, len(data)
     while offset < end:
@@ -219,7 +222,7 @@ def read_frames(path: Path, data: bytes, start: int = _HEADER.size,
         else:
             length, crc = _FRAME.unpack_from(data, offset)
             frame_end = offset + _FRAME.size + length
-            if length == 0:  # no record is empty; zeros to the end are a file the OS extended
+            if length == 0 and not empty_ok:  # no record is empty; zeros to the end are a file the OS extended
                 reason = "zero frame length"
             elif frame_end > end:
                 reason = f"frame of {length} bytes runs past the end ({end - offset - _FRAME.size} there)"
@@ -360,9 +363,8 @@ def apply(engine, rec: jpb.JournalRecord, where: str) -> str | None:
             return text
         elif kind == "blockage_declared":
             m = rec.blockage_declared
-            bid = engine.declare_blockage(m.layer, (m.xlo, m.ylo, m.xhi, m.yhi))
-            if bid != m.blockage_id:
-                raise JournalError(f"replay gave blockage id {bid}, the journal says {m.blockage_id}", where)
+            # the id as recorded, picked or asked: the engine refuses one held already
+            engine.declare_blockage(m.layer, (m.xlo, m.ylo, m.xhi, m.yhi), m.blockage_id)
         elif kind == "blockage_removed":
             engine.remove_blockage(rec.blockage_removed.blockage_id)
         else:
@@ -428,7 +430,7 @@ def read_snapshot(path: Path) -> tuple[EngineImage, int]:
     """The image a snapshot holds and the first segment number it does not cover."""
     data = path.read_bytes()
     check_header(path, data, SNAPSHOT_MAGIC, "snapshot")
-    frames, damage = read_frames(path, data, records=False)
+    frames, damage = read_frames(path, data, records=False, empty_ok=True)
     if damage is not None:  # a snapshot is renamed into place whole: no torn tail
         raise JournalError(f"damaged frame at byte offset {damage.offset} ({damage.reason})", str(path))
     if len(frames) < 2:

@@ -39,7 +39,7 @@ from dataclasses import dataclass
 
 from rtree import index as rtree_index
 
-from ._errors import InputError, NotFoundError
+from ._errors import AlreadyExistsError, InputError, LimitExceededError, NotFoundError
 from ._geometry import Rect
 from ._nets import Pin
 from ._rules import Deck
@@ -51,6 +51,8 @@ BULK_MIN = 256
 # id, a pin rectangle as a negative number (see pin_key), a blockage's id (owner None).
 OwnerKey = Hashable
 LAYER_BITS = 6  # entry ids carry their layer in the low bits: eid = serial << 6 | layer
+# Blockage ids are 1 .. this: advice's conflicts carry them as int64.
+MAX_BLOCKAGE_ID = (1 << 63) - 1
 
 
 def shape_key(sid: int) -> int:
@@ -222,14 +224,28 @@ class ObstacleIndex:
 
     # -- blockages ----------------------------------------------------------------------
 
-    def add_blockage(self, layer: int, rect: Rect) -> int:
+    def blockage_id_for(self, asked: int | None) -> int:
+        """The id a new blockage gets: ``asked`` when no blockage holds it, else the
+        next one free (refused once ids run past ``MAX_BLOCKAGE_ID``)."""
+        if asked is not None:
+            if asked in self.blockages:
+                raise AlreadyExistsError(f"blockage {asked} is held already", "blockage_id")
+            return asked
+        if self._next_blockage > MAX_BLOCKAGE_ID:
+            raise LimitExceededError(f"blockage ids are used up to {MAX_BLOCKAGE_ID}", "blockage_id")
+        return self._next_blockage
+
+    def add_blockage(self, layer: int, rect: Rect, bid: int) -> int:
+        """Hold a blockage under ``bid`` (from ``blockage_id_for``); the next id picked
+        is past it, so an asked id never meets a picked one later."""
         if not 0 <= layer < self._layers:
             raise InputError("unknown layer", "layer")
         with self._lock:
-            bid = self._next_blockage
-            self._next_blockage += 1
+            if bid in self.blockages:
+                raise AlreadyExistsError(f"blockage {bid} is held already", "blockage_id")
             self._add_locked([(layer, rect, None, bid)])
             self.blockages[bid] = (layer, rect)
+            self._next_blockage = max(self._next_blockage, bid + 1)
             return bid
 
     def remove_blockage(self, bid: int) -> None:

@@ -13,7 +13,9 @@ metal (is the proposed hop or jumper blocked?). Definitions:
   ``MAX_CELLS_PER_RECT`` cells is listed as "the whole layer" instead.
 * **Metal grid** (``MetalGrid``): for this shard's own metal (pins and committed
   shapes of its nets), how many entries lie in each (layer, cell). Declared blockages
-  are not in it: each shard checks the blockages declared to it.
+  are not in it: each shard checks the blockages declared to it (the farm client's
+  ``ShardedClient.declare_blockage`` declares one on every shard, under the id shard 0
+  picked, so a conflict names the same blockage id on every shard).
 * **Directory** (``Directory``): which other shards hold metal in which (layer, cell).
   A peer whose whole grid this shard has not yet received is *unknown* and is asked
   about every run until its grid arrives.

@@ -387,9 +387,11 @@ class Client:
     def close_net(self, net: str) -> None:
         self._call(self.stub.CloseNet, pb.CloseNetRequest(net=net))
 
-    def declare_blockage(self, area: pb.Shape) -> int:
-        """An area no new shape may use (``rect(layer, ...)``); returns its id."""
-        return self._call(self.stub.DeclareBlockage, pb.DeclareBlockageRequest(area=area)).id
+    def declare_blockage(self, area: pb.Shape, *, blockage_id: int = 0) -> int:
+        """An area no new shape may use (``rect(layer, ...)``); returns its id, which is
+        ``blockage_id`` when given (ALREADY_EXISTS when the server holds it already)."""
+        request = pb.DeclareBlockageRequest(area=area, blockage_id=blockage_id)
+        return self._call(self.stub.DeclareBlockage, request).id
 
     def remove_blockage(self, blockage_id: int) -> None:
         self._call(self.stub.RemoveBlockage, pb.RemoveBlockageRequest(id=blockage_id))

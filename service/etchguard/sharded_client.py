@@ -24,6 +24,9 @@
   retried: its fate is unknown when the reply was lost (it may be journaled), so the
   ``ServiceError`` (UNAVAILABLE) goes to the caller, who may look with ``get_net``.
 * ``load_deck`` goes to every shard; ``check_all`` and ``stats`` fan out and merge.
+* ``declare_blockage`` declares the area on every shard (advice on any net then sees
+  it) under one id, the one shard 0 picks; ``remove_blockage`` takes it from any farm
+  client. See there for a shard that refuses or cannot be reached part way.
 """
 
 from __future__ import annotations
@@ -32,7 +35,7 @@ import functools
 import queue
 import threading
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -124,6 +127,76 @@ class ShardedClient:
                       dbu_per_micron: int = 0) -> pb.DeckInfo:
         infos = [client.load_deck_lef(lef, process_name, dbu_per_micron) for client in self.shards]
         return infos[0]
+
+    # blockages: declared on every shard under one id, shard 0's
+    def declare_blockage(self, area: pb.Shape) -> int:
+        """Declare ``area`` (``rect(layer, ...)``) on every shard, so that advice on any
+        net treats it as blocked; returns its id. Shard 0 picks the id, every other
+        shard is asked for that same id, so advice's conflicts name it on every shard
+        and any farm client (another one, a restarted router) can ``remove_blockage`` it.
+
+        When a shard refuses, the shards before it remove it again and that shard's
+        ``ServiceError`` is raised unchanged: so a bad area is refused by shard 0 with
+        the single server's status and field, before any shard holds it; a shard that
+        holds the id already (a blockage declared on it directly) refuses with
+        ALREADY_EXISTS, and a new call gets a new id. When a shard may still hold it (one
+        unreachable: its reply was lost; or an undo that failed), the ``ServiceError``
+        (the failing shard's code, field "blockage_id") names those shards and the id
+        that ``remove_blockage`` takes to clear them later. Only a reply lost from
+        shard 0 itself leaves its id unknown (shard 0 alone may hold it then)."""
+        blockage_id = self.shards[0].declare_blockage(area)
+        for k, client in enumerate(self.shards[1:], start=1):
+            try:
+                client.declare_blockage(area, blockage_id=blockage_id)
+            except ServiceError as exc:
+                self._undo_declare(blockage_id, k, exc)
+                raise
+        return blockage_id
+
+    def _undo_declare(self, blockage_id: int, failed: int, cause: ServiceError) -> None:
+        """Remove a part-way declaration from the shards before ``failed``; raises when
+        some shard may still hold it (the caller raises ``cause`` otherwise)."""
+        left, _, _ = self._remove_from_shards(blockage_id, range(failed))
+        lost = cause.code is grpc.StatusCode.UNAVAILABLE
+        if not left and not lost:
+            return
+        where = [f"shard {k}" for k in left] + ([f"shard {failed} (reply lost)"] if lost else [])
+        raise ServiceError(cause.code, f"declaring blockage {blockage_id} failed on shard {failed} "
+                                       f"({cause.message}) and it may still be held by {', '.join(where)}; "
+                                       f"remove_blockage({blockage_id}) removes it", "blockage_id") from cause
+
+    def remove_blockage(self, blockage_id: int) -> None:
+        """Remove blockage ``blockage_id`` from every shard (it has the same id on each,
+        so any farm client can). A shard that answers NOT_FOUND has it removed already;
+        NOT_FOUND (field "blockage_id") when no shard held it (after a part-way failure:
+        none was left holding it). When a shard refuses or cannot be reached, the
+        ``ServiceError`` names it; calling again retries."""
+        left, failure, found = self._remove_from_shards(blockage_id, range(len(self.shards)))
+        if failure is not None:
+            raise ServiceError(failure.code, f"blockage {blockage_id} may still be held by shard(s) "
+                               f"{', '.join(str(k) for k in left)} ({failure.message})",
+                               "blockage_id") from failure
+        if not found:
+            raise ServiceError(grpc.StatusCode.NOT_FOUND, f"no shard holds blockage {blockage_id}",
+                               "blockage_id")
+
+    def _remove_from_shards(self, blockage_id: int, shards: Iterable[int]
+                            ) -> tuple[list[int], ServiceError | None, bool]:
+        """Remove the blockage from each of ``shards`` (NOT_FOUND: gone already); returns
+        the shards that may still hold it, the first failure, and whether any shard
+        removed it."""
+        left: list[int] = []
+        failure = None
+        found = False
+        for k in shards:
+            try:
+                self.shards[k].remove_blockage(blockage_id)
+                found = True
+            except ServiceError as exc:
+                if exc.code is not grpc.StatusCode.NOT_FOUND:
+                    left.append(k)
+                    failure = failure or exc
+        return left, failure, found
 
     @property
     def deck(self) -> pb.DeckInfo:

@@ -159,9 +159,10 @@ void Client::CloseNet(const std::string& net) {
   ETCHGUARD_UNARY(CloseNet, request, reply);
 }
 
-std::uint64_t Client::DeclareBlockage(const pb::Shape& area) {
+std::uint64_t Client::DeclareBlockage(const pb::Shape& area, std::uint64_t blockage_id) {
   pb::DeclareBlockageRequest request;
   *request.mutable_area() = area;
+  request.set_blockage_id(blockage_id);
   pb::BlockageId reply;
   ETCHGUARD_UNARY(DeclareBlockage, request, reply);
   return reply.id();

@@ -88,7 +88,7 @@ def _declare_blockage(call, req, out):
     if not req.HasField("area"):
         raise InputError("a blockage needs its area (a layer and a rectangle)", "area")
     area = convert.shape(call.engine.deck, req.area, "area")
-    out.id = call.engine.declare_blockage(area.layer, area.rect)
+    out.id = call.engine.declare_blockage(area.layer, area.rect, req.blockage_id or None)  # 0: the server picks
 
 
 def _remove_blockage(call, req, out):

@@ -333,10 +333,12 @@ class CloseNetReply(_message.Message):
     def __init__(self) -> None: ...
 
 class DeclareBlockageRequest(_message.Message):
-    __slots__ = ("area",)
+    __slots__ = ("area", "blockage_id")
     AREA_FIELD_NUMBER: _ClassVar[int]
+    BLOCKAGE_ID_FIELD_NUMBER: _ClassVar[int]
     area: Shape
-    def __init__(self, area: _Optional[_Union[Shape, _Mapping]] = ...) -> None: ...
+    blockage_id: int
+    def __init__(self, area: _Optional[_Union[Shape, _Mapping]] = ..., blockage_id: _Optional[int] = ...) -> None: ...
 
 class BlockageId(_message.Message):
     __slots__ = ("id",)

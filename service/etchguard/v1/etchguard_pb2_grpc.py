@@ -184,7 +184,8 @@ class AntennaServiceServicer:
     def DeclareBlockage(self, request, context):
         """Declare an area of a layer that no new shape may use (an obstruction, a keep-out):
         advice counts an option through it as blocked by "blockage <id>". Design-wide (the
-        caller's job), journaled like a commit; a shard holds its own.
+        caller's job), journaled like a commit; a shard holds its own (a farm client gives
+        it the same id on every shard).
         """
         context.set_code(grpc.StatusCode.UNIMPLEMENTED)
         context.set_details('Method not implemented!')

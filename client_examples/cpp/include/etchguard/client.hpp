@@ -193,8 +193,9 @@ class Client {
   pb::ShapeIds CommitIfLegal(const std::string& net, const std::vector<pb::Shape>& shapes);
   std::uint32_t Remove(const std::string& net, const std::vector<std::uint64_t>& shape_ids);
   void CloseNet(const std::string& net);
-  // An area no new shape may use (advice counts an option through it as blocked); its id.
-  std::uint64_t DeclareBlockage(const pb::Shape& area);
+  // An area no new shape may use (advice counts an option through it as blocked); its id,
+  // which is blockage_id when not 0 (ALREADY_EXISTS when the server holds it already).
+  std::uint64_t DeclareBlockage(const pb::Shape& area, std::uint64_t blockage_id = 0);
   void RemoveBlockage(std::uint64_t blockage_id);
 
   pb::ScoreReply Score(const std::string& net, const std::vector<pb::Shape>& candidate,
