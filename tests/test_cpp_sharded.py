@@ -67,3 +67,10 @@ def test_cpp_sharding_client_equals_one_server(example_binary, farm):
     finally:
         single.stop()
     assert got["mismatch.code"] == "9" and got["mismatch.field"] == "expected_fingerprint"
+    # the farm-wide blockage: held under its one id by every shard (6 = ALREADY_EXISTS
+    # when asked for it again), removed from every one (5 = NOT_FOUND the second time)
+    assert int(got["blockage.id"]) >= 1
+    for k in range(SHARDS):
+        assert got[f"blockage.held.{k}"] == "6"
+        assert got[f"blockage.free.{k}"] == "yes"
+    assert got["blockage.removed_again"] == "5 blockage_id"

@@ -58,6 +58,31 @@ int main(int argc, char** argv) {
     }
     Print("check_all.reports", std::to_string(farm.CheckAll().size()));
     Print("stats.nets", std::to_string(farm.Stats().nets()));
+    // A farm-wide blockage: one id on every shard (asking a shard for that id again is
+    // ALREADY_EXISTS there), gone from every shard once removed (the id is free again).
+    const auto area = ec::RectShape("M3", {0, 0, 5000, 5000});
+    const std::uint64_t blockage = farm.DeclareBlockage(area);
+    Print("blockage.id", std::to_string(blockage));
+    for (std::int32_t k = 0; k < topology.shards(); ++k) {
+      try {
+        farm.Shard(k).DeclareBlockage(area, blockage);
+        Print("blockage.held." + std::to_string(k), "no");
+      } catch (const ec::ServiceError& e) {
+        Print("blockage.held." + std::to_string(k), std::to_string(static_cast<int>(e.code())));
+      }
+    }
+    farm.RemoveBlockage(blockage);
+    try {
+      farm.RemoveBlockage(blockage);
+      Print("blockage.removed_again", "ok");
+    } catch (const ec::ServiceError& e) {
+      Print("blockage.removed_again", std::to_string(static_cast<int>(e.code())) + " " + e.field());
+    }
+    for (std::int32_t k = 0; k < topology.shards(); ++k) {
+      farm.Shard(k).DeclareBlockage(area, blockage);  // free again on every shard
+      farm.Shard(k).RemoveBlockage(blockage);
+      Print("blockage.free." + std::to_string(k), "yes");
+    }
     // The same addresses in another order: every shard refuses at connect.
     ec::Topology swapped = topology;
     std::swap(swapped.addresses[0], swapped.addresses[1]);

@@ -36,6 +36,66 @@ pb::DeckInfo ShardedClient::LoadDeck(const std::string& toml) {
   return info;
 }
 
+namespace {
+
+std::string ShardList(const std::vector<std::size_t>& shards) {
+  std::string out;
+  for (std::size_t k : shards) out += (out.empty() ? "" : ", ") + std::string("shard ") + std::to_string(k);
+  return out;
+}
+
+}  // namespace
+
+std::uint64_t ShardedClient::DeclareBlockage(const pb::Shape& area) {
+  const std::uint64_t id = shards_[0]->DeclareBlockage(area);
+  for (std::size_t k = 1; k < shards_.size(); ++k) {
+    try {
+      shards_[k]->DeclareBlockage(area, id);
+    } catch (const ServiceError& cause) {
+      Removal undo = RemoveFromShards(id, k);
+      const bool lost = cause.code() == grpc::StatusCode::UNAVAILABLE;
+      if (undo.left.empty() && !lost) throw;
+      std::string where = ShardList(undo.left);
+      if (lost) where += (where.empty() ? "" : ", ") + std::string("shard ") + std::to_string(k) + " (reply lost)";
+      throw ServiceError(cause.code(),
+                         "declaring blockage " + std::to_string(id) + " failed on shard " + std::to_string(k) +
+                             " (" + cause.what() + ") and it may still be held by " + where +
+                             "; RemoveBlockage(" + std::to_string(id) + ") removes it",
+                         "blockage_id");
+    }
+  }
+  return id;
+}
+
+void ShardedClient::RemoveBlockage(std::uint64_t blockage_id) {
+  Removal removal = RemoveFromShards(blockage_id, shards_.size());
+  if (removal.failure) {
+    throw ServiceError(removal.failure->code(),
+                       "blockage " + std::to_string(blockage_id) + " may still be held by " +
+                           ShardList(removal.left) + " (" + removal.failure->what() + ")",
+                       "blockage_id");
+  }
+  if (!removal.found) {
+    throw ServiceError(grpc::StatusCode::NOT_FOUND, "no shard holds blockage " + std::to_string(blockage_id),
+                       "blockage_id");
+  }
+}
+
+ShardedClient::Removal ShardedClient::RemoveFromShards(std::uint64_t blockage_id, std::size_t count) {
+  Removal out;
+  for (std::size_t k = 0; k < count; ++k) {
+    try {
+      shards_[k]->RemoveBlockage(blockage_id);
+      out.found = true;
+    } catch (const ServiceError& error) {
+      if (error.code() == grpc::StatusCode::NOT_FOUND) continue;  // removed already
+      out.left.push_back(k);
+      if (!out.failure) out.failure = std::make_unique<ServiceError>(error);
+    }
+  }
+  return out;
+}
+
 std::vector<pb::NetReport> ShardedClient::CheckAll(bool violations_only) {
   std::vector<pb::NetReport> reports;
   pb::CheckAllRequest request;

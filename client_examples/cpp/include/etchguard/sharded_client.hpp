@@ -97,6 +97,18 @@ class ShardedClient {
   }
   pb::NetReport Check(const std::string& net) { return For(net).Check(net); }
 
+  // An area no new shape may use, declared on every shard so advice on any net treats
+  // it as blocked; its id. Shard 0 picks the id and every other shard is asked for the
+  // same one, so any farm client can RemoveBlockage it. A shard's refusal is undone on
+  // the shards before it and rethrown; when a shard may still hold it (its reply lost,
+  // or an undo failed) the ServiceError (field "blockage_id") names the shards and the
+  // id RemoveBlockage takes to clear them.
+  std::uint64_t DeclareBlockage(const pb::Shape& area);
+  // Removes it from every shard (a shard's NOT_FOUND: removed already); NOT_FOUND when
+  // no shard held it; a shard that refuses or cannot be reached is named, and calling
+  // again retries.
+  void RemoveBlockage(std::uint64_t blockage_id);
+
   // Every shard's reports (shard 0's first, then shard 1's, ...).
   std::vector<pb::NetReport> CheckAll(bool violations_only = false);
   // Counts summed over the shards, the shortest uptime, shard 0's deck and version.
@@ -105,6 +117,15 @@ class ShardedClient {
   ShardedSession OpenSession() { return ShardedSession(*this); }
 
  private:
+  // Removes the blockage from shards [0, count): the shards that may still hold it, the
+  // first failure (set when any), and whether any shard removed it.
+  struct Removal {
+    std::vector<std::size_t> left;
+    std::unique_ptr<ServiceError> failure;
+    bool found = false;
+  };
+  Removal RemoveFromShards(std::uint64_t blockage_id, std::size_t count);
+
   Topology topology_;
   std::chrono::milliseconds timeout_;
   std::vector<std::unique_ptr<Client>> shards_;
