@@ -26,6 +26,7 @@ from ._budget import Budget
 from ._changelog import (
     BlockageDeclared,
     BlockageRemoved,
+    Change,
     ChangeLog,
     DeckLoaded,
     EngineImage,
@@ -148,7 +149,7 @@ class Engine:
                 blockages = self._obstacles.moved_blockages(old, deck) if old is not None else {}
                 compiled = compile_deck(deck)
                 cores = [_core_net(compiled, pins, shapes) for pins, shapes, _ in moved]
-                self._record(DeckLoaded(deck, text))  # logged first: a refused log changes nothing
+                self._record(DeckLoaded, deck, text)  # logged first: a refused log changes nothing
                 self._deck, self._compiled = deck, compiled
                 for net, (pins, _shapes, layer_range), core in zip(nets, moved, cores):
                     net.pins, net.layer_range, net.core = pins, layer_range, core
@@ -207,7 +208,7 @@ class Engine:
             self._nets[name] = net
             self._obstacles.add_net_items(name, _pin_items(net.pins))
         try:
-            self._record(NetOpened(name, net.pins, net.layer_range, tuple(shapes), 1))
+            self._record(NetOpened, name, net.pins, net.layer_range, tuple(shapes), 1)
         except BaseException:
             net.closed = True  # a caller that found it meanwhile gets NOT_FOUND
             net.lock.release()
@@ -229,7 +230,7 @@ class Engine:
             with net.lock:  # registry -> net: no reopen of the name is logged before this close
                 if net.closed:  # an open whose log entry was refused, being taken back
                     raise NotFoundError(f"no open net {name!r}", "net")
-                self._record(NetClosed(name))  # logged first: a refused log changes nothing
+                self._record(NetClosed, name)  # logged first: a refused log changes nothing
                 del self._nets[name]
                 self._obstacles.drop_net(name)
                 net.closed = True
@@ -264,7 +265,7 @@ class Engine:
                 raise NotFoundError(f"no open net {name!r}", "net")
             self._check_shapes(shapes, net.core.shape_count)
             if shapes:  # logged first: a refused log changes nothing
-                self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
+                self._record(ShapesCommitted, name, tuple(shapes), net.next_id)
             return self._commit_locked(net, shapes)
 
     def commit_if_legal(self, name: str, shapes: Sequence[Shape]) -> tuple[Score, list[int]]:
@@ -285,7 +286,7 @@ class Engine:
             self.counters["scores"] += 1
             if not verdict.legal:
                 return verdict, []
-            self._record(ShapesCommitted(name, tuple(shapes), net.next_id))
+            self._record(ShapesCommitted, name, tuple(shapes), net.next_id)
             return verdict, self._commit_locked(net, shapes)
 
     def _commit_locked(self, net: _Net, shapes: Sequence[Shape]) -> list[int]:
@@ -309,7 +310,7 @@ class Engine:
                                         else f"net {name!r} has no shape {sid}", f"shape_ids[{i}]")
                 seen.add(sid)
             if ids:  # logged first: a refused log changes nothing
-                self._record(ShapesRemoved(name, tuple(ids)))
+                self._record(ShapesRemoved, name, tuple(ids))
             net.core.remove(ids)
             self._obstacles.remove_net_items(name, [_shape_key(sid) for sid in ids])
             self.counters["removals"] += len(ids)
@@ -479,14 +480,14 @@ class Engine:
             raise InputError(f"a blockage id is 1 .. {MAX_BLOCKAGE_ID}, not {blockage_id!r}", "blockage_id")
         with self._registry:  # ordered against deck loads and snapshots in the change log
             bid = self._obstacles.blockage_id_for(blockage_id)
-            self._record(BlockageDeclared(bid, layer, checked))
+            self._record(BlockageDeclared, bid, layer, checked)
             return self._obstacles.add_blockage(layer, checked, bid)
 
     def remove_blockage(self, blockage_id: int) -> None:
         with self._registry:
             if blockage_id not in self._obstacles.blockages:
                 raise NotFoundError(f"no blockage {blockage_id}", "blockage_id")
-            self._record(BlockageRemoved(blockage_id))
+            self._record(BlockageRemoved, blockage_id)
             self._obstacles.remove_blockage(blockage_id)
 
     def advise(self, name: str, layer: int, x1: int, y1: int, x2: int, y2: int,
@@ -516,13 +517,15 @@ class Engine:
 
     # -- durability: change-log hook and whole-state images ----------------------------
 
-    def _record(self, change) -> None:
-        """Hand a change to the change log, if there is one, after it was validated and
-        before it is applied: a log that refuses it (ChangeLogError) leaves the engine
-        as it was. The caller holds the lock that ordered the change (see _changelog)."""
+    def _record(self, kind: Callable[..., Change], *fields: object) -> None:
+        """Hand a change (``kind(*fields)``) to the change log, if there is one, after it
+        was validated and before it is applied: a log that refuses it (ChangeLogError)
+        leaves the engine as it was. The caller holds the lock that ordered the change
+        (see _changelog). The record is built only when a log takes it: a commit
+        without a journal does not pay for it."""
         log = self.changelog
         if log is not None:
-            log.record(change)
+            log.record(kind(*fields))
 
     def export_state(self, mark: Callable[[], _Mark]) -> tuple[EngineImage, _Mark]:
         """An image of everything held, and ``mark()`` called at the same instant (with

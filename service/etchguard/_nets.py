@@ -369,7 +369,9 @@ def via_shapes(deck: Deck, cut_layer: int, x: int, y: int) -> list[Shape]:
 
 
 def _fast_rect_ok(r: object) -> bool:
-    return (type(r) is tuple and len(r) == 4 and all(type(v) is int for v in r)
+    # spelled out, not all(...) over a generator: this runs for every shape committed
+    return (type(r) is tuple and len(r) == 4
+            and type(r[0]) is int and type(r[1]) is int and type(r[2]) is int and type(r[3]) is int
             and r[0] < r[2] and r[1] < r[3]
             and r[0] > -COORD_LIMIT and r[2] < COORD_LIMIT
             and r[1] > -COORD_LIMIT and r[3] < COORD_LIMIT)
