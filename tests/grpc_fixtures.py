@@ -9,42 +9,16 @@ sends SIGTERM and waits. The ``server`` and ``client`` fixtures are in conftest.
 
 from __future__ import annotations
 
-import random
-import socket
 from collections.abc import Sequence
 from pathlib import Path
 
 from etchguard.client import Client, pin, rect, run
 from etchguard.server.launch import Launched, launch
+from etchguard.server.supervisor import free_port  # noqa: F401 - for the tests that need one
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO_DECK = REPO / "service" / "etchguard" / "data" / "lumen-6m.toml"
 START_TIMEOUT_S = 20.0
-
-
-def free_port() -> int:
-    """A loopback port free now, for a process that must be told its port beforehand.
-
-    Taken below the kernel's ephemeral range: port 0 binds and outgoing connections (every
-    other test server, client and the tests running beside this one) draw from that range,
-    so a port found free there can be taken before the process binds it; below it only a
-    process asking for that very port can."""
-    low = _ephemeral_low()
-    for port in random.sample(range(max(1024, low - 12000), low), 200):
-        with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-            try:
-                s.bind(("127.0.0.1", port))
-            except OSError:
-                continue
-            return port
-    raise RuntimeError("no free loopback port below the ephemeral range")
-
-
-def _ephemeral_low() -> int:
-    try:
-        return int(Path("/proc/sys/net/ipv4/ip_local_port_range").read_text().split()[0])
-    except (OSError, ValueError, IndexError):
-        return 32768  # Linux's default
 
 
 class ServerProcess(Launched):

@@ -200,3 +200,14 @@ def test_bad_topology_or_shard_options_exit_2_naming_file_line_and_field(tmp_pat
         done = subprocess.run(serve + extra, capture_output=True, text=True, timeout=60)
         assert done.returncode == 2, done.stderr
         assert expected in done.stderr, done.stderr
+
+
+def test_a_farm_on_port_0_takes_its_shards_ports_below_the_ephemeral_range(farm):
+    """A supervised farm must name every shard's port before the shards start (the
+    topology file lists them all), so it takes them where neither port-0 binds nor
+    outgoing connections draw from (Linux's ip_local_port_range), unless none is free."""
+    from etchguard.server.supervisor import _ephemeral_low, free_port
+
+    low = _ephemeral_low()
+    assert all(int(a.rsplit(":", 1)[1]) < low for a in farm.addresses), farm.addresses
+    assert 1024 <= free_port() < low

@@ -5,7 +5,8 @@ reads, starts each shard as ``etchguard serve --topology FILE --shard-index K`` 
 the supervisor's own options, and watches them:
 
 * **Addresses.** ``--listen HOST:PORT`` gives shard k ``HOST:PORT+k`` (port 0: a free
-  port per shard, found when the supervisor starts); ``unix:PATH`` gives ``PATH``
+  port per shard, found when the supervisor starts, below the ephemeral range: see
+  ``free_port``); ``unix:PATH`` gives ``PATH``
   with ``{shard}`` replaced by k, or ``PATH-k`` when it has none.
 * **State.** ``--state-dir DIR`` gives shard k its own journal and snapshots in
   ``DIR/shard-k``; a shard that dies (a crash, kill -9) is started again on the same
@@ -30,6 +31,7 @@ from __future__ import annotations
 import json
 import logging
 import os
+import random
 import signal
 import socket
 import subprocess
@@ -72,10 +74,33 @@ class Plan:
     topology_path: Path
 
 
-def _free_port(host: str = "127.0.0.1") -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+def free_port(host: str = "127.0.0.1") -> int:
+    """A port free on ``host`` now, for a process that must be told its port before it
+    starts (a shard: every shard reads the farm's topology, all addresses, at start).
+
+    Taken at random below the kernel's ephemeral range when it can be: port 0 binds and
+    outgoing connections draw from that range, so a port found free there can be taken
+    by anyone before the shard binds it; below it only a process asking for that very
+    port can. Else (no free port there) one the kernel picks."""
+    low = _ephemeral_low()
+    family = socket.AF_INET6 if ":" in host else socket.AF_INET
+    for port in random.sample(range(max(1024, low - 12000), low), min(200, max(0, low - 1024))):
+        with socket.socket(family, socket.SOCK_STREAM) as s:
+            try:
+                s.bind((host, port))
+            except OSError:
+                continue
+            return port
+    with socket.socket(family, socket.SOCK_STREAM) as s:
         s.bind((host, 0))
         return s.getsockname()[1]
+
+
+def _ephemeral_low() -> int:
+    try:
+        return int(Path("/proc/sys/net/ipv4/ip_local_port_range").read_text().split()[0])
+    except (OSError, ValueError, IndexError):
+        return 32768  # Linux's default
 
 
 def shard_address(listen: str, k: int) -> str:
@@ -86,7 +111,7 @@ def shard_address(listen: str, k: int) -> str:
     if not sep or not port.isdigit():
         raise ServeError(f"{listen!r} is not HOST:PORT or unix:PATH", "listen")
     if int(port) == 0:
-        return f"{host}:{_free_port(host.strip('[]') or '127.0.0.1')}"
+        return f"{host}:{free_port(host.strip('[]') or '127.0.0.1')}"
     if int(port) + k > 65535:
         raise ServeError(f"shard {k} would need port {int(port) + k}", "listen")
     return f"{host}:{int(port) + k}"
@@ -105,7 +130,7 @@ def plan(config: ServerConfig, shards: int, topology_out: Path | None) -> Plan:
         raise ServeError(f"{config.listen[0]!r} gives two shards the same address", "listen")
     path = topology_out or (config.state_dir / "topology" if config.state_dir else Path("etchguard.topology"))
     return Plan([ShardPlan(k, addresses[k], config.state_dir / f"shard-{k}" if config.state_dir else None,
-                           _free_port() if config.metrics_port is not None else None) for k in range(shards)],
+                           free_port() if config.metrics_port is not None else None) for k in range(shards)],
                 Topology(tuple(addresses)), path)
 
 
