@@ -21,7 +21,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from bench import batch_bench, engine_bench, inprocess_bench  # noqa: E402
+from bench import batch_bench, budget_bench, engine_bench, inprocess_bench  # noqa: E402
 from bench.__main__ import discover  # noqa: E402
 from bench.netgen import (bench_deck, default_gate_count, extension_candidates, generate_net,  # noqa: E402
                           via_run_candidates)
@@ -183,6 +183,16 @@ def test_quick_inprocess_bench_builds_runs_and_agrees_with_the_engine(capsys):
         assert r["agree"] == 1.0
         assert 0 < r["cpp_p50_us"] <= r["cpp_p99_us"]
         assert r["cpp_batch_us"] > 0 and r["python_p50_us"] > 0
+
+
+def test_quick_budget_bench_agrees_with_the_what_if(capsys):
+    """Every covered candidate's local cost equals the in-process what-if's (the bench
+    exits non-zero otherwise), in Python and, timed, in the C++ client."""
+    assert budget_bench.main(["--quick"]) == 0
+    out = capsys.readouterr().out
+    assert "local cost != what-if cost: 0" in out
+    for line in ("Python LocalBudget.evaluate", "in-process what-if (verdict)", "C++ LocalBudget::Evaluate"):
+        assert line in out
 
 
 def test_bench_runner_finds_the_engine_bench_first():

@@ -7,9 +7,12 @@
 //   budget NET LAYER X Y                  a new budget at a point (asked at the first cand)
 //   common LAYER XLO YLO XHI YHI          a shape of the budget's common part
 //   cand LAYER XLO YLO XHI YHI [...]      a candidate of one or more rectangle shapes
+//   repeat N                              evaluate the last candidate N times more
 // Output, one line per cand: "declined", or "covered" and the figures
 // worst_change_utilization worst_utilization legal breaks_limit cost added_area_um2
-// (doubles with 17 significant digits). Exit status: 0 done, 1 a call failed.
+// (doubles with 17 significant digits); per repeat: "timed NS", nanoseconds per
+// evaluation (for bench.budget_bench). Exit status: 0 done, 1 a call failed.
+#include <chrono>
 #include <cstdio>
 #include <exception>
 #include <iostream>
@@ -39,6 +42,7 @@ int Run(const std::string& address) {
   }
   pb::BudgetRequest request;
   std::unique_ptr<eg::LocalBudget> budget;
+  std::vector<pb::Shape> last;
   std::string line;
   while (std::getline(std::cin, line)) {
     std::istringstream in(line);
@@ -59,6 +63,7 @@ int Run(const std::string& address) {
       std::vector<pb::Shape> shapes;
       std::string layer;
       while (in >> layer) shapes.push_back(eg::RectShape(layer, ReadBox(in)));
+      last = shapes;
       const auto score = budget->Evaluate(shapes);
       if (!score) {
         std::printf("declined\n");
@@ -67,6 +72,18 @@ int Run(const std::string& address) {
       std::printf("covered %.17g %.17g %d %d %.17g %.17g\n", score->worst_change_utilization,
                   score->worst_utilization, score->legal ? 1 : 0, score->breaks_limit ? 1 : 0, score->cost,
                   score->added_area_um2);
+    } else if (what == "repeat" && budget) {
+      long n = 0;
+      in >> n;
+      double sink = 0.0;  // the figures are used, so the evaluations are not optimized away
+      const auto t0 = std::chrono::steady_clock::now();
+      for (long i = 0; i < n; ++i) {
+        const auto score = budget->Evaluate(last);
+        if (score) sink += score->cost;
+      }
+      const auto t1 = std::chrono::steady_clock::now();
+      const double ns = std::chrono::duration<double, std::nano>(t1 - t0).count();
+      std::printf("timed %.3f %d\n", n > 0 ? ns / static_cast<double>(n) : 0.0, sink >= 0.0 ? 1 : 0);
     }
   }
   return 0;

@@ -21,16 +21,16 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from typing import NamedTuple
 
-from ._geometry import Rect, edge_touch, overlap, union_measures
+from ._geometry import Rect, edge_touch, union_measures
 from ._ratios import is_legal
 from .v1 import etchguard_pb2 as pb
 
 
-@dataclass(frozen=True)
-class LocalScore:
-    """The service's ScoreReply figures for common + the candidate (no per-ratio detail)."""
+class LocalScore(NamedTuple):
+    """The service's ScoreReply figures for common + the candidate (no per-ratio detail).
+    A named tuple: a router builds one per candidate priced."""
 
     worst_change_utilization: float
     worst_utilization: float
@@ -42,6 +42,29 @@ class LocalScore:
 
 def _rect(msg: pb.Rect) -> Rect:
     return (msg.xlo, msg.ylo, msg.xhi, msg.yhi)
+
+
+def _touches_any(r: Rect, rects: Sequence[Rect]) -> bool:
+    """``edge_touch(r, o)`` for any o, spelled out: a router calls this per candidate."""
+    x0, y0, x1, y1 = r
+    for o in rects:
+        ix = (x1 if x1 < o[2] else o[2]) - (x0 if x0 > o[0] else o[0])
+        if ix < 0:
+            continue
+        iy = (y1 if y1 < o[3] else o[3]) - (y0 if y0 > o[1] else o[1])
+        if iy >= 0 and (ix > 0 or iy > 0):
+            return True
+    return False
+
+
+def _overlaps_any(r: Rect, rects: Sequence[Rect]) -> bool:
+    """``overlap(r, o)`` for any o, spelled out."""
+    x0, y0, x1, y1 = r
+    for o in rects:
+        if (x1 if x1 < o[2] else o[2]) > (x0 if x0 > o[0] else o[0]) and \
+                (y1 if y1 < o[3] else o[3]) > (y0 if y0 > o[1] else o[1]):
+            return True
+    return False
 
 
 def _utilization(ratio: float, limit: float) -> float:
@@ -90,10 +113,10 @@ class LocalBudget:
         for layer, r in shapes:
             if layer != self.layer or not (wx0 <= r[0] and wy0 <= r[1] and r[2] <= wx1 and r[3] <= wy1):
                 return False
-            if any(edge_touch(r, f) for f in self.same_layer) or any(overlap(r, f) for f in self.other_layer):
+            if _touches_any(r, self.same_layer) or _overlaps_any(r, self.other_layer):
                 return False
             rects.append(r)
-        joined = [any(edge_touch(r, o) for o in self.connects) for r in rects]
+        joined = [_touches_any(r, self.connects) for r in rects]
         grew = True
         while grew and not all(joined):
             grew = False
@@ -105,8 +128,12 @@ class LocalBudget:
     def added(self, rects: Sequence[Rect]) -> tuple[int, int]:
         """(area DBU^2, perimeter DBU) the rectangles add to the component's union on
         the layer."""
-        near = [o for o in self.own if any(o[0] <= r[2] and r[0] <= o[2] and o[1] <= r[3] and r[1] <= o[3]
-                                           for r in rects)]
+        if len(rects) == 1:
+            x0, y0, x1, y1 = rects[0]
+            near = [o for o in self.own if o[0] <= x1 and x0 <= o[2] and o[1] <= y1 and y0 <= o[3]]
+        else:
+            near = [o for o in self.own if any(o[0] <= r[2] and r[0] <= o[2] and o[1] <= r[3] and r[1] <= o[3]
+                                               for r in rects)]
         if len(rects) == 1 and len(near) <= 1:  # by inclusion-exclusion, as the service does
             x0, y0, x1, y1 = rects[0]
             area, perimeter = (x1 - x0) * (y1 - y0), 2 * ((x1 - x0) + (y1 - y0))
@@ -134,23 +161,30 @@ class LocalBudget:
         ``perimeter_dbu`` of union perimeter on the layer."""
         a = area_dbu2 * self.scale_area
         p = perimeter_dbu * self.scale_length
-        values = [self._term(i, a, p) for i in range(len(self.terms))]
-        moved = {step for term, spent, floor, held, step in self.watches
-                 if (floor if term < 0 else max(floor, spent + values[term])) != held}
+        values = [max(0.0, factor * (conductor + per_area * a + per_perimeter * p) - credit) / gate
+                  for conductor, per_area, per_perimeter, factor, credit, gate in self.terms]
+        moved = set()
+        for term, spent, floor, held, step in self.watches:
+            if term >= 0:
+                grown = spent + values[term]
+                if grown > floor:
+                    floor = grown
+            if floor != held:
+                moved.add(step)
         change, worst = self.fixed, self.rest
         for term, spent, floor, limit, always, step in self.ratios:
-            ratio = floor if term < 0 else max(floor, spent + values[term])
-            u = _utilization(ratio, limit)
+            ratio = floor
+            if term >= 0:
+                grown = spent + values[term]
+                if grown > floor:
+                    ratio = grown
+            u = ratio / limit if limit > 0 else _utilization(ratio, limit)
             if u > worst:
                 worst = u
             if u > change and (always or step in moved):
                 change = u
         return LocalScore(change, worst, is_legal(worst), not is_legal(change),
                           self.cost(change), self.common_added + a)
-
-    def _term(self, i: int, a: float, p: float) -> float:
-        conductor, per_area, per_perimeter, factor, credit, gate = self.terms[i]
-        return max(0.0, factor * (conductor + per_area * a + per_perimeter * p) - credit) / gate
 
     def cost(self, u: float) -> float:
         """The server's router cost at utilization u (its CostCurve)."""
