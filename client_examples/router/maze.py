@@ -125,6 +125,14 @@ class Costs:
     # the same wirelength and 4 fewer vias, and one more legal path found (n139); 3.0
     # expanded more in all (its paths changed what later nets met) for 3 more vias.
     repriced_greed: float = 2.0
+    # ... and its own price of a via (um of wire): a path that climbs to keep a gate's
+    # low-layer metal under its limit adds cuts the plain path did not need, so the
+    # priced search counts them dearer and takes, among the legal paths within the
+    # detour, one that climbs with fewer cuts. On blk_r (aware against blind): 2 um
+    # (the plain search's) +31 vias (+1.4%) and wirelength +0.30%; 3 um +18 vias and
+    # +0.44%; 4 um +3 vias (+0.13%) and +0.44%, with 0.25 million more expansions in
+    # all (one sink's priced search ran to its ceiling and its plain path took a diode).
+    repriced_via: float = 4.0
 
 
 @dataclass

@@ -414,8 +414,12 @@ class Router:
         within = None
         if plain is not None:
             budget = min(budget, max(c.repriced_floor, int(c.repriced_effort * plain.expanded)))
-            within = plain.cost + max(c.detour_um, c.detour_share * plain.cost)
-            c = replace(c, greed=c.repriced_greed)
+            # the detour bound is taken on the plain path costed as the priced search
+            # costs it (its vias at the priced search's price)
+            vias = sum(1 for item in plain.items or () if item[0] == "via")
+            base = plain.cost + (c.repriced_via - c.via) * vias
+            within = base + max(c.detour_um, c.detour_share * base)
+            c = replace(c, greed=c.repriced_greed, via=c.repriced_via)
         found = search(g, self.occ, name, sources, route.tree, c, pricer, soft, budget, within)
         pricer.drain()
         self.stats.scored += found.scored
