@@ -103,11 +103,13 @@ class Costs:
     scored_floor: int = 40_000
     # The screened aware mode searches a sink with prices only when its plain path
     # breaks a limit, and keeps that path (for the advice repair) when the priced search
-    # runs out: its budget stops here. On blk_r most priced searches that found a path
-    # took 4 000-36 000 expansions, two 135 000 and 219 000; two found none within
-    # 149 000 and 318 000. At 60 000 one net stayed illegal (its path was cut off and
-    # the advice could not repair the plain one).
-    repriced_ceiling: int = 150_000
+    # runs out: its budget stops here. On blk_r, with the weight and via price below,
+    # the priced searches that found a path took 4 000-19 000 expansions; one (n231)
+    # found none within 150 000 and its plain path took a diode. At 60 000 every net
+    # ends legal with the same paths, 90 000 expansions fewer; at 30 000 one stays
+    # illegal. (With the plain search's weight and via price, legal paths took up to
+    # 135 000 and 60 000 left a net illegal.)
+    repriced_ceiling: int = 60_000
     # ... and its effort follows the plain search's: at most `repriced_effort` times the
     # expansions the plain search took (at least `repriced_floor`). On blk_r the priced
     # searches that found a legal path took 1.0-2.9 times the plain search's expansions.

@@ -378,7 +378,7 @@ class Router:
             return
         if plain.expanded > self.costs.repriced_ceiling:
             # A priced search expands at least about what the plain one did (on blk_r
-            # those that found a legal path took 1.0-2.9 times as many), so past the
+            # those that found a legal path took 1.0-3.1 times as many), so past the
             # ceiling it would run out: the plain path goes straight to the repair.
             self.stats.repriced.append((route.data.name, plain.expanded, round(plain.cost, 1), 0,
                                         math.inf, "skipped"))
