@@ -115,8 +115,8 @@ from ._errors import InputError, StoppedError
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
 from ._kinds import LimitedBy, OptionStatus
 from ._nets import Pin, Shape, set_shape_layer, set_shape_rect, via_shapes
-from ._netview import NetView
-from ._obstacles import Conflict, ObstacleIndex
+from ._netview import NetView, trial_diode
+from ._obstacles import Conflict, ObstacleIndex, ObstacleWindow
 from ._ratios import TOLERANCE, is_legal
 from ._results import RatioChange, Score
 
@@ -368,14 +368,15 @@ class _Advisor:
         self._stack_templates: dict[tuple[int, int], list[Shape] | InputError] = {}
         self._end_stacks: dict[tuple[Point, int], list[Shape]] = {}
         self._conflict_memo: dict[tuple[int, Rect], list[Conflict]] = {}
+        self._window: ObstacleWindow | None = None  # made at the first obstacle question
 
     def score(self, shapes: list[Shape], detail: bool = True, extra_pins: Sequence[Pin] = ()) -> Score:
         self._count_one()
         return self.view.score(shapes, detail, extra_pins)
 
-    def excess(self, shapes: list[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
+    def diode_excess(self, shapes: list[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
         self._count_one()
-        return self.view.excess(shapes, extra_pins)
+        return self.view.diode_excess(shapes, pin, diff_area)
 
     def _count_one(self) -> None:
         """An exact score is about to be taken: stop if the caller stopped waiting or
@@ -434,10 +435,23 @@ class _Advisor:
         for s in shapes:
             if (s.layer, s.rect) not in memo:
                 per_layer.setdefault(s.layer, {})[s.rect] = None
+        if not per_layer:
+            return
+        if self._window is None:
+            self._window = self.obstacles.window(self.net, self._region())
         for layer, rects in per_layer.items():
             spacing = self.deck.layers[layer].spacing or 0
-            for rect, hits in zip(rects, self.obstacles.conflicts_many(self.net, layer, list(rects), spacing)):
+            for rect, hits in zip(rects, self._window.conflicts_many(layer, list(rects), spacing)):
                 memo[(layer, rect)] = hits
+
+    def _region(self) -> Rect:
+        """A box holding every shape this advice may propose: the run's centre line
+        widened by the widest wire or via pad of the deck (``_check_room``'s margin)."""
+        req, layers = self.req, self.deck.layers
+        margin = max([req.width] + [l.wire_width or 0 for l in layers]
+                     + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in layers])
+        return (min(req.x1, req.x2) - margin, min(req.y1, req.y2) - margin,
+                max(req.x1, req.x2) + margin, max(req.y1, req.y2) + margin)
 
     # layer hops -----------------------------------------------------------------------
 
@@ -966,9 +980,7 @@ class _DiodeSearch:
         of the contract (whatever its rounding) finds it legal."""
         got = self.seen.get(D)
         if got is None:
-            gate = self.advisor.view.pins[self.pin]
-            diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, D, {})
-            got = self.seen[D] = self.advisor.excess(self.run, [diode])
+            got = self.seen[D] = self.advisor.diode_excess(self.run, self.pin, D)
         return got
 
     def h(self, D: float) -> float:
@@ -1027,8 +1039,7 @@ class _DiodeSearch:
         if h <= 0:
             return self._elsewhere(result)
         # the check that still fails, named: the changes of that trial, scored once more
-        gate = self.advisor.view.pins[self.pin]
-        diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, MAX_DIODE_UM2, {})
+        diode = trial_diode(self.advisor.view.pins[self.pin], MAX_DIODE_UM2)
         changes = self.advisor.score(self.run, True, [diode]).changes
         worst: RatioChange = max(changes, key=lambda c: c.ratio - c.limit)
         return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {worst.kind} {worst.measure} at "
