@@ -319,7 +319,16 @@ _object_new = object.__new__
 
 
 def _placed(deck, shapes: Sequence[Shape]) -> tuple[PlacedShape, ...]:
-    return tuple(PlacedShape(deck.layers[s.layer].name, s.layer, s.rect) for s in shapes)
+    names = [l.name for l in deck.layers]
+    out = []
+    for s in shapes:  # as _corenet makes a Score: the fields at once, not one at a time
+        placed = _object_new(PlacedShape)
+        _set_attr(placed, "__dict__", {"layer": names[s.layer], "step": s.layer, "rect": s.rect})
+        out.append(placed)
+    return tuple(out)
+
+
+_set_attr = object.__setattr__
 
 
 class _Run:
@@ -367,8 +376,10 @@ class _Advisor:
         # Made once per advice, asked many times (see stack, end_stack, conflicts):
         self._stack_templates: dict[tuple[int, int], list[tuple[int, int, int, int, int]] | InputError] = {}
         self._end_stacks: dict[tuple[Point, int], list[Shape]] = {}
+        self._option_shapes: dict[int, list[Shape]] = {}  # target layer -> the option's shapes (one run)
         self._conflict_memo: dict[tuple[int, Rect], list[Conflict]] = {}
         self._window: ObstacleWindow | None = None  # made at the first obstacle question
+        self._contacts: list[tuple[int, ...]] | None = None  # see _contact_layers
 
     def score(self, shapes: list[Shape], detail: bool = True, extra_pins: Sequence[Pin] = ()) -> Score:
         self._count_one()
@@ -499,9 +510,15 @@ class _Advisor:
         return shapes
 
     def option_shapes(self, run: _Run, target: int) -> list[Shape]:
-        return (self.end_stack(run.P, target)
+        """The run moved to ``target`` with its stacks (made once: the obstacle
+        prefetch and the option ask for the same list; nothing changes a list given)."""
+        shapes = self._option_shapes.get(target)
+        if shapes is None:
+            shapes = self._option_shapes[target] = (
+                self.end_stack(run.P, target)
                 + [_shape(target, run_rect(*run.P, *run.F, self.target_width(target)))]
                 + self.end_stack(run.F, target))
+        return shapes
 
     def _option_shapes_if_reachable(self, run: _Run, target: int) -> list[Shape]:
         try:
@@ -568,21 +585,19 @@ class _Advisor:
         at0 = self.jumper_shapes(run, 0, target)
         at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
         end = self.jumper_shapes(run, room, target)
-        layers = self.deck.layers
+        contacts, sign = self._contact_layers(), run.dir
         out = {0, room}
         asked: set[tuple[tuple[int, ...], int, Rect]] = set()  # same edges, layer and sweep: same events
         for s0, s1, s2 in zip(at0, at1, end):
+            if s0 is s1:
+                continue  # the far-end stack, one object at every kept length: nothing moves
             moving = tuple(s0.rect[k] for k in (ax, ax + 2) if s1.rect[k] != s0.rect[k])
             if not moving:
                 continue
             swept = (min(s0.rect[0], s2.rect[0]) - 1, min(s0.rect[1], s2.rect[1]) - 1,
                      max(s0.rect[2], s2.rect[2]) + 1, max(s0.rect[3], s2.rect[3]) + 1)
             coords: set[int] = set()  # the coordinates along the run of what the edges may meet
-            for layer in (s0.layer - 1, s0.layer, s0.layer + 1):
-                if not 0 <= layer < self.steps:
-                    continue
-                if layer != s0.layer and layers[layer].is_routing == layers[s0.layer].is_routing:
-                    continue
+            for layer in contacts[s0.layer]:
                 if (moving, layer, swept) in asked:
                     continue
                 asked.add((moving, layer, swept))
@@ -591,11 +606,22 @@ class _Advisor:
                     coords.add(r[ax + 2])
             for c in coords:
                 for e0 in moving:
-                    base = run.dir * (c - e0)
+                    base = sign * (c - e0)
                     for v in (base - 1, base, base + 1):
                         if 0 <= v <= room:
                             out.add(v)
         return sorted(out)
+
+    def _contact_layers(self) -> list[tuple[int, ...]]:
+        """Per layer: the layers whose elements a shape there may contact (its own, and
+        a cut next to a metal or a metal next to a cut), made once per advice."""
+        if self._contacts is None:
+            layers = self.deck.layers
+            self._contacts = [tuple(other for other in (layer - 1, layer, layer + 1)
+                                    if 0 <= other < self.steps
+                                    and (other == layer or layers[other].is_routing != layers[layer].is_routing))
+                              for layer in range(self.steps)]
+        return self._contacts
 
     def jumper(self, run: _Run | None, target: int | None, as_is: Score) -> JumperAdvice:
         deck = self.deck
