@@ -282,11 +282,17 @@ def _check_room(deck, coords: list[int], width: int) -> None:
     run's centre line."""
     x1, y1, x2, y2 = coords
     checked_rect(run_rect(x1, y1, x2, y2, width), "run")
-    margin = max([width] + [l.wire_width or 0 for l in deck.layers]
-                 + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
+    margin = proposal_margin(deck, width)
     if any(not -COORD_LIMIT + margin < v < COORD_LIMIT - margin for v in coords):
         raise InputError(f"the run comes within {margin} DBU of +-2^62 DBU, the limit of every "
                          "rectangle, and the shapes advice proposes for it would pass it", "run")
+
+
+def proposal_margin(deck, width: int) -> int:
+    """How far past a run's centre line (of ``width``) any shape advice proposes for it
+    may reach: the widest of the run, the deck's wires and its via pads."""
+    return max([width] + [l.wire_width or 0 for l in deck.layers]
+               + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
 
 
 # -- geometry helpers -------------------------------------------------------------------
@@ -457,10 +463,9 @@ class _Advisor:
 
     def _region(self) -> Rect:
         """A box holding every shape this advice may propose: the run's centre line
-        widened by the widest wire or via pad of the deck (``_check_room``'s margin)."""
-        req, layers = self.req, self.deck.layers
-        margin = max([req.width] + [l.wire_width or 0 for l in layers]
-                     + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in layers])
+        widened by ``proposal_margin``."""
+        req = self.req
+        margin = proposal_margin(self.deck, req.width)
         return (min(req.x1, req.x2) - margin, min(req.y1, req.y2) - margin,
                 max(req.x1, req.x2) + margin, max(req.y1, req.y2) + margin)
 
