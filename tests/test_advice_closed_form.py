@@ -189,3 +189,31 @@ def test_one_query_per_layer_finds_what_one_query_per_rect_finds():
         spacing = rng.choice([0, 50, 120])
         assert index.conflicts_many("a", layer, rects, spacing) == [
             index.conflicts("a", layer, r, spacing) for r in rects]
+
+
+def test_a_window_finds_what_the_index_finds():
+    # one tree query per layer over a region, then the exact test: the same conflicts in
+    # the same order as the index's own query, inside the region and (asked of the index)
+    # outside it; entries of the asking net never appear
+    rng = random.Random(8)
+    index = ObstacleIndex(2)
+    index.rebuild(2, [(rng.randrange(2), (x, y, x + rng.randrange(1, 300), y + rng.randrange(1, 300)),
+                       rng.choice(["a", "b", "c", None]), ("shape", i))
+                      for i, (x, y) in enumerate((rng.randrange(0, 5000), rng.randrange(0, 5000))
+                                                 for _ in range(400))],
+                  {1: (0, (100, 100, 400, 400)), 2: (1, (2000, 2000, 2100, 2600))})
+    for _ in range(40):
+        x, y = rng.randrange(0, 4000), rng.randrange(0, 4000)
+        region = (x, y, x + rng.randrange(1, 1500), y + rng.randrange(1, 1500))
+        window = index.window("a", region)
+        for _ in range(5):
+            layer, spacing = rng.randrange(3), rng.choice([0, 50, 120])
+            rects = []
+            for _ in range(rng.randrange(1, 5)):
+                rx = rng.randrange(region[0] - 200, region[2])
+                ry = rng.randrange(region[1] - 200, region[3])
+                rects.append((rx, ry, rx + rng.randrange(1, 300), ry + rng.randrange(1, 300)))
+            got = window.conflicts_many(layer, rects, spacing)
+            assert got == index.conflicts_many("a", layer, rects, spacing)
+            assert all(c.net != "a" for hits in got for c in hits)
+    assert any(index.window("a", (0, 0, 5000, 5000)).conflicts_many(0, [(150, 150, 160, 160)], 0))

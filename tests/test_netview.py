@@ -22,6 +22,7 @@ from shapely.geometry import box
 
 from etchguard import InputError, Pin, Shape, run_rect
 from etchguard._coreview import spec_views
+from etchguard._netview import trial_diode
 from test_advice import net_json
 from test_advice_closed_form import far_side_case
 
@@ -182,3 +183,20 @@ def test_a_kept_build_with_another_diffusion_equals_a_fresh_one(seed):
         trial = Pin(diode.name, diode.layer, diode.rects, {}, area, {})
         fresh = spec_views(deck)(engine.spec("n"))
         assert view.score(run, True, [trial]) == fresh.score(run, True, [trial])
+
+
+@pytest.mark.parametrize("seed", range(CASES))
+def test_diode_excess_is_the_excess_of_the_trial_diode(seed):
+    # the diode search's question, answered by the core in one number, equals the most
+    # ratio - limit over the changes of the detailed score with that trial diode
+    _toml, _deck, _engine, view, run, diode = case(seed)
+    gate = 0
+    for D in (1e-12, diode.diff_area, 0.2, 1e6):
+        got = view.diode_excess(run, gate, D)
+        full = view.score(run, True, [trial_diode(view.pins[gate], D)])
+        assert got == view.excess(run, [trial_diode(view.pins[gate], D)])
+        assert got[0] == max((c.ratio - c.limit for c in full.changes), default=-float("inf"))
+        assert got[1].worst_utilization == full.worst_utilization and got[1].changes == ()
+    with pytest.raises(InputError) as e:
+        view.diode_excess([], gate, 0.1)
+    assert e.value.field == "shapes"

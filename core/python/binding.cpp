@@ -263,6 +263,25 @@ NB_MODULE(_core, m) {
         }
         return score_tuple(sc);
       })
+      // A detailed score reduced to its most_excess: the score's figures as `score`
+      // gives them, its changes replaced by that one number (the changes are not built
+      // as Python objects, which is most of a detailed score's cost).
+      .def("score_excess", [](const Net& net, nb::handle cands,
+                              std::tuple<double, double, double, double, double> costs,
+                              const std::vector<PinTuple>& extra) {
+        std::vector<Shape> shapes = shape_objects(cands);
+        std::vector<PinSpec> pins = pin_specs(extra);
+        CostModel cm{std::get<0>(costs), std::get<1>(costs), std::get<2>(costs), std::get<3>(costs), std::get<4>(costs)};
+        Score sc;
+        double most = 0.0;
+        {
+          nb::gil_scoped_release unlocked;
+          sc = net.score(shapes.data(), shapes.size(), true, cm, pins.data(), pins.size());
+          most = most_excess(sc);
+        }
+        sc.changes.clear();
+        return nb::make_tuple(score_tuple(sc), most);
+      })
       .def("score_batch", [](const Net& net, const nb::ndarray<const int, nb::shape<-1>, nb::c_contig, nb::device::cpu>& layers,
                              const I64Rows& rects, std::optional<I64Col> counts,
                              std::tuple<double, double, double, double, double> costs, F64Out worst_change,

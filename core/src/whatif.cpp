@@ -12,6 +12,7 @@
 // gates outside every group keep their sums. The answer equals a full check after the
 // commit, which the tests hold to an independent shapely + networkx reference.
 #include <algorithm>
+#include <limits>
 #include <stdexcept>
 
 #include "state.hpp"
@@ -430,6 +431,17 @@ void Net::State::record_change(const Entry& e, const std::vector<Entry>& before,
     rc.headroom_length_um = rc.headroom_um2 / (2.0 * layer.thickness_um);
   }
   out.changes.push_back(rc);
+}
+
+double most_excess(const Score& score) {
+  double most = -std::numeric_limits<double>::infinity();
+  bool first = true;
+  for (const RatioChange& c : score.changes) {
+    const double over = c.after.ratio - c.after.limit;
+    if (first || over > most) most = over;
+    first = false;
+  }
+  return most;
 }
 
 Score Net::score(const Shape* shapes, std::size_t n, bool detail, const CostModel& costs,

@@ -3,8 +3,10 @@
 // independent shapely + networkx reference; these hold its own invariants: hand-worked
 // union measures, order-independent sums, add + remove restoring every figure, and a
 // what-if equal to the check after the commit, on random nets.
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
+#include <limits>
 #include <random>
 #include <stdexcept>
 #include <vector>
@@ -222,6 +224,30 @@ ETCHGUARD_TEST(what_if_equals_check_after_the_commit) {
       REQUIRE(net.remove(ids.data(), ids.size()) == Status::Ok);
     }
   }
+}
+
+ETCHGUARD_TEST(most_excess_is_the_largest_ratio_less_limit_of_the_changes) {
+  Score none;
+  CHECK(std::isinf(most_excess(none)) && most_excess(none) < 0);
+  CostModel costs;
+  auto model = compile(demo_deck());
+  Net net(model, {gate_pin(0, {0, 0, 100, 100}, 0.05)});
+  int with_changes = 0, over = 0;
+  for (int c = 0; c < 40; ++c) {  // M1 runs from the gate, from well inside the limits to past them
+    Shape cand{0, {0, 0, 100 + 7000 * i64(c), 100}};
+    Score full = net.score(&cand, 1, true, costs);
+    double want = -std::numeric_limits<double>::infinity();
+    for (const RatioChange& ch : full.changes) want = std::max(want, ch.after.ratio - ch.after.limit);
+    CHECK_EQ(most_excess(full), want);
+    with_changes += full.changes.empty() ? 0 : 1;
+    over += most_excess(full) > 0 ? 1 : 0;
+  }
+  CHECK(over > 0 && over < with_changes);
+  Score first_nan;  // a NaN first change is kept, as the Python search's max keeps it
+  first_nan.changes.resize(2);
+  first_nan.changes[0].after.ratio = std::nan("");
+  first_nan.changes[1].after.ratio = 1.0;
+  CHECK(std::isnan(most_excess(first_nan)));
 }
 
 ETCHGUARD_TEST(in_cell_side_wall_adds_to_the_side_measure) {

@@ -114,9 +114,9 @@ from dataclasses import dataclass, field
 from ._errors import InputError, StoppedError
 from ._geometry import COORD_LIMIT, Rect, checked_rect, run_rect
 from ._kinds import LimitedBy, OptionStatus
-from ._nets import Pin, Shape, via_shapes
-from ._netview import NetView
-from ._obstacles import Conflict, ObstacleIndex
+from ._nets import Pin, Shape, set_shape_layer, set_shape_rect, via_shapes
+from ._netview import NetView, trial_diode
+from ._obstacles import Conflict, ObstacleIndex, ObstacleWindow
 from ._ratios import TOLERANCE, is_legal
 from ._results import RatioChange, Score
 
@@ -282,11 +282,17 @@ def _check_room(deck, coords: list[int], width: int) -> None:
     run's centre line."""
     x1, y1, x2, y2 = coords
     checked_rect(run_rect(x1, y1, x2, y2, width), "run")
-    margin = max([width] + [l.wire_width or 0 for l in deck.layers]
-                 + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
+    margin = proposal_margin(deck, width)
     if any(not -COORD_LIMIT + margin < v < COORD_LIMIT - margin for v in coords):
         raise InputError(f"the run comes within {margin} DBU of +-2^62 DBU, the limit of every "
                          "rectangle, and the shapes advice proposes for it would pass it", "run")
+
+
+def proposal_margin(deck, width: int) -> int:
+    """How far past a run's centre line (of ``width``) any shape advice proposes for it
+    may reach: the widest of the run, the deck's wires and its via pads."""
+    return max([width] + [l.wire_width or 0 for l in deck.layers]
+               + [(l.cut_size or 0) + 2 * (l.enclosure or 0) for l in deck.layers])
 
 
 # -- geometry helpers -------------------------------------------------------------------
@@ -306,8 +312,29 @@ def _cut_count(deck, a: int, b: int) -> int:
     return sum(1 for c in range(lo + 1, hi) if not deck.layers[c].is_routing)
 
 
+def _shape(layer: int, rect: Rect) -> Shape:
+    """``Shape(layer, rect)`` without the frozen dataclass's per-field ``__init__`` (the
+    advice makes a few hundred per answer; see ``set_shape_layer`` in ``_nets``)."""
+    shape = _object_new(Shape)
+    set_shape_layer(shape, layer)
+    set_shape_rect(shape, rect)
+    return shape
+
+
+_object_new = object.__new__
+
+
 def _placed(deck, shapes: Sequence[Shape]) -> tuple[PlacedShape, ...]:
-    return tuple(PlacedShape(deck.layers[s.layer].name, s.layer, s.rect) for s in shapes)
+    names = [l.name for l in deck.layers]
+    out = []
+    for s in shapes:  # as _corenet makes a Score: the fields at once, not one at a time
+        placed = _object_new(PlacedShape)
+        _set_attr(placed, "__dict__", {"layer": names[s.layer], "step": s.layer, "rect": s.rect})
+        out.append(placed)
+    return tuple(out)
+
+
+_set_attr = object.__setattr__
 
 
 class _Run:
@@ -352,14 +379,21 @@ class _Advisor:
         self.scores = 0
         self.should_stop = should_stop
         self.max_scores = max_scores
+        # Made once per advice, asked many times (see stack, end_stack, conflicts):
+        self._stack_templates: dict[tuple[int, int], list[tuple[int, int, int, int, int]] | InputError] = {}
+        self._end_stacks: dict[tuple[Point, int], list[Shape]] = {}
+        self._option_shapes: dict[int, list[Shape]] = {}  # target layer -> the option's shapes (one run)
+        self._conflict_memo: dict[tuple[int, Rect], list[Conflict]] = {}
+        self._window: ObstacleWindow | None = None  # made at the first obstacle question
+        self._contacts: list[tuple[int, ...]] | None = None  # see _contact_layers
 
     def score(self, shapes: list[Shape], detail: bool = True, extra_pins: Sequence[Pin] = ()) -> Score:
         self._count_one()
         return self.view.score(shapes, detail, extra_pins)
 
-    def excess(self, shapes: list[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
+    def diode_excess(self, shapes: list[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
         self._count_one()
-        return self.view.excess(shapes, extra_pins)
+        return self.view.diode_excess(shapes, pin, diff_area)
 
     def _count_one(self) -> None:
         """An exact score is about to be taken: stop if the caller stopped waiting or
@@ -392,23 +426,48 @@ class _Advisor:
     # obstacles ------------------------------------------------------------------------
 
     def conflicts(self, shapes: Sequence[Shape]) -> tuple[Conflict, ...]:
+        """Conflicts of the shapes with other owners, in the order of the shapes (a
+        rectangle listed twice counts once). Each distinct (layer, rectangle) is asked of
+        the index once per advice: the options and the jumper share their end stacks."""
         if self.obstacles is None:
             return ()
-        per_layer: dict[int, dict[Rect, None]] = {}  # distinct rectangles, in order
-        for s in shapes:
-            per_layer.setdefault(s.layer, {})[s.rect] = None
-        found: dict[tuple[int, Rect], list[Conflict]] = {}
-        for layer, rects in per_layer.items():  # one index query per layer
-            spacing = self.deck.layers[layer].spacing or 0
-            for rect, hits in zip(rects, self.obstacles.conflicts_many(self.net, layer, list(rects), spacing)):
-                found[(layer, rect)] = hits
+        self.prefetch_conflicts(shapes)
         out: list[Conflict] = []
         seen: set[tuple[int, Rect]] = set()
-        for s in shapes:  # the order of the shapes, as one query per shape gave it
-            if (s.layer, s.rect) not in seen:
-                seen.add((s.layer, s.rect))
-                out.extend(found[(s.layer, s.rect)])
+        memo = self._conflict_memo
+        for s in shapes:
+            key = (s.layer, s.rect)
+            if key not in seen:
+                seen.add(key)
+                out.extend(memo[key])
         return tuple(out)
+
+    def prefetch_conflicts(self, shapes: Sequence[Shape]) -> None:
+        """Ask the index about every rectangle of ``shapes`` not asked yet, one query per
+        layer (a rectangle's conflicts do not depend on what else is asked with it)."""
+        if self.obstacles is None:
+            return
+        memo = self._conflict_memo
+        per_layer: dict[int, dict[Rect, None]] = {}  # distinct rectangles not asked yet, in order
+        for s in shapes:
+            if (s.layer, s.rect) not in memo:
+                per_layer.setdefault(s.layer, {})[s.rect] = None
+        if not per_layer:
+            return
+        if self._window is None:
+            self._window = self.obstacles.window(self.net, self._region())
+        for layer, rects in per_layer.items():
+            spacing = self.deck.layers[layer].spacing or 0
+            for rect, hits in zip(rects, self._window.conflicts_many(layer, list(rects), spacing)):
+                memo[(layer, rect)] = hits
+
+    def _region(self) -> Rect:
+        """A box holding every shape this advice may propose: the run's centre line
+        widened by ``proposal_margin``."""
+        req = self.req
+        margin = proposal_margin(self.deck, req.width)
+        return (min(req.x1, req.x2) - margin, min(req.y1, req.y2) - margin,
+                max(req.x1, req.x2) + margin, max(req.y1, req.y2) + margin)
 
     # layer hops -----------------------------------------------------------------------
 
@@ -425,12 +484,57 @@ class _Advisor:
     def target_width(self, target: int) -> int:
         return max(self.req.width, self.deck.layers[target].wire_width or 0)
 
+    def stack(self, x: int, y: int, a: int, b: int) -> list[Shape]:
+        """``via_stack`` at (x, y), translated from a template made once per layer pair
+        (a square moves exactly with its centre in integers); refused alike."""
+        key = (a, b) if a <= b else (b, a)
+        template = self._stack_templates.get(key)
+        if template is None:
+            try:
+                template = [(t.layer, *t.rect) for t in via_stack(self.deck, 0, 0, a, b)]
+            except InputError as exc:
+                template = exc
+            self._stack_templates[key] = template
+        if isinstance(template, InputError):
+            raise InputError(template.message, template.field)
+        out = []
+        for layer, x0, y0, x1, y1 in template:  # _shape, inline: a jumper search makes hundreds
+            shape = _object_new(Shape)
+            set_shape_layer(shape, layer)
+            set_shape_rect(shape, (x0 + x, y0 + y, x1 + x, y1 + y))
+            out.append(shape)
+        return out
+
+    def end_stack(self, point: Point, target: int) -> list[Shape]:
+        """The stack between the run's layer and ``target`` at a fixed end of the run
+        (P or F): the same for every option and every jumper length, so made once."""
+        key = (point, target)
+        shapes = self._end_stacks.get(key)
+        if shapes is None:
+            shapes = self._end_stacks[key] = self.stack(*point, self.req.layer, target)
+        return shapes
+
+    def option_shapes(self, run: _Run, target: int) -> list[Shape]:
+        """The run moved to ``target`` with its stacks (made once: the obstacle
+        prefetch and the option ask for the same list; nothing changes a list given)."""
+        shapes = self._option_shapes.get(target)
+        if shapes is None:
+            shapes = self._option_shapes[target] = (
+                self.end_stack(run.P, target)
+                + [_shape(target, run_rect(*run.P, *run.F, self.target_width(target)))]
+                + self.end_stack(run.F, target))
+        return shapes
+
+    def _option_shapes_if_reachable(self, run: _Run, target: int) -> list[Shape]:
+        try:
+            return self.option_shapes(run, target)
+        except InputError:
+            return []  # the option says why when its turn comes
+
     def option(self, run: _Run, target: int) -> LayerOption | str:
         deck = self.deck
         try:
-            shapes = (via_stack(deck, *run.P, self.req.layer, target)
-                      + [Shape(target, run_rect(*run.P, *run.F, self.target_width(target)))]
-                      + via_stack(deck, *run.F, target, self.req.layer))
+            shapes = self.option_shapes(run, target)
         except InputError as exc:
             return f"{deck.layers[target].name} cannot be reached: {exc.message}"
         result = self.score(shapes)
@@ -446,13 +550,13 @@ class _Advisor:
     # jumper ---------------------------------------------------------------------------
 
     def jumper_shapes(self, run: _Run, kept: int, target: int | None) -> list[Shape]:
-        deck, L, w = self.deck, self.req.layer, self.req.width
+        L, w = self.req.layer, self.req.width
         q = run.at(kept)
-        shapes = [Shape(L, run_rect(*run.P, *q, w))]
+        shapes = [_shape(L, run_rect(*run.P, *q, w))]
         if target is not None:
-            shapes += via_stack(deck, *q, L, target)
-            shapes.append(Shape(target, run_rect(*q, *run.F, self.target_width(target))))
-            shapes += via_stack(deck, *run.F, target, L)
+            shapes += self.stack(*q, L, target)
+            shapes.append(_shape(target, run_rect(*q, *run.F, self.target_width(target))))
+            shapes += self.end_stack(run.F, target)
         return shapes
 
     def hop_room(self, run: _Run, target: int | None) -> int:
@@ -462,7 +566,7 @@ class _Advisor:
         if target is None:
             return last
         a = self.jumper_shapes(run, 0, target)
-        fixed = via_stack(self.deck, *run.F, target, self.req.layer)
+        fixed = self.end_stack(run.F, target)
         moving = [a[0]] + a[1:len(a) - 1 - len(fixed)]
         ax, cross = run.axis, 1 - run.axis
         room = last
@@ -486,27 +590,43 @@ class _Advisor:
         at0 = self.jumper_shapes(run, 0, target)
         at1 = self.jumper_shapes(run, 1, target) if room >= 1 else at0
         end = self.jumper_shapes(run, room, target)
-        layers = self.deck.layers
+        contacts, sign = self._contact_layers(), run.dir
         out = {0, room}
+        asked: set[tuple[tuple[int, ...], int, Rect]] = set()  # same edges, layer and sweep: same events
         for s0, s1, s2 in zip(at0, at1, end):
-            moving = [s0.rect[k] for k in (ax, ax + 2) if s1.rect[k] != s0.rect[k]]
+            if s0 is s1:
+                continue  # the far-end stack, one object at every kept length: nothing moves
+            moving = tuple(s0.rect[k] for k in (ax, ax + 2) if s1.rect[k] != s0.rect[k])
             if not moving:
                 continue
             swept = (min(s0.rect[0], s2.rect[0]) - 1, min(s0.rect[1], s2.rect[1]) - 1,
                      max(s0.rect[2], s2.rect[2]) + 1, max(s0.rect[3], s2.rect[3]) + 1)
-            for layer in (s0.layer - 1, s0.layer, s0.layer + 1):
-                if not 0 <= layer < self.steps:
+            coords: set[int] = set()  # the coordinates along the run of what the edges may meet
+            for layer in contacts[s0.layer]:
+                if (moving, layer, swept) in asked:
                     continue
-                if layer != s0.layer and layers[layer].is_routing == layers[s0.layer].is_routing:
-                    continue
+                asked.add((moving, layer, swept))
                 for r in self.view.near(layer, swept):
-                    for c in (r[ax], r[ax + 2]):
-                        for e0 in moving:
-                            base = run.dir * (c - e0)
-                            for v in (base - 1, base, base + 1):
-                                if 0 <= v <= room:
-                                    out.add(v)
+                    coords.add(r[ax])
+                    coords.add(r[ax + 2])
+            for c in coords:
+                for e0 in moving:
+                    base = sign * (c - e0)
+                    for v in (base - 1, base, base + 1):
+                        if 0 <= v <= room:
+                            out.add(v)
         return sorted(out)
+
+    def _contact_layers(self) -> list[tuple[int, ...]]:
+        """Per layer: the layers whose elements a shape there may contact (its own, and
+        a cut next to a metal or a metal next to a cut), made once per advice."""
+        if self._contacts is None:
+            layers = self.deck.layers
+            self._contacts = [tuple(other for other in (layer - 1, layer, layer + 1)
+                                    if 0 <= other < self.steps
+                                    and (other == layer or layers[other].is_routing != layers[layer].is_routing))
+                              for layer in range(self.steps)]
+        return self._contacts
 
     def jumper(self, run: _Run | None, target: int | None, as_is: Score) -> JumperAdvice:
         deck = self.deck
@@ -622,8 +742,11 @@ class _Advisor:
             # are scored nearest first until the first legal free one (that is the
             # layer picked), and not reported.
             lazy = "hop" not in want
+            targets = self.hop_layers()
+            if not lazy:  # every option is checked: ask the index one query per layer for all
+                self.prefetch_conflicts([s for t in targets for s in self._option_shapes_if_reachable(run, t)])
             try:
-                for target in self.hop_layers():
+                for target in targets:
                     opt = self.option(run, target)
                     if isinstance(opt, str):
                         notes.append(opt)
@@ -894,9 +1017,7 @@ class _DiodeSearch:
         of the contract (whatever its rounding) finds it legal."""
         got = self.seen.get(D)
         if got is None:
-            gate = self.advisor.view.pins[self.pin]
-            diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, D, {})
-            got = self.seen[D] = self.advisor.excess(self.run, [diode])
+            got = self.seen[D] = self.advisor.diode_excess(self.run, self.pin, D)
         return got
 
     def h(self, D: float) -> float:
@@ -955,8 +1076,7 @@ class _DiodeSearch:
         if h <= 0:
             return self._elsewhere(result)
         # the check that still fails, named: the changes of that trial, scored once more
-        gate = self.advisor.view.pins[self.pin]
-        diode = Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, MAX_DIODE_UM2, {})
+        diode = trial_diode(self.advisor.view.pins[self.pin], MAX_DIODE_UM2)
         changes = self.advisor.score(self.run, True, [diode]).changes
         worst: RatioChange = max(changes, key=lambda c: c.ratio - c.limit)
         return (f"even {MAX_DIODE_UM2:.0e} um^2 of diffusion leaves {worst.kind} {worst.measure} at "

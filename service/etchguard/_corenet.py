@@ -23,6 +23,7 @@ from ._costs import CostModel
 from ._geometry import Rect
 from ._kinds import Measure, RatioKind
 from ._nets import Pin, Shape
+from ._netview import trial_diode
 from ._ratios import is_legal
 from ._results import CheckResult, Headroom, NetReport, RatioChange, Score
 from ._rules import Deck
@@ -74,13 +75,16 @@ def _pin_tuple(compiled: CompiledDeck, pin: Pin) -> tuple:
 class CoreNet:
     """One net's state in the core, answering in the package's types."""
 
-    __slots__ = ("compiled", "deck", "pins", "net")
+    __slots__ = ("compiled", "deck", "pins", "net", "_trial_diodes")
 
     def __init__(self, compiled: CompiledDeck, pins: Sequence[Pin]) -> None:
         self.compiled = compiled
         self.deck = compiled.deck
         self.pins = tuple(pins)
         self.net = _core.Net(compiled.model, [_pin_tuple(compiled, p) for p in self.pins])
+        # pin index -> the core form of a trial diode there, split around its diffusion
+        # (pins and deck are fixed for the life of a CoreNet, so is this)
+        self._trial_diodes: dict[int, tuple[tuple, tuple]] = {}
 
     # -- changes --------------------------------------------------------------------
 
@@ -118,29 +122,44 @@ class CoreNet:
         over = max((c[4] - c[5] for c in changes), default=-math.inf)  # ratio - limit
         return over, self._score(raw[:6] + ((),), extra_pins)
 
+    def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float,
+                     costs: tuple[float, ...]) -> tuple[float, Score]:
+        """``excess(shapes, [trial diode], costs)`` for the trial diode of ``diff_area``
+        um^2 at pin ``pin`` (see ``trial_diode``), whose core form is made once per pin."""
+        parts = self._trial_diodes.get(pin)
+        if parts is None:
+            whole = _pin_tuple(self.compiled, trial_diode(self.pins[pin], 0.0))
+            parts = self._trial_diodes[pin] = (whole[:4], whole[5:])
+        raw, over = self.net.score_excess(shapes, costs, [parts[0] + (diff_area,) + parts[1]])
+        return over, self._score(raw, ())
+
     def _score(self, raw: tuple, extra_pins: Sequence[Pin]) -> Score:
         added, worst_change, worst, legal, breaks, cost, changes = raw
         names = self.compiled.layer_names
         return _new_score({names[s]: a for s, a in added},
-                          tuple([self._change(c, extra_pins) for c in changes]) if changes else (),
+                          self._changes(changes, extra_pins) if changes else (),
                           worst_change, worst, legal, breaks, cost)
 
-    def _pin_name(self, p: int, extra_pins: Sequence[Pin] = ()) -> str:
-        return self.pins[p].name if p < len(self.pins) else extra_pins[p - len(self.pins)].name
-
-    def _change(self, c: tuple, extra_pins: Sequence[Pin]) -> RatioChange:
-        (step, measure, kind, oxide, ratio, limit, util, gate, has_before, before_ratio,
-         before_util, room, has_length, length) = c
-        change = _object_new(RatioChange)  # as _new_score: one step, not a field at a time
-        _set_attr(change, "__dict__", {
-            "layer": self.compiled.layer_names[step], "step": step, "measure": MEASURES[measure],
-            "kind": KINDS[kind], "oxide": self.compiled.oxides[oxide],
-            "gate": self._pin_name(gate, extra_pins),
-            "before_ratio": before_ratio if has_before else None,
-            "before_utilization": before_util if has_before else None,
-            "ratio": ratio, "limit": limit, "utilization": util, "headroom_um2": room,
-            "headroom_length_um": length if has_length else None})
-        return change
+    def _changes(self, rows: list[tuple], extra_pins: Sequence[Pin]) -> tuple[RatioChange, ...]:
+        """The core's change rows as RatioChange objects, made as _new_score makes a
+        Score (one step, not a field at a time), the lookups bound once per score: a
+        detailed score has tens of rows and this is most of its Python cost."""
+        names, oxides, pins = self.compiled.layer_names, self.compiled.oxides, self.pins
+        held = len(pins)
+        out = []
+        for (step, measure, kind, oxide, ratio, limit, util, gate, has_before, before_ratio,
+             before_util, room, has_length, length) in rows:
+            change = _object_new(RatioChange)
+            _set_attr(change, "__dict__", {
+                "layer": names[step], "step": step, "measure": MEASURES[measure],
+                "kind": KINDS[kind], "oxide": oxides[oxide],
+                "gate": pins[gate].name if gate < held else extra_pins[gate - held].name,
+                "before_ratio": before_ratio if has_before else None,
+                "before_utilization": before_util if has_before else None,
+                "ratio": ratio, "limit": limit, "utilization": util, "headroom_um2": room,
+                "headroom_length_um": length if has_length else None})
+            out.append(change)
+        return tuple(out)
 
     def score_columns(self, layers: np.ndarray, rects: np.ndarray, counts: np.ndarray | None,
                       costs: tuple[float, ...]) -> BatchScores:

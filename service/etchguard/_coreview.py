@@ -42,6 +42,11 @@ class CoreView:
             raise InputError("a what-if needs a shape or a pin", "shapes")
         return self.core.excess(shapes, extra_pins, self.costs)
 
+    def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
+        if not shapes:
+            raise InputError("a trial diode is tried with the run's shapes", "shapes")
+        return self.core.diode_excess(shapes, pin, diff_area, self.costs)
+
     def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
         return self.core.touching(layer, rect)
 

@@ -72,6 +72,12 @@ class NetView(Protocol):
         of every trial diode and needs no more)."""
         ...
 
+    def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
+        """``excess(shapes, [d])`` for the trial diode d of ``diff_area`` um^2 at pin
+        ``pin`` (``trial_diode``: the pin's layer and lowest rectangles, that
+        diffusion, nothing else), the diode search's question; ``shapes`` not empty."""
+        ...
+
     def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
         """Elements that connect to ``rect`` on ``layer`` by the contract's contact rules
         (same layer: a shared area or edge segment; a cut and a routing layer next to
@@ -106,3 +112,9 @@ class NetView(Protocol):
         """Every failing check of every gate-connected component at every step, as held,
         each with the component's member shapes and pins; in no particular order."""
         ...
+
+
+def trial_diode(gate: Pin, diff_area: float) -> Pin:
+    """The diode advice tries at a gate pin: a pin on the gate's layer with the gate's
+    rectangles there, ``diff_area`` um^2 of diffusion and nothing else."""
+    return Pin(f"{gate.name} (trial diode)", gate.layer, gate.lowest_rects(), {}, diff_area, {})

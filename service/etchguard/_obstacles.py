@@ -289,30 +289,68 @@ class ObstacleIndex:
             return []
         if not 0 <= layer < self._layers:
             return [[] for _ in rects]
-        # doubles keep 53 bits: widen by the rounding error of the largest coordinate
-        big = max(abs(v) for r in rects for v in r)
-        margin = spacing + 1 + (big >> 50)
         bound = (min(r[0] for r in rects), min(r[1] for r in rects),
                  max(r[2] for r in rects), max(r[3] for r in rects))
+        entries = self._others_near(net, layer, bound, spacing)
+        return [_conflicts_of(layer, rect, entries, spacing) for rect in rects]
+
+    def window(self, net: str, region: Rect) -> ObstacleWindow:
+        """Conflicts of ``net``'s proposals inside ``region``, one tree query per layer
+        (see ObstacleWindow)."""
+        return ObstacleWindow(self, net, region)
+
+    def _others_near(self, net: str, layer: int, box: Rect, spacing: int) -> list[_Entry]:
+        """Entries of owners other than ``net`` on ``layer`` that a rectangle inside
+        ``box`` may conflict with (a superset: the exact test decides)."""
+        # doubles keep 53 bits: widen by the rounding error of the largest coordinate
+        big = max(abs(v) for v in box)
+        margin = spacing + 1 + (big >> 50)
         with self._lock:
             tree = self._catch_up(layer)
             if tree is None:
-                return [[] for _ in rects]
+                return []
             live = self._by_layer[layer]
-            entries = [live[h] for h in tree.intersection(_box(bound, margin)) if h in live]
-        entries = [e for e in entries if e.net != net]
-        result = []
-        for rect in rects:
-            out = []
-            for e in entries:
-                if conflicts_with(rect, e.rect, spacing):
-                    d = squared_distance(rect, e.rect) ** 0.5
-                    if e.net is None:
-                        bid = e.key if isinstance(e.key, int) else None
-                        out.append(Conflict(layer, rect, e.rect, f"blockage {e.key}", None,
-                                            bid, d, spacing))
-                    else:
-                        out.append(Conflict(layer, rect, e.rect, f"net {e.net}", e.net, None, d, spacing))
-            out.sort(key=lambda c: (c.distance, c.owner, c.rect))
-            result.append(out)
-        return result
+            entries = [live[h] for h in tree.intersection(_box(box, margin)) if h in live]
+        return [e for e in entries if e.net != net]
+
+
+def _conflicts_of(layer: int, rect: Rect, entries: Sequence[_Entry], spacing: int) -> list[Conflict]:
+    """The exact test of one proposed rectangle against candidate entries, nearest first
+    (ties by owner and rectangle, so the order does not depend on the entries' order)."""
+    out = []
+    for e in entries:
+        if conflicts_with(rect, e.rect, spacing):
+            d = squared_distance(rect, e.rect) ** 0.5
+            if e.net is None:
+                bid = e.key if isinstance(e.key, int) else None
+                out.append(Conflict(layer, rect, e.rect, f"blockage {e.key}", None, bid, d, spacing))
+            else:
+                out.append(Conflict(layer, rect, e.rect, f"net {e.net}", e.net, None, d, spacing))
+    out.sort(key=lambda c: (c.distance, c.owner, c.rect))
+    return out
+
+
+class ObstacleWindow:
+    """One net's view of the index around one region, for the length of one question
+    (an advice: every shape it proposes lies near its run). Each layer's entries near
+    the region are read from the tree once, at the first question about that layer,
+    and every rectangle inside the region is tested against them exactly: the answer
+    is ``conflicts_many``'s (a superset of candidates changes nothing after the exact
+    test, and the sort makes the order independent of them). A rectangle outside the
+    region, or a window without a region, asks the index itself. Entries indexed after
+    a layer was read are not seen: the window is a snapshot, as one query would be."""
+
+    def __init__(self, index: ObstacleIndex, net: str, region: Rect | None) -> None:
+        self.index, self.net, self.region = index, net, region
+        self._near: dict[tuple[int, int], list[_Entry]] = {}  # (layer, spacing) -> candidates
+
+    def conflicts_many(self, layer: int, rects: Sequence[Rect], spacing: int) -> list[list[Conflict]]:
+        region = self.region
+        if (region is None or not rects or not 0 <= layer < self.index._layers
+                or not all(region[0] <= r[0] and region[1] <= r[1] and r[2] <= region[2] and r[3] <= region[3]
+                           for r in rects)):
+            return self.index.conflicts_many(self.net, layer, rects, spacing)
+        entries = self._near.get((layer, spacing))
+        if entries is None:
+            entries = self._near[(layer, spacing)] = self.index._others_near(self.net, layer, region, spacing)
+        return [_conflicts_of(layer, rect, entries, spacing) for rect in rects]

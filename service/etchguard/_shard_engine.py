@@ -51,7 +51,7 @@ from ._costs import CostModel
 from ._engine import Engine, Limits
 from ._errors import WrongShardError
 from ._geometry import Rect
-from ._obstacles import LAYER_BITS, Conflict, ObstacleIndex, OwnerKey
+from ._obstacles import LAYER_BITS, Conflict, ObstacleIndex, ObstacleWindow, OwnerKey
 from ._shards import Topology
 
 MAX_CELLS_PER_RECT = 1024
@@ -247,6 +247,11 @@ class ShardObstacleIndex(ObstacleIndex):
         """Conflicts with this shard's nets' metal only (what a peer asks for)."""
         return [[c for c in hits if c.net is not None]
                 for hits in super().conflicts_many(net, layer, rects, spacing)]
+
+    def window(self, net: str, region: Rect) -> ObstacleWindow:
+        # no snapshot of the region: every question goes through conflicts_many below,
+        # which asks the peers too
+        return ObstacleWindow(self, net, None)
 
     def conflicts_many(self, net: str, layer: int, rects: Sequence[Rect], spacing: int
                        ) -> list[list[Conflict]]:

@@ -164,6 +164,12 @@ struct Score {
   std::vector<RatioChange> changes;  // only with detail
 };
 
+// The most by which a changed ratio of a detailed score exceeds its limit (ratio - limit
+// of its changes; -infinity without changes): what repair advice's diode search asks of
+// every trial diode. Taken over the changes in order, a later one replacing the held one
+// only when greater (so a NaN first change stays, as Python's max keeps it).
+double most_excess(const Score& score);
+
 // The worst case per (step, measure, kind, oxide) over the net's components.
 struct Report {
   double worst_utilization = 0.0;
