@@ -364,8 +364,9 @@ class Router:
                          plain: SearchResult) -> None:
         """The screened aware mode: the sink's path was searched without prices, as the
         blind router does; it is scored whole and committed when legal, in one call (the
-        score every aware commit takes, and the commit). Only a path that would break a limit has its sink searched
-        again with prices, and that path goes through the advice repair if needed."""
+        score every aware commit takes, and the commit). Only a path that would break a
+        limit has its sink searched again with prices, and that path goes through the
+        advice repair if needed."""
         rects = [x for item in items for x in self.item_rects(item)]
         if not rects:
             return
