@@ -208,11 +208,25 @@ class ObstacleIndex:
     # -- nets ---------------------------------------------------------------------------
 
     def add_net_items(self, net: str, items: Sequence[tuple[int, Rect, OwnerKey]]) -> None:
-        """Index shapes or pin rectangles of ``net``: (layer, rect, key) each."""
+        """Index shapes or pin rectangles of ``net``: (layer, rect, key) each. (As
+        _add_locked, in one pass for one owner: every commit comes here.)"""
         if not items:
             return
         with self._lock:
-            self._add_locked([(layer, rect, net, key) for layer, rect, key in items])
+            mine = self._by_net.get(net)
+            if mine is None:
+                mine = self._by_net[net] = {}
+            else:
+                for _layer, _rect, key in items:
+                    if key in mine:
+                        raise InputError(f"obstacle {key} of {net} is indexed already", "obstacles")
+            serial, by_layer = self._next_serial, self._by_layer
+            for layer, rect, key in items:
+                eid = (serial << LAYER_BITS) | layer
+                serial += 1
+                by_layer[layer][eid] = _Entry(rect, net, key)
+                mine[key] = eid
+            self._next_serial = serial
 
     def remove_net_items(self, net: str, keys: Iterable[OwnerKey]) -> None:
         with self._lock:
