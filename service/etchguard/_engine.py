@@ -44,7 +44,7 @@ from ._errors import AlreadyExistsError, InputError, LimitExceededError, NoDeckE
 from ._geometry import COORD_LIMIT
 from ._geometry import checked_rect as _checked_rect
 from ._names import check_name
-from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_object
+from ._nets import NetSpec, Pin, Shape, check_pin_object, check_shape_objects
 from ._obstacles import MAX_BLOCKAGE_ID, ObstacleIndex
 from ._obstacles import net_items as _net_items
 from ._obstacles import pin_items as _pin_items
@@ -254,8 +254,7 @@ class Engine:
         if held + len(shapes) > self.limits.max_shapes_per_net:
             raise LimitExceededError(f"{held + len(shapes)} shapes would exceed the limit of "
                                      f"{self.limits.max_shapes_per_net} per net", "shapes")
-        for i, s in enumerate(shapes):
-            check_shape_object(n, s, f"shapes[{i}]")
+        check_shape_objects(n, shapes, "shapes")
 
     def commit(self, name: str, shapes: Sequence[Shape]) -> list[int]:
         """Add shapes to a net; returns their ids, in order."""
@@ -442,8 +441,7 @@ class Engine:
         deck = self.deck
         if isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < len(deck.layers):
             raise InputError(f"unknown layer {layer!r}", "layer")
-        for i, s in enumerate(common):
-            check_shape_object(len(deck.layers), s, f"common[{i}]")
+        check_shape_objects(len(deck.layers), common, "common")
         if len(common) > self.limits.max_shapes_per_net:
             raise LimitExceededError(f"{len(common)} shapes exceed the limit of "
                                      f"{self.limits.max_shapes_per_net} per net", "common")

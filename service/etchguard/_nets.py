@@ -388,6 +388,14 @@ def check_shape_object(steps: int, shape: object, field_name: str) -> None:
         raise InputError("a rectangle is a tuple of four ints", f"{field_name}.rect")
 
 
+def check_shape_objects(steps: int, shapes: Sequence[object], field_name: str) -> None:
+    """``check_shape_object`` on each of ``shapes`` (field ``field_name[i]``); the
+    field's name is made only for a shape refused (every commit comes here)."""
+    for i, s in enumerate(shapes):
+        if not (type(s) is Shape and type(s.layer) is int and 0 <= s.layer < steps and _fast_rect_ok(s.rect)):
+            check_shape_object(steps, s, f"{field_name}[{i}]")
+
+
 def check_pin_object(steps: int, pin: object, field_name: str) -> None:
     """Refuse a Pin object handed to the engine directly that make_pin would refuse."""
     if not isinstance(pin, Pin):
