@@ -200,3 +200,50 @@ def test_a_client_gone_mid_stream_leaves_whole_commits_only():
             assert c.remove("gone/n", list(range(1, first + 1))) == first
     finally:
         server.stop()
+
+
+def test_commit_if_legal_is_one_step_under_two_racing_threads():
+    """Two runs on a gate's M1, each legal alone and illegal together, committed only if
+    legal by two threads at once, 200 times: the score and the commit are one step under
+    the net's lock, so exactly one run is committed and the net stays legal. (Asked as a
+    Score then a Commit, both threads could see the net without the other's run.)"""
+    engine = Engine(DECK)
+    pins = convert.pins(DECK, [GATE], "pins")
+    m1 = next(layer.index for layer in DECK.layers if layer.name == "M1")
+
+    def runs(length: int):
+        return ([convert.shape(DECK, rect("M1", -length, 30, 100, 170), "a")],
+                [convert.shape(DECK, rect("M1", 100, 30, 100 + length, 170), "b")])
+
+    engine.open_net("probe", pins)
+    lo, hi = 200, 4_000_000  # the shortest length at which the two runs together break a limit
+    while hi - lo > 10:
+        mid = (lo + hi) // 2
+        a, b = runs(mid)
+        lo, hi = (mid, hi) if engine.score("probe", a + b, detail=False).legal else (lo, mid)
+    a, b = runs(hi)
+    assert engine.score("probe", a, detail=False).legal and engine.score("probe", b, detail=False).legal
+    assert not engine.score("probe", a + b, detail=False).legal
+    assert a[0].layer == m1
+
+    for i in range(200):
+        name = f"race{i}"
+        engine.open_net(name, pins)
+        start = threading.Barrier(2)
+        results: dict[str, tuple] = {}
+
+        def commit(which: str, shapes) -> None:
+            start.wait()
+            results[which] = engine.commit_if_legal(name, shapes)
+
+        threads = [threading.Thread(target=commit, args=(w, s)) for w, s in (("a", a), ("b", b))]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join(10)
+        committed = [w for w, (_, ids) in results.items() if ids]
+        assert len(results) == 2 and len(committed) == 1, (i, results)
+        loser = "b" if committed == ["a"] else "a"
+        assert not results[loser][0].legal  # it was scored with the winner's run held
+        assert engine.check(name).legal
+        engine.close_net(name)
