@@ -341,7 +341,7 @@ class Engine:
             # them; only a refusal takes the path below, which names the bad field.
             try:
                 with net.lock:
-                    result = net.core.score(candidate, detail, (), self._cost_tuple)
+                    result = net.core.score_shapes(candidate, detail, self._cost_tuple)
             except (TypeError, ValueError, AttributeError):
                 pass
             else:
