@@ -163,15 +163,26 @@ class ObstacleIndex:
             self._watermark[layer] = pending[0]
         return self._trees[layer]
 
-    def _add_locked(self, items: Sequence[tuple[int, Rect, str | None, OwnerKey]]) -> None:
-        for _layer, _rect, net, key in items:
-            if key in self._by_net.get(net, ()):
-                raise InputError(f"obstacle {key} of {net or 'blockages'} is indexed already", "obstacles")
-        for layer, rect, net, key in items:
-            eid = (self._next_serial << LAYER_BITS) | layer
-            self._next_serial += 1
-            self._by_layer[layer][eid] = _Entry(rect, net, key)
-            self._by_net.setdefault(net, {})[key] = eid
+    def _add_locked(self, owner: str | None, items: Sequence[tuple[int, Rect, OwnerKey]]) -> None:
+        """Index (layer, rect, key) items of one owner (a net, or None: blockages), all
+        or none: a key the owner holds already is refused before any is added. One
+        pass, the owner's key table looked up once: every commit comes here."""
+        if not items:
+            return
+        mine = self._by_net.get(owner)
+        if mine is None:
+            mine = self._by_net[owner] = {}
+        else:
+            for _layer, _rect, key in items:
+                if key in mine:
+                    raise InputError(f"obstacle {key} of {owner or 'blockages'} is indexed already", "obstacles")
+        serial, by_layer = self._next_serial, self._by_layer
+        for layer, rect, key in items:
+            eid = (serial << LAYER_BITS) | layer
+            serial += 1
+            by_layer[layer][eid] = _Entry(rect, owner, key)
+            mine[key] = eid
+        self._next_serial = serial
 
     def _drop_locked(self, net: str | None, keys: Iterable[OwnerKey]) -> None:
         mine = self._by_net.get(net)
@@ -202,31 +213,19 @@ class ObstacleIndex:
             self._tombstones = [0] * layers
             self._by_net.clear()
             self.blockages = dict(blockages)
-            self._add_locked(list(items) + [(layer, rect, None, bid)
-                                            for bid, (layer, rect) in blockages.items()])
+            by_owner: dict[str | None, list[tuple[int, Rect, OwnerKey]]] = {}
+            for layer, rect, net, key in items:
+                by_owner.setdefault(net, []).append((layer, rect, key))
+            by_owner.setdefault(None, []).extend((layer, rect, bid) for bid, (layer, rect) in blockages.items())
+            for owner, owned in by_owner.items():
+                self._add_locked(owner, owned)
 
     # -- nets ---------------------------------------------------------------------------
 
     def add_net_items(self, net: str, items: Sequence[tuple[int, Rect, OwnerKey]]) -> None:
-        """Index shapes or pin rectangles of ``net``: (layer, rect, key) each. (As
-        _add_locked, in one pass for one owner: every commit comes here.)"""
-        if not items:
-            return
+        """Index shapes or pin rectangles of ``net``: (layer, rect, key) each."""
         with self._lock:
-            mine = self._by_net.get(net)
-            if mine is None:
-                mine = self._by_net[net] = {}
-            else:
-                for _layer, _rect, key in items:
-                    if key in mine:
-                        raise InputError(f"obstacle {key} of {net} is indexed already", "obstacles")
-            serial, by_layer = self._next_serial, self._by_layer
-            for layer, rect, key in items:
-                eid = (serial << LAYER_BITS) | layer
-                serial += 1
-                by_layer[layer][eid] = _Entry(rect, net, key)
-                mine[key] = eid
-            self._next_serial = serial
+            self._add_locked(net, items)
 
     def remove_net_items(self, net: str, keys: Iterable[OwnerKey]) -> None:
         with self._lock:
@@ -257,7 +256,7 @@ class ObstacleIndex:
         with self._lock:
             if bid in self.blockages:
                 raise AlreadyExistsError(f"blockage {bid} is held already", "blockage_id")
-            self._add_locked([(layer, rect, None, bid)])
+            self._add_locked(None, [(layer, rect, bid)])
             self.blockages[bid] = (layer, rect)
             self._next_blockage = max(self._next_blockage, bid + 1)
             return bid
