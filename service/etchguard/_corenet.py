@@ -118,18 +118,11 @@ class CoreNet:
         """``score`` with no extra pin: the router's what-if, one frame less."""
         return self._score(self.net.score(shapes, detail, costs, _NO_PINS), ())
 
-    def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin],
-               costs: tuple[float, ...]) -> tuple[float, Score]:
-        """(most ratio - limit over the changed ratios, the score without its changes)."""
-        raw = self.net.score(shapes, True, costs, [_pin_tuple(self.compiled, p) for p in extra_pins])
-        changes = raw[6]
-        over = max((c[4] - c[5] for c in changes), default=-math.inf)  # ratio - limit
-        return over, self._score(raw[:6] + ((),), extra_pins)
-
     def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float,
                      costs: tuple[float, ...]) -> tuple[float, Score]:
-        """``excess(shapes, [trial diode], costs)`` for the trial diode of ``diff_area``
-        um^2 at pin ``pin`` (see ``trial_diode``), whose core form is made once per pin."""
+        """(most ratio - limit over the changed ratios, the score without its changes)
+        with the trial diode of ``diff_area`` um^2 at pin ``pin`` (see ``trial_diode``),
+        whose core form is made once per pin."""
         parts = self._trial_diodes.get(pin)
         if parts is None:
             whole = _pin_tuple(self.compiled, trial_diode(self.pins[pin], 0.0))

@@ -37,11 +37,6 @@ class CoreView:
             raise InputError("a what-if needs a shape or a pin", "shapes")
         return self.core.score(shapes, detail, extra_pins, self.costs)
 
-    def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
-        if not shapes and not extra_pins:
-            raise InputError("a what-if needs a shape or a pin", "shapes")
-        return self.core.excess(shapes, extra_pins, self.costs)
-
     def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
         if not shapes:
             raise InputError("a trial diode is tried with the run's shapes", "shapes")

@@ -65,17 +65,13 @@ class NetView(Protocol):
         """
         ...
 
-    def excess(self, shapes: Sequence[Shape], extra_pins: Sequence[Pin]) -> tuple[float, Score]:
-        """The most by which a changed ratio of ``score(shapes, True, extra_pins)``
-        exceeds its limit (ratio - limit; -inf when nothing changes), with that score's
-        verdict and figures but without its list of changes (the diode search asks this
-        of every trial diode and needs no more)."""
-        ...
-
     def diode_excess(self, shapes: Sequence[Shape], pin: int, diff_area: float) -> tuple[float, Score]:
-        """``excess(shapes, [d])`` for the trial diode d of ``diff_area`` um^2 at pin
-        ``pin`` (``trial_diode``: the pin's layer and lowest rectangles, that
-        diffusion, nothing else), the diode search's question; ``shapes`` not empty."""
+        """For the trial diode d of ``diff_area`` um^2 at pin ``pin`` (``trial_diode``:
+        the pin's layer and lowest rectangles, that diffusion, nothing else), the most
+        by which a changed ratio of ``score(shapes, True, [d])`` exceeds its limit
+        (ratio - limit; -inf when nothing changes), with that score's verdict and
+        figures but without its list of changes: the diode search's question, asked of
+        every trial diode; ``shapes`` not empty."""
         ...
 
     def touching(self, layer: int, rect: Rect) -> list[tuple[int, int]]:
